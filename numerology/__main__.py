@@ -1,0 +1,6 @@
+"""``python -m numerology``: the same as the ``numerology`` command."""
+
+from .cli import main
+
+if __name__ == "__main__":
+    raise SystemExit(main())

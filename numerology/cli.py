@@ -1,0 +1,93 @@
+"""Command line: parse options, call the library, hand results to a renderer.
+
+Exit status: 0 = answer found (every rule passes), 1 = valid input but the
+request is infeasible or a rule fails (an answer, with a diagnosis),
+2 = bad input or usage (one line on stderr, nothing written).
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from typing import Sequence
+
+from .errors import InputError
+
+EXIT_OK, EXIT_FAILS, EXIT_BAD_INPUT = 0, 1, 2
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse that reports usage errors as one line (InputError) instead of exiting."""
+
+    def error(self, message):  # noqa: D401 - argparse API
+        raise InputError(self.prog, message)
+
+
+def _parser() -> argparse.ArgumentParser:
+    p = _Parser(prog="numerology", description="Choose and justify OFDM numerologies from channel bounds and goals.")
+    p.add_argument("--version", action="store_true", help="print the version and the bundled tables, then exit")
+    sub = p.add_subparsers(dest="command", parser_class=_Parser, metavar="COMMAND")
+
+    env = sub.add_parser("env", help="derive the channel environment from a requirement file")
+    env.add_argument("requirements", metavar="REQ.toml")
+    _output_options(env, markdown=False, plot=False)
+
+    prof = sub.add_parser("profiles", help="list the built-in power-delay profiles")
+    prof.add_argument("--json", action="store_true", help="machine-readable output")
+
+    pre = sub.add_parser("presets", help="list the published numerologies that serve as ready designs")
+    pre.add_argument("--json", action="store_true", help="machine-readable output")
+
+    chk = sub.add_parser("check", help="evaluate one fixed design against the requirement file")
+    chk.add_argument("requirements", metavar="REQ.toml")
+    _design_options(chk, best=False)
+    chk.add_argument("--speed", metavar="QTY", help="what-if: override the max speed, e.g. \"250 km/h\"")
+    chk.add_argument("--delay", metavar="QTY", help="what-if: override the max excess delay, e.g. \"8 us\"")
+    _output_options(chk)
+
+    sol = sub.add_parser("solve", help="search the design space and rank the feasible numerologies")
+    sol.add_argument("requirements", metavar="REQ.toml")
+    sol.add_argument("--top", type=int, default=5, metavar="N", help="how many designs to show (default 5)")
+    sol.add_argument("--objective", choices=("throughput", "robustness", "overhead", "latency"),
+                     help="ranking objective (default: goals.objective)")
+    _output_options(sol)
+    return p
+
+
+def _design_options(p, best: bool):
+    group = p.add_mutually_exclusive_group(required=True)
+    group.add_argument("--design", metavar="FILE", help="a design file (TOML)")
+    group.add_argument("--preset", metavar="NAME", help="a published numerology (see: numerology presets)")
+    if best:
+        group.add_argument("--best", action="store_true", help="the solver's best design")
+
+
+def _output_options(p, markdown=True, plot=True):
+    p.add_argument("--json", action="store_true", help="machine-readable output on stdout")
+    if markdown:
+        p.add_argument("--markdown", metavar="FILE", help="write a design note (Markdown) to FILE")
+    if plot:
+        p.add_argument("--plot", metavar="FILE", help="write a picture (PNG or SVG) to FILE")
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line; returns the exit status."""
+    argv = list(sys.argv[1:] if argv is None else argv)
+    try:
+        args = _parser().parse_args(argv)
+        if args.version:
+            from .commands import version
+
+            return version()
+        if args.command is None:
+            _parser().print_help()
+            return EXIT_BAD_INPUT
+        from . import commands
+
+        return getattr(commands, args.command)(args)
+    except InputError as exc:
+        print(f"numerology: {exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        print("numerology: interrupted", file=sys.stderr)
+        return 130

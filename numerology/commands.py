@@ -1,0 +1,130 @@
+"""The commands behind the CLI: load, compute, render. No physics here."""
+
+from __future__ import annotations
+
+import sys
+
+from . import render_json
+from .cli import EXIT_OK
+
+
+def _emit(text: str) -> None:
+    sys.stdout.write(text)
+
+
+def version() -> int:
+    from . import __version__
+    from .profiles import CATALOGUE
+
+    print(f"numerology {__version__}")
+    print("bundled profiles: " + ", ".join(CATALOGUE))
+    return EXIT_OK
+
+
+def env(args) -> int:
+    from .environment import derivations, derive_environment, rules_of_thumb
+    from .requirements import load_requirements
+
+    req = load_requirements(args.requirements)
+    environment = derive_environment(req)
+    if args.json:
+        _emit(render_json.document("numerology.env", {"requirements": req.path, **environment.to_json()}))
+        return EXIT_OK
+    from . import render_terminal
+
+    con = render_terminal.console()
+    render_terminal.environment(con, environment, derivations(environment), rules_of_thumb(environment),
+                                f"Channel environment - {req.path}")
+    return EXIT_OK
+
+
+def profiles(args) -> int:
+    from .profiles import CATALOGUE
+
+    if args.json:
+        body = {"profiles": [{
+            "name": p.name,
+            "source": p.source,
+            "normalised": p.normalised,
+            "delays_s": list(p.delays_s),
+            "powers_db": list(p.powers_db),
+            "rms_delay_spread_s": p.rms_delay_spread_s,
+            "stated_rms_delay_spread_s": p.stated_rms_delay_spread_s,
+            "los_k_factor_db": p.los_k_factor_db,
+            "note": p.note,
+        } for p in CATALOGUE.values()]}
+        _emit(render_json.document("numerology.profiles", body))
+        return EXIT_OK
+    from . import render_terminal
+
+    render_terminal.profiles(render_terminal.console(), CATALOGUE)
+    return EXIT_OK
+
+
+def presets(args) -> int:
+    from .presets import PRESETS
+
+    if args.json:
+        _emit(render_json.document("numerology.presets", {"presets": [
+            {"name": p.name, "source": p.source, "description": p.description, "design": p.design.to_json()}
+            for p in PRESETS.values()]}))
+        return EXIT_OK
+    from . import render_terminal
+
+    render_terminal.presets(render_terminal.console(), PRESETS)
+    return EXIT_OK
+
+
+def _what_if(args):
+    from .units import parse_quantity
+
+    speed = parse_quantity(args.speed, "speed", "--speed") if args.speed else None
+    delay = parse_quantity(args.delay, "time", "--delay") if args.delay else None
+    if speed is not None and not 0 <= speed <= 2e4:
+        from .errors import InputError
+
+        raise InputError("--speed", f"expected a speed between 0 and 20 km/s, got {args.speed!r}")
+    if delay is not None and not 0 <= delay <= 1:
+        from .errors import InputError
+
+        raise InputError("--delay", f"expected a delay between 0 and 1 s, got {args.delay!r}")
+    return speed, delay
+
+
+def check(args) -> int:
+    from . import api
+
+    req = api.load(args.requirements)
+    speed, delay = _what_if(args)
+    design = api.design_from(preset=args.preset, path=args.design)
+    outputs = _check_outputs(args, req)
+    result = api.check(req, design, speed_mps=speed, max_excess_delay_s=delay)
+    if args.json:
+        _emit(render_json.document("numerology.check", {"requirements": req.path, **result.to_json()}))
+    else:
+        from . import render_terminal
+
+        render_terminal.check(render_terminal.console(), result, req)
+    _write_outputs(outputs, req, check=result)
+    return EXIT_OK if result.passed else EXIT_FAILS
+
+
+def _check_outputs(args, req):
+    """Validate output paths before any work, so bad options write nothing."""
+    from .output import output_path
+
+    return {
+        "markdown": output_path(getattr(args, "markdown", None), "--markdown", (".md", ".markdown"), req),
+        "plot": output_path(getattr(args, "plot", None), "--plot", (".png", ".svg"), req),
+    }
+
+
+def _write_outputs(outputs, req, check=None, solution=None):
+    if outputs["markdown"]:
+        from .note import write_note
+
+        write_note(outputs["markdown"], req, check=check, solution=solution)
+    if outputs["plot"]:
+        from .plots import write_plot
+
+        write_plot(outputs["plot"], req, check=check, solution=solution)

@@ -1,0 +1,342 @@
+"""The channel environment: from requirement bounds to what the design rules use.
+
+``derive_environment`` turns the ``[environment]`` table (carrier, speed,
+delay bounds or a profile) into an :class:`Environment`: wavelength, maximum
+Doppler, Doppler spread, coherence time, the power-delay profile's taps and
+statistics, and the coherence bandwidth, all in SI. Each quantity also gets a
+:class:`Derivation` row (formula and source) for the reports.
+
+When only delay bounds are given, a tapped profile is still needed for the
+echo-beyond-guard term, so one is assumed and the assumption is stated:
+
+* ``rms_delay_spread`` only: an exponential profile with that rms spread,
+  truncated at ``rules.delay_threshold`` below the first tap;
+* ``max_excess_delay`` only: two equal-power rays at 0 and the max excess
+  delay, the worst case for a given span (two transmitters of a
+  single-frequency network);
+* both: a profile that spans exactly [0, max excess delay] with the given rms
+  spread: an exponential decay fitted to the rms spread while that is
+  possible (rms up to span/sqrt(12), where the decay becomes flat), beyond
+  that a flat bed plus two equal rays at the ends (up to span/2, the largest
+  rms any profile of that span can have).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import delay, doppler
+from .errors import InputError
+from .requirements import Requirements
+
+#: Fractional bandwidth above which Doppler is a time scaling across the band
+#: (common practice: a few per cent; wideband acoustic modems exceed it).
+WIDEBAND_FRACTION = 0.02
+
+
+@dataclass(frozen=True)
+class Derivation:
+    """One derived quantity, as shown by ``numerology env``."""
+
+    key: str  # JSON key, with its unit suffix
+    label: str
+    value: float
+    unit: str  # SI unit for display ("Hz", "s", "m", "m/s", "")
+    formula: str
+    source: str
+
+
+@dataclass(frozen=True)
+class Environment:
+    """The deployment's worst channel, in SI.
+
+    Attributes are the quantities the rules use; ``delays_s``/``powers`` are
+    the taps of the power-delay profile (linear powers summing to 1).
+    """
+
+    carrier_hz: float
+    propagation_speed_mps: float
+    wavelength_m: float
+    speed_mps: float
+    max_doppler_hz: float
+    doppler_spectrum: str
+    k_factor: float
+    doppler_centroid_hz: float
+    doppler_spread_hz: float
+    coherence_correlation: float
+    coherence_time_s: float
+    delays_s: tuple
+    powers: tuple
+    profile_name: str
+    profile_source: str
+    mean_excess_delay_s: float
+    rms_delay_spread_s: float
+    max_excess_delay_s: float
+    coherence_bandwidth_hz: float
+    notes: tuple = ()
+
+    @property
+    def taps(self) -> tuple[np.ndarray, np.ndarray]:
+        return np.asarray(self.delays_s), np.asarray(self.powers)
+
+    def to_json(self) -> dict:
+        """SI values under unit-suffixed keys."""
+        return {
+            "carrier_hz": self.carrier_hz,
+            "propagation_speed_mps": self.propagation_speed_mps,
+            "wavelength_m": self.wavelength_m,
+            "speed_mps": self.speed_mps,
+            "doppler_hz": self.max_doppler_hz,
+            "doppler_spectrum": self.doppler_spectrum,
+            "k_factor_db": _db(self.k_factor),
+            "doppler_centroid_hz": self.doppler_centroid_hz,
+            "doppler_spread_hz": self.doppler_spread_hz,
+            "coherence_correlation": self.coherence_correlation,
+            "coherence_time_s": _finite(self.coherence_time_s),
+            "profile": {
+                "name": self.profile_name,
+                "source": self.profile_source,
+                "delays_s": list(self.delays_s),
+                "powers_db": [_db(p) for p in self.powers],
+            },
+            "mean_excess_delay_s": self.mean_excess_delay_s,
+            "rms_delay_spread_s": self.rms_delay_spread_s,
+            "max_excess_delay_s": self.max_excess_delay_s,
+            "coherence_bandwidth_hz": _finite(self.coherence_bandwidth_hz),
+            "notes": list(self.notes),
+        }
+
+
+def _db(x: float):
+    return None if x <= 0 else 10 * math.log10(x)
+
+
+def _finite(x: float):
+    """JSON has no infinity: an unbounded value is written as null."""
+    return None if math.isinf(x) else x
+
+
+def derive_environment(req: Requirements, *, speed_mps: float | None = None,
+                       max_excess_delay_s: float | None = None) -> Environment:
+    """Derive the channel environment from a requirement set.
+
+    Parameters
+    ----------
+    req : Requirements
+        A loaded requirement file.
+    speed_mps : float, optional
+        Override of ``environment.max_speed`` in m/s (what-if).
+    max_excess_delay_s : float, optional
+        Override of the max excess delay in s (what-if): the profile's delays
+        are stretched so that its max excess delay becomes this value.
+
+    Returns
+    -------
+    Environment
+    """
+    env, rules, radio = req.environment, req.rules, req.radio
+    notes = []
+    c = env.propagation_speed_mps
+    if c < 1e7 and env.carrier_hz > 1e7:
+        notes.append("propagation speed is acoustic but the carrier is a radio frequency: check both")
+    if c > 1e7 and env.carrier_hz < 1e6 and env.max_speed_mps is not None:
+        notes.append("carrier below 1 MHz with radio propagation speed: for acoustics set propagation_speed")
+    fractional_bw = radio.bandwidth_hz / env.carrier_hz
+    doppler_carrier_hz = env.carrier_hz
+    if fractional_bw > WIDEBAND_FRACTION:
+        # Doppler scales time: the highest frequency of the band sees the most.
+        doppler_carrier_hz = env.carrier_hz + radio.bandwidth_hz / 2
+        notes.append(f"wideband ({100 * fractional_bw:.0f} % of the carrier): Doppler is a time scaling; "
+                     "evaluated at the upper band edge, and the receiver must resample")
+    wavelength = float(doppler.wavelength_m(env.carrier_hz, c))
+    if speed_mps is None:
+        speed_mps = env.max_speed_mps
+    if speed_mps is not None:
+        f_d = float(doppler.max_doppler_hz(speed_mps, doppler_carrier_hz, c))
+    else:
+        f_d = env.max_doppler_hz
+        speed_mps = f_d * c / doppler_carrier_hz
+    k_factor = 0.0 if env.k_factor_db is None else 10 ** (env.k_factor_db / 10)
+    spectrum = env.doppler_spectrum
+    rho = rules.coherence_correlation
+
+    delays, powers, name, source, more = _taps(req)
+    notes.extend(more)
+    delays = np.asarray(delays, dtype=float)
+    powers = np.asarray(powers, dtype=float) / np.sum(powers)
+    if max_excess_delay_s is not None:
+        current = float(delay.max_excess_delay_s(delays, powers, rules.delay_threshold_db))
+        if current > 0:
+            delays = delays * (max_excess_delay_s / current)
+            name = f"{name}, stretched to {max_excess_delay_s * 1e6:.4g} us"
+        else:
+            delays, powers = _two_ray(max_excess_delay_s, None)
+            name = f"two equal rays {max_excess_delay_s * 1e6:.4g} us apart (what-if)"
+    # A max excess delay the user states (or asks for) is used as given, not re-derived from assumed taps.
+    stated_span = max_excess_delay_s if max_excess_delay_s is not None else env.max_excess_delay_s
+    return Environment(
+        carrier_hz=env.carrier_hz,
+        propagation_speed_mps=c,
+        wavelength_m=wavelength,
+        speed_mps=float(speed_mps),
+        max_doppler_hz=float(f_d),
+        doppler_spectrum=spectrum,
+        k_factor=k_factor,
+        doppler_centroid_hz=float(doppler.doppler_centroid_hz(f_d, spectrum, k_factor)),
+        doppler_spread_hz=float(doppler.doppler_spread_hz(f_d, spectrum, k_factor)),
+        coherence_correlation=rho,
+        coherence_time_s=float(doppler.coherence_time_s(f_d, spectrum, k_factor, rho)),
+        delays_s=tuple(float(d) for d in delays),
+        powers=tuple(float(p) for p in powers),
+        profile_name=name,
+        profile_source=source,
+        mean_excess_delay_s=float(delay.mean_excess_delay_s(delays, powers)),
+        rms_delay_spread_s=float(delay.rms_delay_spread_s(delays, powers)),
+        max_excess_delay_s=float(stated_span if stated_span is not None
+                                 else delay.max_excess_delay_s(delays, powers, rules.delay_threshold_db)),
+        coherence_bandwidth_hz=float(delay.coherence_bandwidth_hz(delays, powers, rho)),
+        notes=tuple(notes),
+    )
+
+
+def _two_ray(max_excess_delay_s, rms_s):
+    delays, powers = delay.two_ray_profile(max_excess_delay_s, rms_s)
+    return np.asarray(delays, float), np.asarray(powers, float)
+
+
+def _taps(req: Requirements):
+    """The profile's taps, its name and source, and notes on any assumption."""
+    from . import profiles
+
+    env, rules = req.environment, req.rules
+    where = req.path
+    rms = env.rms_delay_spread_s
+    if env.profile is not None or env.profile_file is not None:
+        if env.profile is not None:
+            profile = profiles.get_profile(env.profile)
+        else:
+            profile = profiles.load_profile_csv(env.profile_file)
+        if profile.normalised and rms is None:
+            raise InputError(f"{where}: environment.rms_delay_spread",
+                             f"missing; profile {profile.name} is normalised and needs a wanted rms delay spread such as \"300 ns\"")
+        notes = []
+        if rms is not None:
+            if rms == 0:
+                raise InputError(f"{where}: environment.rms_delay_spread", "must be above 0 s to scale a profile")
+            profile = profile.scaled(rms)
+        if profile.los_k_factor_db is not None and req.environment.doppler_spectrum in ("classical", "flat"):
+            notes.append(f"{profile.name} has a line-of-sight first tap (K = {profile.los_k_factor_db:g} dB); "
+                         "set doppler_spectrum = \"rician\" or \"tracked\" to model it")
+        return profile.delays_s, profile.powers, profile.name, profile.source, notes
+    tau_max = env.max_excess_delay_s
+    if tau_max is None:
+        if rms == 0:
+            return (0.0,), (1.0,), "single path (no delay spread)", "given", []
+        d, p = delay.exponential_profile(rms, floor_db=rules.delay_threshold_db)
+        return d, p, f"exponential, rms {rms * 1e9:.4g} ns", "assumed from rms_delay_spread", [
+            f"no profile given: an exponential profile with the given rms spread is assumed, "
+            f"truncated {rules.delay_threshold_db:g} dB below the first tap"]
+    if tau_max == 0:
+        return (0.0,), (1.0,), "single path (no delay spread)", "given", []
+    if rms is None:
+        d, p = _two_ray(tau_max, None)
+        return d, p, "two equal rays", "assumed from max_excess_delay", [
+            "no profile given: two equal-power rays at 0 and the max excess delay are assumed "
+            "(the worst case for a given span)"]
+    d, p, shape = bounded_profile(tau_max, rms)
+    return d, p, shape, "assumed from max_excess_delay and rms_delay_spread", [
+        f"no profile given: {shape} assumed, spanning the max excess delay with the given rms spread"]
+
+
+#: Taps used to sample an assumed continuous profile.
+ASSUMED_TAPS = 64
+
+
+def bounded_profile(max_excess_delay_s: float, rms_delay_spread_s: float):
+    """Taps spanning exactly [0, max excess delay] with a given rms delay spread.
+
+    Parameters
+    ----------
+    max_excess_delay_s : float
+        Span of the profile, in s.
+    rms_delay_spread_s : float
+        Wanted rms delay spread, in s; at most half the span.
+
+    Returns
+    -------
+    delays_s, powers, description
+        ``ASSUMED_TAPS`` (+2) taps; linear powers summing to 1.
+
+    Notes
+    -----
+    Up to span/sqrt(12) (a flat profile's rms) the profile is an exponential
+    decay whose rate is fitted by Brent's method; above it, a flat bed plus
+    two equal rays at 0 and the span, mixed so that the variance matches
+    (two equal rays alone have rms span/2).
+    """
+    from scipy.optimize import brentq
+
+    span, rms = max_excess_delay_s, rms_delay_spread_s
+    t = np.linspace(0.0, span, ASSUMED_TAPS)
+    flat_rms = float(delay.rms_delay_spread_s(t, np.ones_like(t)))
+    if rms < flat_rms:
+        def excess(log_rate):
+            return float(delay.rms_delay_spread_s(t, np.exp(-np.exp(log_rate) * t / span))) - rms
+
+        log_rate = brentq(excess, -30.0, 12.0, xtol=1e-12)
+        return t, np.exp(-np.exp(log_rate) * t / span), "an exponential profile"
+    # variance of the mix: w span^2/4 (two rays) + (1 - w) flat_rms^2, both centred on span/2
+    w = (rms**2 - flat_rms**2) / (span**2 / 4 - flat_rms**2)
+    powers = (1 - w) * np.ones_like(t) / t.size
+    powers[0] += w / 2
+    powers[-1] += w / 2
+    return t, powers, "a flat profile with two equal rays at its ends"
+
+
+def derivations(environment: Environment) -> list[Derivation]:
+    """The derived quantities with their formulas and sources, for reports."""
+    e = environment
+    rho = e.coherence_correlation
+    rows = [
+        Derivation("wavelength_m", "wavelength", e.wavelength_m, "m", "lambda = c_p / f_c", "definition"),
+        Derivation("speed_mps", "relative speed", e.speed_mps, "m/s", "given (or f_D lambda)", "requirement"),
+        Derivation("doppler_hz", "maximum Doppler", e.max_doppler_hz, "Hz", "f_D = v / lambda",
+                   "Rappaport, Wireless Communications 2nd ed., eq. 5.2"),
+        Derivation("doppler_spread_hz", "rms Doppler spread", e.doppler_spread_hz, "Hz",
+                   f"rms width of the {e.doppler_spectrum} spectrum", _spectrum_source(e.doppler_spectrum)),
+        Derivation("coherence_time_s", "coherence time", e.coherence_time_s, "s",
+                   f"|R(T_c)| = {rho:g}, R = Doppler autocorrelation", _spectrum_source(e.doppler_spectrum)),
+        Derivation("mean_excess_delay_s", "mean excess delay", e.mean_excess_delay_s, "s",
+                   "sum p_k tau_k / sum p_k", "Rappaport 2nd ed., eq. 5.35"),
+        Derivation("rms_delay_spread_s", "rms delay spread", e.rms_delay_spread_s, "s",
+                   "sqrt(mean tau^2 - (mean tau)^2)", "Rappaport 2nd ed., eqs. 5.36-5.37"),
+        Derivation("max_excess_delay_s", "max excess delay", e.max_excess_delay_s, "s",
+                   "last tap within the delay threshold", "ITU-R P.1407"),
+        Derivation("coherence_bandwidth_hz", "coherence bandwidth", e.coherence_bandwidth_hz, "Hz",
+                   f"|R(B_c)| = {rho:g}, R = sum p_k exp(-j 2 pi df tau_k)", "Jakes 1974; exact root of the PDP's correlation"),
+    ]
+    return rows
+
+
+def _spectrum_source(spectrum: str) -> str:
+    return {
+        "classical": "Clarke 1968 / Jakes 1974: R = J0(2 pi f_D tau)",
+        "flat": "uniform spectrum: R = sinc(2 f_D tau)",
+        "rician": "line of sight at +f_D plus Clarke diffuse part",
+        "tracked": "Rician spectrum with its mean shift removed by the receiver",
+    }[spectrum]
+
+
+def rules_of_thumb(environment: Environment) -> list[tuple[str, str, float]]:
+    """The common alternative definitions, shown beside our exact values."""
+    rows = []
+    if environment.max_doppler_hz > 0:
+        for label, value in doppler.coherence_time_rules_of_thumb(environment.max_doppler_hz).items():
+            rows.append(("coherence time", label, float(value)))
+    if environment.rms_delay_spread_s > 0:
+        for label, value in delay.coherence_bandwidth_rules_of_thumb(environment.rms_delay_spread_s).items():
+            rows.append(("coherence bandwidth", label, float(value)))
+    return rows

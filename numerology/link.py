@@ -1,0 +1,255 @@
+"""The link-quality model: every impairment on one scale, the SINR, the rules.
+
+``evaluate`` takes designs (as :class:`~numerology.design.DesignArrays`), an
+:class:`~numerology.environment.Environment` and the requirement set, and
+returns an :class:`Evaluation` of arrays: each impairment as a power ratio to
+the signal, the effective SINR, the spectral efficiency and net throughput,
+and every rule's capacity, demand and margin. ``check`` and ``solve`` both
+use exactly this function.
+
+Impairment terms, each relative to the useful signal power:
+
+* ``noise``: 1 / SNR at the edge of coverage;
+* ``echo``: power of echoes beyond the cyclic prefix, weighted as in EBU TR
+  024 sect. 2.4 (interference over useful part);
+* ``doppler``: Doppler inter-carrier interference, exact for the spectrum;
+* ``phase_noise``: residual after common-phase correction (Wiener linewidth
+  or a measured mask);
+* ``frequency_offset``: residual carrier-frequency error, 1 - sinc^2;
+* ``estimation``: mean-square error of the pilot-based channel estimate at
+  the pilot SINR, for the estimator named in ``rules.estimator``.
+
+They add as independent noise-like powers (common practice for OFDM link
+budgets): SINR_eff = 1 / sum(terms).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from . import delay, doppler, mcs, oscillator, pilots
+from .design import DesignArrays
+from .environment import Environment
+from .requirements import Requirements
+from .rules import RULES, Rule, evaluate as evaluate_rule, evaluate_derived, normalised_margin
+
+TERMS = ("noise", "echo", "doppler", "phase_noise", "frequency_offset", "estimation")
+
+
+@dataclass(frozen=True)
+class Evaluation:
+    """Arrays over designs (broadcast shape of the inputs)."""
+
+    terms: dict  # term name -> power ratio to the signal (linear)
+    sinr_eff: np.ndarray  # linear
+    efficiency: np.ndarray  # bit per data resource element
+    rate_bps: np.ndarray
+    overhead: np.ndarray
+    rules: tuple  # the applicable Rule objects, in declaration order
+    capacity: dict = field(repr=False, default_factory=dict)
+    demand: dict = field(repr=False, default_factory=dict)
+    margin: dict = field(default_factory=dict)  # rule name -> margin array (rule's convention)
+    normalised: dict = field(repr=False, default_factory=dict)  # rule name -> capacity/demand - 1
+
+    @property
+    def sinr_eff_db(self):
+        return 10 * np.log10(self.sinr_eff)
+
+    @property
+    def passed(self) -> np.ndarray:
+        """True where every applicable rule passes."""
+        ok = np.ones(np.shape(self.sinr_eff), dtype=bool)
+        for rule in self.rules:
+            ok &= self.margin[rule.name] >= 0
+        return ok
+
+    @property
+    def worst_normalised(self) -> np.ndarray:
+        return np.min(np.stack([self.normalised[r.name] for r in self.rules]), axis=0)
+
+    @property
+    def binding(self) -> np.ndarray:
+        """Index (into ``rules``) of the rule with the smallest normalised margin."""
+        return np.argmin(np.stack([self.normalised[r.name] for r in self.rules]), axis=0)
+
+
+def applicable_rules(req: Requirements) -> tuple[Rule, ...]:
+    """The rules that apply to this requirement set (goals not set are not rules)."""
+    skip = set()
+    if req.radio.sample_clock_hz is None:
+        skip.add("sample_clock")
+    if not req.goals.throughput_bps > 0:
+        skip.add("throughput")
+    if req.goals.max_latency_s is None:
+        skip.add("latency")
+    if not req.goals.max_overhead < 1:
+        skip.add("overhead")
+    if req.rules.efficiency_model == "shannon":
+        skip.add("link_closes")
+    return tuple(rule for rule in RULES if rule.name not in skip)
+
+
+def cp_allowance_s(req: Requirements) -> float:
+    """The CP allowance: given, or 4 sample periods at the channel bandwidth (see ``rules.cp_allowance``)."""
+    if req.rules.cp_allowance_s is not None:
+        return req.rules.cp_allowance_s
+    return 4.0 / req.radio.bandwidth_hz
+
+
+def mcs_table(req: Requirements):
+    if req.rules.mcs_table is not None:
+        return mcs.load_mcs_table(req.rules.mcs_table)
+    return mcs.DEFAULT_TABLE
+
+
+def efficiency_function(req: Requirements):
+    """Bits per data resource element as a function of the linear SINR."""
+    if req.rules.efficiency_model == "shannon":
+        gap_db = req.rules.shannon_gap_db
+        return lambda sinr: mcs.shannon_gap_efficiency(10 * np.log10(sinr), gap_db)
+    table = mcs_table(req)
+    return lambda sinr: mcs.spectral_efficiency(10 * np.log10(sinr), table)
+
+
+def minimum_sinr(req: Requirements) -> float:
+    """Linear SINR below which no modulation and coding works."""
+    if req.rules.efficiency_model == "shannon":
+        return 0.0  # the Shannon-gap model has no floor (link_closes does not apply)
+    return 10 ** (min(e.required_sinr_db for e in mcs_table(req)) / 10)
+
+
+def clock_mismatch(req: Requirements):
+    """Relative distance of a sample rate from a rate made from the base clock by an integer ratio."""
+    clock = req.radio.sample_clock_hz
+    if clock is None:
+        return lambda rate: np.zeros(np.shape(rate))
+
+    def mismatch(rate):
+        rate = np.asarray(rate, dtype=float)
+        up = rate / clock  # integer multiple of the clock
+        down = clock / rate  # integer divisor of the clock
+        err_up = np.abs(up - np.maximum(np.round(up), 1)) / np.maximum(np.round(up), 1)
+        err_down = np.abs(down - np.maximum(np.round(down), 1)) / np.maximum(np.round(down), 1)
+        err = np.minimum(err_up, err_down)
+        return np.where(err < 1e-9, 0.0, err)
+
+    return mismatch
+
+
+def oscillator_terms(req: Requirements, useful_symbol_s, subcarrier_spacing_hz):
+    """(phase-noise ICI, frequency-offset ICI) at the given numerology."""
+    radio = req.radio
+    if radio.phase_noise is not None:
+        offsets, levels = radio.phase_noise
+        pn = oscillator.mask_phase_noise_ici(offsets, levels, useful_symbol_s)
+    else:
+        pn = oscillator.wiener_phase_noise_ici(radio.oscillator_linewidth_hz, useful_symbol_s)
+    cfo = oscillator.cfo_ici(radio.frequency_error_hz, subcarrier_spacing_hz)
+    return np.asarray(pn, dtype=float), np.asarray(cfo, dtype=float)
+
+
+def estimation_error(designs: DesignArrays, environment: Environment, req: Requirements, pilot_sinr):
+    """Mean-square channel-estimation error of each design's pilot lattice (relative to channel power)."""
+    delays, powers = environment.taps
+    f_d, spectrum, k = environment.max_doppler_hz, environment.doppler_spectrum, environment.k_factor
+
+    def freq_correlation(lag_hz):
+        return delay.frequency_correlation(lag_hz, delays, powers)
+
+    def time_correlation(lag_s):
+        return doppler.doppler_autocorrelation(lag_s, f_d, spectrum, k)
+
+    return pilots.estimation_mse(
+        designs.pilot_freq_spacing, designs.pilot_time_spacing, designs.pilot_shift,
+        designs.subcarrier_spacing_hz, designs.symbol_s, freq_correlation, time_correlation,
+        pilot_sinr, estimator=req.rules.estimator)
+
+
+def namespace(designs: DesignArrays, environment: Environment, req: Requirements) -> dict:
+    """Bind the rule language's symbols to arrays for these designs (sinr_eff is added by ``evaluate``)."""
+    radio, rules, goals = req.radio, req.rules, req.goals
+    period = np.asarray(designs.cp_extra_period_s, dtype=float)
+    spectrum, k = environment.doppler_spectrum, environment.k_factor
+    return {
+        "df": np.asarray(designs.subcarrier_spacing_hz, dtype=float),
+        "N": designs.fft_size.astype(float),
+        "N_cp": designs.cp_samples.astype(float),
+        "N_u": designs.used_subcarriers.astype(float),
+        "D_f": designs.pilot_freq_spacing.astype(float),
+        "D_t": designs.pilot_time_spacing.astype(float),
+        "s_p": designs.pilot_shift.astype(float),
+        "N_slot": designs.symbols_per_slot.astype(float),
+        "R_res": np.asarray(designs.reserved_subcarriers, dtype=float),
+        "N_x": np.where(period > 0, designs.cp_extra_samples, 0).astype(float),
+        "P_x": np.where(period > 0, period, np.inf),
+        "f_D": environment.max_doppler_hz,
+        "tau_max": environment.max_excess_delay_s,
+        "T_allow": cp_allowance_s(req),
+        "T_c": environment.coherence_time_s,
+        "B_c": environment.coherence_bandwidth_hz,
+        "B": radio.bandwidth_hz,
+        "occ": radio.occupancy,
+        "sinr_min": minimum_sinr(req),
+        "F_qs": rules.quasi_static_factor,
+        "F_ff": rules.flat_fading_factor,
+        "rho_p": rules.pilot_oversampling,
+        "ici_max": 10 ** (rules.max_doppler_ici_db / 10),
+        "osc_max": 10 ** (rules.max_oscillator_ici_db / 10),
+        "ovh_max": goals.max_overhead,
+        "R_goal": goals.throughput_bps,
+        "L_max": np.inf if goals.max_latency_s is None else goals.max_latency_s,
+        # functions of the rule language, bound to this environment
+        "doppler_ici": lambda x: doppler.doppler_ici(x, 1.0, spectrum, k),
+        "oscillator_ici": lambda df: np.add(*oscillator_terms(req, 1.0 / np.asarray(df, float), df)),
+        "alias_scale": pilots.aliasing_scale,
+        "efficiency": efficiency_function(req),
+        "clock_mismatch": clock_mismatch(req),
+    }
+
+
+def evaluate(designs: DesignArrays, environment: Environment, req: Requirements) -> Evaluation:
+    """Evaluate designs against an environment and a requirement set.
+
+    Parameters
+    ----------
+    designs : DesignArrays
+        One or many designs (any broadcast shape).
+    environment : Environment
+    req : Requirements
+
+    Returns
+    -------
+    Evaluation
+    """
+    ns = namespace(designs, environment, req)
+    ns = evaluate_derived({**ns, "sinr_eff": np.nan})  # time and overhead quantities first
+    delays, powers = environment.taps
+    useful, interference = delay.echo_interference(delays, powers, ns["T_cp"], ns["T_u"])
+    pn, cfo = oscillator_terms(req, ns["T_u"], ns["df"])
+    shape = np.broadcast_shapes(np.shape(ns["df"]), np.shape(ns["N_cp"]), np.shape(ns["D_f"]))
+    terms = {
+        "noise": np.full(shape, 10 ** (-req.radio.snr_db / 10)),
+        "echo": np.broadcast_to(interference / useful, shape),
+        "doppler": np.broadcast_to(ns["doppler_ici"](environment.max_doppler_hz * ns["T_u"]), shape),
+        "phase_noise": np.broadcast_to(pn, shape),
+        "frequency_offset": np.broadcast_to(cfo, shape),
+    }
+    pilot_sinr = 1.0 / sum(terms.values())  # pilots see the same noise and interference as data
+    terms["estimation"] = np.broadcast_to(estimation_error(designs, environment, req, pilot_sinr), shape)
+    sinr_eff = 1.0 / sum(terms.values())
+    ns["sinr_eff"] = sinr_eff
+    ns = evaluate_derived(ns)  # now the rate, which needs the SINR
+    applicable = applicable_rules(req)
+    capacity, demand, margin, normalised = {}, {}, {}, {}
+    for rule in applicable:
+        cap, dem, mar = evaluate_rule(rule, ns)
+        capacity[rule.name] = np.broadcast_to(cap, shape)
+        demand[rule.name] = np.broadcast_to(dem, shape)
+        margin[rule.name] = np.broadcast_to(mar, shape)
+        normalised[rule.name] = np.broadcast_to(normalised_margin(rule, cap, dem), shape)
+    efficiency = ns["efficiency"](sinr_eff)
+    return Evaluation(terms=terms, sinr_eff=sinr_eff, efficiency=np.asarray(efficiency, float),
+                      rate_bps=np.broadcast_to(ns["rate"], shape), overhead=np.broadcast_to(ns["overhead"], shape),
+                      rules=applicable, capacity=capacity, demand=demand, margin=margin, normalised=normalised)

@@ -1,0 +1,206 @@
+"""Terminal renderer (rich): reports for people, in engineering units.
+
+Only this module and ``commands`` touch ``rich``. Each function takes result
+objects and a console and prints; none computes physics.
+"""
+
+from __future__ import annotations
+
+import math
+
+from rich import box
+from rich.console import Console
+from rich.table import Table
+from rich.text import Text
+
+from .units import db, engineering, speed_kmh
+
+CAUTION = ("Caution: spectrum use is regulated. Check carrier, bandwidth and power against your local licence and "
+           "regulator; safety-relevant links need certified equipment and review by a licensed engineer.")
+
+
+def console() -> Console:
+    return Console(highlight=False, soft_wrap=False)
+
+
+def fmt(value: float, unit: str) -> str:
+    """Engineering format by SI unit: speeds in km/h, ratios as plain numbers."""
+    if unit == "m/s":
+        if value is None or math.isinf(value):
+            return "unbounded"
+        return f"{speed_kmh(value)} ({value:.4g} m/s)"
+    if unit == "dB":
+        return db(value)
+    if unit == "":
+        return f"{value:.4g}"
+    return engineering(value, unit)
+
+
+def environment(con: Console, env, rows, thumbs, title: str) -> None:
+    table = Table(title=title, box=box.SIMPLE_HEAVY, title_justify="left")
+    table.add_column("quantity")
+    table.add_column("value", justify="right")
+    table.add_column("formula")
+    table.add_column("source", style="dim")
+    for row in rows:
+        table.add_row(row.label, fmt(row.value, row.unit), row.formula, row.source)
+    con.print(table)
+    con.print(f"Profile: {env.profile_name} ({len(env.delays_s)} taps) - {env.profile_source}")
+    if thumbs:
+        alt = Table(title="Other definitions in use (for comparison)", box=box.SIMPLE, title_justify="left")
+        alt.add_column("quantity")
+        alt.add_column("rule of thumb")
+        alt.add_column("value", justify="right")
+        for quantity, label, value in thumbs:
+            alt.add_row(quantity, label, engineering(value, "s" if "time" in quantity else "Hz"))
+        con.print(alt)
+    for note in env.notes:
+        con.print(Text(f"note: {note}", style="yellow"))
+
+
+def profiles(con: Console, catalogue) -> None:
+    table = Table(title="Built-in power-delay profiles", box=box.SIMPLE_HEAVY, title_justify="left")
+    table.add_column("name")
+    table.add_column("taps", justify="right")
+    table.add_column("rms (computed)", justify="right")
+    table.add_column("rms (stated)", justify="right")
+    table.add_column("span", justify="right")
+    table.add_column("source", style="dim")
+    for profile in catalogue.values():
+        if profile.normalised:
+            computed = f"{profile.rms_delay_spread_s:.4f} x rms"
+            stated = "1 x rms"
+            span = f"{profile.max_excess_delay_s:.3f} x rms"
+        else:
+            computed = engineering(profile.rms_delay_spread_s, "s")
+            stated = engineering(profile.stated_rms_delay_spread_s, "s") if profile.stated_rms_delay_spread_s else "-"
+            span = engineering(max(profile.delays_s) - min(profile.delays_s), "s")
+        table.add_row(profile.name, str(len(profile.delays_s)), computed, stated, span, profile.source)
+    con.print(table)
+    con.print("Normalised profiles (x rms) are scaled by environment.rms_delay_spread.")
+
+
+def presets(con: Console, presets) -> None:
+    table = Table(title="Published numerologies (use with --preset NAME)", box=box.SIMPLE_HEAVY, title_justify="left")
+    table.add_column("name")
+    table.add_column("spacing", justify="right")
+    table.add_column("FFT", justify="right")
+    table.add_column("CP", justify="right")
+    table.add_column("used", justify="right")
+    table.add_column("pilots (f x t / shift)", justify="right")
+    table.add_column("source", style="dim")
+    for preset in presets.values():
+        d = preset.design
+        table.add_row(preset.name, engineering(d.subcarrier_spacing_hz, "Hz"), str(d.fft_size),
+                      f"{d.cp_samples} ({engineering(d.cp_s, 's')})", str(d.used_subcarriers),
+                      f"{d.pilot_freq_spacing} x {d.pilot_time_spacing} / {d.pilot_shift}", preset.source)
+    con.print(table)
+
+
+TERM_LABELS = {
+    "noise": "thermal noise (1/SNR)",
+    "echo": "echoes beyond the cyclic prefix",
+    "doppler": "Doppler inter-carrier interference",
+    "phase_noise": "phase noise after common-phase correction",
+    "frequency_offset": "residual frequency offset",
+    "estimation": "channel-estimation error",
+}
+
+LIMIT_LABELS = {
+    "max_speed_mps": ("highest speed", "m/s"),
+    "max_excess_delay_s": ("longest max excess delay", "s"),
+    "min_snr_db": ("lowest SNR", "dB"),
+    "max_oscillator_linewidth_hz": ("widest oscillator linewidth", "Hz"),
+}
+
+
+def design_line(d) -> str:
+    return (f"{engineering(d.subcarrier_spacing_hz, 'Hz')} spacing, FFT {d.fft_size} at "
+            f"{engineering(d.sample_rate_hz, 'Hz')} (T_u {engineering(d.useful_symbol_s, 's')}), "
+            f"CP {d.cp_samples} samples = {engineering(d.cp_s, 's')}, {d.used_subcarriers} used "
+            f"({engineering(d.occupied_bandwidth_hz, 'Hz')}), pilots every {d.pilot_freq_spacing} subcarriers x "
+            f"{d.pilot_time_spacing} symbols, shift {d.pilot_shift}, {d.symbols_per_slot} symbols per slot "
+            f"({engineering(d.slot_s, 's')})")
+
+
+def show_margin(rule) -> str:
+    if rule.convention == "db":
+        return db(rule.margin)
+    if math.isinf(rule.margin):
+        return "unbounded"
+    return f"{100 * rule.margin:+.1f} %"
+
+
+def _quantity(rule_name: str, value: float) -> str:
+    """Capacity/demand of a rule in its natural unit."""
+    unit = {"cp_covers_delay": "s", "quasi_static": "s", "flat_fading": "Hz", "fits_channel": "Hz",
+            "throughput": "bit/s", "latency": "s"}.get(rule_name)
+    if unit:
+        return engineering(value, unit)
+    if rule_name in ("doppler_ici", "oscillator_ici", "link_closes"):
+        return db(10 * math.log10(value)) if value > 0 else "-inf dB"
+    return f"{value:.4g}"
+
+
+def rules_table(rules, title="Rules") -> Table:
+    binding = min(rules, key=lambda r: r.normalised)
+    table = Table(title=title, box=box.SIMPLE_HEAVY, title_justify="left")
+    table.add_column("")
+    table.add_column("rule")
+    table.add_column("needs", justify="right")
+    table.add_column("has", justify="right")
+    table.add_column("margin", justify="right")
+    for r in rules:
+        mark = Text("PASS", style="green") if r.passed else Text("FAIL", style="bold red")
+        name = Text(r.name + ("  <- binding" if r is binding else ""), style="bold" if r is binding else "")
+        table.add_row(mark, name, _quantity(r.name, r.demand), _quantity(r.name, r.capacity), show_margin(r))
+    return table
+
+
+def sinr_table(result) -> Table:
+    table = Table(title="SINR budget (each term relative to the signal)", box=box.SIMPLE, title_justify="left")
+    table.add_column("term")
+    table.add_column("power", justify="right")
+    for name, value in result.sinr_terms.items():
+        table.add_row(TERM_LABELS[name], db(10 * math.log10(value)) if value > 0 else "none")
+    table.add_row(Text("effective SINR", style="bold"), Text(db(result.effective_sinr_db), style="bold"))
+    return table
+
+
+def limits_table(limits) -> Table:
+    table = Table(title="Stretch limits (each alone, the rest as required)", box=box.SIMPLE, title_justify="left")
+    table.add_column("stress")
+    table.add_column("limit", justify="right")
+    table.add_column("rule that fails first")
+    for key, limit in limits.items():
+        label, unit = LIMIT_LABELS[key]
+        if math.isinf(limit.value):
+            value = "beyond the searched range"
+        elif unit == "dB":
+            value = f"{limit.value:.2f} dB"
+        else:
+            value = fmt(limit.value, unit)
+        table.add_row(label, value, limit.rule or "-")
+    return table
+
+
+def check(con: Console, result, req) -> None:
+    d = result.design
+    verdict = Text("PASSES", style="bold green") if result.passed else Text("FAILS", style="bold red")
+    b = result.binding_rule
+    con.print(Text.assemble(("Design ", ""), (d.name, "bold"), " ", verdict, f" against {req.path}"))
+    con.print(design_line(d))
+    env = result.environment
+    con.print(f"Channel: f_D {engineering(env.max_doppler_hz, 'Hz')} at {speed_kmh(env.speed_mps)}, "
+              f"max excess delay {engineering(env.max_excess_delay_s, 's')}, "
+              f"rms {engineering(env.rms_delay_spread_s, 's')} ({env.profile_name})")
+    con.print(Text.assemble("Binding rule: ", (b.name, "bold"), f" (margin {show_margin(b)}) - {b.statement}"))
+    con.print(rules_table(result.rules))
+    con.print(sinr_table(result))
+    con.print(f"Net throughput {engineering(result.net_throughput_bps, 'bit/s')} at "
+              f"{result.efficiency:.3g} bit per data resource element; overhead {100 * result.overhead:.1f} %")
+    if result.limits:
+        con.print(limits_table(result.limits))
+    for note in env.notes:
+        con.print(Text(f"note: {note}", style="yellow"))
+    con.print(Text(CAUTION, style="dim"))

@@ -1,0 +1,464 @@
+"""Requirement files: the TOML language users write, read once into SI.
+
+A requirement file has five tables. Each key is declared once in
+:data:`SCHEMA` with its kind, unit dimension, default, allowed range, meaning
+and (for design margins) the source of its default; the loader, the error
+messages, the ``--json`` echo and the documentation all derive from that
+declaration. Physical values are quantity strings ("3.5 GHz", "120 km/h",
+"2.3 us", "50 Mbit/s", "18 dB"); plain numbers are only accepted for
+dimensionless keys.
+
+Loaded values live in frozen dataclasses whose field names carry the SI unit
+suffix (``carrier`` -> ``carrier_hz``). Nothing here computes physics; that
+is ``environment``'s job.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+import tomllib
+from dataclasses import dataclass, field, make_dataclass
+from pathlib import Path
+from typing import Any
+
+from .errors import InputError
+from .units import parse_db, parse_quantity
+
+SUFFIX = {"frequency": "_hz", "time": "_s", "speed": "_mps", "length": "_m", "bitrate": "_bps", "db": "_db", "ratio": ""}
+
+DOPPLER_SPECTRA = ("classical", "flat", "rician", "tracked")
+OBJECTIVES = ("throughput", "robustness", "overhead", "latency")
+ESTIMATORS = ("lmmse", "linear")
+SPACING_FAMILIES = ("scalable", "range", "list")
+FFT_FAMILIES = ("powers_of_two", "smooth")
+PILOT_PATTERNS = ("rectangular", "staggered")
+EFFICIENCY_MODELS = ("table", "shannon")
+
+
+@dataclass(frozen=True)
+class Key:
+    """Declaration of one requirement key.
+
+    ``kind`` is one of ``quantity`` (with ``dimension``), ``db``, ``number``,
+    ``integer``, ``choice`` (with ``choices``), ``path``, ``mask`` (phase-noise
+    points), ``offset`` (a frequency or a ppm ratio of the carrier),
+    ``quantity_list``, ``integer_list``, ``choice_list``.
+    """
+
+    section: str
+    name: str
+    kind: str
+    meaning: str
+    dimension: str = "ratio"
+    default: Any = None
+    low: float = -math.inf
+    high: float = math.inf
+    low_open: bool = False
+    choices: tuple = ()
+    source: str = ""
+
+    @property
+    def field(self) -> str:
+        if self.kind in ("quantity", "quantity_list"):
+            return self.name + SUFFIX[self.dimension]
+        if self.kind == "db":
+            return self.name + "_db"
+        if self.kind == "offset":
+            return self.name + "_hz"
+        return self.name
+
+    @property
+    def path(self) -> str:
+        return f"{self.section}.{self.name}"
+
+
+def _q(section, name, dimension, meaning, default=None, low=0.0, high=math.inf, low_open=True, source=""):
+    return Key(section, name, "quantity", meaning, dimension, default, low, high, low_open, source=source)
+
+
+#: Every key a requirement file may hold. Bounds reject non-physical and
+#: absurd values; they are wide on purpose (acoustic modems and mmWave links
+#: are both legitimate).
+SCHEMA: tuple[Key, ...] = (
+    # --- environment: the worst channel the link must survive -------------
+    _q("environment", "carrier", "frequency", "carrier (centre) frequency", high=1e12),
+    _q("environment", "max_speed", "speed", "largest relative speed between the two ends (both may move)",
+       low_open=False, high=2e4),
+    _q("environment", "max_doppler", "frequency", "largest Doppler shift, given directly instead of max_speed",
+       low_open=False, high=1e7),
+    _q("environment", "propagation_speed", "speed", "speed of the wave: light for radio, about 1500 m/s in sea water",
+       default=299_792_458.0, low=1.0, high=3.0e8),
+    _q("environment", "max_excess_delay", "time", "longest echo that still matters, after the first arrival",
+       low_open=False, high=1.0),
+    _q("environment", "rms_delay_spread", "time", "rms delay spread (also scales a normalised profile)",
+       low_open=False, high=1.0),
+    Key("environment", "profile", "choice", "a tapped-delay-line profile from the built-in catalogue (numerology profiles)"),
+    Key("environment", "profile_file", "path", "a CSV of taps: delay and relative power in dB (a measured profile)"),
+    Key("environment", "doppler_spectrum", "choice", "shape of the Doppler spectrum", default="classical",
+        choices=DOPPLER_SPECTRA),
+    Key("environment", "k_factor", "db", "Rician K-factor (line of sight over scattered power)", default=None,
+        low=-40.0, high=60.0),
+    # --- radio: what the hardware and the licence allow --------------------
+    _q("radio", "bandwidth", "frequency", "channel bandwidth", high=1e11),
+    Key("radio", "occupancy", "number", "usable fraction of the bandwidth (the rest is guard band)", default=0.9,
+        low=0.0, high=1.0, low_open=True),
+    Key("radio", "snr", "db", "signal-to-noise ratio at the edge of coverage", low=-30.0, high=80.0),
+    _q("radio", "oscillator_linewidth", "frequency", "3-dB linewidth of the oscillator (Wiener phase noise)",
+       default=0.0, low_open=False, high=1e8),
+    Key("radio", "phase_noise", "mask", "phase-noise mask: a list of [offset, level] pairs such as [\"10 kHz\", \"-90 dBc/Hz\"]"),
+    Key("radio", "frequency_error", "offset", "residual carrier-frequency error after synchronisation (\"0.1 ppm\" or \"40 Hz\")",
+        default=0.0, low=0.0, high=1e7),
+    _q("radio", "sample_clock", "frequency", "base clock the sample rate must be derived from (integer multiple or divisor)",
+       high=1e12),
+    # --- goals -------------------------------------------------------------
+    _q("goals", "throughput", "bitrate", "net throughput needed at the edge of coverage", default=0.0,
+       low_open=False, high=1e13),
+    _q("goals", "max_latency", "time", "longest acceptable slot (the air-interface scheduling unit)", high=100.0),
+    Key("goals", "max_overhead", "number", "largest fraction of resources spent on cyclic prefix and pilots",
+        default=1.0, low=0.0, high=1.0, low_open=True),
+    Key("goals", "objective", "choice", "how feasible designs are ranked", default="throughput", choices=OBJECTIVES),
+    # --- rules: design margins, each with its default's source ---------------
+    _q("rules", "cp_allowance", "time",
+       "time added to the max excess delay for timing error and filter transients (default: 4 sample periods at the bandwidth)",
+       low_open=False, high=1.0,
+       source="common practice: transmit and receive filter transients of a few samples plus about one sample of timing error"),
+    Key("rules", "max_doppler_ici", "db", "largest Doppler inter-carrier interference relative to the signal",
+        default=-25.0, low=-100.0, high=0.0,
+        source="common practice: keep self-interference about 25 dB below the signal so that 64-QAM is not floor-limited"),
+    Key("rules", "max_oscillator_ici", "db", "largest phase-noise plus frequency-offset interference relative to the signal",
+        default=-25.0, low=-100.0, high=0.0, source="common practice, as max_doppler_ici"),
+    Key("rules", "pilot_oversampling", "number", "pilot lattice density over the 2-D sampling-theorem minimum, in each direction",
+        default=2.0, low=1.0, high=100.0,
+        source="common practice (about 2x); Hoeher, Kaiser & Robertson, ICASSP 1997"),
+    Key("rules", "flat_fading_factor", "number", "subcarrier spacing at most the coherence bandwidth divided by this",
+        default=10.0, low=1.0, high=1000.0, source="common practice: each subcarrier sees flat fading"),
+    Key("rules", "quasi_static_factor", "number", "symbol duration at most the coherence time divided by this",
+        default=10.0, low=1.0, high=1000.0, source="common practice: the channel is static over a symbol"),
+    Key("rules", "coherence_correlation", "number", "correlation level that defines coherence time and bandwidth",
+        default=0.5, low=0.0, high=1.0, low_open=True,
+        source="Rappaport, Wireless Communications 2nd ed., sect. 5.4 (0.5 and 0.9 in use)"),
+    Key("rules", "delay_threshold", "db", "taps weaker than this (below the strongest) do not set the max excess delay",
+        default=30.0, low=0.0, high=100.0, source="common practice; ITU-R P.1407 thresholds"),
+    Key("rules", "estimator", "choice", "channel estimator assumed for the pilot lattice", default="lmmse",
+        choices=ESTIMATORS),
+    Key("rules", "efficiency_model", "choice", "spectral efficiency from a modulation-and-coding table or a Shannon gap",
+        default="table", choices=EFFICIENCY_MODELS),
+    Key("rules", "shannon_gap", "db", "gap to capacity for the Shannon-gap model", default=3.0, low=0.0, high=20.0,
+        source="common practice for modern LDPC/turbo codes at moderate block lengths"),
+    Key("rules", "mcs_table", "path", "CSV of modulation-and-coding entries (name,bits_per_symbol,code_rate,required_sinr [dB])"),
+    # --- search: the candidate space ----------------------------------------
+    Key("search", "spacing_family", "choice", "how subcarrier spacings are drawn", default="scalable",
+        choices=SPACING_FAMILIES),
+    _q("search", "spacing_base", "frequency", "base of the scalable family base x 2^mu", default=15e3, high=1e10),
+    Key("search", "spacing_exponents", "integer_list", "[lowest, highest] mu of the scalable family", default=(-4, 6),
+        low=-20, high=20),
+    _q("search", "spacing_min", "frequency", "lowest spacing of a free range", high=1e10),
+    _q("search", "spacing_max", "frequency", "highest spacing of a free range", high=1e10),
+    Key("search", "spacing_steps", "integer", "number of log-spaced spacings in a free range", default=64,
+        low=2, high=100_000),
+    Key("search", "spacings", "quantity_list", "explicit list of spacings", dimension="frequency", low=0.0, low_open=True,
+        high=1e10),
+    Key("search", "fft_sizes", "choice", "FFT sizes: powers of two, or 2^a 3^b 5^c", default="powers_of_two",
+        choices=FFT_FAMILIES),
+    Key("search", "min_fft_size", "integer", "smallest FFT size", default=64, low=8, high=2**22),
+    Key("search", "max_fft_size", "integer", "largest FFT size", default=32768, low=8, high=2**22),
+    Key("search", "pilot_patterns", "choice_list", "pilot lattice shapes to try", default=PILOT_PATTERNS,
+        choices=PILOT_PATTERNS),
+    Key("search", "max_pilot_freq_spacing", "integer", "largest pilot spacing in subcarriers", default=48, low=1, high=4096),
+    Key("search", "max_pilot_time_spacing", "integer", "largest pilot spacing in symbols", default=32, low=1, high=4096),
+    Key("search", "symbols_per_slot", "integer_list", "slot lengths in symbols to try", default=(7, 14), low=1,
+        high=10_000),
+)
+
+SECTIONS = ("environment", "radio", "goals", "rules", "search")
+_BY_SECTION = {s: {k.name: k for k in SCHEMA if k.section == s} for s in SECTIONS}
+
+
+def _section_class(section: str):
+    fields = [(k.field, Any, field(default=None)) for k in _BY_SECTION[section].values()]
+    return make_dataclass(section.capitalize() + "Requirements", fields, frozen=True)
+
+
+EnvironmentRequirements = _section_class("environment")
+RadioRequirements = _section_class("radio")
+GoalRequirements = _section_class("goals")
+RuleSettings = _section_class("rules")
+SearchSpace = _section_class("search")
+_CLASSES = dict(zip(SECTIONS, (EnvironmentRequirements, RadioRequirements, GoalRequirements, RuleSettings, SearchSpace)))
+
+
+@dataclass(frozen=True)
+class Requirements:
+    """A requirement file, read into SI (see :data:`SCHEMA`)."""
+
+    environment: Any
+    radio: Any
+    goals: Any
+    rules: Any
+    search: Any
+    path: str = "<memory>"
+    given: tuple = ()  # the dotted keys the user wrote, as (key, text) pairs, for echoing back
+
+    def replace(self, dotted_key: str, value) -> "Requirements":
+        """A copy with one key set to an SI value (used for what-ifs and relaxations)."""
+        import dataclasses
+
+        section, name = dotted_key.split(".")
+        key = _BY_SECTION[section][name]
+        table = dataclasses.replace(getattr(self, section), **{key.field: value})
+        return dataclasses.replace(self, **{section: table})
+
+
+# --- parsing -------------------------------------------------------------------
+
+
+def _check_range(key: Key, value: float, place: str, text) -> float:
+    low_ok = value > key.low if key.low_open else value >= key.low
+    if not (low_ok and value <= key.high):  # written so that NaN fails too
+        lo = "above" if key.low_open else "at least"
+        raise InputError(place, f"{text!r} is out of range: expected {lo} {_show(key, key.low)} and at most {_show(key, key.high)}")
+    return value
+
+
+def _show(key: Key, si: float) -> str:
+    if math.isinf(si):
+        return "inf"
+    unit = {"frequency": "Hz", "time": "s", "speed": "m/s", "length": "m", "bitrate": "bit/s"}.get(key.dimension, "")
+    if key.kind == "db":
+        unit = "dB"
+    if key.kind == "offset":
+        unit = "Hz"
+    return f"{si:g} {unit}".strip()
+
+
+def _parse_value(key: Key, raw, place: str, base_dir: Path):
+    kind = key.kind
+    if kind == "quantity":
+        return _check_range(key, parse_quantity(raw, key.dimension, place), place, raw)
+    if kind == "db":
+        return _check_range(key, parse_db(raw, place), place, raw)
+    if kind == "number":
+        if isinstance(raw, bool) or not isinstance(raw, (int, float)):
+            raise InputError(place, f"expected a plain number, got {raw!r}")
+        return _check_range(key, float(raw), place, raw)
+    if kind == "integer":
+        if isinstance(raw, bool) or not isinstance(raw, int):
+            raise InputError(place, f"expected a whole number, got {raw!r}")
+        return int(_check_range(key, raw, place, raw))
+    if kind == "choice":
+        if not isinstance(raw, str):
+            raise InputError(place, f"expected a name in quotes, got {raw!r}")
+        choices = key.choices or _profile_names()
+        match = {c.lower(): c for c in choices}.get(raw.strip().lower())
+        if match is None:
+            raise InputError(place, f"unknown value {raw!r}{_did_you_mean(raw, choices)}; expected one of: {', '.join(choices)}")
+        return match
+    if kind == "choice_list":
+        if not isinstance(raw, list) or not raw:
+            raise InputError(place, f"expected a non-empty list such as {list(key.choices)!r}, got {raw!r}")
+        return tuple(_parse_value(Key(key.section, key.name, "choice", "", choices=key.choices), r, place, base_dir)
+                     for r in raw)
+    if kind == "integer_list":
+        if not isinstance(raw, list) or not raw or any(isinstance(r, bool) or not isinstance(r, int) for r in raw):
+            raise InputError(place, f"expected a non-empty list of whole numbers, got {raw!r}")
+        return tuple(int(_check_range(key, r, place, r)) for r in raw)
+    if kind == "quantity_list":
+        if not isinstance(raw, list) or not raw:
+            raise InputError(place, f"expected a non-empty list of quantities such as [\"15 kHz\", \"30 kHz\"], got {raw!r}")
+        return tuple(_check_range(key, parse_quantity(r, key.dimension, place), place, r) for r in raw)
+    if kind == "path":
+        if not isinstance(raw, str) or not raw.strip():
+            raise InputError(place, f"expected a file name in quotes, got {raw!r}")
+        path = (base_dir / raw).resolve()
+        if not path.is_file():
+            raise InputError(place, f"file {raw!r} not found (looked in {path.parent})")
+        return str(path)
+    if kind == "offset":
+        value = _parse_offset(raw, place)
+        return value
+    if kind == "mask":
+        return _parse_mask(raw, place)
+    raise AssertionError(kind)  # pragma: no cover - schema error
+
+
+def _parse_offset(raw, place):
+    """A frequency ("40 Hz") or a ratio of the carrier ("0.1 ppm"); returned as ("hz"|"ratio", value)."""
+    try:
+        value = parse_quantity(raw, "frequency", place)
+        kind = "hz"
+    except InputError:
+        try:
+            value = parse_quantity(raw, "ratio", place) if isinstance(raw, str) else math.nan
+        except InputError:
+            value = math.nan
+        kind = "ratio"
+    if not (value >= 0) or math.isinf(value) or (kind == "ratio" and value > 1e-3):
+        raise InputError(place, f"expected a non-negative frequency error such as \"40 Hz\" or \"0.1 ppm\", got {raw!r}")
+    return (kind, value)
+
+
+def _parse_mask(raw, place):
+    if not isinstance(raw, list) or len(raw) < 2:
+        raise InputError(place, "expected at least two [offset, level] pairs such as [[\"1 kHz\", \"-80 dBc/Hz\"], [\"100 kHz\", \"-110 dBc/Hz\"]]")
+    offsets, levels = [], []
+    for i, pair in enumerate(raw):
+        where = f"{place}[{i}]"
+        if not isinstance(pair, list) or len(pair) != 2:
+            raise InputError(where, f"expected an [offset, level] pair such as [\"10 kHz\", \"-90 dBc/Hz\"], got {pair!r}")
+        offset = parse_quantity(pair[0], "frequency", where)
+        level = parse_db(pair[1], where)
+        if not offset > 0 or not -250 <= level <= 0:
+            raise InputError(where, f"expected a positive offset and a level between -250 and 0 dBc/Hz, got {pair!r}")
+        offsets.append(offset)
+        levels.append(level)
+    if any(b <= a for a, b in zip(offsets, offsets[1:])):
+        raise InputError(place, "offsets must increase from one pair to the next")
+    return (tuple(offsets), tuple(levels))
+
+
+def _profile_names():
+    from .profiles import CATALOGUE
+
+    return tuple(CATALOGUE)
+
+
+def _did_you_mean(word: str, options) -> str:
+    close = difflib.get_close_matches(str(word), list(options), n=1, cutoff=0.5)
+    if not close:
+        close = difflib.get_close_matches(str(word).lower(), [o.lower() for o in options], n=1, cutoff=0.5)
+    return f" (did you mean {close[0]!r}?)" if close else ""
+
+
+def read_toml(path: str | Path) -> dict:
+    """Read a TOML file; any failure becomes one :class:`InputError` line."""
+    path = Path(path)
+    try:
+        data = path.read_bytes()
+    except IsADirectoryError:
+        raise InputError(str(path), "is a folder; expected a TOML file") from None
+    except OSError as exc:
+        raise InputError(str(path), f"cannot be read ({exc.strerror or exc})") from None
+    try:
+        return tomllib.loads(data.decode("utf-8"))
+    except UnicodeDecodeError:
+        raise InputError(str(path), "is not UTF-8 text; expected a TOML file") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(str(path), f"is not valid TOML ({exc})") from None
+
+
+def load_requirements(path: str | Path) -> Requirements:
+    """Read and check a requirement file.
+
+    Parameters
+    ----------
+    path : str or Path
+        The TOML file. It is only read, never written.
+
+    Returns
+    -------
+    Requirements
+        Every value in SI; defaults filled in.
+
+    Raises
+    ------
+    InputError
+        For any problem, naming the file and the key path.
+    """
+    path = Path(path)
+    return requirements_from_mapping(read_toml(path), str(path), path.parent)
+
+
+def requirements_from_mapping(data: dict, where: str = "<memory>", base_dir: Path | str = ".") -> Requirements:
+    """Check a parsed TOML mapping and convert it to :class:`Requirements`."""
+    base_dir = Path(base_dir)
+    for section in data:
+        if section not in SECTIONS:
+            raise InputError(f"{where}: [{section}]",
+                             f"unknown table{_did_you_mean(section, SECTIONS)}; expected one of: {', '.join(SECTIONS)}")
+        if not isinstance(data[section], dict):
+            raise InputError(f"{where}: {section}", f"expected a table [{section}], got a value")
+    tables = {}
+    given = []
+    for section in SECTIONS:
+        raw_table = data.get(section, {})
+        keys = _BY_SECTION[section]
+        for name in raw_table:
+            if name not in keys:
+                raise InputError(f"{where}: {section}.{name}",
+                                 f"unknown key{_did_you_mean(name, keys)}; expected one of: {', '.join(keys)}")
+        values = {}
+        for name, key in keys.items():
+            place = f"{where}: {section}.{name}"
+            if name in raw_table:
+                values[key.field] = _parse_value(key, raw_table[name], place, base_dir)
+                given.append((key.path, _echo(raw_table[name])))
+            else:
+                values[key.field] = key.default
+            if key.kind == "offset" and isinstance(values[key.field], tuple):
+                values[key.field] = _offset_to_hz(values[key.field], tables["environment"].carrier_hz, place)
+        tables[section] = _CLASSES[section](**values)
+    req = Requirements(**tables, path=where, given=tuple(given))
+    _check_consistency(req, where)
+    return req
+
+
+def _echo(raw) -> str:
+    return raw if isinstance(raw, str) else repr(raw)
+
+
+def _check_consistency(req: Requirements, where: str) -> None:
+    env, radio, search = req.environment, req.radio, req.search
+    if env.carrier_hz is None:
+        raise InputError(f"{where}: environment.carrier", "missing; expected a carrier frequency such as \"3.5 GHz\"")
+    if (env.max_speed_mps is None) == (env.max_doppler_hz is None):
+        what = "both are given; keep one" if env.max_speed_mps is not None else "neither is given"
+        raise InputError(f"{where}: environment.max_speed",
+                         f"{what}: expected either max_speed (\"120 km/h\") or max_doppler (\"400 Hz\")")
+    delay_keys = [env.max_excess_delay_s, env.rms_delay_spread_s, env.profile, env.profile_file]
+    if all(v is None for v in delay_keys):
+        raise InputError(f"{where}: environment",
+                         "no delay given: expected max_excess_delay and/or rms_delay_spread, or profile, or profile_file")
+    if env.profile is not None and env.profile_file is not None:
+        raise InputError(f"{where}: environment.profile_file", "both profile and profile_file are given; keep one")
+    if env.profile is not None or env.profile_file is not None:
+        if env.max_excess_delay_s is not None:
+            raise InputError(f"{where}: environment.max_excess_delay",
+                             "a profile already fixes the max excess delay; remove this key (scale with rms_delay_spread)")
+    if env.max_excess_delay_s is not None and env.rms_delay_spread_s is not None:
+        if not env.rms_delay_spread_s <= env.max_excess_delay_s / 2:
+            raise InputError(f"{where}: environment.rms_delay_spread",
+                             "an rms delay spread above half the max excess delay is impossible for any profile")
+    if env.doppler_spectrum in ("rician", "tracked") and env.k_factor_db is None:
+        raise InputError(f"{where}: environment.k_factor",
+                         f"missing; the {env.doppler_spectrum} Doppler spectrum needs a K-factor such as \"6 dB\"")
+    if radio.bandwidth_hz is None:
+        raise InputError(f"{where}: radio.bandwidth", "missing; expected a channel bandwidth such as \"20 MHz\"")
+    if radio.snr_db is None:
+        raise InputError(f"{where}: radio.snr", "missing; expected the SNR at the edge of coverage such as \"18 dB\"")
+    if radio.bandwidth_hz >= 2 * env.carrier_hz:
+        raise InputError(f"{where}: radio.bandwidth", "is wider than twice the carrier; check that the carrier is not the sample rate")
+    if radio.oscillator_linewidth_hz and radio.phase_noise is not None:
+        raise InputError(f"{where}: radio.phase_noise", "both oscillator_linewidth and phase_noise are given; keep one")
+    if search.spacing_family == "range" and (search.spacing_min_hz is None or search.spacing_max_hz is None
+                                             or not search.spacing_min_hz < search.spacing_max_hz):
+        raise InputError(f"{where}: search.spacing_min",
+                         "the range family needs spacing_min < spacing_max, such as \"1 kHz\" and \"240 kHz\"")
+    if search.spacing_family == "list" and search.spacings_hz is None:
+        raise InputError(f"{where}: search.spacings", "the list family needs spacings = [\"15 kHz\", ...]")
+    if search.spacing_family == "scalable":
+        exps = search.spacing_exponents
+        if len(exps) != 2 or exps[0] > exps[1]:
+            raise InputError(f"{where}: search.spacing_exponents", f"expected [lowest, highest] such as [-4, 6], got {list(exps)}")
+    if not search.min_fft_size <= search.max_fft_size:
+        raise InputError(f"{where}: search.min_fft_size", "must not exceed max_fft_size")
+
+
+def _offset_to_hz(parsed, carrier_hz, place) -> float:
+    """A frequency error in Hz; a ppm value is taken of the carrier."""
+    kind, value = parsed
+    if kind == "hz":
+        return value
+    if carrier_hz is None:
+        raise InputError(place, "a relative error (ppm) needs environment.carrier")
+    return value * carrier_hz
