@@ -5,7 +5,7 @@ from __future__ import annotations
 import sys
 
 from . import render_json
-from .cli import EXIT_OK
+from .cli import EXIT_FAILS, EXIT_OK
 
 
 def _emit(text: str) -> None:

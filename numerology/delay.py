@@ -221,18 +221,24 @@ def _magnitude(freq_lag_hz, d, p):
     return np.hypot(re, im)
 
 
-def _correlation_floor(d, p, span):
-    """A lower bound on abs(R) over the scanned lags [0, 16384/span], per profile (P, K) -> (P,).
+def _correlation_floor(d, p):
+    """A lower bound on abs(R) over the scanned lags, per profile: (P, K) -> (P,), all spans > 0.
 
-    Taps within w = span/2**20 of each other (a cluster of power P_C) keep their
-    phases within pi/64 of each other at any scanned lag, so
-    abs(R) >= P_C cos(pi/64) - (1 - P_C); a single dominant tap gives
-    abs(R) >= 2 p_max - 1 at every lag.
+    The scan ends at max_lag = 2**20/(64 span). Taps within w = span/2**20 of
+    each other (a cluster of power P_C) keep their phases within pi/64 of
+    each other up to max_lag, so abs(R) >= P_C cos(pi/64) - (1 - P_C) there;
+    a single dominant tap gives abs(R) >= 2 p_max - 1 at every lag.
     """
-    max_lag_hz = _SCAN_MAX_POINTS / (_SCAN_POINTS_PER_INVERSE_SPAN * span)
-    width = 1.0 / (64.0 * max_lag_hz)  # pi * max_lag * width = pi/64
-    offsets = d[:, None, :] - d[:, :, None]  # (P, K, K): tap j relative to tap k
-    cluster = np.sum(np.where((offsets >= 0) & (offsets <= width[:, None, None]), p[:, None, :], 0.0), axis=-1)
+    span = d.max(axis=-1, keepdims=True)
+    order = np.argsort(d, axis=-1, kind="stable")
+    rows, taps = d.shape
+    # all profiles in one sorted 1-D array: delays / span in [0, 1], row r shifted by 2r
+    flat = (np.take_along_axis(d, order, axis=-1) / span + 2.0 * np.arange(rows)[:, None]).ravel()
+    cumulative = np.concatenate([[0.0], np.cumsum(np.take_along_axis(p, order, axis=-1).ravel())])
+    width = _SCAN_POINTS_PER_INVERSE_SPAN / (64.0 * _SCAN_MAX_POINTS)  # w/span
+    start = np.searchsorted(flat, flat, side="left")
+    end = np.searchsorted(flat, flat + width, side="right")
+    cluster = (cumulative[end] - cumulative[start]).reshape(rows, taps)
     bound = 2.0 * cluster.max(axis=-1) * math.cos(math.pi / 64) - 1.0
     return np.maximum(bound, 2.0 * p.max(axis=-1) - 1.0)
 
@@ -289,12 +295,14 @@ def coherence_bandwidth_hz(delays_s, powers, correlation=0.5):
     p = p.reshape(-1, p.shape[-1])
     span = np.where(p > 0, d, 0.0).max(axis=-1)
     result = np.full(d.shape[0], np.inf)
-    searching = np.flatnonzero((span > 0) & (_correlation_floor(d, p, span) <= rho))
+    d = np.where(p > 0, d, 0.0)  # empty taps (even ahead of the first arrival) play no part
+    searching = np.flatnonzero(span > 0)
+    searching = searching[_correlation_floor(d[searching], p[searching]) <= rho]
     if searching.size:
         step = 1.0 / (_SCAN_POINTS_PER_INVERSE_SPAN * span[searching])
         upper = np.full(searching.size, np.nan)  # first grid lag with abs(R) <= rho
-        start, chunk = 0, 1024
-        most = max(1024, 2**21 // (searching.size * d.shape[1]))  # bounds the (P, C, K) arrays
+        most = max(8, 2**22 // (searching.size * d.shape[1]))  # (P, C, K) arrays stay below 32 MB
+        start, chunk = 0, min(1024, most)
         while start < _SCAN_MAX_POINTS:  # loop over blocks of the lag grid, not over profiles
             todo = np.flatnonzero(np.isnan(upper))
             if todo.size == 0:

@@ -45,7 +45,9 @@ References
 from __future__ import annotations
 
 import difflib
+import json
 import math
+import re
 import numbers
 import tomllib
 from dataclasses import dataclass, fields
@@ -379,7 +381,8 @@ def design_problems(values: Mapping[str, Any]) -> list[tuple[str, str]]:
 
     df = v["subcarrier_spacing_hz"]
     n = v["fft_size"]
-    spacing_ok = need(math.isfinite(df) and df > 0, "subcarrier_spacing_hz", f"must be a positive frequency, got {df!r} Hz")
+    spacing_ok = need(math.isfinite(df) and df > 0, "subcarrier_spacing_hz",
+                      f"must be a positive frequency, got {df!r} Hz")
     fft_ok = need(n >= 8, "fft_size", f"must be at least 8, got {n}")
     cp_ok = need(0 <= v["cp_samples"] < n or not fft_ok, "cp_samples",
                  f"must be at least 0 and shorter than the FFT ({n} samples), got {v['cp_samples']}")
@@ -570,7 +573,7 @@ def _unknown_key_advice(key: str, known) -> str:
         if isinstance(key, str) and key.endswith(suffix) and key[: -len(suffix)] in known:
             bare = key[: -len(suffix)]
             return f"unknown key; write {bare} = {_EXAMPLES.get(bare, '...')} (the unit goes in the value)"
-    close = difflib.get_close_matches(str(key), list(known), n=1, cutoff=0.6)
+    close = difflib.get_close_matches(str(key), list(known), n=1, cutoff=0.6) if len(str(key)) < 100 else []
     if close:
         return f"unknown key; did you mean {close[0]!r}?"
     return "unknown key; expected one of " + ", ".join(known)
@@ -599,11 +602,18 @@ def _read_value(value, kind: str, key: str, place: str, problems: list):
     return None
 
 
+def _key_text(key) -> str:
+    """A key as it would be written in TOML: bare if it can be, else quoted (no raw newlines)."""
+    if isinstance(key, str) and re.fullmatch(r"[A-Za-z0-9_-]+", key):
+        return key
+    return json.dumps(str(key))
+
+
 def _read_table(mapping, schema, prefix: str, place: str, problems: list) -> dict:
     values = {}
     for key in mapping:
         if key not in schema:
-            problems.append((f"{prefix}{key}", _unknown_key_advice(key, schema)))
+            problems.append((f"{prefix}{_key_text(key)}", _unknown_key_advice(key, schema)))
     for key, (kind, required) in schema.items():
         if key not in mapping:
             if required:

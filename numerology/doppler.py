@@ -61,6 +61,7 @@ __all__ = [
     "SPEED_OF_LIGHT_MPS",
     "SOUND_SPEED_SEAWATER_MPS",
     "SPECTRA",
+    "ICI_MONOTONE_LIMIT",
     "wavelength_m",
     "max_doppler_hz",
     "doppler_autocorrelation",
@@ -353,8 +354,9 @@ def coherence_time_s(max_doppler_hz, spectrum="classical", k_factor=0.0, correla
     line of sight (rician/tracked with ``P_los - P_dif >= correlation``, or
     more generally when ``|R|`` stays above the level; crossings later than
     64 Doppler periods, ``x > 64``, are not searched and also give ``inf``).
-    A dip below the level narrower than the scan step (at most ~2e-5 deep in
-    ``|R|``) could be missed. ``tracked`` has the same ``|R|`` as ``rician``.
+    Only a dip that goes below the level by less than about ``5e-5 / rho`` in
+    ``|R|`` within one scan step could be missed (curvature bound on ``|R|^2``).
+    ``tracked`` has the same ``|R|`` as ``rician``.
 
     Parameters
     ----------

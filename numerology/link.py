@@ -143,7 +143,10 @@ def oscillator_terms(req: Requirements, useful_symbol_s, subcarrier_spacing_hz):
     radio = req.radio
     if radio.phase_noise is not None:
         offsets, levels = radio.phase_noise
-        pn = oscillator.mask_phase_noise_ici(offsets, levels, useful_symbol_s)
+        # The mask integral is the costly one: once per distinct symbol duration.
+        t_u = np.asarray(useful_symbol_s, dtype=float)
+        distinct, inverse = np.unique(t_u, return_inverse=True)
+        pn = np.asarray(oscillator.mask_phase_noise_ici(offsets, levels, distinct))[inverse].reshape(t_u.shape)
     else:
         pn = oscillator.wiener_phase_noise_ici(radio.oscillator_linewidth_hz, useful_symbol_s)
     cfo = oscillator.cfo_ici(radio.frequency_error_hz, subcarrier_spacing_hz)
@@ -161,10 +164,16 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
     def time_correlation(lag_s):
         return doppler.doppler_autocorrelation(lag_s, f_d, spectrum, k)
 
-    return pilots.estimation_mse(
-        designs.pilot_freq_spacing, designs.pilot_time_spacing, designs.pilot_shift,
-        designs.subcarrier_spacing_hz, designs.symbol_s, freq_correlation, time_correlation,
-        pilot_sinr, estimator=req.rules.estimator)
+    # Many candidates share a lattice, a numerology and a pilot SINR: solve each distinct case once.
+    columns = np.broadcast_arrays(designs.pilot_freq_spacing, designs.pilot_time_spacing, designs.pilot_shift,
+                                  designs.subcarrier_spacing_hz, designs.symbol_s, pilot_sinr)
+    shape = columns[0].shape
+    table = np.stack([np.asarray(c, dtype=float).ravel() for c in columns], axis=1)
+    unique, inverse = np.unique(table, axis=0, return_inverse=True)
+    mse = pilots.estimation_mse(
+        unique[:, 0].astype(np.int64), unique[:, 1].astype(np.int64), unique[:, 2].astype(np.int64),
+        unique[:, 3], unique[:, 4], freq_correlation, time_correlation, unique[:, 5], estimator=req.rules.estimator)
+    return np.asarray(mse)[np.ravel(inverse)].reshape(shape)
 
 
 def namespace(designs: DesignArrays, environment: Environment, req: Requirements) -> dict:
@@ -228,6 +237,7 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements)
     delays, powers = environment.taps
     useful, interference = delay.echo_interference(delays, powers, ns["T_cp"], ns["T_u"])
     pn, cfo = oscillator_terms(req, ns["T_u"], ns["df"])
+    ns["oscillator_ici"] = lambda _df: pn + cfo  # the rule sees the same spacings: computed once
     shape = np.broadcast_shapes(np.shape(ns["df"]), np.shape(ns["N_cp"]), np.shape(ns["D_f"]))
     terms = {
         "noise": np.full(shape, 10 ** (-req.radio.snr_db / 10)),

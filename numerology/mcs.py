@@ -272,6 +272,15 @@ def _parse_bits(text: str, place: str) -> int:
     return bits
 
 
+def _parse_sinr(text: str, place: str) -> float:
+    """A bare number is in dB (the column header says so); ``"13.5 dB"`` is accepted too."""
+    try:
+        value = float(text)
+    except ValueError:
+        return parse_db(text, place)
+    return parse_db(value, place)
+
+
 def load_mcs_table(path) -> tuple[McsEntry, ...]:
     """Read an MCS table from a CSV file.
 
@@ -304,33 +313,36 @@ def load_mcs_table(path) -> tuple[McsEntry, ...]:
         raise InputError(place, f"cannot read the MCS table ({error.strerror or error})") from None
     except UnicodeDecodeError:
         raise InputError(place, "not a UTF-8 text file; an MCS table is CSV text") from None
-    reader = csv.reader(io.StringIO(text, newline=""))
+    reader = csv.reader(io.StringIO(text, newline=""), strict=True)
     entries: list[McsEntry] = []
     header_seen = False
-    try:
-        for row in reader:
-            line = f"{place}: line {reader.line_num}"
-            if not row or all(not cell.strip() for cell in row) or row[0].lstrip().startswith("#"):
-                continue
-            cells = [cell.strip() for cell in row]
-            if not header_seen:
-                if tuple(cells) != CSV_HEADER:
-                    raise InputError(line, f"expected the header {','.join(CSV_HEADER)!r}, got {','.join(cells)!r}")
-                header_seen = True
-                continue
-            if len(cells) != len(CSV_HEADER):
-                raise InputError(line, f"expected {len(CSV_HEADER)} columns ({','.join(CSV_HEADER)}), "
-                                       f"got {len(cells)}")
-            name, bits, rate, sinr = cells
-            if not name:
-                raise InputError(line, "the name is empty")
-            if any(entry.name == name for entry in entries):
-                raise InputError(line, f"the name {name!r} appears twice")
-            entries.append(McsEntry(name, _parse_bits(bits, f"{line}: bits_per_symbol"),
-                                    _parse_rate(rate, f"{line}: code_rate"),
-                                    parse_db(sinr, f"{line}: required_sinr")))
-    except csv.Error as error:
-        raise InputError(f"{place}: line {reader.line_num}", f"not valid CSV: {error}") from None
+    while True:
+        start = reader.line_num + 1  # a quoted cell may span lines: name the line where the row starts
+        line = f"{place}: line {start}"
+        try:
+            row = next(reader)
+        except StopIteration:
+            break
+        except csv.Error as error:
+            raise InputError(line, f"not valid CSV: {error}") from None
+        if not row or all(not cell.strip() for cell in row) or row[0].lstrip().startswith("#"):
+            continue
+        cells = [cell.strip() for cell in row]
+        if not header_seen:
+            if tuple(cells) != CSV_HEADER:
+                raise InputError(line, f"expected the header {','.join(CSV_HEADER)!r}, got {','.join(cells)!r}")
+            header_seen = True
+            continue
+        if len(cells) != len(CSV_HEADER):
+            raise InputError(line, f"expected {len(CSV_HEADER)} columns ({','.join(CSV_HEADER)}), got {len(cells)}")
+        name, bits, rate, sinr = cells
+        if not name:
+            raise InputError(line, "the name is empty")
+        if any(entry.name == name for entry in entries):
+            raise InputError(line, f"the name {name!r} appears twice")
+        entries.append(McsEntry(name, _parse_bits(bits, f"{line}: bits_per_symbol"),
+                                _parse_rate(rate, f"{line}: code_rate"),
+                                _parse_sinr(sinr, f"{line}: required_sinr")))
     if not entries:
         raise InputError(place, "the MCS table has no entries" if header_seen else
                          f"empty file; expected the header {','.join(CSV_HEADER)!r} and one line per entry")

@@ -189,7 +189,8 @@ def wiener_phase_noise_ici(linewidth_hz, useful_symbol_s):
     Parameters
     ----------
     linewidth_hz : float or array_like
-        Two-sided 3-dB linewidth ``beta`` of the Lorentzian oscillator spectrum, Hz, >= 0.
+        3-dB linewidth ``beta`` (full width at half maximum of the Lorentzian
+        oscillator spectrum) in Hz, >= 0.
     useful_symbol_s : float or array_like
         Useful symbol length ``T_u`` (FFT window) in s, > 0.
 
@@ -308,7 +309,7 @@ def mask_phase_noise_ici(offsets_hz, levels_dbc_hz, useful_symbol_s):
     References
     ----------
     Small-angle phase-noise ICI integral (common practice, memory); the
-    ``L(f)`` convention is IEEE Std 1139 (single-sideband, dBc/Hz).
+    ``L(f)`` convention, ``L = S_phi / 2`` in dBc/Hz, is IEEE Std 1139 (from memory).
 
     Examples
     --------
@@ -320,7 +321,11 @@ def mask_phase_noise_ici(offsets_hz, levels_dbc_hz, useful_symbol_s):
     t_u = _floats("useful_symbol_s", useful_symbol_s)
     _require("useful_symbol_s", t_u, (t_u > 0) & np.isfinite(t_u), "a finite duration > 0 s")
     shape = t_u.shape
-    t = t_u.reshape(-1, 1)
+    if t_u.size == 0:
+        return np.zeros(shape)
+    # Designs share few symbol lengths: integrate once per distinct T_u (rows x grid nodes in memory).
+    t_unique, inverse = np.unique(t_u.ravel(), return_inverse=True)
+    t = t_unique.reshape(-1, 1)
     y_lo, y_hi = offsets[0] * t.min(), offsets[-1] * t.max()
     decades = np.log10(y_hi / y_lo)
     log_nodes = np.logspace(np.log10(y_lo), np.log10(y_hi), int(np.ceil(decades * MASK_POINTS_PER_DECADE)) + 1)
@@ -338,7 +343,7 @@ def mask_phase_noise_ici(offsets_hz, levels_dbc_hz, useful_symbol_s):
     integrand = 2.0 * 10.0 ** (level_db / 10.0) * weight * (y / t)  # 2 L(f) (1 - sinc^2) df/dln(f)
     u = np.log(y)
     ici = np.sum(0.5 * (integrand[:, 1:] + integrand[:, :-1]) * np.diff(u, axis=1), axis=1)
-    return _result(ici.reshape(shape))
+    return _result(ici[inverse.ravel()].reshape(shape))
 
 
 def linewidth_for_ici(max_ici, useful_symbol_s):

@@ -59,7 +59,7 @@ _TOUCH_RTOL = 1e-12
 _DESIGN_NOISE_FLOOR = 1e-10
 
 #: Targets (candidate x cell position) processed per block in estimation_mse.
-_TARGETS_PER_BLOCK = 1 << 17
+_TARGETS_PER_BLOCK = 1 << 13
 
 #: Candidate x index elements per block in the reciprocal-lattice scans.
 _SCAN_ELEMENTS = 1 << 22
@@ -553,7 +553,7 @@ def _weights_core(d_f, d_t, s, snr, f_table, t_table, tk, tl, estimator, window)
         big_r = _lookup(f_table, rk) * _lookup(t_table, rl)  # R_pq = E[h_p h_q*]
         eye = np.eye(big_r.shape[-1])
         design = big_r + np.maximum(noise, _DESIGN_NOISE_FLOOR)[..., None] * eye
-        w = r @ np.linalg.inv(design).transpose(0, 2, 1)  # w = (R + I/snr)^-1 r, Wiener
+        w = np.linalg.solve(design, r.transpose(0, 2, 1)).transpose(0, 2, 1)  # w = (R + I/snr)^-1 r, Wiener
         aw = w @ big_r.transpose(0, 2, 1) + noise[..., None] * w  # (R + I/snr) w
     else:
         w = bary.astype(np.complex128)

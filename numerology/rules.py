@@ -98,6 +98,7 @@ class Rule:
     convention: str  # "ratio" | "db" | "difference"
     source: str
     setting: str = ""  # the requirement key that sets its threshold, if any
+    gate: bool = False  # a yes/no rule: its margin says pass or fail, not how much headroom
 
     def margin(self, capacity, demand):
         """The margin by this rule's convention (>= 0 passes)."""
@@ -136,9 +137,13 @@ RULES: tuple[Rule, ...] = (
          "alias_scale(D_f, D_t, s_p, df, T_s, tau_max, f_D)", "rho_p", "ratio",
          "Hoeher, Kaiser & Robertson, ICASSP 1997 (2-D sampling of the channel)", "rules.pilot_oversampling"),
     Rule("fits_channel", "The occupied subcarriers fit in the usable bandwidth.",
-         "occ*B", "N_u*df", "ratio", "definition", "radio.occupancy"),
+         "occ*B", "N_u*df", "ratio", "definition", "radio.occupancy", gate=True),
     Rule("sample_clock", "The sample rate derives from the base clock by an integer ratio.",
-         "1", "1 + clock_mismatch(N*df)", "ratio", "common practice (hardware rate plans)", "radio.sample_clock"),
+         "1", "1 + clock_mismatch(N*df)", "ratio", "common practice (hardware rate plans)", "radio.sample_clock",
+         gate=True),
+    Rule("pilots_in_slot", "Every slot carries pilots of its own, so a slot is decoded without waiting for the next.",
+         "N_slot", "D_t", "ratio", "common practice (LTE and NR carry reference signals in every slot)",
+         "search.symbols_per_slot", gate=True),
     Rule("link_closes", "The effective SINR supports the most robust modulation and coding.",
          "sinr_eff", "sinr_min", "db", "modulation-and-coding table (numerology.mcs)", "rules.efficiency_model"),
     Rule("overhead", "Cyclic prefix and pilots stay within the overhead goal.",
@@ -181,8 +186,11 @@ def normalised_margin(rule: Rule, capacity, demand):
     """A margin on one scale for every rule: capacity / demand - 1.
 
     For the ``difference`` convention (fractions), (capacity - demand) / capacity.
+    A gate rule has no headroom to speak of: +inf where it passes, -1 where it fails.
     """
     with np.errstate(divide="ignore", invalid="ignore"):
+        if rule.gate:
+            return np.where(capacity >= demand, np.inf, -1.0)
         if rule.convention == "difference":
             return (capacity - demand) / capacity
         return capacity / demand - 1.0

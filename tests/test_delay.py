@@ -346,9 +346,17 @@ def test_rms_invariant_to_delay_offset_and_power_scale(profile, offset_s, scale)
                     rtol=1e-9, atol=1e-17)
 
 
+# delays on a 1-ns grid: two delays one rounding step apart would make the span itself rounding noise
+_grid_profiles = st.integers(1, 12).flatmap(lambda k: st.tuples(
+    st.lists(st.integers(0, 20000).map(lambda n: n * ns), min_size=k, max_size=k),
+    st.lists(st.floats(1e-6, 1e3), min_size=k, max_size=k)))
+
+
 @settings(max_examples=40, deadline=None)
-@given(profile=_profiles, k=st.floats(0.1, 10))
+@given(profile=_grid_profiles, k=st.floats(0.1, 10))
 def test_delay_scaling_scales_rms_and_inverse_coherence_bandwidth(profile, k):
+    """rms scales with k and B_c with 1/k; tolerance: rounding of k tau is 1e-12 of the span
+    at worst on this grid, and the root is found to 1e-12."""
     d, p = np.array(profile[0]), np.array(profile[1])
     assert_allclose(delay.rms_delay_spread_s(k * d, p), k * delay.rms_delay_spread_s(d, p), rtol=1e-12, atol=1e-24)
     bc = delay.coherence_bandwidth_hz(d, p, 0.5)
@@ -363,3 +371,35 @@ def test_longer_guard_never_lowers_useful_fraction(profile, guards_s, useful_sym
     useful, _ = delay.echo_interference(profile[0], profile[1], guards, useful_symbol_s)
     assert np.all(np.diff(useful) >= -1e-12)  # rounding of prefix sums only
     assert np.all((useful >= 0) & (useful <= 1))
+
+
+def test_far_weak_echo_does_not_hide_a_close_pair():
+    """Two equal taps 1 ns apart and a -30 dB tap at 10 us: the first 0.5 crossing is near
+    1/(3 ns) = 333 MHz (calc), 3333 times 1/span; the scan must reach it."""
+    d, p = [0.0, 1 * ns, 10 * us], [1.0, 1.0, 1e-3]
+    bc = delay.coherence_bandwidth_hz(d, p, 0.5)
+    assert_allclose(bc, 1 / (3 * ns), rtol=2e-3)  # the weak tap moves abs(R) by up to 1e-3
+    assert_allclose(abs(delay.frequency_correlation(bc, d, p)), 0.5, rtol=0, atol=1e-9)
+    below = np.linspace(0, bc, 400001)[:-1]  # 12 points per 100-kHz ripple of the far tap
+    assert np.all(np.abs(delay.frequency_correlation(below, d, p)) > 0.5)
+
+
+def test_tight_cluster_is_flat_over_the_scanned_range():
+    """Taps 1 fs apart holding 99 % of the power cannot decorrelate below 16384/span
+    (documented: inf, found without scanning)."""
+    assert delay.coherence_bandwidth_hz([0.0, 1e-15, 1 * us], [1.0, 1.0, 0.02], 0.5) == np.inf
+
+
+@settings(max_examples=60, deadline=None)
+@given(profile=_profiles, guards_s=st.lists(st.floats(0, 30e-6), min_size=1, max_size=6),
+       useful_symbol_s=st.floats(1e-6, 1e-4))
+def test_prefix_sum_route_matches_tap_by_tap_weights(profile, guards_s, useful_symbol_s):
+    """echo_interference on one profile (prefix sums) equals sum (1 - w_i) p_i with echo_weight
+    per tap; tolerance: cancellation in the prefix sums, at most a few 1e-16 x (tau_max/T_u)^2."""
+    d, p = np.array(profile[0]), np.array(profile[1])
+    guards = np.array(guards_s)
+    _, interference = delay.echo_interference(d, p, guards, useful_symbol_s)
+    excess = d - d.min()
+    w = delay.echo_weight(excess, guards[:, None], useful_symbol_s)
+    expected = np.sum((1 - w) * p, axis=-1) / p.sum()
+    assert_allclose(interference, expected, rtol=1e-9, atol=1e-12 * (1 + (d.max() / useful_symbol_s) ** 2))

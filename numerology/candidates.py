@@ -1,0 +1,298 @@
+"""The candidate space and its analytic pruning.
+
+Candidates are built in the order the physics allows pruning:
+
+1. the subcarrier-spacing **window**: every rule evaluated on a *relaxed*
+   design for each spacing (the shortest cyclic prefix that covers the
+   delay, no pilot overhead, the densest pilots for the aliasing rule, the
+   shortest slot, the SINR without estimation error or echoes). Each relaxed
+   margin bounds the margin of every real design with that spacing from
+   above, so a spacing outside the window can never pass;
+2. FFT sizes and sample rates for each spacing in the family and window;
+3. cyclic prefixes as whole samples from the shortest that covers the delay;
+4. pilot lattices up to the aliasing limit.
+
+All functions here are pure and vectorised over arrays of candidates.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import link
+from .design import DesignArrays
+from .environment import Environment
+from .requirements import Requirements
+from .rules import RULES, evaluate as evaluate_rule, evaluate_derived
+
+#: Cyclic prefixes tried, as multiples of the shortest that covers the delay.
+CP_FACTORS = (1.0, 1.25, 1.5, 2.0, 3.0, 4.0)
+#: Largest oversampling of the channel bandwidth by the sample rate.
+MAX_OVERSAMPLING = 4.0
+#: Points of the continuous spacing grid used to locate the window's edges.
+WINDOW_GRID = 160
+
+
+# --- families --------------------------------------------------------------
+
+
+def spacing_family(req: Requirements) -> np.ndarray:
+    """The subcarrier spacings the search may use (Hz), ascending."""
+    search = req.search
+    if search.spacing_family == "scalable":
+        low, high = search.spacing_exponents
+        return search.spacing_base_hz * 2.0 ** np.arange(low, high + 1)
+    if search.spacing_family == "range":
+        return np.geomspace(search.spacing_min_hz, search.spacing_max_hz, search.spacing_steps)
+    return np.unique(np.asarray(search.spacings_hz, dtype=float))
+
+
+def smooth_numbers(low: int, high: int) -> np.ndarray:
+    """Integers 2^a 3^b 5^c in [low, high], ascending (FFT-friendly sizes)."""
+    out = []
+    p2 = 1
+    while p2 <= high:
+        p3 = p2
+        while p3 <= high:
+            p5 = p3
+            while p5 <= high:
+                if p5 >= low:
+                    out.append(p5)
+                p5 *= 5
+            p3 *= 3
+        p2 *= 2
+    return np.array(sorted(out), dtype=np.int64)
+
+
+def fft_family(req: Requirements) -> np.ndarray:
+    """The FFT sizes the search may use, ascending."""
+    low, high = req.search.min_fft_size, req.search.max_fft_size
+    if req.search.fft_sizes == "smooth":
+        return smooth_numbers(low, high)
+    powers = 2 ** np.arange(0, 31, dtype=np.int64)
+    return powers[(powers >= low) & (powers <= high)]
+
+
+def pilot_lattices(req: Requirements) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """All pilot lattices in the search space: (freq_spacing, time_spacing, shift) arrays.
+
+    Rectangular lattices have shift 0; staggered ones shift by D_f/2, D_f/3 or
+    D_f/4 subcarriers per pilot-bearing symbol where that is a whole number
+    (DVB-T: D_f = 12, shift 3; EN 300 744 sect. 4.5.3).
+    """
+    f = np.arange(1, req.search.max_pilot_freq_spacing + 1)
+    # A pilot-bearing symbol in every slot (rule pilots_in_slot) caps the time spacing.
+    t = np.arange(1, min(req.search.max_pilot_time_spacing, max(req.search.symbols_per_slot)) + 1)
+    patterns = []
+    if "rectangular" in req.search.pilot_patterns:
+        patterns.append(np.stack([f, np.zeros_like(f)], axis=1))
+    if "staggered" in req.search.pilot_patterns:
+        for divisor in (2, 3, 4):
+            ok = (f % divisor == 0) & (f // divisor > 0) & (f > 1)
+            patterns.append(np.stack([f[ok], f[ok] // divisor], axis=1))
+    fs = np.unique(np.concatenate(patterns), axis=0)
+    ff = np.repeat(fs[:, 0], t.size)
+    ss = np.repeat(fs[:, 1], t.size)
+    tt = np.tile(t, fs.shape[0])
+    return ff, tt, ss
+
+
+# --- relaxed designs and the window -----------------------------------------
+
+
+def _relaxed_namespace(spacing_hz, environment: Environment, req: Requirements) -> dict:
+    """Symbols for a relaxed design at each spacing (see module docstring)."""
+    df = np.asarray(spacing_hz, dtype=float)
+    ns = link.namespace(_placeholder(df), environment, req)
+    guard_s = environment.max_excess_delay_s + link.cp_allowance_s(req)
+    ns.update({
+        "N": np.ones_like(df), "N_cp": guard_s * df,  # continuous CP, exactly covering the delay
+        "N_u": np.floor(req.radio.occupancy * req.radio.bandwidth_hz / df + 1e-9),
+        "D_f": np.full_like(df, np.inf), "D_t": np.full_like(df, np.inf), "s_p": np.zeros_like(df),
+        "N_slot": np.full_like(df, float(min(req.search.symbols_per_slot))),
+        "R_res": np.zeros_like(df), "N_x": np.zeros_like(df), "P_x": np.full_like(df, np.inf),
+        "clock_mismatch": lambda rate: np.zeros(np.shape(rate)),  # the clock is matched by the FFT size
+    })
+    ns = evaluate_derived({**ns, "sinr_eff": np.nan})
+    pn, cfo = link.oscillator_terms(req, ns["T_u"], df)
+    ns["oscillator_ici"] = lambda _df: pn + cfo  # the same spacings: computed once
+    ns["sinr_eff"] = 1.0 / (10 ** (-req.radio.snr_db / 10) + ns["doppler_ici"](environment.max_doppler_hz * ns["T_u"])
+                            + pn + cfo)
+    ns = evaluate_derived(ns)
+    # Densest pilots are the best case for aliasing: bind them for that rule only.
+    ns["alias_scale"] = lambda d_f, d_t, s, df_, ts, tau, fd: link.pilots.aliasing_scale(
+        1, 1, 0, df_, ts, tau, fd)
+    return ns
+
+
+def _placeholder(df) -> DesignArrays:
+    one = np.ones(np.shape(df), dtype=np.int64)
+    return DesignArrays(name="relaxed", subcarrier_spacing_hz=df, fft_size=one, cp_samples=0 * one,
+                        used_subcarriers=one, pilot_freq_spacing=one, pilot_time_spacing=one, pilot_shift=0 * one,
+                        symbols_per_slot=one)
+
+
+def relaxed_margins(spacing_hz, environment: Environment, req: Requirements, ignore=(), only=None) -> dict:
+    """Upper bounds on every applicable rule's margin at each spacing: name -> array."""
+    ns = _relaxed_namespace(spacing_hz, environment, req)
+    out = {}
+    for rule in link.applicable_rules(req):
+        if only is not None and rule.name != only:
+            continue
+        if rule.name in ignore or rule.gate:
+            continue  # yes/no rules do not depend on the spacing (the FFT size matches the clock)
+        _, _, margin = evaluate_rule(rule, ns)
+        out[rule.name] = np.broadcast_to(margin, np.shape(spacing_hz))
+    return out
+
+
+@dataclass(frozen=True)
+class Window:
+    """The feasible subcarrier-spacing window and the rules that bound it."""
+
+    min_hz: float
+    max_hz: float
+    lower_bound_rule: str | None
+    upper_bound_rule: str | None
+    searched_min_hz: float
+    searched_max_hz: float
+
+    @property
+    def empty(self) -> bool:
+        return not self.min_hz <= self.max_hz
+
+    def contains(self, spacing_hz, rtol=1e-9):
+        s = np.asarray(spacing_hz, dtype=float)
+        return (s >= self.min_hz * (1 - rtol)) & (s <= self.max_hz * (1 + rtol))
+
+    def to_json(self) -> dict:
+        return {"min_subcarrier_spacing_hz": None if self.empty else self.min_hz,
+                "max_subcarrier_spacing_hz": None if self.empty else self.max_hz,
+                "lower_bound_rule": self.lower_bound_rule, "upper_bound_rule": self.upper_bound_rule}
+
+
+def spacing_window(environment: Environment, req: Requirements, ignore=()) -> Window:
+    """The continuous window of subcarrier spacings that relaxed designs allow.
+
+    The grid spans the family (a factor 4 beyond each end); each edge is then
+    refined by bisection on the rule that fails beyond it, to 1e-9 relative.
+    """
+    family = spacing_family(req)
+    lo, hi = family[0] / 4, family[-1] * 4
+    grid = np.geomspace(lo, hi, WINDOW_GRID)
+    margins = relaxed_margins(grid, environment, req, ignore)
+    if not margins:
+        return Window(lo, hi, None, None, lo, hi)
+    stack = np.stack([margins[k] for k in margins])
+    ok = np.all(stack >= 0, axis=0)
+    names = list(margins)
+    if not ok.any():
+        # Name the rules that fail at the spacing where the fewest fail.
+        worst = int(np.argmin(np.sum(stack < 0, axis=0)))
+        failing = [names[i] for i in np.flatnonzero(stack[:, worst] < 0)]
+        return Window(np.inf, -np.inf, failing[0], failing[-1], lo, hi)
+    first, last = int(np.argmax(ok)), int(len(ok) - 1 - np.argmax(ok[::-1]))
+    lower_rule = upper_rule = None
+    min_hz, max_hz = grid[first], grid[last]
+    if first > 0:
+        lower_rule = names[int(np.argmin(stack[:, first - 1]))]
+        min_hz = _edge(grid[first - 1], grid[first], environment, req, lower_rule)
+    if last < len(grid) - 1:
+        upper_rule = names[int(np.argmin(stack[:, last + 1]))]
+        max_hz = _edge(grid[last], grid[last + 1], environment, req, upper_rule)
+    return Window(float(min_hz), float(max_hz), lower_rule, upper_rule, float(lo), float(hi))
+
+
+def _edge(a, b, environment, req, rule_name) -> float:
+    """The spacing between grid points a < b where the bounding rule's relaxed margin is zero.
+
+    Brent's method on log(spacing), to 1e-10 relative.
+    """
+    from scipy.optimize import brentq
+
+    def margin(log_df):
+        return float(relaxed_margins(np.array([np.exp(log_df)]), environment, req, only=rule_name)[rule_name][0])
+
+    try:
+        return float(np.exp(brentq(margin, np.log(a), np.log(b), xtol=1e-10)))
+    except ValueError:  # the grid point itself sits on the edge
+        return float(b if margin(np.log(b)) >= 0 else a)
+
+
+# --- enumeration -----------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Grid:
+    """Flat candidate arrays (one entry per candidate design)."""
+
+    spacing_hz: np.ndarray
+    fft_size: np.ndarray
+    cp_samples: np.ndarray
+    used: np.ndarray
+    pilot_f: np.ndarray
+    pilot_t: np.ndarray
+    pilot_s: np.ndarray
+    slot: np.ndarray
+
+    @property
+    def size(self) -> int:
+        return int(self.spacing_hz.size)
+
+    def take(self, index) -> "Grid":
+        return Grid(*(getattr(self, k)[index] for k in self.__dataclass_fields__))
+
+    def designs(self) -> DesignArrays:
+        n = self.size
+        names = np.array([f"candidate {i + 1}" for i in range(n)], dtype=object) if n <= 10_000 else "candidate"
+        return DesignArrays(name=names, subcarrier_spacing_hz=self.spacing_hz, fft_size=self.fft_size,
+                            cp_samples=self.cp_samples, used_subcarriers=self.used,
+                            pilot_freq_spacing=self.pilot_f, pilot_time_spacing=self.pilot_t,
+                            pilot_shift=self.pilot_s, symbols_per_slot=self.slot, source="numerology solve")
+
+
+def numerologies(spacings_hz, environment: Environment, req: Requirements):
+    """(spacing, FFT size, used subcarriers, CP samples) combinations, flat arrays.
+
+    For each spacing: FFT sizes whose sample rate N df covers the channel
+    bandwidth without oversampling it more than ``MAX_OVERSAMPLING`` times
+    (and, with a base clock, whose rate derives from it); used subcarriers
+    fill the usable bandwidth; CP lengths are whole samples from the
+    shortest that covers delay plus allowance, times ``CP_FACTORS``.
+    """
+    df = np.asarray(spacings_hz, dtype=float)[:, None]
+    n = fft_family(req)[None, :]
+    bandwidth = req.radio.bandwidth_hz
+    used = np.floor(req.radio.occupancy * bandwidth / df + 1e-9).astype(np.int64)
+    rate = n * df
+    ok = (rate >= bandwidth * (1 - 1e-12)) & (rate <= MAX_OVERSAMPLING * bandwidth) & (used >= 1) & (used <= n - 1)
+    if req.radio.sample_clock_hz is not None:
+        ok &= link.clock_mismatch(req)(rate) == 0
+    i, j = np.nonzero(ok)
+    df_c, n_c, used_c = df[i, 0], n[0, j], np.broadcast_to(used, ok.shape)[i, j]
+    guard_s = environment.max_excess_delay_s + link.cp_allowance_s(req)
+    cp_min = np.ceil(guard_s * n_c * df_c - 1e-9).astype(np.int64)
+    factors = np.asarray(CP_FACTORS)[None, :]
+    cps = np.maximum(np.ceil(cp_min[:, None] * factors - 1e-9).astype(np.int64), cp_min[:, None])
+    cps = np.where(cps < n_c[:, None], cps, -1)
+    rows = np.repeat(np.arange(df_c.size), len(CP_FACTORS))
+    cp_flat = cps.ravel()
+    keep = cp_flat >= 0
+    # The same CP may come from two factors when cp_min is small: keep each once.
+    pairs = np.unique(np.stack([rows[keep], cp_flat[keep]], axis=1), axis=0)
+    r, cp = pairs[:, 0], pairs[:, 1]
+    return df_c[r], n_c[r], used_c[r], cp
+
+
+def enumerate_grid(req: Requirements, environment: Environment, spacings_hz) -> Grid:
+    """Every candidate design for the given spacings (numerologies x pilot lattices x slot lengths)."""
+    df, n, used, cp = numerologies(spacings_hz, environment, req)
+    pf, pt, ps = pilot_lattices(req)
+    slots = np.asarray(req.search.symbols_per_slot, dtype=np.int64)
+    a, b, c = df.size, pf.size, slots.size
+    i = np.repeat(np.arange(a), b * c)
+    j = np.tile(np.repeat(np.arange(b), c), a)
+    k = np.tile(np.arange(c), a * b)
+    return Grid(df[i], n[i], cp[i], used[i], pf[j], pt[j], ps[j], slots[k])

@@ -1,0 +1,243 @@
+"""The solver: from environment bounds and goals to ranked, explained designs.
+
+Data flow (all pure functions)::
+
+    Requirements -> Environment -> window of spacings -> candidate grid
+        -> cheap rules (no estimation error)  -> bound on the SINR-dependent rules
+        -> exact link model on the survivors, best-first (branch and bound)
+        -> ranking, Pareto set, explanations
+
+Every returned design was evaluated by :func:`numerology.link.evaluate`, the
+function ``check`` uses, and passes every rule. The stages only discard
+candidates that provably fail: the estimation error only lowers the SINR, so
+throughput and link margins computed without it are upper bounds.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from . import candidates as cand
+from . import link
+from .design import DesignArrays
+from .environment import Environment, derive_environment
+from .requirements import Requirements
+from .rules import evaluate as evaluate_rule, evaluate_derived
+
+OBJECTIVES = ("throughput", "robustness", "overhead", "latency")
+#: Rules a faster channel stresses, and rules a longer echo stresses (for the Pareto axes).
+SPEED_RULES = ("doppler_ici", "quasi_static", "pilot_aliasing")
+DELAY_RULES = ("cp_covers_delay", "flat_fading", "pilot_aliasing")
+#: Candidates evaluated exactly per round of the branch and bound.
+BATCH = 4096
+#: Pareto designs carried into the result beyond the top N.
+PARETO_SHOWN = 20
+#: Rules whose margins depend on the estimation error (through the SINR).
+SINR_RULES = ("link_closes", "throughput")
+
+
+@dataclass(frozen=True)
+class SearchStats:
+    spacings_in_family: int
+    spacings_in_window: int
+    candidates: int  # size of the unpruned space
+    after_cheap_rules: int
+    evaluated_exactly: int
+    feasible_found: int
+    top: int = 5
+
+
+@dataclass(frozen=True)
+class Ranked:
+    """The exactly evaluated feasible designs, best first."""
+
+    designs: DesignArrays
+    evaluation: link.Evaluation
+    keys: np.ndarray  # objective value (higher is better)
+    pareto: np.ndarray  # on the Pareto front over (throughput, speed margin, delay margin)
+    position: np.ndarray  # rank among all feasible designs found (0 = best)
+
+
+@dataclass(frozen=True)
+class Search:
+    """Outcome of one search (no explanations yet)."""
+
+    window: cand.Window
+    ranked: Ranked | None
+    stats: SearchStats
+    rejected_by: dict = field(default_factory=dict)  # rule -> number of candidates it rejected in the cheap stage
+
+    @property
+    def feasible(self) -> bool:
+        return self.ranked is not None and self.ranked.keys.size > 0
+
+    @property
+    def top(self) -> np.ndarray:
+        """Indices into ``ranked`` of the best designs, in rank order."""
+        return np.flatnonzero(self.ranked.position < self.stats.top) if self.feasible else np.empty(0, int)
+
+
+def objective_key(objective: str, evaluation: link.Evaluation, designs: DesignArrays) -> np.ndarray:
+    """Higher is better, for each objective."""
+    if objective == "throughput":
+        return np.asarray(evaluation.rate_bps, dtype=float)
+    if objective == "robustness":
+        return np.asarray(evaluation.worst_normalised, dtype=float)
+    if objective == "overhead":
+        return -np.asarray(evaluation.overhead, dtype=float)
+    if objective == "latency":
+        return -np.asarray(designs.slot_s, dtype=float)
+    raise ValueError(objective)
+
+
+def _cheap_stage(grid: cand.Grid, environment: Environment, req: Requirements, ignore):
+    """Every rule with the estimation error left out: exact for most rules, an upper bound for the SINR rules."""
+    designs = grid.designs()
+    ns = link.namespace(designs, environment, req)
+    ns = evaluate_derived({**ns, "sinr_eff": np.nan})
+    delays, powers = environment.taps
+    useful, interference = link.delay.echo_interference(delays, powers, ns["T_cp"], ns["T_u"])
+    pn, cfo = link.oscillator_terms(req, ns["T_u"], ns["df"])
+    noise = 10 ** (-req.radio.snr_db / 10)
+    ns["sinr_eff"] = 1.0 / (noise + interference / useful + ns["doppler_ici"](environment.max_doppler_hz * ns["T_u"])
+                            + pn + cfo)
+    ns = evaluate_derived(ns)
+    ok = np.ones(grid.size, dtype=bool)
+    rejected = {}
+    normalised = []
+    for rule in link.applicable_rules(req):
+        if rule.name in ignore:
+            continue
+        cap, dem, margin = evaluate_rule(rule, ns)
+        fail = np.broadcast_to(margin, ok.shape) < 0
+        rejected[rule.name] = int(np.count_nonzero(fail & ok))
+        ok &= ~fail
+        normalised.append(np.broadcast_to(link.normalised_margin(rule, cap, dem), ok.shape))
+    bound = {
+        "throughput": np.broadcast_to(ns["rate"], ok.shape),
+        "robustness": np.min(np.stack(normalised), axis=0) if normalised else np.zeros(ok.shape),
+        "overhead": -np.broadcast_to(ns["overhead"], ok.shape),
+        "latency": -np.broadcast_to(ns["T_slot"], ok.shape),
+    }
+    return ok, bound, rejected
+
+
+def search(req: Requirements, environment: Environment | None = None, objective: str | None = None,
+           top: int = 5, ignore=(), first_feasible_only: bool = False, spacings_hz=None) -> Search:
+    """Search the candidate space.
+
+    Parameters
+    ----------
+    req : Requirements
+    environment : Environment, optional
+        Derived from ``req`` when not given.
+    objective : str, optional
+        One of :data:`OBJECTIVES`; default ``goals.objective``.
+    top : int
+        How many best designs are guaranteed exact (the branch and bound
+        stops once these are certain).
+    ignore : iterable of str
+        Rule names left out (for the infeasibility diagnosis).
+    first_feasible_only : bool
+        Stop at the first feasible design (a feasibility test).
+    spacings_hz : array, optional
+        Use these spacings instead of the family within the window (brute force).
+    """
+    environment = environment or derive_environment(req)
+    objective = objective or req.goals.objective
+    window = cand.spacing_window(environment, req, ignore)
+    family = cand.spacing_family(req)
+    if spacings_hz is None:
+        spacings_hz = family[window.contains(family)] if not window.empty else family[:0]
+    grid = cand.enumerate_grid(req, environment, spacings_hz)
+    full_size = _space_size(req, environment, family)
+    ok, bound, rejected = _cheap_stage(grid, environment, req, ignore) if grid.size else (
+        np.zeros(0, bool), {k: np.zeros(0) for k in OBJECTIVES}, {})
+    survivors = np.flatnonzero(ok)
+    order = survivors[np.argsort(-bound[objective][survivors], kind="stable")]
+    records = {k: [] for k in ("index", "key", "robust", "rate", "speed", "delay")}
+    evaluated, start, batch_size = 0, 0, 256
+    best_keys = np.empty(0)
+    while start < order.size:
+        batch = order[start:start + batch_size]
+        designs = grid.take(batch).designs()
+        evaluation = link.evaluate(designs, environment, req)
+        evaluated += batch.size
+        passed = _passed(evaluation, ignore)
+        if passed.any():
+            idx = np.flatnonzero(passed)
+            keys = objective_key(objective, evaluation, designs)[idx]
+            for name, values in (("index", batch[idx]), ("key", keys),
+                                 ("robust", evaluation.worst_normalised[idx]), ("rate", evaluation.rate_bps[idx]),
+                                 ("speed", axis_margins(evaluation, SPEED_RULES)[idx]),
+                                 ("delay", axis_margins(evaluation, DELAY_RULES)[idx])):
+                records[name].append(np.asarray(values))
+            best_keys = np.sort(np.concatenate([best_keys, keys]))[::-1]
+            if first_feasible_only:
+                break
+        start += batch.size
+        batch_size = min(batch_size * 2, BATCH)
+        next_bound = bound[objective][order[start]] if start < order.size else -np.inf
+        if best_keys.size >= top and best_keys[top - 1] >= next_bound:
+            break  # no unevaluated candidate can enter the top
+    found = {k: np.concatenate(v) if v else np.empty(0) for k, v in records.items()}
+    stats = SearchStats(family.size, int(len(spacings_hz)), full_size, int(survivors.size), evaluated,
+                        int(found["index"].size), top)
+    if not found["index"].size:
+        return Search(window, None, stats, rejected)
+    # Best first; ties broken by robustness, then by enumeration order (deterministic).
+    rank = np.lexsort((found["index"], -found["robust"], -found["key"]))
+    pareto = pareto_mask(found["rate"], found["speed"], found["delay"])
+    chosen = found["index"][rank].astype(np.int64)
+    on_front = pareto[rank]
+    show = np.unique(np.concatenate([np.arange(min(top, chosen.size)), np.flatnonzero(on_front)[:PARETO_SHOWN]]))
+    designs = grid.take(chosen[show]).designs()
+    evaluation = link.evaluate(designs, environment, req)
+    ranked = Ranked(designs, evaluation, found["key"][rank][show], on_front[show], show)
+    return Search(window, ranked, stats, rejected)
+
+
+def _passed(evaluation: link.Evaluation, ignore) -> np.ndarray:
+    ok = np.ones(np.shape(evaluation.sinr_eff), dtype=bool)
+    for rule in evaluation.rules:
+        if rule.name not in ignore:
+            ok &= evaluation.margin[rule.name] >= 0
+    return ok
+
+
+def _space_size(req: Requirements, environment: Environment, family) -> int:
+    """Size of the unpruned candidate space over the whole family."""
+    df, *_ = cand.numerologies(family, environment, req)
+    pf, _, _ = cand.pilot_lattices(req)
+    return int(df.size * pf.size * len(req.search.symbols_per_slot))
+
+
+def brute_force(req: Requirements, environment: Environment | None = None, ignore=()) -> tuple[cand.Grid, np.ndarray]:
+    """Evaluate every candidate of the whole family with the exact link model (small spaces only).
+
+    Returns the grid and a boolean array of which candidates pass.
+    """
+    environment = environment or derive_environment(req)
+    grid = cand.enumerate_grid(req, environment, cand.spacing_family(req))
+    evaluation = link.evaluate(grid.designs(), environment, req)
+    return grid, _passed(evaluation, ignore)
+
+
+def pareto_mask(rate, speed_margin, delay_margin) -> np.ndarray:
+    """True for designs no other design beats on all three axes (and strictly on one)."""
+    points = np.stack([rate, speed_margin, delay_margin], axis=1)
+    n = points.shape[0]
+    keep = np.ones(n, dtype=bool)
+    for start in range(0, n, 512):
+        block = points[start:start + 512]
+        ge = np.all(points[None, :, :] >= block[:, None, :], axis=2)
+        gt = np.any(points[None, :, :] > block[:, None, :], axis=2)
+        keep[start:start + 512] = ~np.any(ge & gt, axis=1)
+    return keep
+
+
+def axis_margins(evaluation: link.Evaluation, names) -> np.ndarray:
+    present = [evaluation.normalised[n] for n in names if n in evaluation.normalised]
+    return np.min(np.stack(present), axis=0)
