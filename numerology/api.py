@@ -163,3 +163,252 @@ def check(req: Requirements, design=None, *, preset: str | None = None, design_f
 
 
 __all__ = ["load", "check", "CheckResult", "RuleResult", "Limit", "design_from"]
+
+
+# --- solve ---------------------------------------------------------------------
+
+#: How far each setting is relaxed to show what it would buy: (key, kind, step).
+RELAX_STEPS = {
+    "rules.max_doppler_ici": ("add_db", 3.0),
+    "rules.max_oscillator_ici": ("add_db", 3.0),
+    "rules.quasi_static_factor": ("scale", 0.8),
+    "rules.flat_fading_factor": ("scale", 0.8),
+    "rules.pilot_oversampling": ("scale", 0.8),
+    "rules.cp_allowance": ("scale", 0.5),
+    "goals.max_overhead": ("add", 0.05),
+    "goals.throughput": ("scale", 0.9),
+    "goals.max_latency": ("scale", 1.25),
+}
+
+
+@dataclass(frozen=True)
+class Relaxed:
+    """What relaxing one setting by a stated step would buy."""
+
+    key: str
+    from_si: float
+    to_si: float
+    objective: str
+    best_before: float
+    best_after: float | None  # None: still infeasible
+
+    def to_json(self) -> dict:
+        return {"key": self.key, "from_si": self.from_si, "to_si": self.to_si, "objective": self.objective,
+                "best_before": self.best_before, "best_after": self.best_after}
+
+
+@dataclass(frozen=True)
+class Neighbour:
+    """A design one step away from a ranked design, and why it is rejected (or not)."""
+
+    change: str
+    design: Design
+    failing_rule: str | None
+    margin: float | None
+
+    def to_json(self) -> dict:
+        return {"change": self.change, "design": self.design.to_json(), "failing_rule": self.failing_rule,
+                "margin": _finite(self.margin) if self.margin is not None else None}
+
+
+@dataclass(frozen=True)
+class RankedDesign:
+    rank: int  # 1 = best
+    check: CheckResult
+    pareto: bool
+
+    def to_json(self) -> dict:
+        return {"rank": self.rank, "pareto": self.pareto, **self.check.to_json()}
+
+
+@dataclass(frozen=True)
+class SolveResult:
+    """The answer to a requirement set."""
+
+    requirements: Requirements
+    environment: Environment
+    objective: str
+    window: object  # candidates.Window
+    designs: tuple  # RankedDesign, best first (the top N)
+    pareto: tuple  # RankedDesign on the Pareto front (may overlap designs)
+    stats: object  # solver.SearchStats
+    relaxed: Relaxed | None = None
+    neighbours: tuple = ()
+    diagnosis: object = None  # diagnosis.Diagnosis when infeasible
+
+    @property
+    def feasible(self) -> bool:
+        return bool(self.designs)
+
+    def __str__(self) -> str:
+        if not self.feasible:
+            tips = "; ".join(str(r) for r in self.diagnosis.relaxations) if self.diagnosis else ""
+            return f"infeasible: conflict {', '.join(self.diagnosis.conflict) if self.diagnosis else '?'}" + (
+                f"; feasible if {tips}" if tips else "")
+        best = self.designs[0].check
+        return f"{len(self.designs)} designs; best {best.design}: binding {best.binding_rule.name}"
+
+    def to_json(self) -> dict:
+        body = {
+            "feasible": self.feasible,
+            "objective": self.objective,
+            "environment": self.environment.to_json(),
+            "window": self.window.to_json(),
+            "designs": [d.to_json() for d in self.designs],
+            "pareto": [d.to_json()["design"] | {"rank": d.rank} for d in self.pareto],
+            "search": {
+                "spacings_in_family": self.stats.spacings_in_family,
+                "spacings_in_window": self.stats.spacings_in_window,
+                "candidates": self.stats.candidates,
+                "after_cheap_rules": self.stats.after_cheap_rules,
+                "evaluated_exactly": self.stats.evaluated_exactly,
+                "feasible_found": self.stats.feasible_found,
+            },
+            "relaxed": self.relaxed.to_json() if self.relaxed else None,
+            "neighbours": [n.to_json() for n in self.neighbours],
+        }
+        if not self.feasible and self.diagnosis is not None:
+            body["conflict"] = list(self.diagnosis.conflict)
+            body["relaxations"] = [r.to_json() for r in self.diagnosis.relaxations]
+        return body
+
+
+def _check_from(evaluation, designs: DesignArrays, index: int, environment, limits=None) -> CheckResult:
+    return CheckResult(
+        design=designs.design(index), environment=environment, rules=results_from_evaluation(evaluation, index),
+        sinr_terms={k: float(np.ravel(v)[index]) for k, v in evaluation.terms.items()},
+        effective_sinr_db=float(evaluation.sinr_eff_db[index]), efficiency=float(evaluation.efficiency[index]),
+        net_throughput_bps=float(evaluation.rate_bps[index]), overhead=float(evaluation.overhead[index]),
+        limits=limits or {})
+
+
+def _named(design: Design, rank: int) -> Design:
+    import dataclasses
+
+    return dataclasses.replace(design, name=f"design {rank}", source="numerology solve")
+
+
+def solve(req: Requirements, *, objective: str | None = None, top: int = 5, explain: bool = True,
+          with_limits: bool = True) -> SolveResult:
+    """Search the design space, rank the feasible designs and explain them.
+
+    Parameters
+    ----------
+    req : Requirements
+    objective : str, optional
+        ``throughput``, ``robustness``, ``overhead`` or ``latency``; default ``goals.objective``.
+    top : int
+        How many designs to return.
+    explain : bool
+        Work out what relaxing the binding setting would buy and the rejected neighbours
+        (infeasible requests: the conflict and the relaxations).
+    with_limits : bool
+        Stretch limits of the best design.
+    """
+    from . import solver
+
+    objective = objective or req.goals.objective
+    environment = derive_environment(req)
+    found = solver.search(req, environment, objective=objective, top=top)
+    if not found.feasible:
+        diagnosis = None
+        if explain:
+            from .diagnosis import diagnose
+
+            diagnosis = diagnose(req)
+        return SolveResult(req, environment, objective, found.window, (), (), found.stats, diagnosis=diagnosis)
+    ranked = found.ranked
+    checks = []
+    for i in range(ranked.keys.size):
+        limits = None
+        if with_limits and ranked.position[i] == 0:
+            limits = stretch_limits(DesignArrays.from_designs([ranked.designs.design(i)]), req, environment)
+        check_result = _check_from(ranked.evaluation, ranked.designs, i, environment, limits)
+        rank = int(ranked.position[i]) + 1
+        import dataclasses
+
+        check_result = dataclasses.replace(check_result, design=_named(check_result.design, rank))
+        checks.append(RankedDesign(rank, check_result, bool(ranked.pareto[i])))
+    designs = tuple(c for c in checks if c.rank <= top)
+    pareto = tuple(c for c in checks if c.pareto)
+    relaxed, neighbours = None, ()
+    if explain and designs:
+        best = designs[0].check
+        relaxed = _what_relaxing_buys(req, environment, objective, best, float(ranked.keys[0]))
+        neighbours = _neighbours(req, environment, best.design)
+    return SolveResult(req, environment, objective, found.window, designs, pareto, found.stats, relaxed, neighbours)
+
+
+def _what_relaxing_buys(req, environment, objective, best: CheckResult, best_key: float) -> Relaxed | None:
+    from . import solver
+    from .rules import BY_NAME
+
+    graded = [r for r in best.rules if BY_NAME[r.name].setting in RELAX_STEPS]
+    if not graded:
+        return None
+    binding = min(graded, key=lambda r: r.normalised)
+    key = BY_NAME[binding.name].setting
+    section, name = key.split(".")
+    kind, step = RELAX_STEPS[key]
+    from .requirements import _BY_SECTION
+
+    field = _BY_SECTION[section][name].field
+    current = getattr(getattr(req, section), field)
+    if current is None:
+        from .link import cp_allowance_s
+
+        current = cp_allowance_s(req) if key == "rules.cp_allowance" else None
+    if current is None:
+        return None
+    new = current + step if kind in ("add", "add_db") else current * step
+    if key == "goals.max_overhead":
+        new = min(new, 1.0)
+    if key == "rules.pilot_oversampling":
+        new = max(new, 1.0)
+    if key in ("rules.max_doppler_ici", "rules.max_oscillator_ici"):
+        new = min(new, 0.0)
+    relaxed_req = req.replace(key, new)
+    found = solver.search(relaxed_req, derive_environment(relaxed_req), objective=objective, top=1)
+    after = float(found.ranked.keys[0]) if found.feasible else None
+    return Relaxed(key, float(current), float(new), objective, best_key, after)
+
+
+def _neighbours(req, environment, design: Design) -> tuple:
+    """Designs one step away: spacing up and down (same sample rate), CP one sample shorter, sparser pilots."""
+    import dataclasses
+
+    from .candidates import spacing_family
+
+    family = spacing_family(req)
+    variants = []
+    i = int(np.argmin(np.abs(family - design.subcarrier_spacing_hz)))
+    for j, label in ((i + 1, "next larger spacing"), (i - 1, "next smaller spacing")):
+        if 0 <= j < family.size:
+            ratio = design.subcarrier_spacing_hz / family[j]
+            fft = max(int(round(design.fft_size * ratio)), 8)
+            used = int(np.floor(req.radio.occupancy * req.radio.bandwidth_hz / family[j] + 1e-9))
+            used = min(used, fft - 1)
+            cp = max(int(round(design.cp_samples * fft / design.fft_size)), 0)
+            if used >= 1 and cp < fft:
+                variants.append((label, dataclasses.replace(
+                    design, subcarrier_spacing_hz=float(family[j]), fft_size=fft, used_subcarriers=used, cp_samples=cp,
+                    sample_rate_hz=None)))
+    if design.cp_samples > 0:
+        variants.append(("cyclic prefix one sample shorter", dataclasses.replace(design, cp_samples=design.cp_samples - 1)))
+    variants.append(("pilots one subcarrier sparser", dataclasses.replace(
+        design, pilot_freq_spacing=design.pilot_freq_spacing + 1,
+        pilot_shift=0 if design.pilot_shift == 0 else design.pilot_shift)))
+    variants.append(("pilots one symbol sparser", dataclasses.replace(
+        design, pilot_time_spacing=design.pilot_time_spacing + 1)))
+    out = []
+    for label, variant in variants:
+        variant = dataclasses.replace(variant, name=label)
+        evaluation = link.evaluate(DesignArrays.from_designs([variant]), environment, req)
+        results = results_from_evaluation(evaluation, 0)
+        failing = [r for r in results if not r.passed]
+        worst = min(failing, key=lambda r: r.normalised) if failing else None
+        out.append(Neighbour(label, variant, worst.name if worst else None, worst.margin if worst else None))
+    return tuple(out)
+
+
+__all__ += ["solve", "SolveResult", "RankedDesign", "Relaxed", "Neighbour"]

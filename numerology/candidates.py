@@ -29,7 +29,8 @@ from .rules import RULES, evaluate as evaluate_rule, evaluate_derived
 
 #: Cyclic prefixes tried, as multiples of the shortest that covers the delay.
 CP_FACTORS = (1.0, 1.25, 1.5, 2.0, 3.0, 4.0)
-#: Largest oversampling of the channel bandwidth by the sample rate.
+#: Largest oversampling of the channel bandwidth by the sample rate (sizes beyond twice the smallest
+#: usable FFT are dropped as well).
 MAX_OVERSAMPLING = 4.0
 #: Points of the continuous spacing grid used to locate the window's edges.
 WINDOW_GRID = 160
@@ -270,6 +271,9 @@ def numerologies(spacings_hz, environment: Environment, req: Requirements):
     ok = (rate >= bandwidth * (1 - 1e-12)) & (rate <= MAX_OVERSAMPLING * bandwidth) & (used >= 1) & (used <= n - 1)
     if req.radio.sample_clock_hz is not None:
         ok &= link.clock_mismatch(req)(rate) == 0
+    # An FFT more than twice the smallest usable one only costs computation (finer CP steps aside).
+    smallest = np.min(np.where(ok, n, np.iinfo(np.int64).max), axis=1, keepdims=True)
+    ok &= n <= 2 * smallest
     i, j = np.nonzero(ok)
     df_c, n_c, used_c = df[i, 0], n[0, j], np.broadcast_to(used, ok.shape)[i, j]
     guard_s = environment.max_excess_delay_s + link.cp_allowance_s(req)
@@ -286,13 +290,28 @@ def numerologies(spacings_hz, environment: Environment, req: Requirements):
     return df_c[r], n_c[r], used_c[r], cp
 
 
-def enumerate_grid(req: Requirements, environment: Environment, spacings_hz) -> Grid:
-    """Every candidate design for the given spacings (numerologies x pilot lattices x slot lengths)."""
-    df, n, used, cp = numerologies(spacings_hz, environment, req)
-    pf, pt, ps = pilot_lattices(req)
-    slots = np.asarray(req.search.symbols_per_slot, dtype=np.int64)
-    a, b, c = df.size, pf.size, slots.size
+def expand(numerology: Grid, lattices, slots, paired: bool = False) -> Grid:
+    """Cross numerologies with pilot lattices and slot lengths (numerology-major order).
+
+    With ``paired`` the lattices belong one-to-one to the numerologies (only slots are crossed).
+    """
+    pf, pt, ps = lattices
+    if paired:
+        i = np.repeat(np.arange(numerology.size), slots.size)
+        k = np.tile(np.arange(slots.size), numerology.size)
+        return Grid(numerology.spacing_hz[i], numerology.fft_size[i], numerology.cp_samples[i], numerology.used[i],
+                    pf[i], pt[i], ps[i], slots[k])
+    a, b, c = numerology.size, pf.size, slots.size
     i = np.repeat(np.arange(a), b * c)
     j = np.tile(np.repeat(np.arange(b), c), a)
     k = np.tile(np.arange(c), a * b)
-    return Grid(df[i], n[i], cp[i], used[i], pf[j], pt[j], ps[j], slots[k])
+    return Grid(numerology.spacing_hz[i], numerology.fft_size[i], numerology.cp_samples[i], numerology.used[i],
+                pf[j], pt[j], ps[j], slots[k])
+
+
+def enumerate_grid(req: Requirements, environment: Environment, spacings_hz) -> Grid:
+    """Every candidate design for the given spacings (numerologies x pilot lattices x slot lengths)."""
+    df, n, used, cp = numerologies(spacings_hz, environment, req)
+    one = np.ones_like(n)
+    return expand(Grid(df, n, cp, used, one, one, 0 * one, one), pilot_lattices(req),
+                  np.asarray(req.search.symbols_per_slot, dtype=np.int64))

@@ -144,12 +144,11 @@ def oscillator_terms(req: Requirements, useful_symbol_s, subcarrier_spacing_hz):
     if radio.phase_noise is not None:
         offsets, levels = radio.phase_noise
         # The mask integral is the costly one: once per distinct symbol duration.
-        t_u = np.asarray(useful_symbol_s, dtype=float)
-        distinct, inverse = np.unique(t_u, return_inverse=True)
-        pn = np.asarray(oscillator.mask_phase_noise_ici(offsets, levels, distinct))[inverse].reshape(t_u.shape)
+        pn = _on_distinct(lambda t: oscillator.mask_phase_noise_ici(offsets, levels, t), useful_symbol_s)
     else:
-        pn = oscillator.wiener_phase_noise_ici(radio.oscillator_linewidth_hz, useful_symbol_s)
-    cfo = oscillator.cfo_ici(radio.frequency_error_hz, subcarrier_spacing_hz)
+        pn = _on_distinct(lambda t: oscillator.wiener_phase_noise_ici(radio.oscillator_linewidth_hz, t),
+                          useful_symbol_s)
+    cfo = _on_distinct(lambda df: oscillator.cfo_ici(radio.frequency_error_hz, df), subcarrier_spacing_hz)
     return np.asarray(pn, dtype=float), np.asarray(cfo, dtype=float)
 
 
@@ -174,6 +173,13 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
         unique[:, 0].astype(np.int64), unique[:, 1].astype(np.int64), unique[:, 2].astype(np.int64),
         unique[:, 3], unique[:, 4], freq_correlation, time_correlation, unique[:, 5], estimator=req.rules.estimator)
     return np.asarray(mse)[np.ravel(inverse)].reshape(shape)
+
+
+def _on_distinct(function, x):
+    """Apply an elementwise function once per distinct value (candidates share few spacings)."""
+    x = np.asarray(x, dtype=float)
+    distinct, inverse = np.unique(x, return_inverse=True)
+    return np.asarray(function(distinct), dtype=float)[np.ravel(inverse)].reshape(x.shape)
 
 
 def namespace(designs: DesignArrays, environment: Environment, req: Requirements) -> dict:
@@ -210,7 +216,7 @@ def namespace(designs: DesignArrays, environment: Environment, req: Requirements
         "R_goal": goals.throughput_bps,
         "L_max": np.inf if goals.max_latency_s is None else goals.max_latency_s,
         # functions of the rule language, bound to this environment
-        "doppler_ici": lambda x: doppler.doppler_ici(x, 1.0, spectrum, k),
+        "doppler_ici": lambda x: _on_distinct(lambda u: doppler.doppler_ici(u, 1.0, spectrum, k), x),
         "oscillator_ici": lambda df: np.add(*oscillator_terms(req, 1.0 / np.asarray(df, float), df)),
         "alias_scale": pilots.aliasing_scale,
         "efficiency": efficiency_function(req),

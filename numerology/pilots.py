@@ -129,7 +129,8 @@ def _ratio(numerator, denominator):
     """
     numerator = np.asarray(numerator, dtype=np.float64)
     out = np.full(np.broadcast_shapes(numerator.shape, np.shape(denominator)), np.inf)
-    np.divide(numerator, denominator, out=out, where=np.asarray(denominator) > 0)
+    with np.errstate(over="ignore"):  # a vanishing support: the ratio is rightly inf
+        np.divide(numerator, denominator, out=out, where=np.asarray(denominator) > 0)
     return np.where(numerator == 0, 0.0, out)
 
 
@@ -311,7 +312,9 @@ def aliasing_scale(freq_spacing, time_spacing, shift, subcarrier_spacing_hz, sym
     return g.reshape(shape)
 
 
-def max_delay_for_lattice(freq_spacing, time_spacing, shift, subcarrier_spacing_hz, symbol_s, max_doppler_hz, oversampling=1.0):
+def max_delay_for_lattice(
+    freq_spacing, time_spacing, shift, subcarrier_spacing_hz, symbol_s, max_doppler_hz, oversampling=1.0
+):
     """Largest maximum excess delay the lattice resolves at a given Doppler.
 
     The largest tau_max with ``aliasing_scale(..., tau_max, f_D) >= oversampling``,
@@ -362,11 +365,14 @@ def max_delay_for_lattice(freq_spacing, time_spacing, shift, subcarrier_spacing_
         inside = (r == 0) | (r < width)
         dtau = np.where(inside, m / (d_f * df)[:, None], np.inf)
         tau = np.minimum(tau, dtau.min(axis=1))
-    tau = np.where(tau > 0, tau / over, np.nan)
+    with np.errstate(over="ignore"):
+        tau = np.where(tau > 0, tau / over, np.nan)
     return tau.reshape(shape)
 
 
-def max_doppler_for_lattice(freq_spacing, time_spacing, shift, subcarrier_spacing_hz, symbol_s, max_delay_s, oversampling=1.0):
+def max_doppler_for_lattice(
+    freq_spacing, time_spacing, shift, subcarrier_spacing_hz, symbol_s, max_delay_s, oversampling=1.0
+):
     """Largest maximum Doppler frequency the lattice resolves at a given delay.
 
     Half the smallest abs(dnu) among the reciprocal points whose delay offset lies
@@ -415,7 +421,8 @@ def max_doppler_for_lattice(freq_spacing, time_spacing, shift, subcarrier_spacin
         inside = (m == 0) | (m < width)
         dnu = np.where(inside, r / (d_f * d_t * ts)[:, None], np.inf)
         f_max = np.minimum(f_max, dnu.min(axis=1))
-    f_max = np.where(f_max > 0, f_max / (2.0 * over), np.nan)
+    with np.errstate(over="ignore"):
+        f_max = np.where(f_max > 0, f_max / (2.0 * over), np.nan)
     return f_max.reshape(shape)
 
 
@@ -572,7 +579,9 @@ def _prepare(freq_spacing, time_spacing, shift, subcarrier_spacing_hz, symbol_s,
     try:
         extra = np.broadcast_shapes(tuple(candidate_shape), tuple(lead_shape))
     except (TypeError, ValueError):
-        raise InputError("candidate_shape", f"expected a shape that broadcasts with the candidates, got {candidate_shape!r}") from None
+        raise InputError(
+            "candidate_shape", f"expected a shape that broadcasts with the candidates, got {candidate_shape!r}"
+        ) from None
     return _broadcast_flat(d_f, d_t, s, df, ts, snr, extra_shape=extra)
 
 
@@ -672,7 +681,11 @@ def estimator_weights(
         t_shape = np.broadcast_shapes(tk.shape, tl.shape)
     except ValueError:
         raise InputError("target_symbol", "does not broadcast with target_subcarrier") from None
-    base_ndim = len(np.broadcast_shapes(*(np.shape(a) for a in (freq_spacing, time_spacing, shift, subcarrier_spacing_hz, symbol_s, pilot_snr)), tuple(candidate_shape)))
+    params = (freq_spacing, time_spacing, shift, subcarrier_spacing_hz, symbol_s, pilot_snr)
+    try:
+        base_ndim = len(np.broadcast_shapes(*(np.shape(a) for a in params), tuple(candidate_shape)))
+    except (TypeError, ValueError):
+        raise InputError("pilot lattice", "the lattice, numerology and SNR arrays do not broadcast together") from None
     lead, trail = (t_shape[:base_ndim], t_shape[base_ndim:]) if len(t_shape) > base_ndim else (t_shape, ())
     shape, (d_f, d_t, s, df, ts, snr) = _prepare(
         freq_spacing, time_spacing, shift, subcarrier_spacing_hz, symbol_s, pilot_snr, candidate_shape, lead
@@ -780,7 +793,9 @@ def estimation_mse(
         valid = p < cells[idx][:, None]
         tk = np.where(valid, p % d_f[idx][:, None], 0)  # cell position k = p mod D_f
         tl = np.where(valid, p // d_f[idx][:, None], 0)  # l = p div D_f
-        _, _, _, mse = _weights_core(d_f[idx], d_t[idx], s[idx], snr[idx], f_table[idx], t_table[idx], tk, tl, estimator, reach)
+        _, _, _, mse = _weights_core(
+            d_f[idx], d_t[idx], s[idx], snr[idx], f_table[idx], t_table[idx], tk, tl, estimator, reach
+        )
         out[idx] = np.sum(np.where(valid, mse, 0.0), axis=1) / cells[idx]
         start = stop
     return out.reshape(shape)

@@ -92,10 +92,32 @@ def objective_key(objective: str, evaluation: link.Evaluation, designs: DesignAr
     raise ValueError(objective)
 
 
-def _cheap_stage(grid: cand.Grid, environment: Environment, req: Requirements, ignore):
-    """Every rule with the estimation error left out: exact for most rules, an upper bound for the SINR rules."""
+#: Candidates built and screened at a time (bounds memory).
+CHUNK = 1 << 20
+
+
+def _relaxed_pilots(req: Requirements) -> dict:
+    """Namespace overrides for a numerology before its pilots and slot are chosen (best case of each)."""
+    return {
+        "D_f": np.inf, "D_t": np.inf, "s_p": 0.0,  # no pilot overhead ...
+        "alias_scale": lambda d_f, d_t, s, df, ts, tau, fd: link.pilots.aliasing_scale(1, 1, 0, df, ts, tau, fd),
+        "N_slot": float(min(req.search.symbols_per_slot)),
+    }
+
+
+def _cheap_stage(grid: cand.Grid, environment: Environment, req: Requirements, ignore, overrides=None,
+                 keep_pilots=False):
+    """Every rule with the estimation error left out: exact for most rules, an upper bound for the SINR rules.
+
+    ``overrides`` replaces symbols by best-case values (used to screen numerologies before pilots,
+    and lattices before slot lengths); the yes/no rule pilots_in_slot waits for the slot length.
+    """
     designs = grid.designs()
     ns = link.namespace(designs, environment, req)
+    if overrides:
+        ns.update(overrides)
+        ignore = tuple(ignore) + ("pilots_in_slot",)
+    del keep_pilots  # the pilot symbols stay those of the grid unless overridden
     ns = evaluate_derived({**ns, "sinr_eff": np.nan})
     delays, powers = environment.taps
     useful, interference = link.delay.echo_interference(delays, powers, ns["T_cp"], ns["T_u"])
@@ -151,11 +173,9 @@ def search(req: Requirements, environment: Environment | None = None, objective:
     family = cand.spacing_family(req)
     if spacings_hz is None:
         spacings_hz = family[window.contains(family)] if not window.empty else family[:0]
-    grid = cand.enumerate_grid(req, environment, spacings_hz)
     full_size = _space_size(req, environment, family)
-    ok, bound, rejected = _cheap_stage(grid, environment, req, ignore) if grid.size else (
-        np.zeros(0, bool), {k: np.zeros(0) for k in OBJECTIVES}, {})
-    survivors = np.flatnonzero(ok)
+    grid, bound, rejected = _screen(req, environment, spacings_hz, ignore)
+    survivors = np.arange(grid.size)
     order = survivors[np.argsort(-bound[objective][survivors], kind="stable")]
     records = {k: [] for k in ("index", "key", "robust", "rate", "speed", "delay")}
     evaluated, start, batch_size = 0, 0, 256
@@ -183,7 +203,7 @@ def search(req: Requirements, environment: Environment | None = None, objective:
         if best_keys.size >= top and best_keys[top - 1] >= next_bound:
             break  # no unevaluated candidate can enter the top
     found = {k: np.concatenate(v) if v else np.empty(0) for k, v in records.items()}
-    stats = SearchStats(family.size, int(len(spacings_hz)), full_size, int(survivors.size), evaluated,
+    stats = SearchStats(family.size, int(len(spacings_hz)), full_size, int(grid.size), evaluated,
                         int(found["index"].size), top)
     if not found["index"].size:
         return Search(window, None, stats, rejected)
@@ -197,6 +217,45 @@ def search(req: Requirements, environment: Environment | None = None, objective:
     evaluation = link.evaluate(designs, environment, req)
     ranked = Ranked(designs, evaluation, found["key"][rank][show], on_front[show], show)
     return Search(window, ranked, stats, rejected)
+
+
+def _screen(req: Requirements, environment: Environment, spacings_hz, ignore):
+    """Build the candidates stage by stage and keep those the cheap rules cannot reject.
+
+    Returns the surviving candidates, the bounds of each objective for them,
+    and how many candidates each rule rejected.
+    """
+    df, n, used, cp = cand.numerologies(spacings_hz, environment, req)
+    pf, pt, ps = cand.pilot_lattices(req)
+    slots = np.asarray(req.search.symbols_per_slot, dtype=np.int64)
+    one = np.ones_like(n)
+    numerologies = cand.Grid(df, n, cp, used, one, one, 0 * one, one)
+    rejected = {}
+    if numerologies.size:
+        ok, _, rejected = _cheap_stage(numerologies, environment, req, ignore, _relaxed_pilots(req))
+        numerologies = numerologies.take(np.flatnonzero(ok))
+    step = max(1, CHUNK // max(pf.size, 1))
+    parts, bounds = [], {k: [] for k in OBJECTIVES}
+    any_slot = {"N_slot": float(min(slots))}  # the shortest slot is the best case for latency ...
+    for start in range(0, numerologies.size, step):
+        # Lattices first, with the slot left open (pilots_in_slot is checked once slots are crossed in).
+        with_pilots = cand.expand(numerologies.take(np.arange(start, min(start + step, numerologies.size))),
+                                  (pf, pt, ps), slots[:1])
+        ok, _, _ = _cheap_stage(with_pilots, environment, req, ignore, any_slot, keep_pilots=True)
+        survivors = with_pilots.take(np.flatnonzero(ok))
+        chunk = cand.expand(survivors, (survivors.pilot_f, survivors.pilot_t, survivors.pilot_s), slots, paired=True)
+        ok, bound, counts = _cheap_stage(chunk, environment, req, ignore)
+        for name, count in counts.items():
+            rejected[name] = rejected.get(name, 0) + count
+        keep = np.flatnonzero(ok)
+        parts.append(chunk.take(keep))
+        for k in OBJECTIVES:
+            bounds[k].append(np.asarray(bound[k])[keep])
+    if not parts:
+        empty = cand.Grid(*(np.zeros(0, dtype=a.dtype) for a in (df, n, cp, used, n, n, n, n)))
+        return empty, {k: np.zeros(0) for k in OBJECTIVES}, rejected
+    grid = cand.Grid(*(np.concatenate([getattr(p, f) for p in parts]) for f in cand.Grid.__dataclass_fields__))
+    return grid, {k: np.concatenate(v) for k, v in bounds.items()}, rejected
 
 
 def _passed(evaluation: link.Evaluation, ignore) -> np.ndarray:

@@ -67,8 +67,9 @@ def test_rectangular_lattice_nyquist(freq_spacing, time_spacing, spacing_hz, sym
     delay_limit = 1 / (freq_spacing * spacing_hz)
     doppler_limit = 1 / (2 * time_spacing * symbol_s)
     # The limits are exact quotients; rtol covers float round-off.
-    assert_allclose(max_delay_for_lattice(freq_spacing, time_spacing, 0, spacing_hz, symbol_s, 0.01 * doppler_limit), delay_limit, rtol=1e-12)
-    assert_allclose(max_doppler_for_lattice(freq_spacing, time_spacing, 0, spacing_hz, symbol_s, 0.01 * delay_limit), doppler_limit, rtol=1e-12)
+    lattice = (freq_spacing, time_spacing, 0, spacing_hz, symbol_s)
+    assert_allclose(max_delay_for_lattice(*lattice, 0.01 * doppler_limit), delay_limit, rtol=1e-12)
+    assert_allclose(max_doppler_for_lattice(*lattice, 0.01 * delay_limit), doppler_limit, rtol=1e-12)
     tau = np.array([0.1, 0.5, 0.9]) * delay_limit
     f_d = np.array([0.7, 0.2, 0.45]) * doppler_limit
     g = aliasing_scale(freq_spacing, time_spacing, 0, spacing_hz, symbol_s, tau, f_d)
@@ -103,7 +104,8 @@ def test_dvbt_scattered_pilots():
     df = 1 / DVBT_TU_S
     assert_allclose(max_delay_for_lattice(d_f, d_t, s, df, DVBT_TS_S, [0.0, 10 * Hz, 100 * Hz]), DVBT_TU_S / 3, rtol=1e-12)
     assert_allclose(DVBT_TU_S / 3, 298.7 * us, atol=0.05 * us)  # PHYSICS.md rounds to 0.1 us
-    assert_allclose(max_doppler_for_lattice(d_f, d_t, s, df, DVBT_TS_S, [100 * us, 224 * us, DVBT_TU_S / 3]), 1 / (8 * DVBT_TS_S), rtol=1e-12)
+    delays = [100 * us, 224 * us, DVBT_TU_S / 3]
+    assert_allclose(max_doppler_for_lattice(d_f, d_t, s, df, DVBT_TS_S, delays), 1 / (8 * DVBT_TS_S), rtol=1e-12)
     assert_allclose(1 / (8 * DVBT_TS_S), 111.6 * Hz, atol=0.05 * Hz)  # PHYSICS.md rounds to 0.1 Hz
     # Lattice value below T_u/12 (see the docstring):
     assert_allclose(max_doppler_for_lattice(d_f, d_t, s, df, DVBT_TS_S, [0.0, 50 * us]), 1 / (2 * DVBT_TS_S), rtol=1e-12)
@@ -325,7 +327,8 @@ def test_per_candidate_correlations_follow_the_shape_contract():
     ]
     assert_allclose(both, single, rtol=1e-12)
     # candidate_shape lets the channel vary while the lattice does not.
-    got = estimation_mse(6, 4, 3, 15 * kHz, 1 / 14e3, lambda lag: 1 / (1 + 2j * np.pi * lag * rms[:, None]), ones, 100.0, candidate_shape=(5,))
+    per_candidate = lambda lag: 1 / (1 + 2j * np.pi * lag * rms[:, None])  # noqa: E731
+    got = estimation_mse(6, 4, 3, 15 * kHz, 1 / 14e3, per_candidate, ones, 100.0, candidate_shape=(5,))
     assert got.shape == (5,)
     assert_allclose(got[2], estimation_mse(6, 4, 3, 15 * kHz, 1 / 14e3, exponential_pdp(rms[2]), ones, 100.0), rtol=1e-12)
 
@@ -406,7 +409,8 @@ def test_weights_shapes():
     ],
 )
 def test_bad_lattice_input(kwargs, place):
-    args = dict(freq_spacing=12, time_spacing=1, shift=3, subcarrier_spacing_hz=1116.0, symbol_s=DVBT_TS_S, max_delay_s=1e-4, max_doppler_hz=10.0)
+    args = dict(freq_spacing=12, time_spacing=1, shift=3, subcarrier_spacing_hz=1116.0, symbol_s=DVBT_TS_S,
+                max_delay_s=100 * us, max_doppler_hz=10 * Hz)
     args.update(kwargs)
     with pytest.raises(InputError, match=place):
         aliasing_scale(**args)
