@@ -287,7 +287,15 @@ def numerologies(spacings_hz, environment: Environment, req: Requirements):
     # The same CP may come from two factors when cp_min is small: keep each once.
     pairs = np.unique(np.stack([rows[keep], cp_flat[keep]], axis=1), axis=0)
     r, cp = pairs[:, 0], pairs[:, 1]
-    return df_c[r], n_c[r], used_c[r], cp
+    df_c, n_c, used_c = df_c[r], n_c[r], used_c[r]
+    # A larger FFT with the same spacing and the same CP duration is the same waveform, oversampled: drop it.
+    cp_time = np.round(cp / (n_c * df_c) * 1e15).astype(np.int64)  # femtoseconds: exact for equal ratios
+    order = np.lexsort((n_c, cp_time, df_c))
+    key = np.stack([df_c[order], cp_time[order]], axis=1)
+    first = np.ones(order.size, dtype=bool)
+    first[1:] = np.any(key[1:] != key[:-1], axis=1)
+    keep = np.sort(order[first])
+    return df_c[keep], n_c[keep], used_c[keep], cp[keep]
 
 
 def expand(numerology: Grid, lattices, slots, paired: bool = False) -> Grid:

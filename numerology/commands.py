@@ -128,3 +128,23 @@ def _write_outputs(outputs, req, check=None, solution=None):
         from .plots import write_plot
 
         write_plot(outputs["plot"], req, check=check, solution=solution)
+
+
+def solve(args) -> int:
+    from . import api
+
+    req = api.load(args.requirements)
+    if args.top is not None and not 1 <= args.top <= 100:
+        from .errors import InputError
+
+        raise InputError("--top", f"expected a whole number from 1 to 100, got {args.top}")
+    outputs = _check_outputs(args, req)
+    result = api.solve(req, objective=args.objective, top=args.top)
+    if args.json:
+        _emit(render_json.document("numerology.solve", {"requirements": req.path, **result.to_json()}))
+    else:
+        from . import render_terminal
+
+        render_terminal.solve(render_terminal.console(), result)
+    _write_outputs(outputs, req, solution=result)
+    return EXIT_OK if result.feasible else EXIT_FAILS

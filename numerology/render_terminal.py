@@ -20,7 +20,10 @@ CAUTION = ("Caution: spectrum use is regulated. Check carrier, bandwidth and pow
 
 
 def console() -> Console:
-    return Console(highlight=False, soft_wrap=False)
+    con = Console(highlight=False, soft_wrap=False)
+    if not con.is_terminal:
+        con.width = 110  # piped into a file or a pager: tables need not wrap at 80
+    return con
 
 
 def fmt(value: float, unit: str) -> str:
@@ -204,3 +207,133 @@ def check(con: Console, result, req) -> None:
     for note in env.notes:
         con.print(Text(f"note: {note}", style="yellow"))
     con.print(Text(CAUTION, style="dim"))
+
+
+OBJECTIVE_LABELS = {"throughput": "most net throughput", "robustness": "most robust (largest worst margin)",
+                    "overhead": "least overhead", "latency": "shortest slot"}
+
+
+def _window_line(window) -> Text:
+    if window.empty:
+        rules = sorted({window.lower_bound_rule, window.upper_bound_rule} - {None})
+        return Text.assemble(("No subcarrier spacing fits: ", "bold red"),
+                             f"{' and '.join(rules)} rule{'s' if len(rules) > 1 else ''} out every spacing.")
+    low = engineering(window.min_hz, "Hz")
+    high = engineering(window.max_hz, "Hz")
+    lower = window.lower_bound_rule or "the search range"
+    upper = window.upper_bound_rule or "the search range"
+    return Text.assemble("Subcarrier-spacing window: ", (f"{low} .. {high}", "bold"),
+                         f"  (below: {lower}; above: {upper})")
+
+
+def designs_table(result) -> Table:
+    table = Table(title=f"Ranked designs - objective: {OBJECTIVE_LABELS[result.objective]}", box=box.SIMPLE_HEAVY,
+                  title_justify="left", pad_edge=False)
+    for column, justify in (("#", "right"), ("spacing", "right"), ("FFT/CP", "right"), ("pilots", "right"),
+                            ("slot", "right"), ("net rate", "right"), ("binding rule", "left")):
+        table.add_column(column, justify=justify)
+    for ranked in result.designs:
+        c = ranked.check
+        d = c.design
+        b = c.binding_rule
+        table.add_row(str(ranked.rank) + ("*" if ranked.pareto else ""), engineering(d.subcarrier_spacing_hz, "Hz"),
+                      f"{d.fft_size}/{d.cp_samples}", f"{d.pilot_freq_spacing}x{d.pilot_time_spacing}/{d.pilot_shift}",
+                      engineering(d.slot_s, "s"), engineering(c.net_throughput_bps, "bit/s"),
+                      f"{b.name} {show_margin(b)}")
+    return table
+
+
+def _relaxed_line(relaxed, objective) -> str:
+    def show(value):
+        if value is None:
+            return "still infeasible"
+        if objective == "throughput":
+            return engineering(value, "bit/s")
+        if objective == "robustness":
+            return f"worst margin {100 * value:+.1f} %"
+        if objective == "overhead":
+            return f"overhead {100 * -value:.1f} %"
+        return f"slot {engineering(-value, 's')}"
+
+    return (f"Relaxing {relaxed.key} from {setting(relaxed.key, relaxed.from_si)} to "
+            f"{setting(relaxed.key, relaxed.to_si)} would take the best design from {show(relaxed.best_before)} "
+            f"to {show(relaxed.best_after)}.")
+
+
+def setting(dotted_key: str, value_si: float) -> str:
+    """A requirement value in the unit a user writes it in."""
+    from .requirements import _BY_SECTION
+
+    section, name = dotted_key.split(".")
+    key = _BY_SECTION[section][name]
+    if key.kind == "db":
+        return f"{value_si:g} dB"
+    if key.kind == "quantity":
+        unit = {"frequency": "Hz", "time": "s", "bitrate": "bit/s", "length": "m"}.get(key.dimension)
+        if key.dimension == "speed":
+            return speed_kmh(value_si)
+        return engineering(value_si, unit) if unit else f"{value_si:.4g}"
+    return f"{value_si:.4g}"
+
+
+def solve(con: Console, result) -> None:
+    req, env = result.requirements, result.environment
+    con.print(Text.assemble(("numerology solve ", "bold"), req.path))
+    con.print(f"Channel: f_D {engineering(env.max_doppler_hz, 'Hz')} at {speed_kmh(env.speed_mps)} "
+              f"({env.doppler_spectrum}), coherence time {engineering(env.coherence_time_s, 's')}; "
+              f"max excess delay {engineering(env.max_excess_delay_s, 's')}, rms {engineering(env.rms_delay_spread_s, 's')}, "
+              f"coherence bandwidth {engineering(env.coherence_bandwidth_hz, 'Hz')} ({env.profile_name})")
+    con.print(_window_line(result.window))
+    stats = result.stats
+    con.print(f"Searched {stats.candidates:,} candidate designs; {stats.after_cheap_rules:,} survived the fast rules, "
+              f"{stats.evaluated_exactly:,} were evaluated exactly, {stats.feasible_found:,} feasible found.",
+              style="dim")
+    if not result.feasible:
+        con.print(Text("INFEASIBLE: no design meets every rule and goal.", style="bold red"))
+        diag = result.diagnosis
+        if diag is not None:
+            con.print(Text.assemble("These conflict: ", (", ".join(diag.conflict), "bold")))
+            if diag.relaxations:
+                table = Table(title="Any one of these would make the request feasible", box=box.SIMPLE,
+                              title_justify="left")
+                table.add_column("key")
+                table.add_column("now", justify="right")
+                table.add_column("change to", justify="right")
+                for r in diag.relaxations:
+                    now = _now_string(r)
+                    table.add_row(r.key, now, f"{r.direction} {r.value}")
+                con.print(table)
+            else:
+                con.print("No single goal or bound can be moved far enough; relax several at once.")
+        con.print(Text(CAUTION, style="dim"))
+        return
+    con.print(designs_table(result))
+    con.print("* on the Pareto front over (throughput, speed margin, delay margin)", style="dim")
+    best = result.designs[0].check
+    con.print(Text.assemble(("Best: ", "bold"), design_line(best.design)))
+    b = best.binding_rule
+    con.print(Text.assemble("Binding rule: ", (b.name, "bold"), f" (margin {show_margin(b)}) - {b.statement}"))
+    con.print(rules_table(best.rules, title="Rules for the best design"))
+    if result.relaxed is not None:
+        con.print(_relaxed_line(result.relaxed, result.objective))
+    if result.neighbours:
+        table = Table(title="One step away from the best design", box=box.SIMPLE, title_justify="left")
+        table.add_column("change")
+        table.add_column("verdict")
+        for n in result.neighbours:
+            verdict = (Text(f"rejected by {n.failing_rule} ({n.margin:+.3g})", style="red") if n.failing_rule
+                       else Text("also feasible", style="green"))
+            table.add_row(n.change, verdict)
+        con.print(table)
+    if best.limits:
+        con.print(limits_table(best.limits))
+    for note in env.notes:
+        con.print(Text(f"note: {note}", style="yellow"))
+    con.print(Text(CAUTION, style="dim"))
+
+
+def _now_string(r) -> str:
+    from .diagnosis import RELAXABLE, _quantity_string
+
+    dimension = {k: d for k, d, _ in RELAXABLE}[r.key]
+    return _quantity_string(r.current_si, dimension)

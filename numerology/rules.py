@@ -14,8 +14,7 @@ declaration we derive
 * the margin, by the rule's convention:
 
   - ``ratio``: capacity / demand - 1 (a fraction; 0.25 = 25 % headroom),
-  - ``db``: 10 log10(capacity / demand) (for interference powers),
-  - ``difference``: capacity - demand (for fractions such as overhead).
+  - ``db``: 10 log10(capacity / demand) (for interference powers).
 
 Shared sub-expressions (symbol duration, overheads, rate) are declared once
 in :data:`DERIVED` and used by name in the rules.
@@ -95,7 +94,7 @@ class Rule:
     statement: str
     capacity: str
     demand: str
-    convention: str  # "ratio" | "db" | "difference"
+    convention: str  # "ratio" | "db"
     source: str
     setting: str = ""  # the requirement key that sets its threshold, if any
     gate: bool = False  # a yes/no rule: its margin says pass or fail, not how much headroom
@@ -105,13 +104,11 @@ class Rule:
         with np.errstate(divide="ignore", invalid="ignore"):
             if self.convention == "ratio":
                 return capacity / demand - 1.0
-            if self.convention == "db":
-                return 10.0 * np.log10(capacity / demand)
-            return capacity - demand
+            return 10.0 * np.log10(capacity / demand)
 
     @property
     def unit(self) -> str:
-        return {"ratio": "", "db": "dB", "difference": ""}[self.convention]
+        return {"ratio": "", "db": "dB"}[self.convention]
 
 
 RULES: tuple[Rule, ...] = (
@@ -147,7 +144,7 @@ RULES: tuple[Rule, ...] = (
     Rule("link_closes", "The effective SINR supports the most robust modulation and coding.",
          "sinr_eff", "sinr_min", "db", "modulation-and-coding table (numerology.mcs)", "rules.efficiency_model"),
     Rule("overhead", "Cyclic prefix and pilots stay within the overhead goal.",
-         "ovh_max", "overhead", "difference", "goal", "goals.max_overhead"),
+         "ovh_max", "overhead", "ratio", "goal", "goals.max_overhead"),
     Rule("throughput", "The net throughput meets the goal.",
          "rate", "R_goal", "ratio", "goal", "goals.throughput"),
     Rule("latency", "The slot is no longer than the latency goal.",
@@ -185,14 +182,11 @@ def evaluate(rule: Rule, namespace: dict):
 def normalised_margin(rule: Rule, capacity, demand):
     """A margin on one scale for every rule: capacity / demand - 1.
 
-    For the ``difference`` convention (fractions), (capacity - demand) / capacity.
     A gate rule has no headroom to speak of: +inf where it passes, -1 where it fails.
     """
     with np.errstate(divide="ignore", invalid="ignore"):
         if rule.gate:
             return np.where(capacity >= demand, np.inf, -1.0)
-        if rule.convention == "difference":
-            return (capacity - demand) / capacity
         return capacity / demand - 1.0
 
 
