@@ -97,7 +97,8 @@ def pilot_lattices(req: Requirements) -> tuple[np.ndarray, np.ndarray, np.ndarra
     ff = np.repeat(fs[:, 0], t.size)
     ss = np.repeat(fs[:, 1], t.size)
     tt = np.tile(t, fs.shape[0])
-    return ff, tt, ss
+    carries_data = ff * tt > 1  # a pilot on every resource element leaves none for data
+    return ff[carries_data], tt[carries_data], ss[carries_data]
 
 
 # --- relaxed designs and the window -----------------------------------------
@@ -109,7 +110,8 @@ def _relaxed_namespace(spacing_hz, environment: Environment, req: Requirements) 
     ns = link.namespace(_placeholder(df), environment, req)
     guard_s = environment.max_excess_delay_s + link.cp_allowance_s(req)
     ns.update({
-        "N": np.ones_like(df), "N_cp": guard_s * df,  # continuous CP, exactly covering the delay
+        # continuous CP just covering the delay (the factor keeps rounding from failing cp_covers_delay)
+        "N": np.ones_like(df), "N_cp": guard_s * df * (1 + 1e-12),
         "N_u": np.floor(req.radio.occupancy * req.radio.bandwidth_hz / df + 1e-9),
         "D_f": np.full_like(df, np.inf), "D_t": np.full_like(df, np.inf), "s_p": np.zeros_like(df),
         "N_slot": np.full_like(df, float(min(req.search.symbols_per_slot))),

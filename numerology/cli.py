@@ -20,7 +20,8 @@ class _Parser(argparse.ArgumentParser):
     """argparse that reports usage errors as one line (InputError) instead of exiting."""
 
     def error(self, message):  # noqa: D401 - argparse API
-        raise InputError(self.prog, message)
+        # main() prefixes "numerology: ", so the place is the subcommand alone ("check"), or none.
+        raise InputError(self.prog.removeprefix("numerology").strip(), message)
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -86,7 +87,7 @@ def main(argv: Sequence[str] | None = None) -> int:
 
         return getattr(commands, args.command)(args)
     except InputError as exc:
-        print(f"numerology: {exc}", file=sys.stderr)
+        print("numerology: " + " ".join(str(exc).splitlines()), file=sys.stderr)  # always one line
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         print("numerology: interrupted", file=sys.stderr)

@@ -392,7 +392,7 @@ def coherence_time_s(max_doppler_hz, spectrum="classical", k_factor=0.0, correla
     f_d, p_los, rho = np.broadcast_arrays(f_d, p_los, rho)
     pairs, inverse = np.unique(np.stack([p_los.ravel(), rho.ravel()], axis=1), axis=0, return_inverse=True)
     x_c = _first_crossing_x(spectrum, pairs[:, 0], pairs[:, 1])[inverse.ravel()].reshape(f_d.shape)
-    with np.errstate(divide="ignore"):
+    with np.errstate(divide="ignore", over="ignore"):  # a denormal f_D gives an infinite coherence time
         t_c = np.where(f_d > 0, x_c / np.where(f_d > 0, f_d, 1.0), np.inf)
     return _result(t_c)
 

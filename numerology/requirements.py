@@ -116,7 +116,8 @@ SCHEMA: tuple[Key, ...] = (
        low_open=False, high=1e13),
     _q("goals", "max_latency", "time", "longest acceptable slot (the air-interface scheduling unit)", high=100.0),
     Key("goals", "max_overhead", "number", "largest fraction of resources spent on cyclic prefix and pilots",
-        default=1.0, low=0.0, high=1.0, low_open=True),
+        default=0.3, low=0.0, high=1.0, low_open=True,
+        source="common practice: LTE and NR spend roughly 15 to 25 % on cyclic prefix and reference signals"),
     Key("goals", "objective", "choice", "how feasible designs are ranked", default="throughput", choices=OBJECTIVES),
     # --- rules: design margins, each with its default's source ---------------
     _q("rules", "cp_allowance", "time",
@@ -135,7 +136,8 @@ SCHEMA: tuple[Key, ...] = (
         default=1.0, low=0.01, high=1000.0,
         source="common practice: neighbouring subcarriers fade together (correlation at least coherence_correlation)"),
     Key("rules", "quasi_static_factor", "number", "symbol duration at most the coherence time divided by this",
-        default=10.0, low=1.0, high=1000.0, source="common practice: the channel is static over a symbol"),
+        default=5.0, low=0.01, high=1000.0,
+        source="common practice (factors of 5 to 10 are in use): the channel is nearly static over a symbol"),
     Key("rules", "coherence_correlation", "number", "correlation level that defines coherence time and bandwidth",
         default=0.5, low=0.0, high=1.0, low_open=True,
         source="Rappaport, Wireless Communications 2nd ed., sect. 5.4 (0.5 and 0.9 in use)"),
@@ -271,12 +273,18 @@ def _parse_value(key: Key, raw, place: str, base_dir: Path):
     if kind == "path":
         if not isinstance(raw, str) or not raw.strip():
             raise InputError(place, f"expected a file name in quotes, got {raw!r}")
-        path = (base_dir / raw).resolve()
-        if not path.is_file():
+        try:
+            path = (base_dir / raw).resolve()
+            found = path.is_file()
+        except (OSError, ValueError):  # a name too long for the system, or with a NUL byte
+            raise InputError(place, f"expected a usable file name, got {raw!r}") from None
+        if not found:
             raise InputError(place, f"file {raw!r} not found (looked in {path.parent})")
         return str(path)
     if kind == "offset":
         value = _parse_offset(raw, place)
+        if value[0] == "hz":
+            _check_range(key, value[1], place, raw)
         return value
     if kind == "mask":
         return _parse_mask(raw, place)
@@ -375,7 +383,7 @@ def requirements_from_mapping(data: dict, where: str = "<memory>", base_dir: Pat
     base_dir = Path(base_dir)
     for section in data:
         if section not in SECTIONS:
-            raise InputError(f"{where}: [{section}]",
+            raise InputError(f"{where}: [{_printable(section)}]",
                              f"unknown table{_did_you_mean(section, SECTIONS)}; expected one of: {', '.join(SECTIONS)}")
         if not isinstance(data[section], dict):
             raise InputError(f"{where}: {section}", f"expected a table [{section}], got a value")
@@ -386,7 +394,7 @@ def requirements_from_mapping(data: dict, where: str = "<memory>", base_dir: Pat
         keys = _BY_SECTION[section]
         for name in raw_table:
             if name not in keys:
-                raise InputError(f"{where}: {section}.{name}",
+                raise InputError(f"{where}: {section}.{_printable(name)}",
                                  f"unknown key{_did_you_mean(name, keys)}; expected one of: {', '.join(keys)}")
         values = {}
         for name, key in keys.items():
@@ -402,6 +410,11 @@ def requirements_from_mapping(data: dict, where: str = "<memory>", base_dir: Pat
     req = Requirements(**tables, path=where, given=tuple(given))
     _check_consistency(req, where)
     return req
+
+
+def _printable(name: str) -> str:
+    """A key name as written, or quoted with escapes if it holds a line break or other control character."""
+    return name if name.isprintable() else repr(name)
 
 
 def _echo(raw) -> str:

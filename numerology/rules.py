@@ -101,7 +101,7 @@ class Rule:
 
     def margin(self, capacity, demand):
         """The margin by this rule's convention (>= 0 passes)."""
-        with np.errstate(divide="ignore", invalid="ignore"):
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             if self.convention == "ratio":
                 return capacity / demand - 1.0
             return 10.0 * np.log10(capacity / demand)
@@ -163,7 +163,7 @@ def _compiled(expression: str):
 def evaluate_derived(namespace: dict) -> dict:
     """Add the :data:`DERIVED` quantities to a namespace of numpy arrays."""
     ns = dict(namespace)
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         for name, (expression, _meaning) in DERIVED.items():
             ns[name] = eval(_compiled(expression), {"__builtins__": {}}, ns)  # noqa: S307 - our own declarations
     return ns
@@ -184,7 +184,7 @@ def normalised_margin(rule: Rule, capacity, demand):
 
     A gate rule has no headroom to speak of: +inf where it passes, -1 where it fails.
     """
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         if rule.gate:
             return np.where(capacity >= demand, np.inf, -1.0)
         return capacity / demand - 1.0

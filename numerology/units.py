@@ -31,6 +31,9 @@ _DB_RE = re.compile(
     r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(dB|dBc/Hz|dBc)\s*$"
 )
 
+#: A quantity string starts with a number; pint would read a bare unit ("Hz") as 1 of it.
+_NUMBER_FIRST = re.compile(r"^\s*[-+]?(?:\d|\.\d|nan|inf)", re.IGNORECASE)
+
 
 @lru_cache(maxsize=1)
 def registry():
@@ -103,6 +106,8 @@ def parse_quantity(text, dimension: str, place: str) -> float:
             )
         value = float(text)
     else:
+        if not _NUMBER_FIRST.match(text):
+            raise InputError(place, f"expected a {dimension} such as \"{example}\" (a number, then the unit), got {text!r}")
         if "**" in text or "^" in text or len(text) > 80:
             # pint would evaluate powers of integers exactly: "10**10**10 Hz" never returns.
             raise InputError(place, f"expected a {dimension} such as \"{example}\", got {text!r} (no powers, at most 80 characters)")
@@ -153,7 +158,7 @@ def engineering(value: float, unit: str, digits: int = 4) -> str:
         return f"0 {unit}"
     magnitude = abs(value)
     for scale, prefix in _PREFIXES:
-        if magnitude >= scale * 0.9995:
+        if float(f"{magnitude / scale:.{digits}g}") >= 1:  # 999.96 Hz rounds to "1 kHz", 999.9 Hz stays
             break
     return f"{value / scale:.{digits}g} {prefix}{unit}"
 
