@@ -476,3 +476,30 @@ def _offset_to_hz(parsed, carrier_hz, place) -> float:
     if carrier_hz is None:
         raise InputError(place, "a relative error (ppm) needs environment.carrier")
     return value * carrier_hz
+
+
+def _default_text(key: Key) -> str:
+    d = key.default
+    if d is None:
+        return "-"
+    if isinstance(d, tuple):
+        return "[" + ", ".join(str(x) for x in d) + "]"
+    if key.kind == "quantity":
+        unit = {"speed": "m/s", "frequency": "Hz", "time": "s", "bitrate": "bit/s"}[key.dimension]
+        return f"{d:g} {unit}"
+    if key.kind == "db":
+        return f"{d:g} dB"
+    if key.kind == "offset":
+        return f"{d:g} Hz"
+    return str(d)
+
+
+def reference_markdown() -> str:
+    """The table of every requirement key (README's reference is generated from this)."""
+    lines = []
+    for section in SECTIONS:
+        lines += ["", f"**[{section}]**", "", "| key | meaning | default | source of the default |", "|---|---|---|---|"]
+        for key in _BY_SECTION[section].values():
+            choices = f" ({' / '.join(key.choices)})" if key.choices else ""
+            lines.append(f"| `{key.name}` | {key.meaning}{choices} | {_default_text(key)} | {key.source} |")
+    return "\n".join(lines).strip() + "\n"

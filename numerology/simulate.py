@@ -573,26 +573,37 @@ def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estima
 # --- one block of frames ---------------------------------------------------------
 
 
-def _qam(indices: np.ndarray, order: int) -> np.ndarray:
-    """Unit-power square QAM (Gray mapping is irrelevant to power ratios; natural order here)."""
-    side = int(round(math.sqrt(order)))
-    levels = 2.0 * np.arange(side) - (side - 1)
-    scale = math.sqrt(2.0 * (order - 1) / 3.0)  # mean power of the square constellation
-    return (levels[indices % side] + 1j * levels[indices // side]) / scale
+def _to_bins(values: np.ndarray, plan: _Plan) -> np.ndarray:
+    """Grid columns (..., columns) -> FFT bins (..., N), zero outside the used band."""
+    full = np.zeros(values.shape[:-1] + (plan.n,), dtype=complex)
+    full[..., plan.n - plan.neg:] = values[..., :plan.neg]  # negative frequencies
+    full[..., :plan.pos + 1] = values[..., plan.neg:]  # DC (empty) and positive frequencies
+    return full
+
+
+def _from_bins(full: np.ndarray, plan: _Plan) -> np.ndarray:
+    """FFT bins (..., N) -> grid columns (..., columns)."""
+    return np.concatenate([full[..., plan.n - plan.neg:], full[..., :plan.pos + 1]], axis=-1)
+
+
+def _power(values: np.ndarray, weights2: np.ndarray) -> np.ndarray:
+    """Per-frame weighted sum of |values|^2; ``weights2`` repeats each weight for (re, im)."""
+    flat = np.ascontiguousarray(values).reshape(values.shape[0], -1).view(np.float64)
+    return (flat * flat) @ weights2
 
 
 def _draw(rng: np.random.Generator, plan: _Plan):
     """All random numbers of one frame, in a fixed order (results do not depend on the block size)."""
-    sent = np.zeros(plan.pilot_mask.shape, dtype=complex)
-    sent[plan.data_mask] = _qam(rng.integers(0, plan.qam_order, int(plan.data_mask.sum())), plan.qam_order)
-    sent[plan.pilot_mask] = _qam(rng.integers(0, 4, int(plan.pilot_mask.sum())), 4)
+    symbols = plan.constellation[rng.integers(0, 256, plan.data_mask.shape, dtype=np.uint8) & (plan.qam_order - 1)]
+    symbols[plan.pilot_mask] = plan.qpsk[rng.integers(0, 4, int(plan.pilot_count_sent), dtype=np.uint8)]
+    symbols[:, ~plan.used] = 0.0
     freqs, amps, phases = _sos_draw(rng, plan.delays.size, plan.max_doppler_hz, plan.spectrum, plan.k_factor,
                                     plan.sinusoids)
-    increments = None
-    if plan.linewidth_hz > 0:
-        increments = rng.standard_normal((plan.symbols, plan.n))
-    noise = rng.standard_normal((plan.symbols, plan.k_phys.size, 2)) if plan.noise_std > 0 else None
-    return sent, freqs, amps, phases, increments, noise
+    increments = rng.standard_normal((plan.symbols, plan.n)) if plan.linewidth_hz > 0 else None
+    noise = None
+    if plan.noise_std > 0:
+        noise = rng.standard_normal((plan.symbols, plan.k_phys.size, 2)).view(complex)[..., 0]
+    return symbols, freqs, amps, phases, increments, noise
 
 
 def _simulate_block(plan: _Plan, seeds) -> dict:
@@ -603,47 +614,54 @@ def _simulate_block(plan: _Plan, seeds) -> dict:
     freqs = np.stack([d[1] for d in draws])  # (F, taps, C)
     amps = np.stack([d[2] for d in draws])
     phases = np.stack([d[3] for d in draws])
-    taps, order = plan.delays.size, plan.order
-    symbols = plan.symbols
+    order, symbols, pre = plan.order, plan.symbols, plan.pre
+    main = sent[:, pre:]  # the received frame's own symbols
 
-    # tap gains: Legendre coefficients beta[f, m, s, q] over each receive window
+    # tap gains: Legendre coefficients beta[f, m, s, q] of each tap over each receive window
     centre_s = (np.arange(symbols) * (n + ncp) + ncp + (n - 1) / 2.0) / fs  # window centres
     start = amps[:, :, None, :] * np.exp(1j * (2.0 * np.pi * freqs[:, :, None, :] * centre_s[None, None, :, None]
                                                + phases[:, :, None, :]))  # (F, taps, S, C)
     q = np.arange(order + 1)
     expansion = ((2 * q + 1) * (1j ** q)) * sp.spherical_jn(q, (np.pi * plan.t_u) * freqs[..., None])
-    beta = (start @ expansion) * plan.amplitudes[None, :, None, None]  # (F, taps, S, Q+1): exp(jzu) series
+    beta = (start @ expansion) * plan.amplitudes[None, :, None, None]  # exp(j z u) = sum (2q+1) j^q j_q(z) P_q(u)
     centre_gain = start.sum(axis=-1) * plan.amplitudes[None, :, None]  # h_m at the window centres
-    tap_power = np.mean(np.abs(centre_gain) ** 2, axis=2)  # (F, taps)
+    tap_power = np.mean(centre_gain.real ** 2 + centre_gain.imag ** 2, axis=2)  # (F, taps)
 
-    # transmitted subcarriers on the FFT bins
-    spectrum = np.zeros(sent.shape[:2] + (n,), dtype=complex)
-    spectrum[..., plan.bins] = sent
-    received = np.zeros((frames, symbols, n), dtype=complex)
+    # Order 0 of the taps inside the guard is static over the window: IFFT and receiver FFT cancel,
+    # so it is applied on the subcarriers. Everything else goes through the time domain.
     inside = np.flatnonzero(~plan.isi)
-    per_tap = _TAP_PATH == "taps" or (_TAP_PATH == "auto" and inside.size <= order + 1)
-    if inside.size and not per_tap:
-        # H(u, k) = sum_q P_q(u) H_q(k) for the taps inside the guard: one IFFT per order q
-        h_q = np.einsum("fmsq,mk->fsqk", beta[:, inside], plan.ramps_cols[inside], optimize=True)
-        z = np.zeros((frames, symbols, order + 1, n), dtype=complex)
-        z[..., plan.bins] = sent[:, plan.pre:, None, :] * h_q
-        z = np.fft.ifft(z, axis=-1)
-        for qq in range(order + 1):
-            received += plan.legendre[qq] * z[:, :, qq]
-    for m in (inside if per_tap else np.array([], dtype=np.int64)):
-        wave = np.fft.ifft(spectrum[:, plan.pre:] * plan.ramps[m], axis=-1)
-        received += (beta[:, m] @ plan.legendre) * wave
+    static = beta[:, inside, :, 0].transpose(0, 2, 1) @ plan.ramps_cols[inside]  # (F, S, columns)
+    y_channel = main * static
+    varying = None  # time-domain samples of the rest, (F, S, N)
+    per_tap = _TAP_PATH == "taps" or (_TAP_PATH == "auto" and inside.size <= order)
+    if inside.size and order > 0 and not per_tap:
+        # H(u, k) = sum_q P_q(u) H_q(k): one IFFT per order q >= 1 for all taps inside the guard
+        b = np.ascontiguousarray(beta[:, inside, :, 1:].transpose(3, 0, 2, 1)).reshape(order, -1, inside.size)
+        h_q = (b @ plan.ramps_cols[inside]).reshape(order, frames, symbols, -1)
+        z = np.fft.ifft(_to_bins(main[None] * h_q, plan), axis=-1)
+        varying = plan.legendre[1] * z[0]
+        for qq in range(2, order + 1):
+            varying += plan.legendre[qq] * z[qq - 1]
+    spectrum = None
+    if (per_tap and order > 0 and inside.size) or plan.isi.any():
+        spectrum = _to_bins(sent, plan)
+    for m in (inside if per_tap and order > 0 else np.array([], dtype=np.int64)):
+        wave = np.fft.ifft(spectrum[:, pre:] * plan.ramps[m], axis=-1)
+        part = (beta[:, m, :, 1:] @ plan.legendre[1:]) * wave
+        varying = part if varying is None else varying + part
     for m in np.flatnonzero(plan.isi):
         wave = np.fft.ifft(spectrum * plan.ramps[m], axis=-1)  # every sent symbol, delayed by tau_m
-        source = plan.pre + np.arange(symbols)[:, None] + plan.source_symbol[m][None, :]
-        received += (beta[:, m] @ plan.legendre) * wave[:, source, plan.source_index[m][None, :]]
+        source = pre + np.arange(symbols)[:, None] + plan.source_symbol[m][None, :]
+        part = (beta[:, m] @ plan.legendre) * wave[:, source, plan.source_index[m][None, :]]
+        varying = part if varying is None else varying + part
+    if varying is not None:
+        y_channel = y_channel + _from_bins(np.fft.fft(varying, axis=-1), plan)
 
     # true channel: window average of the frequency response (current-symbol samples only)
     mean_gain = np.einsum("fmsq,mq->fsm", beta, plan.current_mean)
     true_channel = mean_gain @ plan.ramps_cols  # (F, S, columns)
 
-    oscillator_on = plan.linewidth_hz > 0 or plan.frequency_offset_hz != 0
-    if oscillator_on:
+    if plan.linewidth_hz > 0 or plan.frequency_offset_hz != 0:
         t = (np.arange(symbols)[:, None] * (n + ncp) + ncp + np.arange(n)[None, :]) / fs
         phase = np.broadcast_to(2.0 * np.pi * plan.frequency_offset_hz * t, (frames, symbols, n)).copy()
         if plan.linewidth_hz > 0:
@@ -652,46 +670,41 @@ def _simulate_block(plan: _Plan, seeds) -> dict:
             steps[:, 0, 0] = 0.0
             phase += np.cumsum(steps.reshape(frames, -1), axis=1).reshape(frames, symbols, n)  # Wiener process
         rotation = np.exp(1j * phase)
-        both = np.fft.fft(np.stack([received, received * rotation]), axis=-1)[..., plan.bins]
-        y_channel, y = both[0], both[1]
+        received = np.fft.ifft(_to_bins(main * static, plan), axis=-1)
+        if varying is not None:
+            received += varying
+        y = _from_bins(np.fft.fft(received * rotation, axis=-1), plan)
         common = rotation.mean(axis=-1)  # mean of exp(j theta) over each window
         derotate = np.exp(-1j * np.angle(common))[..., None]
-        y = y * derotate  # ideal common-phase correction
+        y *= derotate  # ideal common-phase correction
         # true channel as received: window average of the response times the oscillator phasor
-        mean_osc = np.empty((frames, taps, symbols, order + 1), dtype=complex)
-        for m in range(taps):
+        mean_osc = np.empty(beta.shape, dtype=complex)
+        for m in range(plan.delays.size):
             weights = np.where(plan.source_symbol[m] == 0, 1.0, 0.0)[None, :] * plan.legendre / n  # (Q+1, N)
             mean_osc[:, m] = rotation @ weights.T
         reference = np.einsum("fmsq,fmsq->fsm", beta, mean_osc) @ plan.ramps_cols * derotate
     else:
-        y_channel = np.fft.fft(received, axis=-1)[..., plan.bins]
         y = y_channel
         reference = true_channel
     if plan.noise_std > 0:
-        noise = np.stack([d[5] for d in draws])
-        y = y + plan.noise_std * math.sqrt(0.5) * (noise[..., 0] + 1j * noise[..., 1])
+        y = y + plan.noise_std * math.sqrt(0.5) * np.stack([d[5] for d in draws])
 
-    # channel estimate with the analytic model's weights
-    frame_sent = sent[:, plan.pre:].reshape(frames, -1)
-    y_flat = y.reshape(frames, -1)
-    pilots_in = y_flat[:, plan.pilot_flat] * np.conj(frame_sent[:, plan.pilot_flat])
-    estimate = (plan.estimator_matrix @ pilots_in.T).T  # (F, measured)
+    # channel estimate with the analytic model's weights, on the measured symbols
+    pilots_in = y.reshape(frames, -1)[:, plan.pilot_flat] * plan.pilot_conj(main)
+    estimate = (plan.estimator_matrix @ pilots_in.T).T  # (F, measured symbols x columns)
 
-    idx = plan.meas_flat
-    x = frame_sent[:, idx]
-    hbar = true_channel.reshape(frames, -1)[:, idx]
-    href = reference.reshape(frames, -1)[:, idx]
-    yc = y_channel.reshape(frames, -1)[:, idx]
-    useful = np.abs(hbar * x) ** 2
-    data = plan.meas_data
-    out = {
-        "interference": (np.sum(np.abs(yc - hbar * x) ** 2, axis=1), np.sum(useful, axis=1)),
-        "estimation": (np.abs(estimate - href) ** 2 @ plan.meas_weight, np.abs(href) ** 2 @ plan.meas_weight),
-        "error": (np.sum(np.abs(y_flat[:, idx][:, data] - estimate[:, data] * x[:, data]) ** 2, axis=1),
-                  np.sum(np.abs(href[:, data] * x[:, data]) ** 2, axis=1)),
+    rows = slice(plan.first_measured, plan.first_measured + plan.measured_symbols)
+    x = main[:, rows].reshape(frames, -1)
+    hbar = true_channel[:, rows].reshape(frames, -1)
+    href = reference[:, rows].reshape(frames, -1)
+    return {
+        "interference": (_power(y_channel[:, rows].reshape(frames, -1) - hbar * x, plan.weight_all),
+                         _power(hbar * x, plan.weight_all)),
+        "estimation": (_power(estimate - href, plan.weight_cell), _power(href, plan.weight_cell)),
+        "error": (_power(y[:, rows].reshape(frames, -1) - estimate * x, plan.weight_data),
+                  _power(href * x, plan.weight_data)),
         "tap_power": tap_power,
     }
-    return out
 
 
 # --- statistics ------------------------------------------------------------------
