@@ -51,7 +51,6 @@ from __future__ import annotations
 import math
 
 import numpy as np
-import scipy.constants
 import scipy.special as sp
 
 from .errors import InputError
@@ -75,9 +74,9 @@ __all__ = [
     "doppler_ici_inverse",
 ]
 
-#: Speed of light in vacuum, m/s, from scipy.constants (CODATA 2018 or 2022 depending on the
-#: SciPy release; c is exact by the SI definition of the metre, so every edition agrees).
-SPEED_OF_LIGHT_MPS = float(scipy.constants.c)  # 299 792 458 m/s
+#: Speed of light in vacuum, m/s: exact by the SI definition of the metre (1983), so every CODATA edition
+#: (and scipy.constants.c) gives the same value; written out to spare importing scipy.constants at start-up.
+SPEED_OF_LIGHT_MPS = 299_792_458.0
 #: Nominal speed of sound in sea water, m/s (common practice; about 1450-1550 m/s with
 #: temperature, salinity and depth).
 SOUND_SPEED_SEAWATER_MPS = 1500.0

@@ -25,6 +25,8 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import lru_cache
+from pathlib import Path
 
 import numpy as np
 
@@ -108,6 +110,86 @@ class Environment:
             "coherence_bandwidth_hz": _finite(self.coherence_bandwidth_hz),
             "notes": list(self.notes),
         }
+
+
+@dataclass(frozen=True)
+class EnvironmentBatch:
+    """Many environments at once (the sites of a sweep, the points of a map).
+
+    The attributes are those of :class:`Environment`. Those that differ from
+    site to site are numpy arrays of one common :attr:`shape` (``(n_sites,)``
+    for a sweep); ``delays_s`` and ``powers`` hold the taps on an extra last
+    axis, ``shape + (n_taps,)``, padded with zero-power taps where a site has
+    fewer. ``propagation_speed_mps``, ``doppler_spectrum``, ``k_factor`` and
+    ``coherence_correlation`` are shared by all sites. ``notes`` holds
+    ``(text, mask)`` pairs, ``mask`` a boolean array of :attr:`shape` saying
+    which sites the note applies to, in the order ``derive_environment``
+    gives them. ``link.evaluate`` accepts a batch in place of an
+    :class:`Environment` and broadcasts the designs against :attr:`shape`
+    (designs shaped ``(m, 1)`` against sites ``(n,)`` give ``(m, n)``).
+    ``numerology.sweep.site_environments`` builds one from a requirement set.
+    """
+
+    carrier_hz: np.ndarray
+    propagation_speed_mps: float
+    wavelength_m: np.ndarray
+    speed_mps: np.ndarray
+    max_doppler_hz: np.ndarray
+    doppler_spectrum: str
+    k_factor: float
+    doppler_centroid_hz: np.ndarray
+    doppler_spread_hz: np.ndarray
+    coherence_correlation: float
+    coherence_time_s: np.ndarray
+    delays_s: np.ndarray
+    powers: np.ndarray
+    profile_name: np.ndarray  # object array: the profile's name (without the per-site scaling)
+    profile_source: np.ndarray  # object array
+    mean_excess_delay_s: np.ndarray
+    rms_delay_spread_s: np.ndarray
+    max_excess_delay_s: np.ndarray
+    coherence_bandwidth_hz: np.ndarray
+    notes: tuple = ()
+
+    #: Attributes that hold one value per site (the taps add their own last axis).
+    PER_SITE = ("carrier_hz", "wavelength_m", "speed_mps", "max_doppler_hz", "doppler_centroid_hz",
+                "doppler_spread_hz", "coherence_time_s", "profile_name", "profile_source", "mean_excess_delay_s",
+                "rms_delay_spread_s", "max_excess_delay_s", "coherence_bandwidth_hz")
+
+    @property
+    def shape(self) -> tuple[int, ...]:
+        return np.shape(self.max_doppler_hz)
+
+    @property
+    def taps(self) -> tuple[np.ndarray, np.ndarray]:
+        return self.delays_s, self.powers
+
+    def reshape(self, shape) -> "EnvironmentBatch":
+        """The same sites arranged in another shape (to broadcast against a grid of designs)."""
+        import dataclasses
+
+        shape = (shape,) if isinstance(shape, int) else tuple(shape)
+        values = {key: np.reshape(getattr(self, key), shape) for key in self.PER_SITE}
+        taps = self.delays_s.shape[-1]
+        values["delays_s"] = self.delays_s.reshape(shape + (taps,))
+        values["powers"] = self.powers.reshape(shape + (taps,))
+        values["notes"] = tuple((text, np.reshape(mask, shape)) for text, mask in self.notes)
+        return dataclasses.replace(self, **values)
+
+    def notes_at(self, index) -> tuple:
+        """The notes that apply to the site at ``index``."""
+        return tuple(text for text, mask in self.notes if mask[index])
+
+    def at(self, index) -> Environment:
+        """The site at ``index`` as an :class:`Environment` (zero-power padding taps dropped)."""
+        keep = self.powers[index] > 0
+        values = {key: getattr(self, key)[index] for key in self.PER_SITE}
+        values = {key: (value if isinstance(value, str) else float(value)) for key, value in values.items()}
+        return Environment(
+            propagation_speed_mps=self.propagation_speed_mps, doppler_spectrum=self.doppler_spectrum,
+            k_factor=self.k_factor, coherence_correlation=self.coherence_correlation,
+            delays_s=tuple(float(d) for d in self.delays_s[index][keep]),
+            powers=tuple(float(p) for p in self.powers[index][keep]), notes=self.notes_at(index), **values)
 
 
 def _db(x: float):
@@ -202,6 +284,15 @@ def derive_environment(req: Requirements, *, speed_mps: float | None = None,
     )
 
 
+@lru_cache(maxsize=16)
+def _profile_file(path: str, mtime_ns: int):
+    """A profile CSV, read once per process (what-ifs and stretch limits derive many environments)."""
+    from . import profiles
+
+    del mtime_ns  # part of the cache key only: an edited file is read again
+    return profiles.load_profile_csv(path)
+
+
 def _two_ray(max_excess_delay_s, rms_s):
     delays, powers = delay.two_ray_profile(max_excess_delay_s, rms_s)
     return np.asarray(delays, float), np.asarray(powers, float)
@@ -218,7 +309,7 @@ def _taps(req: Requirements):
         if env.profile is not None:
             profile = profiles.get_profile(env.profile)
         else:
-            profile = profiles.load_profile_csv(env.profile_file)
+            profile = _profile_file(env.profile_file, Path(env.profile_file).stat().st_mtime_ns)
         if profile.normalised and rms is None:
             raise InputError(f"{where}: environment.rms_delay_spread",
                              f"missing; profile {profile.name} is normalised and needs a wanted rms delay spread such as \"300 ns\"")

@@ -21,7 +21,7 @@ from .design import DesignArrays
 from .environment import derive_environment
 from .requirements import Requirements
 
-GRID_POINTS = 33
+GRID_POINTS = 21
 RTOL = 1e-6
 
 
@@ -54,21 +54,28 @@ def _limit(key, design, req, make, low, high, log, worse_up) -> Limit:
         return _margins(design, r, env)
 
     table = [margins_at(x) for x in grid]
-    best_x, best_rule = None, None
+    # The first grid interval where some rule goes from pass to fail holds the limit; only the rules
+    # crossing there need refining.
+    crossings = {}
     for name in table[0]:
         values = np.array([m[name] for m in table])
-        if np.allclose(values, values[0], rtol=1e-12, atol=1e-12):
+        if np.all(values == values[0]):
             continue  # this rule does not depend on the stress variable
         fails = np.flatnonzero((values[:-1] >= 0) & (values[1:] < 0))
-        if fails.size == 0:
-            continue
-        i = fails[0]
-        try:
-            x = brentq(lambda v: margins_at(v)[name], grid[i], grid[i + 1], rtol=RTOL, xtol=1e-300)
-        except ValueError:
-            x = grid[i]
-        if best_x is None or (x < best_x if worse_up else x > best_x):
-            best_x, best_rule = x, name
+        if fails.size:
+            crossings[name] = int(fails[0])
+    best_x, best_rule = None, None
+    if crossings:
+        first = min(crossings.values())
+        for name, i in crossings.items():
+            if i != first:
+                continue
+            try:
+                x = brentq(lambda v: margins_at(v)[name], grid[i], grid[i + 1], rtol=RTOL, xtol=1e-300)
+            except ValueError:
+                x = grid[i]
+            if best_x is None or (x < best_x if worse_up else x > best_x):
+                best_x, best_rule = x, name
     if best_x is None:
         return Limit(key, math.inf if worse_up else -math.inf, None, float(grid[-1]))
     return Limit(key, float(best_x), best_rule, float(grid[-1]))

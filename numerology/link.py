@@ -21,6 +21,10 @@ Impairment terms, each relative to the useful signal power:
 
 They add as independent noise-like powers (common practice for OFDM link
 budgets): SINR_eff = 1 / sum(terms).
+
+``evaluate`` also takes an :class:`~numerology.environment.EnvironmentBatch`
+(one environment per site of a sweep or point of a map) and broadcasts the
+designs against its shape; ``req.radio.snr_db`` may then be a per-site array.
 """
 
 from __future__ import annotations
@@ -153,26 +157,64 @@ def oscillator_terms(req: Requirements, useful_symbol_s, subcarrier_spacing_hz):
 
 
 def estimation_error(designs: DesignArrays, environment: Environment, req: Requirements, pilot_sinr):
-    """Mean-square channel-estimation error of each design's pilot lattice (relative to channel power)."""
+    """Mean-square channel-estimation error of each design's pilot lattice (relative to channel power).
+
+    With an :class:`~numerology.environment.EnvironmentBatch` (taps on an extra
+    last axis) every site has its own frequency and time correlations; sites
+    with identical channels are solved once.
+    """
     delays, powers = environment.taps
     f_d, spectrum, k = environment.max_doppler_hz, environment.doppler_spectrum, environment.k_factor
+    # Many candidates share a lattice, a numerology and a pilot SINR: solve each distinct case once.
+    keys = [designs.pilot_freq_spacing, designs.pilot_time_spacing, designs.pilot_shift,
+            designs.subcarrier_spacing_hz, designs.symbol_s, pilot_sinr]
+    batch = np.ndim(delays) > 1
+    if batch:
+        channel, first_site = _channel_index(delays, powers, f_d)
+        keys.append(channel)
+    columns = np.broadcast_arrays(*keys)
+    shape = columns[0].shape
+    table = np.stack([np.asarray(c, dtype=float).ravel() for c in columns], axis=1)
+    unique, inverse = np.unique(table, axis=0, return_inverse=True)
+    if batch:
+        site = first_site[unique[:, 6].astype(np.int64)]  # a site holding each distinct channel
+        delays = delays.reshape(-1, delays.shape[-1])[site]
+        powers = powers.reshape(-1, powers.shape[-1])[site]
+        f_d = np.broadcast_to(f_d, channel.shape).ravel()[site][:, None]
 
     def freq_correlation(lag_hz):
+        if batch:  # one profile per candidate row
+            return _frequency_correlation_rows(lag_hz, delays, powers)
         return delay.frequency_correlation(lag_hz, delays, powers)
 
     def time_correlation(lag_s):
         return doppler.doppler_autocorrelation(lag_s, f_d, spectrum, k)
 
-    # Many candidates share a lattice, a numerology and a pilot SINR: solve each distinct case once.
-    columns = np.broadcast_arrays(designs.pilot_freq_spacing, designs.pilot_time_spacing, designs.pilot_shift,
-                                  designs.subcarrier_spacing_hz, designs.symbol_s, pilot_sinr)
-    shape = columns[0].shape
-    table = np.stack([np.asarray(c, dtype=float).ravel() for c in columns], axis=1)
-    unique, inverse = np.unique(table, axis=0, return_inverse=True)
     mse = pilots.estimation_mse(
         unique[:, 0].astype(np.int64), unique[:, 1].astype(np.int64), unique[:, 2].astype(np.int64),
         unique[:, 3], unique[:, 4], freq_correlation, time_correlation, unique[:, 5], estimator=req.rules.estimator)
     return np.asarray(mse)[np.ravel(inverse)].reshape(shape)
+
+
+def _channel_index(delays_s, powers, max_doppler_hz):
+    """For an environment batch: an index per site, equal for identical channels, and a site of each index."""
+    taps = delays_s.shape[-1]
+    f_d = np.broadcast_to(max_doppler_hz, delays_s.shape[:-1]).reshape(-1, 1)
+    rows = np.concatenate([delays_s.reshape(-1, taps), powers.reshape(-1, taps), f_d], axis=1)
+    _, first, inverse = np.unique(rows, axis=0, return_index=True, return_inverse=True)
+    return np.ravel(inverse).reshape(delays_s.shape[:-1]), first
+
+
+def _frequency_correlation_rows(lag_hz, delays_s, powers):
+    """delay.frequency_correlation with one profile per row: lags (n, L), taps (n, K) -> (n, L)."""
+    lag_hz = np.asarray(lag_hz, dtype=float)
+    out = np.empty(lag_hz.shape, dtype=complex)
+    block = max(1, (1 << 22) // max(1, lag_hz.shape[1] * delays_s.shape[1]))
+    for start in range(0, lag_hz.shape[0], block):  # blocks of rows bound the (rows, lags, taps) temporary
+        stop = start + block
+        out[start:stop] = delay.frequency_correlation(lag_hz[start:stop], delays_s[start:stop, None, :],
+                                                      powers[start:stop, None, :])
+    return out
 
 
 def _on_distinct(function, x):
@@ -231,8 +273,12 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements)
     ----------
     designs : DesignArrays
         One or many designs (any broadcast shape).
-    environment : Environment
+    environment : Environment or EnvironmentBatch
+        One environment, or a batch (one per site) whose shape broadcasts
+        with the designs'.
     req : Requirements
+        ``req.radio.snr_db`` may be an array broadcasting with the batch (a
+        per-site SNR, as ``numerology.sweep`` passes it).
 
     Returns
     -------
@@ -244,7 +290,9 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements)
     useful, interference = delay.echo_interference(delays, powers, ns["T_cp"], ns["T_u"])
     pn, cfo = oscillator_terms(req, ns["T_u"], ns["df"])
     ns["oscillator_ici"] = lambda _df: pn + cfo  # the rule sees the same spacings: computed once
-    shape = np.broadcast_shapes(np.shape(ns["df"]), np.shape(ns["N_cp"]), np.shape(ns["D_f"]))
+    # An environment batch and a per-site SNR (arrays) broadcast against the designs.
+    shape = np.broadcast_shapes(np.shape(ns["df"]), np.shape(ns["N_cp"]), np.shape(ns["D_f"]),
+                                np.shape(environment.max_doppler_hz), np.shape(req.radio.snr_db))
     terms = {
         "noise": np.full(shape, 10 ** (-req.radio.snr_db / 10)),
         "echo": np.broadcast_to(interference / useful, shape),

@@ -59,10 +59,12 @@ Time variation within a symbol
     polynomials of the normalised time ``u`` (Rayleigh's plane-wave
     expansion, ``exp(j z u) = sum_q (2q+1) j^q j_q(z) P_q(u)``, ``j_q`` the
     spherical Bessel function, ``z = pi f T_u``). The series is cut where the
-    neglected power is below ``LEGENDRE_TAIL`` (1e-12) of the tap power, so
-    the gain is evaluated at every sample with a relative error below 1e-6:
-    the channel changes from sample to sample and the Doppler ICI is that of
-    the sample-level channel. The time-varying frequency response over a
+    neglected power is below ``LEGENDRE_TAIL`` (1e-4) of the power of the
+    gain's variation over the window (the orders >= 1, which make the ICI),
+    so the simulated Doppler ICI is exact to about 1e-4 relative; the gain
+    is evaluated at every sample: the channel changes from sample to sample
+    and the Doppler ICI is that of the sample-level channel. The time-varying
+    frequency response over a
     window is ``H(u, k) = sum_q P_q(u) H_q(k)``, which lets the simulator
     synthesise all taps inside the guard with one IFFT per order ``q``.
 
@@ -153,8 +155,9 @@ __all__ = ["SimulationResult", "simulate_link", "fading_gains", "QAM_ORDERS"]
 
 #: Sinusoids per tap for the diffuse part of the fading.
 SINUSOIDS = 32
-#: Neglected power of the per-window Legendre expansion of a tap gain (relative).
-LEGENDRE_TAIL = 1e-12
+#: Neglected power of the per-window Legendre expansion of a tap gain, relative to the power of
+#: its variation over the window (orders >= 1, the part that makes the Doppler ICI).
+LEGENDRE_TAIL = 1e-4
 #: Highest Legendre order allowed (f_D T_u up to about 10).
 MAX_LEGENDRE_ORDER = 96
 #: Pilot window of the LMMSE estimator, as in the analytic model (link.estimation_error).
@@ -367,15 +370,19 @@ def fading_gains(times_s, max_doppler_hz, spectrum="classical", k_factor=0.0, *,
 
 
 def _legendre_order(max_abs_freq_hz: float, useful_symbol_s: float) -> int:
-    """Smallest order Q whose neglected power sum_{q>Q} (2q+1) j_q(z)^2 is below LEGENDRE_TAIL."""
+    """Smallest order Q whose neglected power is below LEGENDRE_TAIL of the variation power.
+
+    For ``exp(j z u)`` the power of order q is ``(2q+1) j_q(z)^2`` (they sum to
+    1); orders >= 1 carry the variation over the window.
+    """
     z = math.pi * max_abs_freq_hz * useful_symbol_s
     if z == 0.0:
         return 0
     q = np.arange(MAX_LEGENDRE_ORDER + 48)
-    power = (2 * q + 1) * sp.spherical_jn(q, z) ** 2  # sums to 1 over all q (addition theorem)
-    tail = np.cumsum(power[::-1])[::-1]  # tail[q] = sum over orders >= q
+    power = (2 * q + 1) * sp.spherical_jn(q, z) ** 2
+    tail = np.cumsum(power[::-1])[::-1]  # tail[q] = power of the orders >= q, without cancellation
     for order in range(MAX_LEGENDRE_ORDER + 1):
-        if tail[order + 1] <= LEGENDRE_TAIL:
+        if tail[order + 1] <= LEGENDRE_TAIL * tail[1]:
             return order
     raise InputError("environment.max_doppler_hz",
                      f"f_D T_u = {max_abs_freq_hz * useful_symbol_s:.3g} is too large to simulate "
@@ -392,7 +399,8 @@ class _Plan:
     fs: float
     t_u: float
     k_phys: np.ndarray  # physical subcarrier of each grid column (DC included)
-    bins: np.ndarray  # FFT bin of each grid column
+    neg: int  # used subcarriers below DC
+    pos: int  # used subcarriers above DC
     used: np.ndarray  # bool per column (False at DC)
     pre: int  # extra symbols sent before the frame (sources of inter-symbol interference only)
     symbols: int  # received symbols per frame (margins + measured)
@@ -400,10 +408,14 @@ class _Plan:
     pilot_mask: np.ndarray  # (pre + symbols, columns) bool
     data_mask: np.ndarray
     pilot_flat: np.ndarray  # flat indices of the received-frame pilots in (symbols, columns)
-    meas_flat: np.ndarray  # flat indices of the measured resource elements
-    meas_weight: np.ndarray  # per measured RE: 1 / count of its lattice class
-    meas_data: np.ndarray  # bool per measured RE
-    estimator_matrix: scipy.sparse.csr_matrix  # (measured, pilots)
+    pilot_count_sent: int  # pilots over all sent symbols
+    first_measured: int  # first measured symbol of the received frame
+    weight_all: np.ndarray  # (2 x measured grid) 1 on measured REs, repeated for (re, im)
+    weight_cell: np.ndarray  # equal weight per lattice-cell position, sums to 1
+    weight_data: np.ndarray  # 1 on measured data REs
+    measured_count: int
+    data_count: int
+    estimator_matrix: scipy.sparse.csr_matrix  # (measured grid, pilots)
     delays: np.ndarray  # tap delays in samples (float)
     amplitudes: np.ndarray  # sqrt(tap powers)
     isi: np.ndarray  # bool per tap: reaches beyond the guard
@@ -422,7 +434,17 @@ class _Plan:
     frequency_offset_hz: float
     linewidth_hz: float
     qam_order: int
+    constellation: np.ndarray
+    qpsk: np.ndarray
     block_frames: int
+
+
+def _qam(indices: np.ndarray, order: int) -> np.ndarray:
+    """Unit-power square QAM points (the bit mapping is irrelevant to power ratios)."""
+    side = int(round(math.sqrt(order)))
+    levels = 2.0 * np.arange(side) - (side - 1)
+    scale = math.sqrt(2.0 * (order - 1) / 3.0)  # rms of the square constellation
+    return (levels[indices % side] + 1j * levels[indices // side]) / scale
 
 
 def _layout(used_subcarriers: int, fft_size: int):
@@ -544,29 +566,37 @@ def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estima
     if not valid.any():
         raise InputError("design", f"{design.name!r}: no resource element has every pilot its {estimator} estimator "
                                    "needs inside the used band; the band is narrower than the estimator's reach")
-    ml, mc, cls, number = ml[valid], mc[valid], cls[valid], number[valid]
+    grid_rows = (ml - margin_lo) * cols + mc  # row of the estimator matrix: measured grid, C order
+    ml, mc, cls, number, grid_rows = ml[valid], mc[valid], cls[valid], number[valid], grid_rows[valid]
     w = np.where(active[cls], pw.weights[cls], 0.0)
-    rows = np.broadcast_to(np.arange(ml.size)[:, None], w.shape)
+    rows = np.broadcast_to(grid_rows[:, None], w.shape)
     nz = w != 0
-    estimator_matrix = scipy.sparse.csr_matrix((w[nz], (rows[nz], number[nz])), shape=(ml.size, pilot_flat.size))
+    estimator_matrix = scipy.sparse.csr_matrix((w[nz], (rows[nz], number[nz])),
+                                               shape=(measured_symbols * cols, pilot_flat.size))
     counts = np.bincount(cls, minlength=pw.mse.size)
-    present = counts[cls]
-    meas_weight = 1.0 / (present * np.count_nonzero(counts))  # equal weight per cell position, sums to 1
-    meas_data = data_mask[pre:][ml, mc]
+    weight_all = np.zeros(measured_symbols * cols)
+    weight_all[grid_rows] = 1.0
+    weight_cell = np.zeros(measured_symbols * cols)
+    weight_cell[grid_rows] = 1.0 / (counts[cls] * np.count_nonzero(counts))  # each cell position alike, sum 1
+    weight_data = weight_all * data_mask[pre + margin_lo:pre + margin_lo + measured_symbols].ravel()
 
     # memory: about (Q + 8) complex arrays of (symbols x N) per frame
     per_frame = (pre + symbols) * n * 16 * (order + 10)
     block_frames = max(1, BLOCK_BYTES // per_frame)
     return _Plan(
-        n=n, ncp=ncp, fs=fs, t_u=design.useful_symbol_s, k_phys=k_phys, bins=bins, used=used, pre=pre,
-        symbols=symbols, measured_symbols=measured_symbols, pilot_mask=pilot_mask, data_mask=data_mask,
-        pilot_flat=pilot_flat, meas_flat=ml * cols + mc, meas_weight=meas_weight, meas_data=meas_data,
-        estimator_matrix=estimator_matrix, delays=delays, amplitudes=np.sqrt(powers), isi=isi, ramps=ramps,
-        ramps_cols=ramps_cols, source_symbol=source_symbol, source_index=source_index, current_mean=current_mean,
-        legendre=legendre, order=order, spectrum=environment.doppler_spectrum,
-        max_doppler_hz=environment.max_doppler_hz, k_factor=environment.k_factor, sinusoids=SINUSOIDS,
-        noise_std=math.sqrt(terms["noise"]), frequency_offset_hz=frequency_offset_hz, linewidth_hz=linewidth_hz,
-        qam_order=qam_order, block_frames=block_frames,
+        n=n, ncp=ncp, fs=fs, t_u=design.useful_symbol_s, k_phys=k_phys, neg=int((k_phys < 0).sum()),
+        pos=int((k_phys > 0).sum()), used=used, pre=pre, symbols=symbols, measured_symbols=measured_symbols,
+        pilot_mask=pilot_mask, data_mask=data_mask, pilot_flat=pilot_flat, pilot_count_sent=int(pilot_mask.sum()),
+        first_measured=margin_lo, weight_all=np.repeat(weight_all, 2), weight_cell=np.repeat(weight_cell, 2),
+        weight_data=np.repeat(weight_data, 2), measured_count=int(weight_all.sum()),
+        data_count=int(weight_data.sum()), estimator_matrix=estimator_matrix, delays=delays,
+        amplitudes=np.sqrt(powers), isi=isi, ramps=ramps, ramps_cols=ramps_cols, source_symbol=source_symbol,
+        source_index=source_index, current_mean=current_mean, legendre=legendre, order=order,
+        spectrum=environment.doppler_spectrum, max_doppler_hz=environment.max_doppler_hz,
+        k_factor=environment.k_factor, sinusoids=SINUSOIDS, noise_std=math.sqrt(terms["noise"]),
+        frequency_offset_hz=frequency_offset_hz, linewidth_hz=linewidth_hz, qam_order=qam_order,
+        constellation=_qam(np.arange(256) % qam_order, qam_order), qpsk=_qam(np.arange(4), 4),
+        block_frames=block_frames,
     ), pilot_snr
 
 
@@ -630,13 +660,13 @@ def _simulate_block(plan: _Plan, seeds) -> dict:
     # Order 0 of the taps inside the guard is static over the window: IFFT and receiver FFT cancel,
     # so it is applied on the subcarriers. Everything else goes through the time domain.
     inside = np.flatnonzero(~plan.isi)
-    static = beta[:, inside, :, 0].transpose(0, 2, 1) @ plan.ramps_cols[inside]  # (F, S, columns)
+    static = beta[:, inside][..., 0].transpose(0, 2, 1) @ plan.ramps_cols[inside]  # (F, S, columns)
     y_channel = main * static
     varying = None  # time-domain samples of the rest, (F, S, N)
     per_tap = _TAP_PATH == "taps" or (_TAP_PATH == "auto" and inside.size <= order)
     if inside.size and order > 0 and not per_tap:
         # H(u, k) = sum_q P_q(u) H_q(k): one IFFT per order q >= 1 for all taps inside the guard
-        b = np.ascontiguousarray(beta[:, inside, :, 1:].transpose(3, 0, 2, 1)).reshape(order, -1, inside.size)
+        b = np.ascontiguousarray(beta[:, inside][..., 1:].transpose(3, 0, 2, 1)).reshape(order, -1, inside.size)
         h_q = (b @ plan.ramps_cols[inside]).reshape(order, frames, symbols, -1)
         z = np.fft.ifft(_to_bins(main[None] * h_q, plan), axis=-1)
         varying = plan.legendre[1] * z[0]
@@ -690,7 +720,7 @@ def _simulate_block(plan: _Plan, seeds) -> dict:
         y = y + plan.noise_std * math.sqrt(0.5) * np.stack([d[5] for d in draws])
 
     # channel estimate with the analytic model's weights, on the measured symbols
-    pilots_in = y.reshape(frames, -1)[:, plan.pilot_flat] * plan.pilot_conj(main)
+    pilots_in = y.reshape(frames, -1)[:, plan.pilot_flat] * np.conj(main.reshape(frames, -1)[:, plan.pilot_flat])
     estimate = (plan.estimator_matrix @ pilots_in.T).T  # (F, measured symbols x columns)
 
     rows = slice(plan.first_measured, plan.first_measured + plan.measured_symbols)
@@ -826,7 +856,7 @@ def simulate_link(design, environment, snr_db, *, frequency_offset_hz=0.0, linew
         sinr_eff=sinr, sinr_eff_ci=sinr_ci,
         evm=math.sqrt(error), evm_ci=(math.sqrt(error_ci[0]), math.sqrt(error_ci[1])),
         tap_powers=tuple(float(p) for p in tap_power),
-        frames=frames, symbols_per_frame=plan.measured_symbols, measured_per_frame=int(plan.meas_flat.size),
-        data_per_frame=int(plan.meas_data.sum()), snr_db=snr_db, frequency_offset_hz=frequency_offset_hz,
+        frames=frames, symbols_per_frame=plan.measured_symbols, measured_per_frame=plan.measured_count,
+        data_per_frame=plan.data_count, snr_db=snr_db, frequency_offset_hz=frequency_offset_hz,
         linewidth_hz=linewidth_hz, estimator=estimator, pilot_snr=pilot_snr, legendre_order=plan.order, seed=seed,
     )

@@ -1,6 +1,8 @@
 """Shared fixtures: the shipped example files and a small TOML writer for modified copies."""
 
 import json
+import math
+import re
 import shutil
 from pathlib import Path
 
@@ -11,16 +13,30 @@ EXAMPLES = ROOT / "requirements_examples"
 
 
 def toml_value(value) -> str:
-    """One TOML value. JSON's strings, numbers, booleans and arrays are valid TOML for what we write."""
-    return json.dumps(value, ensure_ascii=False)
+    """One TOML value: strings, numbers (nan and inf included), booleans, arrays and inline tables."""
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, float) and not math.isfinite(value):
+        return "nan" if math.isnan(value) else ("inf" if value > 0 else "-inf")
+    if isinstance(value, (list, tuple)):
+        return "[" + ", ".join(toml_value(v) for v in value) + "]"
+    if isinstance(value, dict):
+        return "{" + ", ".join(f"{toml_key(k)} = {toml_value(v)}" for k, v in value.items()) + "}"
+    return json.dumps(value, ensure_ascii=False)  # JSON strings and numbers are valid TOML
+
+
+def toml_key(key: str) -> str:
+    """A bare key where TOML allows one, else a quoted key."""
+    return key if re.fullmatch(r"[A-Za-z0-9_-]+", key) else json.dumps(key, ensure_ascii=False)
 
 
 def toml_text(data: dict) -> str:
-    """Serialise a {table: {key: value}} mapping (one level of tables, as requirement files have)."""
-    lines = []
+    """Serialise a {table: {key: value}} mapping; top-level values that are not tables come first."""
+    lines = [f"{toml_key(k)} = {toml_value(v)}" for k, v in data.items() if not isinstance(v, dict)]
     for section, table in data.items():
-        lines.append(f"[{section}]")
-        lines.extend(f"{key} = {toml_value(value)}" for key, value in table.items())
+        if isinstance(table, dict):
+            lines.append(f"[{toml_key(section)}]")
+            lines.extend(f"{toml_key(key)} = {toml_value(value)}" for key, value in table.items())
         lines.append("")
     return "\n".join(lines)
 

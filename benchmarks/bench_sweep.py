@@ -1,0 +1,97 @@
+"""Site-sweep benchmark: figures printed, never asserted.
+
+Generates a sites file of 10^5 invented rows for the harbour example in a
+temporary folder, then times on one core
+
+(a) the raw parse of the CSV (the ``csv`` module, as ``load_sites`` uses it
+    internally; no conversion or checks), and
+(b) ``load_sites`` + ``sweep`` of the example's best design,
+
+and prints both with their ratio and the target (10^5 sites under 2 s).
+
+Run: python benchmarks/bench_sweep.py [rows]
+"""
+
+from __future__ import annotations
+
+import os
+
+for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ[var] = "1"  # one core, set before numpy is imported
+
+import csv  # noqa: E402
+import sys  # noqa: E402
+import tempfile  # noqa: E402
+import time  # noqa: E402
+from pathlib import Path  # noqa: E402
+
+import numpy as np  # noqa: E402
+
+ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT))
+
+from numerology import api, sweep  # noqa: E402
+
+TARGET_S = 2.0
+TARGET_ROWS = 100_000
+
+
+def write_sites(path: Path, rows: int, seed: int = 7) -> None:
+    """Invented sites: speeds, rms spreads (scaling the example's measured profile), carriers and SNRs.
+
+    One row in 20 names a catalogue profile instead; values are rounded as a
+    person would write them, so many rows repeat.
+    """
+    rng = np.random.default_rng(seed)
+    speed = np.round(rng.uniform(0, 60, rows), 1)
+    rms = np.round(rng.uniform(50, 400, rows))
+    snr = np.round(rng.uniform(12, 30, rows), 1)
+    carrier = rng.choice([3.6, 3.7, 3.8], rows)
+    profile = np.where(rng.uniform(size=rows) < 0.05, rng.choice(["EVA", "TDL-C", "EPA"], rows), "")
+    with open(path, "w", newline="") as handle:
+        handle.write("# invented benchmark sites (numerology benchmarks/bench_sweep.py)\n")
+        writer = csv.writer(handle)
+        writer.writerow(["site", "max_speed [km/h]", "rms_delay_spread [ns]", "profile", "carrier [GHz]", "snr [dB]"])
+        writer.writerows(zip((f"S{i:06d}" for i in range(rows)), speed.tolist(), rms.tolist(), profile.tolist(),
+                             carrier.tolist(), snr.tolist()))
+
+
+def best_of(fn, repeats):
+    times = []
+    for _ in range(repeats):
+        start = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - start)
+    return min(times)
+
+
+def main():
+    rows = int(sys.argv[1]) if len(sys.argv) > 1 else TARGET_ROWS
+    req = api.load(ROOT / "requirements_examples" / "harbour_crane.toml")
+    design = api.solve(req, explain=False, with_limits=False).designs[0].check.design
+    with tempfile.TemporaryDirectory() as folder:
+        path = Path(folder) / "sites.csv"
+        write_sites(path, rows)
+
+        def raw_parse():
+            with open(path, newline="") as handle:
+                return list(csv.reader(handle))
+
+        def load_and_sweep():
+            return sweep.sweep(req, design, sweep.load_sites(path, req))
+
+        parse_s = best_of(raw_parse, 3)
+        load_s = best_of(lambda: sweep.load_sites(path, req), 1)
+        total_s = best_of(load_and_sweep, 1)
+        result = load_and_sweep()
+    print(f"design: {design}")
+    print(f"{rows:,} sites: {result.summary()}")
+    print(f"(a) raw CSV parse:       {parse_s:8.3f} s")
+    print(f"    load_sites alone:    {load_s:8.3f} s")
+    print(f"(b) load_sites + sweep:  {total_s:8.3f} s   (target: {TARGET_ROWS:,} sites under {TARGET_S:g} s"
+          f"{'' if rows == TARGET_ROWS else f'; {TARGET_S * rows / TARGET_ROWS:.3g} s at this size'})")
+    print(f"ratio (b)/(a): {total_s / parse_s:.1f}; ratio (b)/target: {total_s / (TARGET_S * rows / TARGET_ROWS):.2f}")
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,867 @@
+"""Site sweeps: one design against many sites, each with its own channel.
+
+A sites file is CSV, one site per row. Lines starting with ``#`` and blank
+lines are ignored. The first other line is the header: each column is named
+by its requirement key, with the unit of its numbers in brackets (any unit
+pint understands for that quantity)::
+
+    site,max_speed [km/h],rms_delay_spread [ns],profile,carrier [GHz],snr [dB]
+    quay crane 1,12,180,,3.7,24
+
+Columns (all optional; see :data:`COLUMNS`): ``site`` (an identifier),
+``max_speed``, ``max_doppler``, ``max_excess_delay``, ``rms_delay_spread``,
+``profile`` (a catalogue name, or ``none``), ``carrier``, ``snr [dB]``. An
+absent column, or an empty cell, takes the requirement file's value. Each
+site is evaluated exactly as ``api.check`` evaluates the requirement set
+edited to that site's values (:meth:`Sites.requirements_for`), with one
+convenience: a site that names a profile replaces the requirement's delay
+shape (its ``profile``, ``profile_file`` or ``max_excess_delay``), keeping
+its ``rms_delay_spread`` unless the site gives its own. The requirement
+file's consistency rules hold per site: a profile fixes the max excess delay
+(scale it with ``rms_delay_spread``, or set ``profile`` to ``none``), an rms
+spread is at most half the max excess delay, a normalised profile needs an
+rms spread.
+
+A malformed row is reported with its line (:attr:`Sites.problems`) and the
+other rows are still evaluated; a malformed header or an unreadable file is
+an :class:`~numerology.errors.InputError`.
+
+The evaluation is vectorised over sites: the environments are built as one
+:class:`~numerology.environment.EnvironmentBatch` (a loop runs over the few
+distinct profiles only) and ``link.evaluate`` broadcasts the design against
+it, so a sweep gives the same numbers as ``check`` site by site.
+"""
+
+from __future__ import annotations
+
+import csv
+import difflib
+import io
+import math
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from . import delay, doppler, link, profiles
+from .design import Design, DesignArrays
+from .environment import WIDEBAND_FRACTION, EnvironmentBatch, derive_environment
+from .errors import InputError
+from .output import write_atomic
+from .requirements import SCHEMA, Requirements
+from .units import parse_quantity
+
+#: Columns of a sites file: name -> the requirement key it replaces (None: the site identifier).
+COLUMNS = {
+    "site": None,
+    "max_speed": "environment.max_speed",
+    "max_doppler": "environment.max_doppler",
+    "max_excess_delay": "environment.max_excess_delay",
+    "rms_delay_spread": "environment.rms_delay_spread",
+    "profile": "environment.profile",
+    "carrier": "environment.carrier",
+    "snr": "radio.snr",
+}
+#: A profile cell with this word removes the requirement's profile for that site.
+NO_PROFILE = "none"
+_KEYS = {key.path: key for key in SCHEMA}
+_HEADER_CELL = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*)\s*(?:\[\s*(.*?)\s*\])?\s*$")
+_HEADER_EXAMPLE = "site,max_speed [km/h],rms_delay_spread [ns],snr [dB]"
+
+
+# --- sites -------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Sites:
+    """Sites read from a file (or made in memory), each with its requirement values in SI.
+
+    Every array has one entry per valid site; rows with problems are left out
+    and listed in :attr:`problems`. ``nan`` marks a value the site does not
+    have (no speed when its Doppler is given, no rms delay spread, ...).
+    """
+
+    names: np.ndarray  # object: site identifiers ("line N" when the file has no site column)
+    lines: np.ndarray  # int: line of each site in the file (0 for sites made in memory)
+    speed_mps: np.ndarray
+    max_doppler_hz: np.ndarray
+    carrier_hz: np.ndarray
+    snr_db: np.ndarray
+    profile: np.ndarray  # object: catalogue profile name, or "" for none
+    profile_file: np.ndarray  # object: path of the requirement's profile file, or ""
+    rms_delay_spread_s: np.ndarray
+    max_excess_delay_s: np.ndarray
+    columns: tuple = ()  # the columns the file gave
+    problems: tuple = ()  # (line, message), by line
+    notes: tuple = ()  # remarks about the whole file
+    path: str = "<memory>"
+
+    @property
+    def size(self) -> int:
+        return int(self.names.size)
+
+    def requirements_for(self, req: Requirements, index: int) -> Requirements:
+        """The requirement set edited to the values of the site at ``index``.
+
+        ``api.check(sites.requirements_for(req, i), design)`` gives the numbers
+        :func:`sweep` gives for that site (and the full report for it).
+        """
+        def value(array):
+            x = array[index]
+            if isinstance(x, str):
+                return x or None
+            return None if math.isnan(x) else float(x)
+
+        edited = req
+        for key, array in (("environment.carrier", self.carrier_hz), ("radio.snr", self.snr_db),
+                           ("environment.max_speed", self.speed_mps), ("environment.max_doppler", self.max_doppler_hz),
+                           ("environment.profile", self.profile), ("environment.profile_file", self.profile_file),
+                           ("environment.rms_delay_spread", self.rms_delay_spread_s),
+                           ("environment.max_excess_delay", self.max_excess_delay_s)):
+            edited = edited.replace(key, value(array))
+        return edited
+
+    def __str__(self) -> str:
+        problems = f", {len(self.problems)} rows with problems" if self.problems else ""
+        return f"{self.size} sites from {self.path}{problems}"
+
+
+def load_sites(path, req: Requirements) -> Sites:
+    """Read a sites file (see the module docstring).
+
+    Parameters
+    ----------
+    path : str or Path
+        The CSV file. It is only read.
+    req : Requirements
+        The requirement set whose values fill the columns and cells not given.
+
+    Returns
+    -------
+    Sites
+        The valid sites; malformed rows in ``problems`` as (line, message).
+
+    Raises
+    ------
+    InputError
+        If the file cannot be read, has no header or no rows, or its header
+        is malformed (unknown column, missing or wrong unit, repeated column).
+    """
+    where = str(path)
+    entries = _content_lines(Path(path))
+    if not entries:
+        raise InputError(where, f"has no header; expected a first row such as {_HEADER_EXAMPLE!r}")
+    header_line, header_text = entries[0]
+    header = next(csv.reader([header_text]))
+    columns = _parse_header(header, f"{where}: line {header_line}")
+    body = entries[1:]
+    if not body:
+        raise InputError(where, "has a header but no sites")
+    lines = np.array([line for line, _ in body], dtype=np.int64)
+    rows = list(csv.reader([text for _, text in body]))
+    problems: list = []
+    bad = np.zeros(len(rows), dtype=bool)
+    width = len(columns)
+    names = ", ".join(name for name, _, _ in columns)
+    for i, row in enumerate(rows):
+        if len(row) != width:
+            problems.append((int(lines[i]), f"expected {width} values ({names}), got {len(row)}"))
+            bad[i] = True
+            rows[i] = [""] * width
+    cells = list(zip(*rows))
+    given = {}
+    for j, (name, unit, factor) in enumerate(columns):
+        given[name] = _read_column(name, unit, factor, cells[j], lines, problems, bad, req)
+    return _resolve(req, given, lines, bad, problems, where)
+
+
+def sites_from_values(req: Requirements, *, names=None, max_speed_mps=None, max_doppler_hz=None,
+                      max_excess_delay_s=None, rms_delay_spread_s=None, profile=None, carrier_hz=None,
+                      snr_db=None) -> Sites:
+    """Sites made in memory from SI arrays (a grid for a map, a what-if list).
+
+    Each argument is an array (or a scalar broadcast to the others); ``nan``
+    (or ``""`` for ``profile``) takes the requirement's value, as an empty
+    cell does. Problems are returned in ``Sites.problems`` with line 0 and
+    the site's index in the message.
+
+    Examples
+    --------
+    >>> from numerology.requirements import requirements_from_mapping
+    >>> req = requirements_from_mapping({"environment": {"carrier": "2 GHz", "max_speed": "50 km/h",
+    ...     "max_excess_delay": "2 us"}, "radio": {"bandwidth": "10 MHz", "snr": "20 dB"}})
+    >>> sites = sites_from_values(req, max_speed_mps=[10.0, 30.0])
+    >>> sites.size, sites.speed_mps.tolist(), sites.max_excess_delay_s.tolist()
+    (2, [10.0, 30.0], [2e-06, 2e-06])
+    """
+    values = {"max_speed": max_speed_mps, "max_doppler": max_doppler_hz, "max_excess_delay": max_excess_delay_s,
+              "rms_delay_spread": rms_delay_spread_s, "carrier": carrier_hz, "snr": snr_db}
+    arrays = {k: np.asarray(v, dtype=float) for k, v in values.items() if v is not None}
+    if profile is not None:
+        arrays["profile"] = np.asarray(profile, dtype=object)
+    if names is not None:
+        arrays["site"] = np.asarray(names, dtype=object)
+    if not arrays:
+        raise InputError("sites", "expected at least one array of site values")
+    shape = np.broadcast_shapes(*(a.shape for a in arrays.values()))
+    if len(shape) != 1:
+        raise InputError("sites", f"expected one-dimensional arrays of site values, got shape {shape}")
+    n = shape[0]
+    problems: list = []
+    bad = np.zeros(n, dtype=bool)
+    lines = np.zeros(n, dtype=np.int64)
+    given = {}
+    for name, array in arrays.items():
+        array = np.broadcast_to(array, shape)
+        if name == "site":
+            given[name] = np.array([str(x) for x in array], dtype=object)
+        elif name == "profile":
+            text = np.array(["" if x is None else str(x) for x in array], dtype=object)
+            given[name] = _profile_values(text, lines, problems, bad, index_in_message=True)
+        else:
+            key = _KEYS[COLUMNS[name]]
+            si = np.array(array, dtype=float)
+            _check_range(name, key, si, ~np.isnan(si), si, "", 1.0, lines, problems, bad, index_in_message=True)
+            given[name] = si
+    return _resolve(req, given, lines, bad, problems, "<memory>")
+
+
+def _content_lines(path: Path) -> list:
+    """(line number, text) of the lines that are neither blank nor comments."""
+    try:
+        data = path.read_bytes()
+    except IsADirectoryError:
+        raise InputError(str(path), "is a folder; expected a CSV file of sites") from None
+    except OSError as exc:
+        raise InputError(str(path), f"cannot be read ({exc.strerror or exc})") from None
+    try:
+        text = data.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        raise InputError(str(path), "is not UTF-8 text; expected a CSV file of sites") from None
+    return [(number, line) for number, line in enumerate(text.splitlines(), start=1)
+            if line.strip() and not line.lstrip().startswith("#")]
+
+
+def _parse_header(header: list, place: str) -> list:
+    """[(column, unit, SI factor)] from the header cells."""
+    out = []
+    seen = set()
+    for cell in header:
+        match = _HEADER_CELL.match(cell)
+        if not match:
+            raise InputError(place, f"column {cell.strip()!r}: expected a name and its unit in brackets, "
+                                    f"such as 'max_speed [km/h]'")
+        name, unit = match.group(1).lower(), match.group(2)
+        if name not in COLUMNS:
+            close = difflib.get_close_matches(name, list(COLUMNS), n=1, cutoff=0.5)
+            hint = f" (did you mean {close[0]!r}?)" if close else ""
+            raise InputError(place, f"unknown column {name!r}{hint}; expected some of: {', '.join(COLUMNS)}")
+        if name in seen:
+            raise InputError(place, f"column {name!r} is given twice")
+        seen.add(name)
+        factor = 1.0
+        if name in ("site", "profile"):
+            if unit:
+                raise InputError(place, f"column {name!r} takes no unit, got [{unit}]")
+        elif name == "snr":
+            if unit is None or unit.lower() != "db":
+                raise InputError(place, "column 'snr' needs its unit: expected 'snr [dB]'")
+            unit = "dB"
+        else:
+            key = _KEYS[COLUMNS[name]]
+            if not unit:
+                example = {"speed": "km/h", "frequency": "GHz" if name == "carrier" else "Hz", "time": "us"}
+                raise InputError(place, f"column {name!r} needs its unit in brackets, such as "
+                                        f"'{name} [{example[key.dimension]}]'")
+            factor = parse_quantity(f"1 {unit}", key.dimension, f"{place}, column {name!r}")
+            if not factor > 0:
+                raise InputError(place, f"column {name!r}: expected a positive unit, got [{unit}]")
+        out.append((name, unit, factor))
+    return out
+
+
+def _problem(problems, bad, lines, index, message, index_in_message=False):
+    where = f"site {index + 1}: " if index_in_message else ""
+    problems.append((int(lines[index]), where + message))
+    bad[index] = True
+
+
+def _read_column(name, unit, factor, cells, lines, problems, bad, req):
+    """Convert one column of text cells: SI floats (nan where empty), names, or profile names."""
+    text = np.char.strip(np.asarray(cells, dtype=str))
+    if name == "site":
+        return text.astype(object)
+    if name == "profile":
+        return _profile_values(text.astype(object), lines, problems, bad)
+    empty = text == ""
+    numbers = np.full(text.shape, np.nan)
+    filled = np.flatnonzero(~empty)
+    try:
+        numbers[filled] = text[filled].astype(float)
+    except ValueError:  # find the bad cells only when there are some
+        for i in filled:
+            try:
+                numbers[i] = float(text[i])
+            except ValueError:
+                _problem(problems, bad, lines, i, f"{name}: expected a number in {unit}, got {str(text[i])!r}")
+    readable = ~empty & ~bad
+    key = _KEYS[COLUMNS[name]]
+    si = numbers * factor
+    _check_range(name, key, si, readable, numbers, unit, factor, lines, problems, bad)
+    return np.where(readable, si, np.nan)
+
+
+def _check_range(name, key, si, mask, shown, unit, factor, lines, problems, bad, index_in_message=False):
+    low_ok = si > key.low if key.low_open else si >= key.low
+    fails = np.flatnonzero(mask & ~(low_ok & (si <= key.high)))  # written so that NaN fails too
+    lower = "above" if key.low_open else "at least"
+    unit_text = f" {unit}" if unit else ""
+    for i in fails:
+        _problem(problems, bad, lines, i,
+                 f"{name}: {shown[i]:g}{unit_text} is out of range: expected {lower} {key.low / factor:g}{unit_text} "
+                 f"and at most {key.high / factor:g}{unit_text}", index_in_message)
+
+
+def _profile_values(text, lines, problems, bad, index_in_message=False):
+    """Catalogue names (canonical case), "none", or "" for an empty cell."""
+    canonical, unknown = {}, {}
+    for value in set(text.tolist()):
+        if value == "" or value.lower() == NO_PROFILE:
+            canonical[value] = value.lower()
+        else:
+            try:
+                canonical[value] = profiles.get_profile(value).name
+            except ValueError as exc:
+                canonical[value] = ""
+                unknown[value] = str(exc)
+    for i in np.flatnonzero([value in unknown for value in text.tolist()]):
+        _problem(problems, bad, lines, i, f"profile: {unknown[text[i]]}", index_in_message)
+    return np.array([canonical[value] for value in text.tolist()], dtype=object)
+
+
+def _resolve(req: Requirements, given: dict, lines, bad, problems: list, where: str) -> Sites:
+    """Fill what the sites do not give from the requirement set; check each site's consistency."""
+    env, radio = req.environment, req.radio
+    n = lines.size
+
+    def column(name, default):
+        values = given.get(name)
+        if values is None:
+            return np.full(n, np.nan), np.zeros(n, dtype=bool)
+        has = ~np.isnan(values)
+        return np.where(has, values, np.nan if default is None else default), has
+
+    def req_value(x):
+        return np.nan if x is None else x
+
+    site_speed, has_speed = column("max_speed", None)
+    site_doppler, has_doppler = column("max_doppler", None)
+    for i in np.flatnonzero(has_speed & has_doppler & ~bad):
+        _problem(problems, bad, lines, i, "max_doppler: both max_speed and max_doppler are given; keep one")
+    speed = np.where(has_speed, site_speed, np.where(has_doppler, np.nan, req_value(env.max_speed_mps)))
+    doppler_hz = np.where(has_doppler, site_doppler, np.where(has_speed, np.nan, req_value(env.max_doppler_hz)))
+    carrier, _ = column("carrier", env.carrier_hz)
+    snr, _ = column("snr", radio.snr_db)
+    rms, _ = column("rms_delay_spread", req_value(env.rms_delay_spread_s))
+    site_max, has_max = column("max_excess_delay", None)
+    cell = given.get("profile", np.full(n, "", dtype=object))
+    named = (cell != "") & (cell != NO_PROFILE)
+    profile = np.where(cell == "", env.profile or "", np.where(named, cell, "")).astype(object)
+    profile_file = np.where(cell == "", env.profile_file or "", "").astype(object)
+    # A site naming a profile replaces the requirement's delay shape, max excess delay included.
+    max_delay = np.where(has_max, site_max, np.where(named, np.nan, req_value(env.max_excess_delay_s)))
+    has_profile = (profile != "") | (profile_file != "")
+
+    normalised = np.zeros(n, dtype=bool)
+    for name in set(profile[has_profile & (profile != "")].tolist()):
+        normalised |= (profile == name) & profiles.get_profile(name).normalised
+    checks = (
+        (has_profile & has_max & named,
+         lambda i: f"max_excess_delay: profile {profile[i]} fixes the max excess delay; leave this cell empty "
+                   "(scale the profile with rms_delay_spread)"),
+        (has_profile & has_max & ~named,
+         lambda i: f"max_excess_delay: the requirement's profile {_profile_label(profile[i], profile_file[i])} fixes "
+                   "the max excess delay; set profile to none on this row to use max_excess_delay instead"),
+        (normalised & np.isnan(rms),
+         lambda i: f"rms_delay_spread: missing; profile {profile[i]} is normalised and needs an rms delay spread"),
+        (has_profile & (rms == 0), lambda i: "rms_delay_spread: must be above 0 s to scale a profile"),
+        (~has_profile & np.isnan(max_delay) & np.isnan(rms),
+         lambda i: "no delay given: expected max_excess_delay and/or rms_delay_spread, or a profile"),
+        (~has_profile & ~(rms <= max_delay / 2) & ~np.isnan(rms) & ~np.isnan(max_delay),
+         lambda i: "rms_delay_spread: an rms delay spread above half the max excess delay is impossible for any profile"),
+        (radio.bandwidth_hz >= 2 * carrier,
+         lambda i: f"carrier: the channel bandwidth ({radio.bandwidth_hz:g} Hz) is wider than twice this carrier"),
+    )
+    for mask, message in checks:
+        for i in np.flatnonzero(mask & ~bad):
+            _problem(problems, bad, lines, i, message(i))
+    names = given.get("site")
+    if names is None:
+        names = np.array([f"line {line}" if line else f"site {i + 1}" for i, line in enumerate(lines.tolist())],
+                         dtype=object)
+    else:
+        names = np.where(names == "", np.array([f"line {line}" for line in lines.tolist()], dtype=object), names)
+        first = {}
+        for i, name in enumerate(names.tolist()):
+            if bad[i]:
+                continue
+            if name in first:
+                _problem(problems, bad, lines, i, f"site: {name!r} is already used on line {first[name]}")
+            else:
+                first[name] = int(lines[i])
+    keep = ~bad
+    notes = []
+    if "carrier" in given and radio.frequency_error_hz and _given_as_ratio(req, "radio.frequency_error"):
+        notes.append(f"radio.frequency_error was given relative to the carrier; every site keeps its value in Hz "
+                     f"({radio.frequency_error_hz:g} Hz, at the requirement's carrier)")
+    return Sites(
+        names=names[keep], lines=lines[keep], speed_mps=speed[keep], max_doppler_hz=doppler_hz[keep],
+        carrier_hz=carrier[keep], snr_db=snr[keep], profile=profile[keep], profile_file=profile_file[keep],
+        rms_delay_spread_s=rms[keep], max_excess_delay_s=max_delay[keep], columns=tuple(given),
+        problems=tuple(sorted(problems, key=lambda p: p[0])), notes=tuple(notes), path=where)
+
+
+def _profile_label(name, path):
+    return name if name else Path(path).name
+
+
+def _given_as_ratio(req: Requirements, dotted: str) -> bool:
+    text = dict(req.given).get(dotted)
+    if not isinstance(text, str):
+        return False
+    try:
+        parse_quantity(text, "frequency", dotted)
+    except InputError:
+        return True
+    return False
+
+
+# --- the environments of the sites ---------------------------------------------
+
+
+def site_environments(req: Requirements, sites: Sites) -> EnvironmentBatch:
+    """The environment of every site, as ``derive_environment`` gives it for the edited requirement set.
+
+    Parameters
+    ----------
+    req : Requirements
+    sites : Sites
+
+    Returns
+    -------
+    EnvironmentBatch
+        Shape ``(sites.size,)``. Taps are built per distinct profile (a loop
+        over the few profiles, vectorised over the sites of each): a profile
+        scaled to a site's rms spread has its delays multiplied by the scale,
+        and its coherence bandwidth divided by it.
+
+    References
+    ----------
+    Bello, IEEE Trans. Commun. Syst. 11(4), 1963: the frequency correlation is
+    the Fourier transform of the power-delay profile, so stretching the delays
+    by a factor a compresses it by a (B_c scales as 1/a).
+    """
+    env, rules, radio = req.environment, req.rules, req.radio
+    n = sites.size
+    rho = rules.coherence_correlation
+    c = env.propagation_speed_mps
+    if n == 0:
+        empty = np.zeros(0)
+        k = 0.0 if env.k_factor_db is None else 10 ** (env.k_factor_db / 10)
+        return EnvironmentBatch(empty, c, empty, empty, empty, env.doppler_spectrum, k, empty, empty, rho, empty,
+                                np.zeros((0, 1)), np.zeros((0, 1)), np.zeros(0, dtype=object),
+                                np.zeros(0, dtype=object), empty, empty, empty, empty)
+    # Doppler, as derive_environment: a wideband signal is evaluated at its upper band edge.
+    carrier = sites.carrier_hz
+    fraction = radio.bandwidth_hz / carrier
+    doppler_carrier = np.where(fraction > WIDEBAND_FRACTION, carrier + radio.bandwidth_hz / 2, carrier)
+    has_speed = ~np.isnan(sites.speed_mps)
+    speed_or_zero = np.where(has_speed, sites.speed_mps, 0.0)
+    f_d = np.where(has_speed, doppler.max_doppler_hz(speed_or_zero, doppler_carrier, c), sites.max_doppler_hz)
+    speed = np.where(has_speed, sites.speed_mps, f_d * c / doppler_carrier)
+    k_factor = 0.0 if env.k_factor_db is None else 10 ** (env.k_factor_db / 10)
+    spectrum = env.doppler_spectrum
+
+    delays, powers, names, sources, coherence_bw, kind = _site_taps(req, sites)
+    stated = sites.max_excess_delay_s
+    max_excess = np.where(np.isnan(stated), delay.max_excess_delay_s(delays, powers, rules.delay_threshold_db), stated)
+    batch = EnvironmentBatch(
+        carrier_hz=carrier, propagation_speed_mps=c, wavelength_m=np.asarray(doppler.wavelength_m(carrier, c), float),
+        speed_mps=speed, max_doppler_hz=f_d, doppler_spectrum=spectrum, k_factor=k_factor,
+        doppler_centroid_hz=_array(doppler.doppler_centroid_hz(f_d, spectrum, k_factor), n),
+        doppler_spread_hz=_array(doppler.doppler_spread_hz(f_d, spectrum, k_factor), n),
+        coherence_correlation=rho, coherence_time_s=_array(doppler.coherence_time_s(f_d, spectrum, k_factor, rho), n),
+        delays_s=delays, powers=powers, profile_name=names, profile_source=sources,
+        mean_excess_delay_s=_array(delay.mean_excess_delay_s(delays, powers), n),
+        rms_delay_spread_s=_array(delay.rms_delay_spread_s(delays, powers), n),
+        max_excess_delay_s=np.asarray(max_excess, float), coherence_bandwidth_hz=coherence_bw, notes=())
+    return _with_notes(batch, req, sites, fraction, has_speed, kind)
+
+
+def _array(x, n):
+    return np.broadcast_to(np.asarray(x, dtype=float), (n,)).copy()
+
+
+#: Kinds of assumed or given delay profiles, as derive_environment chooses them.
+_SINGLE, _EXPONENTIAL, _TWO_RAY, _BOUNDED_EXP, _BOUNDED_FLAT, _PROFILE = range(6)
+
+
+def _site_taps(req: Requirements, sites: Sites):
+    """Padded taps (n, K), profile names and sources, coherence bandwidths, and a kind code per site."""
+    rules = req.rules
+    rho = rules.coherence_correlation
+    n = sites.size
+    rms, span = sites.rms_delay_spread_s, sites.max_excess_delay_s
+    has_profile = (sites.profile != "") | (sites.profile_file != "")
+    kind = np.full(n, _PROFILE)
+    free = ~has_profile
+    kind[free & np.isnan(span) & (rms == 0)] = _SINGLE
+    kind[free & (span == 0)] = _SINGLE
+    kind[free & np.isnan(span) & (rms > 0)] = _EXPONENTIAL
+    kind[free & (span > 0) & np.isnan(rms)] = _TWO_RAY
+    both = free & (span > 0) & (rms >= 0)
+    pieces = []  # (site indices, delays (m, k), powers (m, k), name, source, coherence bandwidth (m,))
+
+    if np.any(kind == _SINGLE):
+        idx = np.flatnonzero(kind == _SINGLE)
+        pieces.append((idx, np.zeros((idx.size, 1)), np.ones((idx.size, 1)), "single path (no delay spread)", "given",
+                       np.full(idx.size, np.inf)))
+    if np.any(kind == _EXPONENTIAL):
+        idx = np.flatnonzero(kind == _EXPONENTIAL)
+        d1, p1 = delay.exponential_profile(1.0, floor_db=rules.delay_threshold_db)  # delays scale with the rms
+        p1 = p1 / np.sum(p1)
+        bc1 = float(delay.coherence_bandwidth_hz(d1, p1, rho))
+        sigma = rms[idx, None]
+        pieces.append((idx, d1 * sigma, np.broadcast_to(p1, (idx.size, p1.size)), "exponential",
+                       "assumed from rms_delay_spread", bc1 / sigma[:, 0]))
+    if np.any(kind == _TWO_RAY):
+        idx = np.flatnonzero(kind == _TWO_RAY)
+        d1, p1 = delay.two_ray_profile(1.0, None)
+        tau = span[idx, None]
+        bc1 = float(delay.coherence_bandwidth_hz(d1, p1, rho))
+        pieces.append((idx, d1 * tau, np.broadcast_to(p1, (idx.size, 2)), "two equal rays",
+                       "assumed from max_excess_delay", bc1 / tau[:, 0]))
+    if np.any(both):
+        idx = np.flatnonzero(both)
+        d, p, flat, bc = _bounded_profiles(span[idx], rms[idx], rho)
+        kind[idx] = np.where(flat, _BOUNDED_FLAT, _BOUNDED_EXP)
+        pieces.append((idx, d, p, np.where(flat, "flat profile with two equal rays at its ends", "exponential"),
+                       "assumed from max_excess_delay and rms_delay_spread", bc))
+    for label in sorted(set(zip(sites.profile[has_profile].tolist(), sites.profile_file[has_profile].tolist()))):
+        name, path = label
+        idx = np.flatnonzero(has_profile & (sites.profile == name) & (sites.profile_file == path))
+        profile = profiles.get_profile(name) if name else profiles.load_profile_csv(path)
+        d0 = np.asarray(profile.delays_s, dtype=float)
+        p0 = np.asarray(profile.powers, dtype=float)
+        p0 = p0 / np.sum(p0)
+        sigma = rms[idx]
+        scaled = ~np.isnan(sigma)
+        if profile.normalised:
+            factor = np.where(scaled, sigma, 1.0)  # 3GPP TR 38.901 sect. 7.7.3: delays in units of the rms spread
+        else:
+            factor = np.where(scaled, sigma / profile.rms_delay_spread_s, 1.0)  # as Profile.scaled
+        bc0 = float(delay.coherence_bandwidth_hz(d0, p0, rho))
+        pieces.append((idx, d0[None, :] * factor[:, None], np.broadcast_to(p0, (idx.size, p0.size)), profile.name,
+                       profile.source, bc0 / factor))
+
+    width = max((piece[1].shape[1] for piece in pieces), default=1)
+    delays = np.zeros((n, width))
+    powers = np.zeros((n, width))  # zero-power padding taps play no part
+    names = np.empty(n, dtype=object)
+    sources = np.empty(n, dtype=object)
+    coherence_bw = np.full(n, np.inf)
+    for idx, d, p, name, source, bc in pieces:
+        delays[idx, :d.shape[1]] = d
+        powers[idx, :p.shape[1]] = p
+        names[idx] = name
+        sources[idx] = source
+        coherence_bw[idx] = bc
+    return delays, powers, names, sources, coherence_bw, kind
+
+
+def _bounded_profiles(span_s, rms_s, rho):
+    """environment.bounded_profile for many (span, rms) pairs at once.
+
+    The shape depends on rms/span only: the exponential decay rate is found
+    by bisection (vectorised over the distinct ratios) to the precision of
+    the Brent's-method root in ``bounded_profile``.
+    """
+    from .environment import ASSUMED_TAPS
+
+    t = np.linspace(0.0, span_s, ASSUMED_TAPS, axis=-1)  # (m, 64), as np.linspace(0, span, 64) per site
+    unit = np.linspace(0.0, 1.0, ASSUMED_TAPS)
+    flat_rms = delay.rms_delay_spread_s(t, np.ones_like(t))
+    exponential = rms_s < flat_rms
+    ratio, inverse = np.unique(rms_s / span_s, return_inverse=True)
+    inverse = np.ravel(inverse)
+    # Bisection on log(rate) over [-30, 12], as bounded_profile's bracket: the rms falls as the rate grows.
+    lo = np.full(ratio.size, -30.0)
+    hi = np.full(ratio.size, 12.0)
+    for _ in range(60):
+        mid = 0.5 * (lo + hi)
+        too_wide = delay.rms_delay_spread_s(unit, np.exp(-np.exp(mid)[:, None] * unit)) > ratio
+        lo = np.where(too_wide, mid, lo)
+        hi = np.where(too_wide, hi, mid)
+    log_rate = 0.5 * (lo + hi)[inverse]
+    decay = np.exp(-np.exp(log_rate)[:, None] * t / span_s[:, None])
+    # Above the flat profile's rms: a flat bed plus two equal rays at the ends, variance matched.
+    w = (rms_s**2 - flat_rms**2) / (span_s**2 / 4 - flat_rms**2)
+    bed = (1 - w)[:, None] * np.ones_like(t) / ASSUMED_TAPS
+    bed[:, 0] += w / 2
+    bed[:, -1] += w / 2
+    powers = np.where(exponential[:, None], decay, bed)
+    powers = powers / powers.sum(axis=-1, keepdims=True)
+    # Coherence bandwidth of each distinct shape on a unit span, then scaled by 1/span.
+    shapes, first = np.unique(np.round(rms_s / span_s, 15), return_index=True)
+    unit_powers = powers[first]
+    bc_unit = np.asarray(delay.coherence_bandwidth_hz(np.broadcast_to(unit, unit_powers.shape), unit_powers, rho))
+    which = np.searchsorted(shapes, np.round(rms_s / span_s, 15))
+    return t, powers, ~exponential, bc_unit[which] / span_s
+
+
+def _with_notes(batch: EnvironmentBatch, req: Requirements, sites: Sites, fraction, has_speed, kind):
+    """Attach the notes derive_environment gives, computed once per distinct combination of causes."""
+    import dataclasses
+
+    n = sites.size
+    if n == 0:
+        return batch
+    c = req.environment.propagation_speed_mps
+    carrier = sites.carrier_hz
+    causes = np.stack([
+        (c < 1e7) & (carrier > 1e7),
+        (c > 1e7) & (carrier < 1e6) & has_speed,
+        np.where(fraction > WIDEBAND_FRACTION, np.round(100 * fraction), -1),  # the note states the percentage
+        kind,
+        _codes(sites.profile),
+        _codes(sites.profile_file),
+    ], axis=1).astype(float)
+    combos, first, inverse = np.unique(causes, axis=0, return_index=True, return_inverse=True)
+    inverse = np.ravel(inverse)
+    masks: dict = {}
+    for j, site in enumerate(first):
+        for text in derive_environment(sites.requirements_for(req, int(site))).notes:
+            masks[text] = masks.get(text, np.zeros(n, dtype=bool)) | (inverse == j)
+    return dataclasses.replace(batch, notes=tuple(masks.items()))
+
+
+def _codes(values):
+    _, codes = np.unique(values.astype(str), return_inverse=True)
+    return np.ravel(codes)
+
+
+# --- the sweep -------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class SweepSummary:
+    """How many sites pass, which rule fails most, and the worst site."""
+
+    sites: int
+    passed: int
+    failures: dict  # rule -> number of sites where it fails, most first
+    worst_site: str | None
+    worst_line: int | None
+    worst_rule: str | None
+    worst_normalised: float | None  # the worst site's binding margin as capacity/demand - 1
+    problems: int
+
+    @property
+    def most_failing_rule(self) -> str | None:
+        return next(iter(self.failures), None)
+
+    def __str__(self) -> str:
+        text = f"{self.passed} of {self.sites} sites pass"
+        if self.failures:
+            text += "; failing: " + ", ".join(f"{rule} at {count}" for rule, count in self.failures.items())
+        if self.worst_site is not None:
+            text += f"; worst site {self.worst_site} ({self.worst_rule}, {_percent(self.worst_normalised)})"
+        if self.problems:
+            text += f"; {self.problems} rows with problems not evaluated"
+        return text
+
+    def to_json(self) -> dict:
+        return {"sites": self.sites, "passed": self.passed, "failed": self.sites - self.passed,
+                "failures": dict(self.failures), "most_failing_rule": self.most_failing_rule,
+                "worst_site": self.worst_site, "worst_line": self.worst_line, "worst_rule": self.worst_rule,
+                "worst_normalised_margin": _finite(self.worst_normalised), "problems": self.problems}
+
+
+def _percent(x):
+    return "n/a" if x is None or not math.isfinite(x) else f"{100 * x:+.1f} %"
+
+
+def _finite(x):
+    return None if x is None or not math.isfinite(x) else float(x)
+
+
+@dataclass(frozen=True)
+class SweepResult:
+    """One design evaluated at every site; arrays have one entry per site."""
+
+    design: Design
+    sites: Sites
+    environment: EnvironmentBatch
+    rules: tuple  # the applicable Rule objects, declaration order
+    margin: dict  # rule name -> margin by the rule's convention (ratio or dB)
+    normalised: dict  # rule name -> capacity / demand - 1
+    passed: np.ndarray
+    binding: np.ndarray  # index into rules of each site's binding rule
+    net_throughput_bps: np.ndarray
+    effective_sinr_db: np.ndarray
+    requirements_path: str = field(default="<memory>")
+
+    @property
+    def binding_rule(self) -> np.ndarray:
+        """Name of each site's binding rule (smallest normalised margin)."""
+        names = np.array([rule.name for rule in self.rules], dtype=object)
+        return names[self.binding] if self.binding.size else np.array([], dtype=object)
+
+    def summary(self) -> SweepSummary:
+        n = self.sites.size
+        counts = {rule.name: int(np.sum(self.margin[rule.name] < 0)) for rule in self.rules}
+        failures = dict(sorted(((k, v) for k, v in counts.items() if v), key=lambda kv: -kv[1]))  # stable: ties keep order
+        worst = None
+        if n:
+            worst_normalised = np.min(np.stack([self.normalised[r.name] for r in self.rules]), axis=0)
+            worst = int(np.argmin(worst_normalised))
+        return SweepSummary(
+            sites=n, passed=int(np.sum(self.passed)), failures=failures,
+            worst_site=None if worst is None else str(self.sites.names[worst]),
+            worst_line=None if worst is None else int(self.sites.lines[worst]),
+            worst_rule=None if worst is None else str(self.binding_rule[worst]),
+            worst_normalised=None if worst is None else float(worst_normalised[worst]),
+            problems=len(self.sites.problems))
+
+    def __str__(self) -> str:
+        return f"{self.design.name}: {self.summary()}"
+
+    def margin_key(self, rule) -> str:
+        """JSON key of a rule's margin: the rule name, with ``_db`` for dB margins."""
+        return rule.name + ("_db" if rule.convention == "db" else "")
+
+    def to_json(self) -> dict:
+        """The sweep as JSON-ready values under unit-suffixed keys (non-finite values as None)."""
+        env = self.environment
+        binding = self.binding_rule
+        margins = {self.margin_key(rule): self.margin[rule.name] for rule in self.rules}
+        columns = {
+            "passed": self.passed.tolist(), "binding_rule": binding.tolist(),
+            "net_throughput_bps": self.net_throughput_bps.tolist(), "effective_sinr_db": self.effective_sinr_db.tolist(),
+            "max_doppler_hz": env.max_doppler_hz.tolist(), "coherence_time_s": env.coherence_time_s.tolist(),
+            "coherence_bandwidth_hz": env.coherence_bandwidth_hz.tolist(),
+        }
+        margin_lists = {key: values.tolist() for key, values in margins.items()}
+        note_lists = [[] for _ in range(self.sites.size)]
+        for text, mask in env.notes:
+            for i in np.flatnonzero(mask):
+                note_lists[i].append(text)
+        rows = []
+        for i, (name, line) in enumerate(zip(self.sites.names.tolist(), self.sites.lines.tolist())):
+            rows.append({
+                "site": name, "line": line or None, "passed": columns["passed"][i],
+                "binding_rule": columns["binding_rule"][i],
+                "margins": {key: _finite(values[i]) for key, values in margin_lists.items()},
+                "net_throughput_bps": _finite(columns["net_throughput_bps"][i]),
+                "effective_sinr_db": _finite(columns["effective_sinr_db"][i]),
+                "max_doppler_hz": _finite(columns["max_doppler_hz"][i]),
+                "coherence_time_s": _finite(columns["coherence_time_s"][i]),
+                "coherence_bandwidth_hz": _finite(columns["coherence_bandwidth_hz"][i]),
+                "notes": note_lists[i],
+            })
+        return {
+            "design": self.design.to_json(),
+            "requirements": self.requirements_path,
+            "sites_file": self.sites.path,
+            "rules": [{"name": rule.name, "convention": rule.convention, "margin_key": self.margin_key(rule)}
+                      for rule in self.rules],
+            "sites": rows,
+            "summary": self.summary().to_json(),
+            "problems": [{"line": line, "message": message} for line, message in self.sites.problems],
+            "notes": list(self.sites.notes),
+        }
+
+
+def sweep(req: Requirements, design: Design, sites: Sites) -> SweepResult:
+    """Evaluate one design at every site.
+
+    Parameters
+    ----------
+    req : Requirements
+        The requirement set the sites were read against.
+    design : Design
+    sites : Sites
+        From :func:`load_sites` or :func:`sites_from_values`.
+
+    Returns
+    -------
+    SweepResult
+        Per site: pass/fail, binding rule, each rule's margin, net
+        throughput, effective SINR; the site environments (coherence time and
+        bandwidth, notes).
+
+    Notes
+    -----
+    One call of ``link.evaluate`` with the design against the batch of site
+    environments; the per-site SNR is passed as an array in ``radio.snr``.
+    """
+    environment = site_environments(req, sites)
+    rules = link.applicable_rules(req)
+    n = sites.size
+    if n == 0:
+        empty = np.zeros(0)
+        return SweepResult(design, sites, environment, rules, {r.name: empty for r in rules},
+                           {r.name: empty for r in rules}, np.zeros(0, dtype=bool), np.zeros(0, dtype=np.int64),
+                           empty, empty, req.path)
+    evaluation = link.evaluate(DesignArrays.from_designs([design]), environment, req.replace("radio.snr", sites.snr_db))
+
+    def per_site(x):
+        return np.broadcast_to(np.asarray(x, dtype=float), (n,)).copy()
+
+    return SweepResult(
+        design=design, sites=sites, environment=environment, rules=evaluation.rules,
+        margin={name: per_site(v) for name, v in evaluation.margin.items()},
+        normalised={name: per_site(v) for name, v in evaluation.normalised.items()},
+        passed=np.broadcast_to(evaluation.passed, (n,)).copy(),
+        binding=np.broadcast_to(evaluation.binding, (n,)).astype(np.int64),
+        net_throughput_bps=per_site(evaluation.rate_bps), effective_sinr_db=per_site(evaluation.sinr_eff_db),
+        requirements_path=req.path)
+
+
+def write_sweep_csv(path, result: SweepResult) -> None:
+    """Write the sweep as CSV, atomically (validate the path first with ``output.output_path``).
+
+    Columns: site, pass (yes/no), binding_rule, net_throughput [Mbit/s],
+    effective_sinr [dB], one margin column per rule (``[%]`` for ratio
+    margins, ``[dB]`` for dB margins), coherence_time [ms],
+    coherence_bandwidth [MHz]. Rows that could not be evaluated are listed
+    first as ``#`` comment lines with their line and problem.
+    """
+    buffer = io.StringIO()
+    for line, message in result.sites.problems:
+        buffer.write(f"# line {line} not evaluated: {message}\n")
+    for note in result.sites.notes:
+        buffer.write(f"# note: {note}\n")
+    writer = csv.writer(buffer, lineterminator="\n")
+    margin_headers = [f"{rule.name} margin [{'dB' if rule.convention == 'db' else '%'}]" for rule in result.rules]
+    writer.writerow(["site", "pass", "binding_rule", "net_throughput [Mbit/s]", "effective_sinr [dB]",
+                     *margin_headers, "coherence_time [ms]", "coherence_bandwidth [MHz]"])
+    columns = [
+        result.sites.names.tolist(),
+        np.where(result.passed, "yes", "no").tolist(),
+        result.binding_rule.tolist(),
+        _formatted(result.net_throughput_bps / 1e6),
+        _formatted(result.effective_sinr_db),
+        *[_formatted(result.margin[rule.name] * (100.0 if rule.convention == "ratio" else 1.0))
+          for rule in result.rules],
+        _formatted(result.environment.coherence_time_s * 1e3),
+        _formatted(result.environment.coherence_bandwidth_hz / 1e6),
+    ]
+    writer.writerows(zip(*columns))
+    write_atomic(Path(path), buffer.getvalue().encode("utf-8"))
+
+
+def _formatted(values) -> list:
+    """Numbers to 6 significant digits; inf stays 'inf', nan becomes an empty cell."""
+    return ["" if x != x else f"{x:.6g}" for x in np.asarray(values, dtype=float).tolist()]
