@@ -52,6 +52,21 @@ def _parser() -> argparse.ArgumentParser:
     sol.add_argument("--objective", choices=("throughput", "robustness", "overhead", "latency"),
                      help="ranking objective (default: goals.objective)")
     _output_options(sol)
+
+    ver = sub.add_parser("verify", help="confirm a design's analytic budget by simulating the OFDM link")
+    ver.add_argument("requirements", metavar="REQ.toml")
+    _design_options(ver, best=True)
+    ver.add_argument("--seed", type=int, default=0, metavar="N", help="random seed (default 0); same seed, same JSON")
+    ver.add_argument("--frames", type=int, metavar="N", help="frames to simulate (default: enough for the tolerance)")
+    ver.add_argument("--json", action="store_true", help="machine-readable output on stdout")
+    ver.add_argument("--markdown", metavar="FILE", help="write a design note with the verification to FILE")
+
+    swp = sub.add_parser("sweep", help="check one design at every site of a deployment")
+    swp.add_argument("requirements", metavar="REQ.toml")
+    swp.add_argument("--sites", required=True, metavar="FILE.csv", help="one site per row; header: key [unit]")
+    _design_options(swp, best=True)
+    swp.add_argument("--out", metavar="FILE.csv", help="write the per-site results to FILE.csv")
+    swp.add_argument("--json", action="store_true", help="machine-readable output on stdout")
     return p
 
 

@@ -148,3 +148,81 @@ def solve(args) -> int:
         render_terminal.solve(render_terminal.console(), result)
     _write_outputs(outputs, req, solution=result)
     return EXIT_OK if result.feasible else EXIT_FAILS
+
+
+def _chosen_design(args, req):
+    """The design named by --design, --preset or --best (None when --best finds nothing)."""
+    from . import api
+
+    if getattr(args, "best", False):
+        result = api.solve(req, explain=False, with_limits=False, top=1)
+        return result.designs[0].check.design if result.feasible else None
+    return api.design_from(preset=args.preset, path=args.design)
+
+
+def verify(args) -> int:
+    from . import api
+    from .errors import InputError
+
+    req = api.load(args.requirements)
+    if args.frames is not None and not 1 <= args.frames <= 100_000:
+        raise InputError("--frames", f"expected a whole number from 1 to 100000, got {args.frames}")
+    if not 0 <= args.seed < 2**63:
+        raise InputError("--seed", f"expected a whole number from 0 to 2^63 - 1, got {args.seed}")
+    outputs = _check_outputs(args, req)
+    design = _chosen_design(args, req)
+    if design is None:
+        print("numerology: --best: the request is infeasible, so there is no design to verify "
+              "(run numerology solve for the diagnosis)", file=sys.stderr)
+        return EXIT_FAILS
+    from .verify import verify as run_verify
+
+    if args.json:
+        verification = run_verify(req, design, seed=args.seed, frames=args.frames)
+        _emit(render_json.document("numerology.verify", {"requirements": req.path, "design": design.to_json(),
+                                                         "seed": args.seed, **verification.to_json()}))
+    else:
+        from . import render_terminal
+
+        con = render_terminal.console()
+        verification = render_terminal.with_progress(
+            con, lambda progress: run_verify(req, design, seed=args.seed, frames=args.frames, progress=progress))
+        render_terminal.verification(con, design, verification)
+    if outputs["markdown"]:
+        from .note import write_note
+
+        write_note(outputs["markdown"], req, check=api.check(req, design), verification=verification)
+    return EXIT_OK if verification.agree else EXIT_FAILS
+
+
+def sweep(args) -> int:
+    from . import api
+    from .output import output_path
+    from .sweep import load_sites, sweep as run_sweep, write_sweep_csv
+
+    req = api.load(args.requirements)
+    out = output_path(args.out, "--out", (".csv",), req)
+    if out is not None and out.resolve() == __import__("pathlib").Path(args.sites).resolve():
+        from .errors import InputError
+
+        raise InputError("--out", f"refusing to overwrite the sites file {args.sites!r}")
+    sites = load_sites(args.sites, req)
+    design = _chosen_design(args, req)
+    if design is None:
+        print("numerology: --best: the request is infeasible, so there is no design to sweep "
+              "(run numerology solve for the diagnosis)", file=sys.stderr)
+        return EXIT_FAILS
+    result = run_sweep(req, design, sites)
+    if out is not None:
+        write_sweep_csv(out, result)
+    if args.json:
+        _emit(render_json.document("numerology.sweep", {"requirements": req.path, "sites_file": args.sites,
+                                                        "design": design.to_json(), **result.to_json()}))
+    else:
+        from . import render_terminal
+
+        render_terminal.sweep(render_terminal.console(), design, result, out)
+    for line, message in getattr(sites, "problems", ()):
+        print(f"numerology: {args.sites}:{line}: {message}", file=sys.stderr)
+    summary = result.summary()
+    return EXIT_OK if summary.failed == 0 and not getattr(sites, "problems", ()) else EXIT_FAILS

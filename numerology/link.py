@@ -200,20 +200,26 @@ def _channel_index(delays_s, powers, max_doppler_hz):
     """For an environment batch: an index per site, equal for identical channels, and a site of each index."""
     taps = delays_s.shape[-1]
     f_d = np.broadcast_to(max_doppler_hz, delays_s.shape[:-1]).reshape(-1, 1)
-    rows = np.concatenate([delays_s.reshape(-1, taps), powers.reshape(-1, taps), f_d], axis=1)
-    _, first, inverse = np.unique(rows, axis=0, return_index=True, return_inverse=True)
+    rows = np.ascontiguousarray(np.concatenate([delays_s.reshape(-1, taps), powers.reshape(-1, taps), f_d], axis=1))
+    as_bytes = rows.view(np.dtype((np.void, rows.dtype.itemsize * rows.shape[1]))).ravel()  # one sortable key per row
+    _, first, inverse = np.unique(as_bytes, return_index=True, return_inverse=True)
     return np.ravel(inverse).reshape(delays_s.shape[:-1]), first
 
 
 def _frequency_correlation_rows(lag_hz, delays_s, powers):
-    """delay.frequency_correlation with one profile per row: lags (n, L), taps (n, K) -> (n, L)."""
+    """delay.frequency_correlation with one profile per row: lags (n, L), taps (n, K) -> (n, L).
+
+    Real arithmetic (cos and sin) in blocks of rows, which bound the (rows, lags, taps) temporaries.
+    """
     lag_hz = np.asarray(lag_hz, dtype=float)
+    p = powers / powers.sum(axis=-1, keepdims=True)
     out = np.empty(lag_hz.shape, dtype=complex)
-    block = max(1, (1 << 22) // max(1, lag_hz.shape[1] * delays_s.shape[1]))
-    for start in range(0, lag_hz.shape[0], block):  # blocks of rows bound the (rows, lags, taps) temporary
-        stop = start + block
-        out[start:stop] = delay.frequency_correlation(lag_hz[start:stop], delays_s[start:stop, None, :],
-                                                      powers[start:stop, None, :])
+    block = max(1, (1 << 21) // max(1, lag_hz.shape[1] * delays_s.shape[1]))
+    for start in range(0, lag_hz.shape[0], block):
+        rows = slice(start, start + block)
+        phase = (2.0 * np.pi) * lag_hz[rows, :, None] * delays_s[rows, None, :]
+        out.real[rows] = np.einsum("nlk,nk->nl", np.cos(phase), p[rows])  # R = sum_k p_k exp(-j 2 pi f tau_k)
+        out.imag[rows] = -np.einsum("nlk,nk->nl", np.sin(phase), p[rows])
     return out
 
 
