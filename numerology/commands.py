@@ -179,8 +179,8 @@ def verify(args) -> int:
 
     if args.json:
         verification = run_verify(req, design, seed=args.seed, frames=args.frames)
-        _emit(render_json.document("numerology.verify", {"requirements": req.path, "design": design.to_json(),
-                                                         "seed": args.seed, **verification.to_json()}))
+        _emit(render_json.document("numerology.verify", {"requirements": req.path, **verification.to_json(),
+                                                         "design": design.to_json(), "seed": args.seed}))
     else:
         from . import render_terminal
 

@@ -161,14 +161,12 @@ def load_sites(path, req: Requirements) -> Sites:
     lines = np.array([line for line, _ in body], dtype=np.int64)
     rows = list(csv.reader([text for _, text in body]))
     problems: list = []
-    bad = np.zeros(len(rows), dtype=bool)
     width = len(columns)
+    bad = np.fromiter(map(len, rows), dtype=np.int64, count=len(rows)) != width
     names = ", ".join(name for name, _, _ in columns)
-    for i, row in enumerate(rows):
-        if len(row) != width:
-            problems.append((int(lines[i]), f"expected {width} values ({names}), got {len(row)}"))
-            bad[i] = True
-            rows[i] = [""] * width
+    for i in np.flatnonzero(bad):
+        problems.append((int(lines[i]), f"expected {width} values ({names}), got {len(rows[i])}"))
+        rows[i] = [""] * width
     cells = list(zip(*rows))
     given = {}
     for j, (name, unit, factor) in enumerate(columns):
@@ -239,8 +237,9 @@ def _content_lines(path: Path) -> list:
         text = data.decode("utf-8-sig")
     except UnicodeDecodeError:
         raise InputError(str(path), "is not UTF-8 text; expected a CSV file of sites") from None
+    # Most lines start with a value: test the first character before stripping.
     return [(number, line) for number, line in enumerate(text.splitlines(), start=1)
-            if line.strip() and not line.lstrip().startswith("#")]
+            if (line[:1] not in " \t#" and line) or (line.strip() and not line.lstrip().startswith("#"))]
 
 
 def _parse_header(header: list, place: str) -> list:
@@ -289,27 +288,37 @@ def _problem(problems, bad, lines, index, message, index_in_message=False):
 
 def _read_column(name, unit, factor, cells, lines, problems, bad, req):
     """Convert one column of text cells: SI floats (nan where empty), names, or profile names."""
-    text = np.char.strip(np.asarray(cells, dtype=str))
     if name == "site":
-        return text.astype(object)
+        return np.array([cell.strip() for cell in cells], dtype=object)
     if name == "profile":
-        return _profile_values(text.astype(object), lines, problems, bad)
-    empty = text == ""
-    numbers = np.full(text.shape, np.nan)
-    filled = np.flatnonzero(~empty)
-    try:
-        numbers[filled] = text[filled].astype(float)
-    except ValueError:  # find the bad cells only when there are some
-        for i in filled:
-            try:
-                numbers[i] = float(text[i])
-            except ValueError:
-                _problem(problems, bad, lines, i, f"{name}: expected a number in {unit}, got {str(text[i])!r}")
-    readable = ~empty & ~bad
+        return _profile_values(np.array([cell.strip() for cell in cells], dtype=object), lines, problems, bad)
+    numbers, given = _numbers(cells)
+    for i in np.flatnonzero(~given & ~bad):
+        if cells[i].strip():
+            _problem(problems, bad, lines, i, f"{name}: expected a number in {unit}, got {cells[i].strip()!r}")
+    readable = given & ~bad
     key = _KEYS[COLUMNS[name]]
     si = numbers * factor
     _check_range(name, key, si, readable, numbers, unit, factor, lines, problems, bad)
     return np.where(readable, si, np.nan)
+
+
+def _numbers(cells):
+    """Floats of text cells and a mask of the cells that hold one (Python's float: surrounding blanks allowed)."""
+    n = len(cells)
+    try:
+        return np.fromiter(map(float, cells), dtype=float, count=n), np.ones(n, dtype=bool)
+    except ValueError:  # empty or unreadable cells: one at a time
+        pass
+    numbers = np.full(n, np.nan)
+    given = np.zeros(n, dtype=bool)
+    for i, cell in enumerate(cells):
+        try:
+            numbers[i] = float(cell)
+            given[i] = True
+        except ValueError:
+            pass
+    return numbers, given
 
 
 def _check_range(name, key, si, mask, shown, unit, factor, lines, problems, bad, index_in_message=False):
@@ -401,7 +410,9 @@ def _resolve(req: Requirements, given: dict, lines, bad, problems: list, where: 
         names = np.array([f"line {line}" if line else f"site {i + 1}" for i, line in enumerate(lines.tolist())],
                          dtype=object)
     else:
-        names = np.where(names == "", np.array([f"line {line}" for line in lines.tolist()], dtype=object), names)
+        names = names.copy()
+        for i in np.flatnonzero(names == ""):
+            names[i] = f"line {lines[i]}"
         first = {}
         for i, name in enumerate(names.tolist()):
             if bad[i]:
