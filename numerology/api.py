@@ -37,10 +37,7 @@ def design_from(design=None, preset: str | None = None, path: str | None = None)
     if preset is not None:
         from .presets import get_preset
 
-        try:
-            return get_preset(preset).design
-        except ValueError as exc:
-            raise InputError("--preset", str(exc)) from None
+        return get_preset(preset, place="--preset").design
     if path is not None:
         return load_design(path)
     raise InputError("design", "expected a design, a preset name or a design file")

@@ -96,8 +96,8 @@ def main(argv: Sequence[str] | None = None) -> int:
 
             return version()
         if args.command is None:
-            _parser().print_help()
-            return EXIT_BAD_INPUT
+            raise InputError("", "expected a command: env, profiles, presets, check, solve, verify or "
+                                           "sweep (numerology --help lists them)")
         from . import commands
 
         return getattr(commands, args.command)(args)

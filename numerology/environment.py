@@ -317,7 +317,10 @@ def _taps(req: Requirements):
         if rms is not None:
             if rms == 0:
                 raise InputError(f"{where}: environment.rms_delay_spread", "must be above 0 s to scale a profile")
-            profile = profile.scaled(rms)
+            try:
+                profile = profile.scaled(rms)
+            except ValueError as exc:  # e.g. a single tap has no spread to scale
+                raise InputError(f"{where}: environment.rms_delay_spread", f"cannot scale {profile.name}: {exc}") from None
         if profile.los_k_factor_db is not None and req.environment.doppler_spectrum in ("classical", "flat"):
             notes.append(f"{profile.name} has a line-of-sight first tap (K = {profile.los_k_factor_db:g} dB); "
                          "set doppler_spectrum = \"rician\" or \"tracked\" to model it")

@@ -168,8 +168,10 @@ CONFIDENCE = 0.95
 QAM_ORDERS = (4, 16, 64, 256)
 #: Working-memory budget of one block of frames, bytes.
 BLOCK_BYTES = 96 * 2**20
-#: Default number of frames.
-DEFAULT_FRAMES = 32
+#: Received samples aimed at when the number of frames is not given ...
+AUTO_SAMPLES = 2**25
+#: ... within these bounds on the number of frames.
+AUTO_FRAMES = (48, 256)
 
 # Internal switch for the tests: "auto" picks the cheaper of the two exact ways to apply the
 # taps inside the guard; "taps" forces one IFFT per tap, "orders" one IFFT per Legendre order.
@@ -709,7 +711,8 @@ def _simulate_block(plan: _Plan, seeds) -> dict:
         y *= derotate  # ideal common-phase correction
         # true channel as received: window average of the response times the oscillator phasor
         mean_osc = np.empty(beta.shape, dtype=complex)
-        for m in range(plan.delays.size):
+        mean_osc[:, inside] = (rotation @ (plan.legendre.T / n))[:, None]  # whole window: same for these taps
+        for m in np.flatnonzero(plan.isi):
             weights = np.where(plan.source_symbol[m] == 0, 1.0, 0.0)[None, :] * plan.legendre / n  # (Q+1, N)
             mean_osc[:, m] = rotation @ weights.T
         reference = np.einsum("fmsq,fmsq->fsm", beta, mean_osc) @ plan.ramps_cols * derotate
@@ -751,7 +754,7 @@ def _ratio(num: np.ndarray, den: np.ndarray, confidence: float):
 
 
 def simulate_link(design, environment, snr_db, *, frequency_offset_hz=0.0, linewidth_hz=0.0, estimator="lmmse",
-                  frames=DEFAULT_FRAMES, symbols_per_frame=None, qam_order=4, seed=0, progress=None):
+                  frames=None, symbols_per_frame=None, qam_order=4, seed=0, progress=None):
     """Simulate an OFDM link through the environment's channel and measure its impairments.
 
     See the module docstring for the transmitter, channel, receiver and the
@@ -775,7 +778,8 @@ def simulate_link(design, environment, snr_db, *, frequency_offset_hz=0.0, linew
     estimator : {"lmmse", "linear"}
         Channel estimator, as ``rules.estimator`` in the analytic model.
     frames : int, optional
-        Independent frames (channel realisations), >= 2.
+        Independent frames (channel realisations), >= 2. Default: about
+        ``AUTO_SAMPLES`` received samples in all, between ``AUTO_FRAMES``.
     symbols_per_frame : int, optional
         Measured symbols per frame, rounded up to whole pilot periods ``D_t``;
         the simulator adds the symbols the estimator needs on each side.
@@ -825,7 +829,8 @@ def simulate_link(design, environment, snr_db, *, frequency_offset_hz=0.0, linew
     linewidth_hz = _real("linewidth_hz", linewidth_hz, low=0.0)
     if estimator not in pilots.ESTIMATORS:
         raise InputError("estimator", f"expected one of {', '.join(pilots.ESTIMATORS)}, got {estimator!r}")
-    frames = _count("frames", frames, 2)
+    if frames is not None:
+        frames = _count("frames", frames, 2)
     if symbols_per_frame is not None:
         symbols_per_frame = _count("symbols_per_frame", symbols_per_frame, 1)
     if qam_order not in QAM_ORDERS:
@@ -836,6 +841,8 @@ def simulate_link(design, environment, snr_db, *, frequency_offset_hz=0.0, linew
 
     plan, pilot_snr = _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estimator,
                             symbols_per_frame, qam_order)
+    if frames is None:
+        frames = int(np.clip(round(AUTO_SAMPLES / (plan.symbols * plan.n)), *AUTO_FRAMES))
     seeds = np.random.SeedSequence(seed).spawn(frames)
     parts = []
     for first in range(0, frames, plan.block_frames):

@@ -640,15 +640,13 @@ def _with_notes(batch: EnvironmentBatch, req: Requirements, sites: Sites, fracti
         return batch
     c = req.environment.propagation_speed_mps
     carrier = sites.carrier_hz
-    causes = np.stack([
-        (c < 1e7) & (carrier > 1e7),
-        (c > 1e7) & (carrier < 1e6) & has_speed,
-        np.where(fraction > WIDEBAND_FRACTION, np.round(100 * fraction), -1),  # the note states the percentage
-        kind,
-        _codes(sites.profile),
-        _codes(sites.profile_file),
-    ], axis=1).astype(float)
-    combos, first, inverse = np.unique(causes, axis=0, return_index=True, return_inverse=True)
+    wide = np.where(fraction > WIDEBAND_FRACTION, np.round(100 * fraction), -1)  # the note states the percentage
+    causes = ((c < 1e7) & (carrier > 1e7)).astype(np.int64)
+    for code, size in (((c > 1e7) & (carrier < 1e6) & has_speed, 2), (_codes(wide), n + 1), (kind, 8),
+                       (_codes(sites.profile), n + 1), (_codes(sites.profile_file), n + 1)):
+        _, causes = np.unique(causes * size + code, return_inverse=True)  # renumber: the key stays small
+        causes = np.ravel(causes)
+    _, first, inverse = np.unique(causes, return_index=True, return_inverse=True)
     inverse = np.ravel(inverse)
     masks: dict = {}
     for j, site in enumerate(first):
@@ -658,8 +656,12 @@ def _with_notes(batch: EnvironmentBatch, req: Requirements, sites: Sites, fracti
 
 
 def _codes(values):
-    _, codes = np.unique(values.astype(str), return_inverse=True)
-    return np.ravel(codes)
+    """Small integer codes of the distinct values of an array (few distinct values)."""
+    values = np.asarray(values)
+    if values.dtype != object:
+        return np.ravel(np.unique(values, return_inverse=True)[1])
+    index = {value: i for i, value in enumerate(set(values.tolist()))}
+    return np.array([index[value] for value in values.tolist()], dtype=np.int64)
 
 
 # --- the sweep -------------------------------------------------------------------

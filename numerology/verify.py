@@ -53,16 +53,13 @@ from .environment import derive_environment
 from .errors import InputError
 from .simulate import SimulationResult, simulate_link
 
-__all__ = ["TermCheck", "Verification", "verify", "TOLERANCE_DB", "DEFAULT_FRAMES"]
+__all__ = ["TermCheck", "Verification", "verify", "TOLERANCE_DB"]
 
 #: Agreement tolerance per figure, dB (see the module docstring for the reasons).
 TOLERANCE_DB = {"interference": 0.5, "estimation": 1.0, "sinr_eff": 1.0}
 
 #: A measured power ratio below this counts as zero (numerical round-off of the simulator).
 ZERO_FLOOR = 1e-12
-
-#: Frames simulated when ``frames`` is not given.
-DEFAULT_FRAMES = 256
 
 #: Above this Doppler ICI the total-versus-useful normalisation differs by more than 0.04 dB.
 _ICI_NOTE_LEVEL = 0.01
@@ -230,7 +227,8 @@ def verify(req, design: Design, *, seed=0, frames=None, progress=None) -> Verifi
     seed : int, optional
         Seed of the simulation.
     frames : int, optional
-        Frames to simulate (default :data:`DEFAULT_FRAMES`).
+        Frames to simulate (default: chosen by :func:`~numerology.simulate.simulate_link`
+        from the frame size, 48 to 256).
     progress : callable, optional
         ``progress(done, total)`` after each block of frames.
 
@@ -265,7 +263,7 @@ def verify(req, design: Design, *, seed=0, frames=None, progress=None) -> Verifi
                      "differs slightly from the model's")
     simulation = simulate_link(design, environment, radio.snr_db, frequency_offset_hz=radio.frequency_error_hz or 0.0,
                                linewidth_hz=linewidth_hz, estimator=req.rules.estimator,
-                               frames=DEFAULT_FRAMES if frames is None else frames, seed=seed, progress=progress)
+                               frames=frames, seed=seed, progress=progress)
     checks = (
         TermCheck("interference", simulation.interference, simulation.interference_ci,
                   terms["echo"] + terms["doppler"], TOLERANCE_DB["interference"]),

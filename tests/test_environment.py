@@ -177,9 +177,6 @@ def test_a_catalogue_profile_is_stretched_to_a_given_rms():
     assert_allclose(e.max_excess_delay_s, 2.51 * us / (356.65 * ns) * us, rtol=1e-4)  # scaled with it
 
 
-@pytest.mark.xfail(strict=True, raises=ValueError, reason=(
-    "bug in environment._taps: a single-tap profile_file with rms_delay_spread reaches "
-    "Profile.scaled, whose ValueError ('no delay spread to scale') escapes instead of an InputError"))
 def test_a_single_tap_profile_file_cannot_be_scaled(tmp_path):
     (tmp_path / "one.csv").write_text("delay [ns],power [dB]\n0,0\n")
     data = {"environment": {"carrier": "2 GHz", "max_speed": "3 km/h", "profile_file": "one.csv",
