@@ -19,7 +19,8 @@ Transmitter
     point on DC carries no pilot), with known random QPSK values of unit
     power; every other used resource element carries random unit-power
     square QAM. Each symbol is the N-point IFFT of its subcarriers at the
-    design's sample rate ``f_s = N df``, sent with its cyclic prefix.
+    design's sample rate ``f_s = N df``, preceded by its cyclic prefix (the
+    waveform is cyclically extended over ``N_cp`` samples).
 
 Channel
     ``r(t) = sum_m h_m(t) x(t - tau_m)`` with the environment's taps. Each
@@ -35,7 +36,12 @@ Channel
     truncated windowed-sinc filter on the sample stream would add filter
     transients (inter-symbol interference of its own) that the model does
     not contain. Only the receiver's FFT windows are synthesised: the cyclic
-    prefix samples are discarded by the receiver and never needed.
+    prefix samples are discarded by the receiver and never needed. For the
+    taps inside the guard, the part of the response that is constant over a
+    window (order 0 below) passes the IFFT and the receiver's FFT unchanged
+    (they are inverse to round-off), so it is applied on the subcarriers;
+    the within-window variation, late paths and the oscillator go through
+    the time domain and the receiver's FFT.
 
 Fading
     Every tap follows the environment's Doppler spectrum (the separable
@@ -368,7 +374,13 @@ def fading_gains(times_s, max_doppler_hz, spectrum="classical", k_factor=0.0, *,
     n = _count("realisations", realisations, 1)
     m = _count("sinusoids", sinusoids, 1)
     freqs, amps, phases = _sos_draw(np.random.default_rng(seed), n, f_d, spectrum, k, m)
-    return np.einsum("rc,rct->rt", amps, np.exp(1j * (2.0 * np.pi * freqs[:, :, None] * t + phases[:, :, None])))
+    out = np.empty((n, t.size), dtype=complex)
+    chunk = max(1, 2**21 // max(1, (m + 1) * t.size))  # bound the (realisations, sinusoids, times) temporary
+    for first in range(0, n, chunk):
+        rows = slice(first, first + chunk)
+        phase = 2.0 * np.pi * freqs[rows, :, None] * t + phases[rows, :, None]
+        out[rows] = np.einsum("rc,rct->rt", amps[rows], np.exp(1j * phase))  # sum of sinusoids
+    return out
 
 
 def _legendre_order(max_abs_freq_hz: float, useful_symbol_s: float) -> int:
@@ -821,7 +833,8 @@ def simulate_link(design, environment, snr_db, *, frequency_offset_hz=0.0, linew
     if not isinstance(design, Design):
         raise InputError("design", f"expected a numerology.design.Design, got {type(design).__name__}")
     if not isinstance(environment, Environment):
-        raise InputError("environment", f"expected a numerology.environment.Environment, got {type(environment).__name__}")
+        raise InputError("environment",
+                         f"expected a numerology.environment.Environment, got {type(environment).__name__}")
     snr_db = _real("snr_db", snr_db, allow_inf=True)
     if snr_db == -math.inf:
         raise InputError("snr_db", "expected a finite SNR in dB or inf")
