@@ -22,6 +22,10 @@ file's consistency rules hold per site: a profile fixes the max excess delay
 spread is at most half the max excess delay, a normalised profile needs an
 rms spread.
 
+A frequency error given relative to the carrier ("0.1 ppm") was converted to
+Hz with the requirement's carrier when the file was read; a site with another
+carrier keeps that value in Hz, and :attr:`Sites.notes` says so.
+
 A malformed row is reported with its line (:attr:`Sites.problems`) and the
 other rows are still evaluated; a malformed header or an unreadable file is
 an :class:`~numerology.errors.InputError`.
@@ -40,6 +44,7 @@ import io
 import math
 import re
 from dataclasses import dataclass, field
+from functools import lru_cache
 from pathlib import Path
 
 import numpy as np
@@ -170,7 +175,7 @@ def load_sites(path, req: Requirements) -> Sites:
     cells = list(zip(*rows))
     given = {}
     for j, (name, unit, factor) in enumerate(columns):
-        given[name] = _read_column(name, unit, factor, cells[j], lines, problems, bad, req)
+        given[name] = _read_column(name, unit, factor, cells[j], lines, problems, bad)
     return _resolve(req, given, lines, bad, problems, where)
 
 
@@ -286,7 +291,7 @@ def _problem(problems, bad, lines, index, message, index_in_message=False):
     bad[index] = True
 
 
-def _read_column(name, unit, factor, cells, lines, problems, bad, req):
+def _read_column(name, unit, factor, cells, lines, problems, bad):
     """Convert one column of text cells: SI floats (nan where empty), names, or profile names."""
     if name == "site":
         return np.array([cell.strip() for cell in cells], dtype=object)
@@ -357,7 +362,7 @@ def _resolve(req: Requirements, given: dict, lines, bad, problems: list, where: 
     def column(name, default):
         values = given.get(name)
         if values is None:
-            return np.full(n, np.nan), np.zeros(n, dtype=bool)
+            return np.full(n, np.nan if default is None else default, dtype=float), np.zeros(n, dtype=bool)
         has = ~np.isnan(values)
         return np.where(has, values, np.nan if default is None else default), has
 
@@ -451,13 +456,16 @@ def _given_as_ratio(req: Requirements, dotted: str) -> bool:
 # --- the environments of the sites ---------------------------------------------
 
 
-def site_environments(req: Requirements, sites: Sites) -> EnvironmentBatch:
+def site_environments(req: Requirements, sites: Sites, notes: bool = True) -> EnvironmentBatch:
     """The environment of every site, as ``derive_environment`` gives it for the edited requirement set.
 
     Parameters
     ----------
     req : Requirements
     sites : Sites
+    notes : bool
+        Attach ``derive_environment``'s notes (worked out once per distinct
+        combination of their causes); maps of many small grids leave them out.
 
     Returns
     -------
@@ -507,7 +515,7 @@ def site_environments(req: Requirements, sites: Sites) -> EnvironmentBatch:
         mean_excess_delay_s=_array(delay.mean_excess_delay_s(delays, powers), n),
         rms_delay_spread_s=_array(delay.rms_delay_spread_s(delays, powers), n),
         max_excess_delay_s=np.asarray(max_excess, float), coherence_bandwidth_hz=coherence_bw, notes=())
-    return _with_notes(batch, req, sites, fraction, has_speed, kind)
+    return _with_notes(batch, req, sites, fraction, has_speed, kind) if notes else batch
 
 
 def _array(x, n):
@@ -540,17 +548,14 @@ def _site_taps(req: Requirements, sites: Sites):
                        np.full(idx.size, np.inf)))
     if np.any(kind == _EXPONENTIAL):
         idx = np.flatnonzero(kind == _EXPONENTIAL)
-        d1, p1 = delay.exponential_profile(1.0, floor_db=rules.delay_threshold_db)  # delays scale with the rms
-        p1 = p1 / np.sum(p1)
-        bc1 = float(delay.coherence_bandwidth_hz(d1, p1, rho))
+        d1, p1, bc1 = _unit_profile("exponential", rules.delay_threshold_db, rho)  # delays scale with the rms
         sigma = rms[idx, None]
         pieces.append((idx, d1 * sigma, np.broadcast_to(p1, (idx.size, p1.size)), "exponential",
                        "assumed from rms_delay_spread", bc1 / sigma[:, 0]))
     if np.any(kind == _TWO_RAY):
         idx = np.flatnonzero(kind == _TWO_RAY)
-        d1, p1 = delay.two_ray_profile(1.0, None)
+        d1, p1, bc1 = _unit_profile("two rays", 0.0, rho)
         tau = span[idx, None]
-        bc1 = float(delay.coherence_bandwidth_hz(d1, p1, rho))
         pieces.append((idx, d1 * tau, np.broadcast_to(p1, (idx.size, 2)), "two equal rays",
                        "assumed from max_excess_delay", bc1 / tau[:, 0]))
     if np.any(both):
@@ -562,17 +567,14 @@ def _site_taps(req: Requirements, sites: Sites):
     for label in sorted(set(zip(sites.profile[has_profile].tolist(), sites.profile_file[has_profile].tolist()))):
         name, path = label
         idx = np.flatnonzero(has_profile & (sites.profile == name) & (sites.profile_file == path))
-        profile = profiles.get_profile(name) if name else profiles.load_profile_csv(path)
-        d0 = np.asarray(profile.delays_s, dtype=float)
-        p0 = np.asarray(profile.powers, dtype=float)
-        p0 = p0 / np.sum(p0)
+        stamp = Path(path).stat().st_mtime_ns if path else 0
+        profile, d0, p0, bc0 = _template(name, path, stamp, rho)
         sigma = rms[idx]
         scaled = ~np.isnan(sigma)
         if profile.normalised:
             factor = np.where(scaled, sigma, 1.0)  # 3GPP TR 38.901 sect. 7.7.3: delays in units of the rms spread
         else:
             factor = np.where(scaled, sigma / profile.rms_delay_spread_s, 1.0)  # as Profile.scaled
-        bc0 = float(delay.coherence_bandwidth_hz(d0, p0, rho))
         pieces.append((idx, d0[None, :] * factor[:, None], np.broadcast_to(p0, (idx.size, p0.size)), profile.name,
                        profile.source, bc0 / factor))
 
@@ -589,6 +591,27 @@ def _site_taps(req: Requirements, sites: Sites):
         sources[idx] = source
         coherence_bw[idx] = bc
     return delays, powers, names, sources, coherence_bw, kind
+
+
+@lru_cache(maxsize=64)
+def _unit_profile(shape: str, floor_db: float, rho: float):
+    """An assumed profile of unit scale (rms 1 s, or span 1 s for two rays) and its coherence bandwidth."""
+    if shape == "exponential":
+        d1, p1 = delay.exponential_profile(1.0, floor_db=floor_db)
+    else:
+        d1, p1 = delay.two_ray_profile(1.0, None)
+    p1 = p1 / np.sum(p1)
+    return d1, p1, float(delay.coherence_bandwidth_hz(d1, p1, rho))
+
+
+@lru_cache(maxsize=64)
+def _template(name: str, path: str, stamp: int, rho: float):
+    """A profile's taps (powers summing to 1) and coherence bandwidth, once per profile (and file version)."""
+    profile = profiles.get_profile(name) if name else profiles.load_profile_csv(path)
+    d0 = np.asarray(profile.delays_s, dtype=float)
+    p0 = np.asarray(profile.powers, dtype=float)
+    p0 = p0 / np.sum(p0)
+    return profile, d0, p0, float(delay.coherence_bandwidth_hz(d0, p0, rho))
 
 
 def _bounded_profiles(span_s, rms_s, rho):
@@ -649,10 +672,15 @@ def _with_notes(batch: EnvironmentBatch, req: Requirements, sites: Sites, fracti
     _, first, inverse = np.unique(causes, return_index=True, return_inverse=True)
     inverse = np.ravel(inverse)
     masks: dict = {}
+    order: list = []  # one order of all texts that keeps each site's notes in derive_environment's order
     for j, site in enumerate(first):
+        previous = None
         for text in derive_environment(sites.requirements_for(req, int(site))).notes:
             masks[text] = masks.get(text, np.zeros(n, dtype=bool)) | (inverse == j)
-    return dataclasses.replace(batch, notes=tuple(masks.items()))
+            if text not in order:
+                order.insert(0 if previous is None else order.index(previous) + 1, text)
+            previous = text
+    return dataclasses.replace(batch, notes=tuple((text, masks[text]) for text in order))
 
 
 def _codes(values):
@@ -681,6 +709,10 @@ class SweepSummary:
     problems: int
 
     @property
+    def failed(self) -> int:
+        return self.sites - self.passed
+
+    @property
     def most_failing_rule(self) -> str | None:
         return next(iter(self.failures), None)
 
@@ -695,7 +727,7 @@ class SweepSummary:
         return text
 
     def to_json(self) -> dict:
-        return {"sites": self.sites, "passed": self.passed, "failed": self.sites - self.passed,
+        return {"sites": self.sites, "passed": self.passed, "failed": self.failed,
                 "failures": dict(self.failures), "most_failing_rule": self.most_failing_rule,
                 "worst_site": self.worst_site, "worst_line": self.worst_line, "worst_rule": self.worst_rule,
                 "worst_normalised_margin": _finite(self.worst_normalised), "problems": self.problems}
