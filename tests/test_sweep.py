@@ -233,9 +233,11 @@ def test_sweep_of_many_is_each_swept_alone(values):
     for i in range(speed.size):
         alone = sweep(req, SMALL_DESIGN, sites_from_values(req, max_speed_mps=speed[i:i + 1],
                                                            rms_delay_spread_s=rms[i:i + 1], snr_db=snr[i:i + 1]))
+        # 1e-10: the cell-averaged estimation error sums over a cell width padded to the largest cell of the
+        # batch, so the summation order (and the last bits) depend on what else is in the batch.
         for name in together.margin:
-            assert_allclose(together.margin[name][i], alone.margin[name][0], rtol=1e-12, atol=1e-14)
-        assert_allclose(together.net_throughput_bps[i], alone.net_throughput_bps[0], rtol=1e-12)
+            assert_allclose(together.margin[name][i], alone.margin[name][0], rtol=1e-10, atol=1e-14)
+        assert_allclose(together.net_throughput_bps[i], alone.net_throughput_bps[0], rtol=1e-10)
 
 
 BAD_ROWS = """\
