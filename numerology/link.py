@@ -56,6 +56,7 @@ class Evaluation:
     demand: dict = field(repr=False, default_factory=dict)
     margin: dict = field(default_factory=dict)  # rule name -> margin array (rule's convention)
     normalised: dict = field(repr=False, default_factory=dict)  # rule name -> capacity/demand - 1
+    slot_s: np.ndarray = field(repr=False, default=None)  # mean slot duration
 
     @property
     def sinr_eff_db(self):
@@ -285,7 +286,8 @@ def namespace(designs: DesignArrays, environment: Environment, req: Requirements
     }
 
 
-def evaluate(designs: DesignArrays, environment: Environment, req: Requirements) -> Evaluation:
+def evaluate(designs: DesignArrays, environment: Environment, req: Requirements, *, estimation: bool = True,
+             overrides: dict | None = None) -> Evaluation:
     """Evaluate designs against an environment and a requirement set.
 
     Parameters
@@ -298,12 +300,27 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements)
     req : Requirements
         ``req.radio.snr_db`` may be an array broadcasting with the batch (a
         per-site SNR, as ``numerology.sweep`` passes it).
+    estimation : bool
+        False leaves the channel-estimation error out (set to 0): every
+        SINR-dependent margin is then an upper bound (the solver's screening).
+    overrides : dict, optional
+        Symbols of the rule language replaced by given values (best cases
+        while a design is incomplete; see ``numerology.solver``).
 
     Returns
     -------
     Evaluation
+
+    Notes
+    -----
+    The interference terms of the SINR are relative to the *useful* signal
+    power: an inter-carrier interference I (a fraction of the received
+    power, as the rules state it) leaves 1 - I useful, so its term is
+    I / (1 - I), like the echo term's interference over useful part.
     """
     ns = namespace(designs, environment, req)
+    if overrides:
+        ns.update(overrides)
     ns = evaluate_derived({**ns, "sinr_eff": np.nan})  # time and overhead quantities first
     delays, powers = environment.taps
     useful, interference = delay.echo_interference(delays, powers, ns["T_cp"], ns["T_u"])
@@ -312,15 +329,19 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements)
     # An environment batch and a per-site SNR (arrays) broadcast against the designs.
     shape = np.broadcast_shapes(np.shape(ns["df"]), np.shape(ns["N_cp"]), np.shape(ns["D_f"]),
                                 np.shape(environment.max_doppler_hz), np.shape(req.radio.snr_db))
+    doppler_ici = ns["doppler_ici"](environment.max_doppler_hz * ns["T_u"])
     terms = {
         "noise": np.full(shape, 10 ** (-req.radio.snr_db / 10)),
         "echo": np.broadcast_to(interference / useful, shape),
-        "doppler": np.broadcast_to(ns["doppler_ici"](environment.max_doppler_hz * ns["T_u"]), shape),
-        "phase_noise": np.broadcast_to(pn, shape),
-        "frequency_offset": np.broadcast_to(cfo, shape),
+        "doppler": np.broadcast_to(_over_useful(doppler_ici), shape),
+        "phase_noise": np.broadcast_to(_over_useful(pn), shape),
+        "frequency_offset": np.broadcast_to(_over_useful(cfo), shape),
     }
-    pilot_sinr = 1.0 / sum(terms.values())  # pilots see the same noise and interference as data
-    terms["estimation"] = np.broadcast_to(estimation_error(designs, environment, req, pilot_sinr), shape)
+    if estimation:
+        pilot_sinr = 1.0 / sum(terms.values())  # pilots see the same noise and interference as data
+        terms["estimation"] = np.broadcast_to(estimation_error(designs, environment, req, pilot_sinr), shape)
+    else:
+        terms["estimation"] = np.zeros(shape)
     sinr_eff = 1.0 / sum(terms.values())
     ns["sinr_eff"] = sinr_eff
     ns = evaluate_derived(ns)  # now the rate, which needs the SINR
@@ -335,4 +356,12 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements)
     efficiency = ns["efficiency"](sinr_eff)
     return Evaluation(terms=terms, sinr_eff=sinr_eff, efficiency=np.asarray(efficiency, float),
                       rate_bps=np.broadcast_to(ns["rate"], shape), overhead=np.broadcast_to(ns["overhead"], shape),
-                      rules=applicable, capacity=capacity, demand=demand, margin=margin, normalised=normalised)
+                      rules=applicable, capacity=capacity, demand=demand, margin=margin, normalised=normalised,
+                      slot_s=np.broadcast_to(ns["T_slot"], shape))
+
+
+def _over_useful(ici):
+    """An inter-carrier interference (fraction of the received power) relative to the useful power."""
+    ici = np.asarray(ici, dtype=float)
+    with np.errstate(divide="ignore"):
+        return np.where(ici < 1.0, ici / (1.0 - ici), np.inf)

@@ -24,7 +24,6 @@ from . import link
 from .design import DesignArrays
 from .environment import Environment, derive_environment
 from .requirements import Requirements
-from .rules import evaluate as evaluate_rule, evaluate_derived
 
 OBJECTIVES = ("throughput", "robustness", "overhead", "latency")
 #: Rules a faster channel stresses, and rules a longer echo stresses (for the Pareto axes).
@@ -105,43 +104,31 @@ def _relaxed_pilots(req: Requirements) -> dict:
     }
 
 
-def _cheap_stage(grid: cand.Grid, environment: Environment, req: Requirements, ignore, overrides=None,
-                 keep_pilots=False):
+def _cheap_stage(grid: cand.Grid, environment: Environment, req: Requirements, ignore, overrides=None):
     """Every rule with the estimation error left out: exact for most rules, an upper bound for the SINR rules.
 
     ``overrides`` replaces symbols by best-case values (used to screen numerologies before pilots,
     and lattices before slot lengths); the yes/no rule pilots_in_slot waits for the slot length.
+    Returns (passes, objective bounds, rejections per rule).
     """
-    designs = grid.designs()
-    ns = link.namespace(designs, environment, req)
     if overrides:
-        ns.update(overrides)
         ignore = tuple(ignore) + ("pilots_in_slot",)
-    del keep_pilots  # the pilot symbols stay those of the grid unless overridden
-    ns = evaluate_derived({**ns, "sinr_eff": np.nan})
-    delays, powers = environment.taps
-    useful, interference = link.delay.echo_interference(delays, powers, ns["T_cp"], ns["T_u"])
-    pn, cfo = link.oscillator_terms(req, ns["T_u"], ns["df"])
-    noise = 10 ** (-req.radio.snr_db / 10)
-    ns["sinr_eff"] = 1.0 / (noise + interference / useful + ns["doppler_ici"](environment.max_doppler_hz * ns["T_u"])
-                            + pn + cfo)
-    ns = evaluate_derived(ns)
+    evaluation = link.evaluate(grid.designs(), environment, req, estimation=False, overrides=overrides)
     ok = np.ones(grid.size, dtype=bool)
     rejected = {}
     normalised = []
-    for rule in link.applicable_rules(req):
+    for rule in evaluation.rules:
         if rule.name in ignore:
             continue
-        cap, dem, margin = evaluate_rule(rule, ns)
-        fail = np.broadcast_to(margin, ok.shape) < 0
+        fail = evaluation.margin[rule.name] < 0
         rejected[rule.name] = int(np.count_nonzero(fail & ok))
         ok &= ~fail
-        normalised.append(np.broadcast_to(link.normalised_margin(rule, cap, dem), ok.shape))
+        normalised.append(evaluation.normalised[rule.name])
     bound = {
-        "throughput": np.broadcast_to(ns["rate"], ok.shape),
+        "throughput": evaluation.rate_bps,
         "robustness": np.min(np.stack(normalised), axis=0) if normalised else np.zeros(ok.shape),
-        "overhead": -np.broadcast_to(ns["overhead"], ok.shape),
-        "latency": -np.broadcast_to(ns["T_slot"], ok.shape),
+        "overhead": -evaluation.overhead,
+        "latency": -evaluation.slot_s,
     }
     return ok, bound, rejected
 
@@ -241,7 +228,7 @@ def _screen(req: Requirements, environment: Environment, spacings_hz, ignore):
         # Lattices first, with the slot left open (pilots_in_slot is checked once slots are crossed in).
         with_pilots = cand.expand(numerologies.take(np.arange(start, min(start + step, numerologies.size))),
                                   (pf, pt, ps), slots[:1])
-        ok, _, _ = _cheap_stage(with_pilots, environment, req, ignore, any_slot, keep_pilots=True)
+        ok, _, _ = _cheap_stage(with_pilots, environment, req, ignore, any_slot)
         survivors = with_pilots.take(np.flatnonzero(ok))
         chunk = cand.expand(survivors, (survivors.pilot_f, survivors.pilot_t, survivors.pilot_s), slots, paired=True)
         ok, bound, counts = _cheap_stage(chunk, environment, req, ignore)

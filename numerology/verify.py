@@ -27,11 +27,10 @@ not reported as a disagreement; a note then says the run is inconclusive).
 A predicted value of exactly 0 (no echo beyond the guard and no Doppler)
 agrees when the measurement is below :data:`ZERO_FLOOR`.
 
-Known differences are reported in ``notes`` rather than hidden: the
-Doppler term of the model is ICI over the *total* received power while the
-measurement (like the model's echo term) is over the *useful* power, which
-differs by ``1/(1 - ICI)``; phase-noise masks are not simulated; the extra
-cyclic prefix of some symbols is not simulated.
+Known differences are reported in ``notes`` rather than hidden: phase-noise
+masks are not simulated; the extra cyclic prefix of some symbols is not
+simulated. (The model's interference terms, like the measurement, are
+relative to the useful power.)
 
 References
 ----------
@@ -60,10 +59,6 @@ TOLERANCE_DB = {"interference": 0.5, "estimation": 1.0, "sinr_eff": 1.0}
 
 #: A measured power ratio below this counts as zero (numerical round-off of the simulator).
 ZERO_FLOOR = 1e-12
-
-#: Above this Doppler ICI the total-versus-useful normalisation differs by more than 0.04 dB.
-_ICI_NOTE_LEVEL = 0.01
-
 
 def _db(x: float):
     """dB of a power ratio; None for 0 (JSON has no -inf) and for inf."""
@@ -272,10 +267,6 @@ def verify(req, design: Design, *, seed=0, frames=None, progress=None) -> Verifi
         TermCheck("sinr_eff", simulation.sinr_eff, simulation.sinr_eff_ci, 1.0 / sum(counted.values()),
                   TOLERANCE_DB["sinr_eff"]),
     )
-    if terms["doppler"] > _ICI_NOTE_LEVEL:
-        offset = -10.0 * math.log10(1.0 - terms["doppler"])
-        notes.append(f"the model's Doppler term is ICI over the total received power, the measurement ICI over "
-                     f"the useful power: the measurement is expected {offset:.2f} dB above the model from this alone")
     if design.cp_extra_samples and design.cp_extra_period_s:
         notes.append(f"the extra cyclic prefix ({design.cp_extra_samples} samples once per "
                      f"{design.cp_extra_period_s * 1e3:g} ms) is not simulated: every symbol has the ordinary prefix, "

@@ -44,16 +44,18 @@ LTE = get_preset("lte-20-normal").design
 
 
 def test_doppler_term_is_the_exact_integral():
-    """The Doppler term is doppler_ici at f_D T_u (Russell & Stueber, IEEE VTC 1995), not its small-argument form."""
+    """The Doppler rule uses doppler_ici at f_D T_u (Russell & Stueber, IEEE VTC 1995), not its small-argument
+    form; the SINR term is the same ICI relative to the useful power, I / (1 - I)."""
     req = _req()
     ev, env = _eval(req, LTE)
     x = env.max_doppler_hz * LTE.useful_symbol_s
-    assert_allclose(ev.terms["doppler"][0], doppler.doppler_ici(env.max_doppler_hz, LTE.useful_symbol_s),
-                    rtol=1e-12)
+    ici = doppler.doppler_ici(env.max_doppler_hz, LTE.useful_symbol_s)
+    assert_allclose(ev.demand["doppler_ici"][0], ici, rtol=1e-12)
+    assert_allclose(ev.terms["doppler"][0], ici / (1 - ici), rtol=1e-12)
     # small-argument check (2 pi x)^2/24 within 1 % at x = 0.015 (PHYSICS.md sect. 5)
-    assert_allclose(ev.terms["doppler"][0], (2 * math.pi * x) ** 2 / 24, rtol=1e-2)
+    assert_allclose(ici, (2 * math.pi * x) ** 2 / 24, rtol=1e-2)
     # never above the Li & Cimini bound (2 pi x)^2 / 12 (IEEE Trans. Commun. 49(3), 2001; from memory)
-    assert ev.terms["doppler"][0] <= (2 * math.pi * x) ** 2 / 12
+    assert ici <= (2 * math.pi * x) ** 2 / 12
 
 
 def test_oscillator_terms_match_small_offset_formulas():
@@ -61,8 +63,9 @@ def test_oscillator_terms_match_small_offset_formulas():
     req = _req()
     ev, _ = _eval(req, LTE)
     e = 50.0 / LTE.subcarrier_spacing_hz
-    assert_allclose(ev.terms["frequency_offset"][0], (math.pi * e) ** 2 / 3, rtol=1e-3)
-    assert_allclose(ev.terms["phase_noise"][0], math.pi * 20.0 * LTE.useful_symbol_s / 3, rtol=2e-3)
+    cfo, pn = ev.terms["frequency_offset"][0], ev.terms["phase_noise"][0]
+    assert_allclose(cfo / (1 + cfo), (math.pi * e) ** 2 / 3, rtol=1e-3)  # terms are I / (1 - I)
+    assert_allclose(pn / (1 + pn), math.pi * 20.0 * LTE.useful_symbol_s / 3, rtol=2e-3)
 
 
 def test_effective_sinr_adds_terms_as_powers():
