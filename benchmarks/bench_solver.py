@@ -31,7 +31,7 @@ LARGE = {  # an invented scenario with a large search space
     "radio": {"bandwidth": "40 MHz", "snr": "20 dB", "frequency_error": "0.1 ppm", "oscillator_linewidth": "20 Hz"},
     "goals": {"throughput": "60 Mbit/s", "max_latency": "1 ms"},
     "search": {"spacing_exponents": [-4, 6], "min_fft_size": 64, "max_fft_size": 65536,
-               "max_pilot_freq_spacing": 48, "max_pilot_time_spacing": 32, "symbols_per_slot": [7, 14, 28]},
+               "max_pilot_freq_spacing": 48, "max_pilot_time_spacing": 32, "symbols_per_slot": [7, 14, 28, 56]},
 }
 
 

@@ -4,9 +4,9 @@ For each stress variable (speed, max excess delay, SNR, oscillator linewidth)
 every rule's margin is evaluated along a grid with the same link model as
 ``check``: speed, delay and SNR grids in one vectorised call over a batch of
 environments (``numerology.sweep``), the linewidth grid by re-evaluating the
-oscillator term. In the first grid interval where a rule goes from pass to
-fail, the crossing is refined with Brent's method to 1e-6 relative; the limit
-is that crossing and the rule that makes it is reported.
+oscillator term. The first grid interval where a rule goes from pass to
+fail is narrowed, many points at a time, to 1e-6 relative; the limit is that
+crossing and the rule that makes it is reported.
 
 With a catalogue or measured profile the delay is stretched by scaling the
 profile (its rms spread and max excess delay scale together).
@@ -18,13 +18,13 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import brentq
-
 from . import link
 from .design import DesignArrays
 from .requirements import Requirements
 
 GRID_POINTS = 25
+#: Points evaluated at once when narrowing the interval that holds the limit.
+REFINE_POINTS = 40
 RTOL = 1e-6
 
 
@@ -41,30 +41,41 @@ class Limit:
         return {"value": None if math.isinf(self.value) else self.value, "rule": self.rule}
 
 
-def _first_crossing(key, grid, margins_on_grid, margin_at, worse_up) -> Limit:
-    """The limit from margins on a grid ordered from benign to harsh, refined by Brent's method."""
-    crossings = {}
-    for name, values in margins_on_grid.items():
-        values = np.asarray(values, dtype=float)
-        if np.all(values == values[0]):
-            continue  # this rule does not depend on the stress variable
-        fails = np.flatnonzero((values[:-1] >= 0) & (values[1:] < 0))
-        if fails.size:
-            crossings[name] = int(fails[0])
-    if not crossings:
+def _first_crossing(key, grid, margins_on_grid, margins_at, worse_up) -> Limit:
+    """The limit from margins on a grid ordered from benign to harsh.
+
+    ``margins_at(values) -> {rule: margins}`` evaluates any points at once. The
+    first grid interval where a rule goes from pass to fail is narrowed by
+    evaluating REFINE_POINTS points inside it, repeatedly, until it is 1e-6
+    (relative) wide; the rule failing at its harsh end is reported. This also
+    finds the edge of a margin that steps (a modulation-and-coding table).
+    """
+    names = [n for n, v in margins_on_grid.items() if not np.all(np.asarray(v) == np.asarray(v)[0])]
+    table = np.array([margins_on_grid[n] for n in names], dtype=float).reshape(len(names), -1)
+    starts_ok = table[:, :-1] >= 0
+    ends_bad = table[:, 1:] < 0
+    crossing = starts_ok & ends_bad
+    if not crossing.any():
         return Limit(key, math.inf if worse_up else -math.inf, None, float(grid[-1]))
-    first = min(crossings.values())
-    best_x, best_rule = None, None
-    for name, i in crossings.items():
-        if i != first:
-            continue  # a later crossing cannot set the limit
-        try:
-            x = brentq(lambda v: margin_at(v, name), grid[i], grid[i + 1], rtol=RTOL, xtol=1e-300)
-        except ValueError:  # a step in the margin (modulation-and-coding table): the grid point is the edge
-            x = grid[i]
-        if best_x is None or (x < best_x if worse_up else x > best_x):
-            best_x, best_rule = x, name
-    return Limit(key, float(best_x), best_rule, float(grid[-1]))
+    i = int(np.min(np.flatnonzero(crossing.any(axis=0))))
+    watched = [n for n, ok in zip(names, table[:, i] >= 0) if ok]  # rules that still pass at the benign end
+    low, high = float(grid[i]), float(grid[i + 1])
+    failing = [n for n in watched if margins_on_grid[n][i + 1] < 0]
+    for _ in range(12):
+        if abs(high - low) <= RTOL * max(abs(high), abs(low), 1e-300):
+            break
+        inside = np.linspace(low, high, REFINE_POINTS + 2)[1:-1]
+        margins = margins_at(inside)
+        bad = np.array([np.asarray(margins[n]) < 0 for n in watched]).any(axis=0)
+        j = int(np.argmax(bad)) if bad.any() else None
+        if j is None:
+            low = float(inside[-1])
+        else:
+            high = float(inside[j])
+            low = float(inside[j - 1]) if j > 0 else low
+            failing = [n for n in watched if margins[n][j] < 0]
+    rule = min(failing, key=lambda n: names.index(n)) if failing else None
+    return Limit(key, low, rule, float(grid[-1]))
 
 
 def _sweep_limit(key, design, req, grid, site_values, worse_up=True) -> Limit:
@@ -74,8 +85,7 @@ def _sweep_limit(key, design, req, grid, site_values, worse_up=True) -> Limit:
     def margins(values):
         return sweep(req, design, sites_from_values(req, **site_values(np.asarray(values, dtype=float)))).margin
 
-    on_grid = margins(grid)
-    return _first_crossing(key, grid, on_grid, lambda v, name: float(margins([v])[name][0]), worse_up)
+    return _first_crossing(key, grid, margins(grid), margins, worse_up)
 
 
 def stretch_limits(designs: DesignArrays, req: Requirements, environment) -> dict[str, Limit]:
@@ -140,6 +150,8 @@ def _linewidth_limit(designs, req, environment) -> Limit:
         evaluation = link.evaluate(designs, environment, r)
         return {rule.name: float(np.ravel(evaluation.margin[rule.name])[0]) for rule in evaluation.rules}
 
-    table = [margins(x) for x in grid]
-    on_grid = {name: [row[name] for row in table] for name in table[0]}
-    return _first_crossing("max_oscillator_linewidth_hz", grid, on_grid, lambda v, name: margins(v)[name], True)
+    def on(values):
+        rows = [margins(x) for x in values]
+        return {name: np.array([row[name] for row in rows]) for name in rows[0]}
+
+    return _first_crossing("max_oscillator_linewidth_hz", grid, on(grid), on, True)
