@@ -221,13 +221,28 @@ def _screen(req: Requirements, environment: Environment, spacings_hz, ignore):
     if numerologies.size:
         ok, _, rejected = _cheap_stage(numerologies, environment, req, ignore, _relaxed_pilots(req))
         numerologies = numerologies.take(np.flatnonzero(ok))
-    step = max(1, CHUNK // max(pf.size, 1))
+    # Lattices sorted by cell size D_f D_t: each numerology takes the slice its density bounds allow.
+    order = np.argsort(pf * pt, kind="stable")
+    pf, pt, ps = pf[order], pt[order], ps[order]
+    cell = pf * pt
+    low, high = _cell_bounds(numerologies, environment, req, ignore)
+    first = np.searchsorted(cell, low, side="left")
+    stop = np.searchsorted(cell, high, side="right")
+    counts = np.maximum(stop - first, 0)
     parts, bounds = [], {k: [] for k in OBJECTIVES}
     any_slot = {"N_slot": float(min(slots))}  # the shortest slot is the best case for latency ...
-    for start in range(0, numerologies.size, step):
+    blocks = np.searchsorted(np.cumsum(counts), np.arange(CHUNK, counts.sum() + CHUNK, CHUNK))
+    edges = np.unique(np.concatenate([[0], np.minimum(blocks + 1, numerologies.size), [numerologies.size]]))
+    for start, end in zip(edges[:-1], edges[1:]):
         # Lattices first, with the slot left open (pilots_in_slot is checked once slots are crossed in).
-        with_pilots = cand.expand(numerologies.take(np.arange(start, min(start + step, numerologies.size))),
-                                  (pf, pt, ps), slots[:1])
+        rows = np.repeat(np.arange(start, end), counts[start:end])
+        if rows.size == 0:
+            continue
+        offsets = np.arange(rows.size) - np.repeat(np.cumsum(counts[start:end]) - counts[start:end], counts[start:end])
+        lattice = first[rows] + offsets
+        base = numerologies.take(rows)
+        with_pilots = cand.Grid(base.spacing_hz, base.fft_size, base.cp_samples, base.used, pf[lattice],
+                                pt[lattice], ps[lattice], np.full(rows.size, slots[0]))
         ok, _, _ = _cheap_stage(with_pilots, environment, req, ignore, any_slot)
         survivors = with_pilots.take(np.flatnonzero(ok))
         chunk = cand.expand(survivors, (survivors.pilot_f, survivors.pilot_t, survivors.pilot_s), slots, paired=True)
@@ -243,6 +258,32 @@ def _screen(req: Requirements, environment: Environment, spacings_hz, ignore):
         return empty, {k: np.zeros(0) for k in OBJECTIVES}, rejected
     grid = cand.Grid(*(np.concatenate([getattr(p, f) for p in parts]) for f in cand.Grid.__dataclass_fields__))
     return grid, {k: np.concatenate(v) for k, v in bounds.items()}, rejected
+
+
+def _cell_bounds(numerologies: cand.Grid, environment: Environment, req: Requirements, ignore):
+    """Necessary bounds on the pilot cell size D_f D_t of each numerology.
+
+    Above: the delay-Doppler support grown by the oversampling must fit in one
+    cell of the reciprocal lattice (translates that do not overlap cannot
+    cover more than the whole plane), so rho^2 tau_max 2 f_D <= 1 / (D_f D_t df T_s)
+    (Hoeher, Kaiser & Robertson 1997; a packing argument). Below: the
+    pilots must leave the overhead goal room after the cyclic prefix.
+    """
+    df = numerologies.spacing_hz
+    t_u = 1.0 / df
+    t_s = t_u + numerologies.cp_samples / (numerologies.fft_size * df)
+    rho = req.rules.pilot_oversampling
+    area = environment.max_excess_delay_s * 2.0 * environment.max_doppler_hz
+    with np.errstate(divide="ignore"):
+        high = np.where(area > 0, 1.0 / (rho**2 * area * df * t_s), np.inf)
+    if "pilot_aliasing" in ignore:
+        high = np.full(df.shape, np.inf)
+    low = np.ones(df.shape)
+    if req.goals.max_overhead < 1 and "overhead" not in ignore:
+        room = 1.0 - (1.0 - req.goals.max_overhead) * t_s / t_u  # pilot fraction the goal leaves (no extra CP)
+        with np.errstate(divide="ignore"):
+            low = np.where(room > 0, 1.0 / room, np.inf)
+    return np.ceil(low * (1 - 1e-12)), np.floor(np.minimum(high, 2**40) * (1 + 1e-12))
 
 
 def _passed(evaluation: link.Evaluation, ignore) -> np.ndarray:
