@@ -102,8 +102,9 @@ def stretch_limits(designs: DesignArrays, req: Requirements, environment) -> dic
     Returns
     -------
     dict
-        ``max_speed_mps``, ``max_excess_delay_s``, ``min_snr_db`` and
-        ``max_oscillator_linewidth_hz`` (absent when a phase-noise mask is given).
+        ``max_speed_mps``, ``max_excess_delay_s`` (with a profile also
+        ``max_rms_delay_spread_s``: the profile stretched as a whole), ``min_snr_db``
+        and ``max_oscillator_linewidth_hz`` (absent when a phase-noise mask is given).
     """
     design = designs.design(0)
     limits = {}
@@ -117,9 +118,11 @@ def stretch_limits(designs: DesignArrays, req: Requirements, environment) -> dic
     speed = {"max_speed_mps": environment.speed_mps}
     if req.environment.profile is not None or req.environment.profile_file is not None:
         if base_delay > 0 and base_rms > 0:  # stretch the profile: rms and span scale together
-            limits["max_excess_delay_s"] = _sweep_limit(
+            span = limits["max_excess_delay_s"] = _sweep_limit(
                 "max_excess_delay_s", design, req, delays,
                 lambda t: {**speed, "rms_delay_spread_s": base_rms * t / base_delay})
+            limits["max_rms_delay_spread_s"] = Limit("max_rms_delay_spread_s", span.value * base_rms / base_delay,
+                                                     span.rule, span.searched_to * base_rms / base_delay)
     elif req.environment.rms_delay_spread_s is None or req.environment.max_excess_delay_s is None:
         if req.environment.max_excess_delay_s is not None:
             limits["max_excess_delay_s"] = _sweep_limit(
@@ -145,13 +148,9 @@ def stretch_limits(designs: DesignArrays, req: Requirements, environment) -> dic
 def _linewidth_limit(designs, req, environment) -> Limit:
     grid = np.concatenate([[0.0], np.geomspace(1e-3, 1e8, GRID_POINTS - 1)])
 
-    def margins(linewidth):
-        r = req.replace("radio.oscillator_linewidth", float(linewidth))
-        evaluation = link.evaluate(designs, environment, r)
-        return {rule.name: float(np.ravel(evaluation.margin[rule.name])[0]) for rule in evaluation.rules}
-
     def on(values):
-        rows = [margins(x) for x in values]
-        return {name: np.array([row[name] for row in rows]) for name in rows[0]}
+        r = req.replace("radio.oscillator_linewidth", np.asarray(values, dtype=float))
+        evaluation = link.evaluate(designs, environment, r)  # one call: the linewidth broadcasts
+        return {rule.name: np.ravel(evaluation.margin[rule.name]) for rule in evaluation.rules}
 
     return _first_crossing("max_oscillator_linewidth_hz", grid, on(grid), on, True)

@@ -112,6 +112,7 @@ TERM_LABELS = {
 LIMIT_LABELS = {
     "max_speed_mps": ("highest speed", "m/s"),
     "max_excess_delay_s": ("longest max excess delay", "s"),
+    "max_rms_delay_spread_s": ("largest rms delay spread (profile stretched)", "s"),
     "min_snr_db": ("lowest SNR", "dB"),
     "max_oscillator_linewidth_hz": ("widest oscillator linewidth", "Hz"),
 }

@@ -209,3 +209,20 @@ def test_design_with_pilots_everywhere_is_rejected():
 def test_wiener_small_linewidth_against_pollet():
     """Pollet et al. 1995 (from memory): D = 11/(6 ln 10) * 4 pi beta T_u * Es/N0 dB; beta T_u = 1e-3 at 20 dB -> 1.0005 dB."""
     assert_allclose(oscillator.wiener_degradation_db(1e-3 / 66.7e-6, 66.7e-6, 20.0), 1.0005, atol=1e-3)
+
+
+def test_every_preset_checks_against_every_shipped_example():
+    """`check` answers every shipped example with every preset (issue: done when)."""
+    from pathlib import Path
+
+    from numerology.presets import PRESETS
+    from numerology.requirements import load_requirements
+
+    examples = sorted((Path(__file__).resolve().parent.parent / "requirements_examples").glob("*.toml"))
+    for path in examples:
+        req = load_requirements(path)
+        env = derive_environment(req)
+        designs = DesignArrays.from_designs([p.design for p in PRESETS.values()])
+        evaluation = link.evaluate(designs, env, req)
+        assert evaluation.sinr_eff.shape == (len(PRESETS),)
+        assert np.all(np.isfinite(evaluation.rate_bps))
