@@ -25,7 +25,6 @@ from . import link
 from .design import DesignArrays
 from .environment import Environment
 from .requirements import Requirements
-from .rules import RULES, evaluate as evaluate_rule, evaluate_derived
 
 #: Cyclic prefixes tried, as multiples of the shortest that covers the delay.
 CP_FACTORS = (1.0, 1.25, 1.5, 2.0, 3.0, 4.0)
@@ -104,12 +103,11 @@ def pilot_lattices(req: Requirements) -> tuple[np.ndarray, np.ndarray, np.ndarra
 # --- relaxed designs and the window -----------------------------------------
 
 
-def _relaxed_namespace(spacing_hz, environment: Environment, req: Requirements) -> dict:
-    """Symbols for a relaxed design at each spacing (see module docstring)."""
+def _relaxed_overrides(spacing_hz, environment: Environment, req: Requirements) -> dict:
+    """Best-case symbols of a relaxed design at each spacing (see module docstring)."""
     df = np.asarray(spacing_hz, dtype=float)
-    ns = link.namespace(_placeholder(df), environment, req)
     guard_s = environment.max_excess_delay_s + link.cp_allowance_s(req)
-    ns.update({
+    return {
         # continuous CP just covering the delay (the factor keeps rounding from failing cp_covers_delay)
         "N": np.ones_like(df), "N_cp": guard_s * df * (1 + 1e-12),
         "N_u": np.floor(req.radio.occupancy * req.radio.bandwidth_hz / df + 1e-9),
@@ -117,17 +115,15 @@ def _relaxed_namespace(spacing_hz, environment: Environment, req: Requirements) 
         "N_slot": np.full_like(df, float(min(req.search.symbols_per_slot))),
         "R_res": np.zeros_like(df), "N_x": np.zeros_like(df), "P_x": np.full_like(df, np.inf),
         "clock_mismatch": lambda rate: np.zeros(np.shape(rate)),  # the clock is matched by the FFT size
-    })
-    ns = evaluate_derived({**ns, "sinr_eff": np.nan})
-    pn, cfo = link.oscillator_terms(req, ns["T_u"], df)
-    ns["oscillator_ici"] = lambda _df: pn + cfo  # the same spacings: computed once
-    ns["sinr_eff"] = 1.0 / (10 ** (-req.radio.snr_db / 10) + ns["doppler_ici"](environment.max_doppler_hz * ns["T_u"])
-                            + pn + cfo)
-    ns = evaluate_derived(ns)
-    # Densest pilots are the best case for aliasing: bind them for that rule only.
-    ns["alias_scale"] = lambda d_f, d_t, s, df_, ts, tau, fd: link.pilots.aliasing_scale(
-        1, 1, 0, df_, ts, tau, fd)
-    return ns
+        # Densest pilots are the best case for aliasing (no pilot overhead is the best case for the rest).
+        "alias_scale": densest_pilots_alias_scale,
+    }
+
+
+def densest_pilots_alias_scale(d_f, d_t, s, df, ts, tau, fd):
+    """The aliasing rule's best case before pilots are chosen: a pilot on every resource element."""
+    del d_f, d_t, s  # the lattice is not chosen yet
+    return link.pilots.aliasing_scale(1, 1, 0, df, ts, tau, fd)
 
 
 def _placeholder(df) -> DesignArrays:
@@ -139,15 +135,16 @@ def _placeholder(df) -> DesignArrays:
 
 def relaxed_margins(spacing_hz, environment: Environment, req: Requirements, ignore=(), only=None) -> dict:
     """Upper bounds on every applicable rule's margin at each spacing: name -> array."""
-    ns = _relaxed_namespace(spacing_hz, environment, req)
+    df = np.asarray(spacing_hz, dtype=float)
+    evaluation = link.evaluate(_placeholder(df), environment, req, estimation=False,
+                               overrides=_relaxed_overrides(df, environment, req))
     out = {}
-    for rule in link.applicable_rules(req):
+    for rule in evaluation.rules:
         if only is not None and rule.name != only:
             continue
         if rule.name in ignore or rule.gate:
             continue  # yes/no rules do not depend on the spacing (the FFT size matches the clock)
-        _, _, margin = evaluate_rule(rule, ns)
-        out[rule.name] = np.broadcast_to(margin, np.shape(spacing_hz))
+        out[rule.name] = np.broadcast_to(evaluation.margin[rule.name], df.shape)
     return out
 
 

@@ -99,7 +99,7 @@ def _relaxed_pilots(req: Requirements) -> dict:
     """Namespace overrides for a numerology before its pilots and slot are chosen (best case of each)."""
     return {
         "D_f": np.inf, "D_t": np.inf, "s_p": 0.0,  # no pilot overhead ...
-        "alias_scale": lambda d_f, d_t, s, df, ts, tau, fd: link.pilots.aliasing_scale(1, 1, 0, df, ts, tau, fd),
+        "alias_scale": cand.densest_pilots_alias_scale,
         "N_slot": float(min(req.search.symbols_per_slot)),
     }
 
