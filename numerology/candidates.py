@@ -205,20 +205,32 @@ def spacing_window(environment: Environment, req: Requirements, ignore=()) -> Wi
     return Window(float(min_hz), float(max_hz), lower_rule, upper_rule, float(lo), float(hi))
 
 
+#: Points evaluated at once while narrowing a window edge.
+EDGE_POINTS = 40
+
+
 def _edge(a, b, environment, req, rule_name) -> float:
-    """The spacing between grid points a < b where the bounding rule's relaxed margin is zero.
+    """The spacing between grid points a < b where the bounding rule's relaxed margin changes sign.
 
-    Brent's method on log(spacing), to 1e-10 relative.
+    The bracket is narrowed ``EDGE_POINTS`` points at a time (log scale) to
+    1e-10 relative; the passing end is returned (so the window's edges pass).
     """
-    from scipy.optimize import brentq
+    def passes(x):
+        return relaxed_margins(x, environment, req, only=rule_name)[rule_name] >= 0
 
-    def margin(log_df):
-        return float(relaxed_margins(np.array([np.exp(log_df)]), environment, req, only=rule_name)[rule_name][0])
-
-    try:
-        return float(np.exp(brentq(margin, np.log(a), np.log(b), xtol=1e-10)))
-    except ValueError:  # the grid point itself sits on the edge
-        return float(b if margin(np.log(b)) >= 0 else a)
+    lo, hi = np.log(a), np.log(b)
+    lo_passes = bool(passes(np.array([a]))[0])
+    while hi - lo > 1e-10:
+        inside = np.linspace(lo, hi, EDGE_POINTS + 2)[1:-1]
+        ok = passes(np.exp(inside))
+        change = np.flatnonzero(ok != lo_passes)
+        if change.size == 0:
+            lo = inside[-1]
+        else:
+            j = int(change[0])
+            hi = inside[j]
+            lo = inside[j - 1] if j > 0 else lo
+    return float(np.exp(lo if lo_passes else hi))
 
 
 # --- enumeration -----------------------------------------------------------
