@@ -210,7 +210,7 @@ class Neighbour:
 
 @dataclass(frozen=True)
 class RankedDesign:
-    rank: int  # 1 = best
+    rank: int | None  # 1 = best numerology; None for a Pareto design outside the top N
     check: CheckResult
     pareto: bool
 
@@ -279,12 +279,6 @@ def _check_from(evaluation, designs: DesignArrays, index: int, environment, limi
         limits=limits or {})
 
 
-def _named(design: Design, rank: int) -> Design:
-    import dataclasses
-
-    return dataclasses.replace(design, name=f"design {rank}", source="numerology solve")
-
-
 def solve(req: Requirements, *, objective: str | None = None, top: int = 5, explain: bool = True,
           with_limits: bool = True) -> SolveResult:
     """Search the design space, rank the feasible designs and explain them.
@@ -321,12 +315,15 @@ def solve(req: Requirements, *, objective: str | None = None, top: int = 5, expl
         if with_limits and ranked.position[i] == 0:
             limits = stretch_limits(DesignArrays.from_designs([ranked.designs.design(i)]), req, environment)
         check_result = _check_from(ranked.evaluation, ranked.designs, i, environment, limits)
-        rank = int(ranked.position[i]) + 1
+        leader = ranked.position[i] < top
+        rank = int(ranked.position[i]) + 1 if leader else None
         import dataclasses
 
-        check_result = dataclasses.replace(check_result, design=_named(check_result.design, rank))
+        name = f"design {rank}" if leader else f"Pareto design {i + 1}"
+        check_result = dataclasses.replace(check_result, design=dataclasses.replace(
+            check_result.design, name=name, source="numerology solve"))
         checks.append(RankedDesign(rank, check_result, bool(ranked.pareto[i])))
-    designs = tuple(c for c in checks if c.rank <= top)
+    designs = tuple(sorted((c for c in checks if c.rank is not None), key=lambda c: c.rank))
     pareto = tuple(c for c in checks if c.pareto)
     relaxed, neighbours = None, ()
     if explain and designs:

@@ -56,7 +56,7 @@ class Ranked:
     evaluation: link.Evaluation
     keys: np.ndarray  # objective value (higher is better)
     pareto: np.ndarray  # on the Pareto front over (throughput, speed margin, delay margin)
-    position: np.ndarray  # rank among all feasible designs found (0 = best)
+    position: np.ndarray  # rank among the distinct numerologies (0 = best); a huge value for other designs
 
 
 @dataclass(frozen=True)
@@ -166,7 +166,7 @@ def search(req: Requirements, environment: Environment | None = None, objective:
     order = survivors[np.argsort(-bound[objective][survivors], kind="stable")]
     records = {k: [] for k in ("index", "key", "robust", "rate", "speed", "delay")}
     evaluated, start, batch_size = 0, 0, 256
-    best_keys = np.empty(0)
+    best = {}  # numerology (spacing, FFT size, CP) -> its best key so far
     while start < order.size:
         batch = order[start:start + batch_size]
         designs = grid.take(batch).designs()
@@ -181,14 +181,16 @@ def search(req: Requirements, environment: Environment | None = None, objective:
                                  ("speed", axis_margins(evaluation, SPEED_RULES)[idx]),
                                  ("delay", axis_margins(evaluation, DELAY_RULES)[idx])):
                 records[name].append(np.asarray(values))
-            best_keys = np.sort(np.concatenate([best_keys, keys]))[::-1]
+            for number, key in zip(_numerology_ids(grid, batch[idx]), keys):
+                best[number] = max(best.get(number, -np.inf), float(key))
             if first_feasible_only:
                 break
         start += batch.size
         batch_size = min(batch_size * 2, BATCH)
         next_bound = bound[objective][order[start]] if start < order.size else -np.inf
-        if best_keys.size >= top and best_keys[top - 1] >= next_bound:
-            break  # no unevaluated candidate can enter the top
+        leaders = sorted(best.values(), reverse=True)
+        if len(leaders) >= top and leaders[top - 1] >= next_bound:
+            break  # no unevaluated candidate can change the best `top` numerologies
     found = {k: np.concatenate(v) if v else np.empty(0) for k, v in records.items()}
     stats = SearchStats(family.size, int(len(spacings_hz)), full_size, int(grid.size), evaluated,
                         int(found["index"].size), top)
@@ -199,11 +201,22 @@ def search(req: Requirements, environment: Environment | None = None, objective:
     pareto = pareto_mask(found["rate"], found["speed"], found["delay"])
     chosen = found["index"][rank].astype(np.int64)
     on_front = pareto[rank]
-    show = np.unique(np.concatenate([np.arange(min(top, chosen.size)), np.flatnonzero(on_front)[:PARETO_SHOWN]]))
+    # The ranking lists each numerology (spacing, FFT size, CP) once, with its best pilots and slot.
+    numerology_table = np.stack([grid.spacing_hz[chosen], grid.fft_size[chosen], grid.cp_samples[chosen]], axis=1)
+    _, first = np.unique(numerology_table, axis=0, return_index=True)
+    leaders = np.sort(first)
+    position = np.full(chosen.size, np.iinfo(np.int64).max)
+    position[leaders] = np.arange(leaders.size)
+    show = np.unique(np.concatenate([leaders[:top], np.flatnonzero(on_front)[:PARETO_SHOWN]]))
     designs = grid.take(chosen[show]).designs()
     evaluation = link.evaluate(designs, environment, req)
-    ranked = Ranked(designs, evaluation, found["key"][rank][show], on_front[show], show)
+    ranked = Ranked(designs, evaluation, found["key"][rank][show], on_front[show], position[show])
     return Search(window, ranked, stats, rejected)
+
+
+def _numerology_ids(grid: cand.Grid, index) -> list:
+    """A hashable identity of each candidate's numerology (spacing, FFT size, CP samples)."""
+    return list(zip(grid.spacing_hz[index].tolist(), grid.fft_size[index].tolist(), grid.cp_samples[index].tolist()))
 
 
 def _screen(req: Requirements, environment: Environment, spacings_hz, ignore):
