@@ -426,3 +426,25 @@ def test_bad_estimator_input():
         estimation_mse(*args, ones, ones, 0.0)
     with pytest.raises(InputError, match="freq_correlation: must be normalised"):
         estimation_mse(*args, lambda lag: 2 + 0 * lag, ones, 10.0)
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.integers(1, 16), st.integers(1, 8), st.data(), st.floats(0.5, 1e4))
+def test_separable_cell_average_equals_per_target_average(d_f, d_t, data, snr):
+    """The fast LMMSE cell average (one lattice, separable sum of outer products) equals the mean of the
+    per-target errors of estimator_weights over the cell (an identity of our own: the error is the same on
+    every coset of the lattice, and the correlation vector factorises in frequency and time)."""
+    shift = data.draw(st.integers(0, d_f - 1))
+    df, ts = 15e3, 1 / 14e3
+
+    def freq(lag_hz):
+        return 1.0 / (1.0 + 2j * np.pi * lag_hz * 0.8e-6)  # exponential profile, rms 0.8 us
+
+    def time(lag_s):
+        return j0(2 * np.pi * 150.0 * lag_s)
+
+    k, l = np.meshgrid(np.arange(d_f), np.arange(d_t), indexing="ij")
+    weights = estimator_weights(d_f, d_t, shift, df, ts, freq, time, snr, k.ravel(), l.ravel())
+    fast = estimation_mse(d_f, d_t, shift, df, ts, freq, time, snr)
+    # atol 1e-10: both forms compute 1 - q with q close to 1, so round-off of order 1e-12 (absolute) remains
+    assert_allclose(fast, np.mean(weights.mse), rtol=1e-8, atol=1e-10)
