@@ -39,6 +39,9 @@ def write_atomic(path: Path, data: bytes) -> None:
     try:
         with os.fdopen(fd, "wb") as handle:
             handle.write(data)
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)  # mkstemp makes 0600; give the file the permissions a plain open() would
         os.replace(tmp, path)
     except BaseException:
         if os.path.exists(tmp):

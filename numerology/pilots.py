@@ -313,11 +313,34 @@ def aliasing_scale(freq_spacing, time_spacing, shift, subcarrier_spacing_hz, sym
     shape, (d_f, d_t, s, df, ts, tau, f_d) = _broadcast_flat(d_f, d_t, s, df, ts, tau, f_d)
     delay_unit = (d_f * df * tau)[:, None]  # m / this = abs(dtau) / tau_max
     doppler_unit = (d_f * d_t * ts * 2.0 * f_d)[:, None]  # r / this = abs(dnu) / (2 f_D)
-    g = np.full(d_f.shape, np.inf)
-    for m, r in _scan_blocks(d_f, s):
-        worst = np.maximum(_ratio(m, delay_unit), _ratio(r, doppler_unit))
-        g = np.minimum(g, worst.min(axis=1))
-    return g.reshape(shape)
+    if d_f.size == 0:
+        return np.zeros(shape)
+    m, r = _staircase(d_f, s)
+    worst = np.maximum(_ratio(m, delay_unit), _ratio(r, doppler_unit))
+    return worst.min(axis=1).reshape(shape)
+
+
+def _staircase(d_f, s):
+    """The reciprocal points that can be the nearest, as (m, r(m)) arrays (n, K), per candidate.
+
+    Of the points (m, r(m)), m = 0..D_f (see ``_scan_blocks``), only those
+    whose r is below every r of a smaller m can set the minimum of
+    max(m / a, r / b) for any support (a, b): the others are dominated. The
+    staircase depends on (D_f, s) only, so it is found once per distinct pair
+    and padded by repeating its last point.
+    """
+    pairs, inverse = np.unique(np.stack([d_f, s], axis=1), axis=0, return_inverse=True)
+    steps = []
+    for lat_f, lat_s in pairs:
+        (m, r), = _scan_blocks(np.array([lat_f]), np.array([lat_s]))
+        m, r = m[0], r[0]
+        keep = r < np.minimum.accumulate(np.concatenate([[np.iinfo(np.int64).max], r[:-1]]))
+        steps.append((m[keep], r[keep]))
+    width = max(len(m) for m, _ in steps)
+    m_table = np.array([np.pad(m, (0, width - len(m)), mode="edge") for m, _ in steps])
+    r_table = np.array([np.pad(r, (0, width - len(r)), mode="edge") for _, r in steps])
+    index = np.ravel(inverse)
+    return m_table[index], r_table[index]
 
 
 def max_delay_for_lattice(
