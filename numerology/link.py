@@ -156,6 +156,19 @@ def oscillator_terms(req: Requirements, useful_symbol_s, subcarrier_spacing_hz):
     return np.asarray(pn, dtype=float), np.asarray(cfo, dtype=float)
 
 
+def estimation_floor(req: Requirements, pilot_sinr):
+    """A lower bound of the estimation error of any pilot lattice in any channel (for screening).
+
+    LMMSE from W noisy pilots: at best every pilot sees the wanted channel
+    itself, giving 1 / (1 + W SINR_p) (W = 16, the 4 x 4 window). Linear
+    interpolation: the noise alone costs sum(w^2) / SINR_p >= 1 / (3 SINR_p)
+    for three weights summing to one.
+    """
+    if req.rules.estimator == "lmmse":
+        return 1.0 / (1.0 + 16.0 * pilot_sinr)
+    return 1.0 / (3.0 * pilot_sinr)
+
+
 def estimation_error(designs: DesignArrays, environment: Environment, req: Requirements, pilot_sinr):
     """Mean-square channel-estimation error of each design's pilot lattice (relative to channel power).
 
@@ -300,8 +313,9 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
         ``req.radio.snr_db`` may be an array broadcasting with the batch (a
         per-site SNR, as ``numerology.sweep`` passes it).
     estimation : bool
-        False leaves the channel-estimation error out (set to 0): every
-        SINR-dependent margin is then an upper bound (the solver's screening).
+        False replaces the channel-estimation error by its lower bound
+        (``estimation_floor``): every SINR-dependent margin is then an upper
+        bound (the solver's screening).
     overrides : dict, optional
         Symbols of the rule language replaced by given values (best cases
         while a design is incomplete; see ``numerology.solver``).
@@ -336,11 +350,11 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
         "phase_noise": np.broadcast_to(_over_useful(pn), shape),
         "frequency_offset": np.broadcast_to(_over_useful(cfo), shape),
     }
+    pilot_sinr = 1.0 / sum(terms.values())  # pilots see the same noise and interference as data
     if estimation:
-        pilot_sinr = 1.0 / sum(terms.values())  # pilots see the same noise and interference as data
         terms["estimation"] = np.broadcast_to(estimation_error(designs, environment, req, pilot_sinr), shape)
     else:
-        terms["estimation"] = np.zeros(shape)
+        terms["estimation"] = np.broadcast_to(estimation_floor(req, pilot_sinr), shape)
     sinr_eff = 1.0 / sum(terms.values())
     ns["sinr_eff"] = sinr_eff
     ns = evaluate_derived(ns)  # now the rate, which needs the SINR

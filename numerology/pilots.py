@@ -63,8 +63,10 @@ _DESIGN_NOISE_FLOOR = 1e-10
 #: where the per-target form is used instead.
 _TRACE_FORM_MAX_SNR = 1e6
 
-#: Candidates of one lattice processed at once by the separable LMMSE average.
+#: Candidates of one lattice processed at once by the separable LMMSE average, and the fewest
+#: candidates of one lattice worth that path (smaller groups go through the block path).
 _GROUP_CHUNK = 2048
+_GROUP_MIN = 64
 
 #: Targets (candidate x cell position) processed per block in estimation_mse.
 _TARGETS_PER_BLOCK = 1 << 13
@@ -890,16 +892,19 @@ def estimation_mse(
     todo = np.ones(n, dtype=bool)
     if estimator == "lmmse" and reach[0] % 2 == 0 and reach[1] % 2 == 0:
         fast = snr <= _TRACE_FORM_MAX_SNR
-        lattices, inverse = np.unique(np.stack([d_f, d_t, s], axis=1)[fast], axis=0, return_inverse=True)
+        lattices, inverse, counts = np.unique(np.stack([d_f, d_t, s], axis=1)[fast], axis=0, return_inverse=True,
+                                              return_counts=True)
         members = np.flatnonzero(fast)
         inverse = np.ravel(inverse)
         for g, (lat_f, lat_t, lat_s) in enumerate(lattices):
+            if counts[g] < _GROUP_MIN:
+                continue  # a small group costs more in Python than it saves: the block path takes it
             group = members[inverse == g]
             for start in range(0, group.size, _GROUP_CHUNK):
                 idx = group[start:start + _GROUP_CHUNK]
                 out[idx] = _lmmse_lattice_mean(int(lat_f), int(lat_t), int(lat_s), snr[idx], f_table[idx],
                                                t_table[idx], reach)
-        todo &= ~fast
+            todo[group] = False
     cells = d_f * d_t
     order = np.argsort(np.where(todo, cells, -1), kind="stable")[n - int(todo.sum()):]  # the rest, by cell size
     sorted_cells = cells[order]

@@ -29,7 +29,9 @@ OBJECTIVES = ("throughput", "robustness", "overhead", "latency")
 #: Rules a faster channel stresses, and rules a longer echo stresses (for the Pareto axes).
 SPEED_RULES = ("doppler_ici", "quasi_static", "pilot_aliasing")
 DELAY_RULES = ("cp_covers_delay", "flat_fading", "pilot_aliasing")
-#: Candidates evaluated exactly per round of the branch and bound.
+#: Candidates evaluated exactly in the first round of the branch and bound, and at most per round
+#: (rounds double in between).
+FIRST_BATCH = 256
 BATCH = 4096
 #: Pareto designs carried into the result beyond the top N.
 PARETO_SHOWN = 20
@@ -162,13 +164,20 @@ def search(req: Requirements, environment: Environment | None = None, objective:
         spacings_hz = family[window.contains(family)] if not window.empty else family[:0]
     full_size = _space_size(req, environment, family)
     grid, bound, rejected = _screen(req, environment, spacings_hz, ignore)
-    survivors = np.arange(grid.size)
-    order = survivors[np.argsort(-bound[objective][survivors], kind="stable")]
+    order = np.argsort(-bound[objective], kind="stable")
+    keys_of_numerology = np.stack([grid.spacing_hz, grid.fft_size, grid.cp_samples], axis=1)
+    _, numerology = np.unique(keys_of_numerology, axis=0, return_inverse=True)
+    numerology = np.ravel(numerology)
+    best = np.full(int(numerology.max()) + 1 if numerology.size else 0, -np.inf)  # best exact key per numerology
+    settled = np.zeros(best.size, dtype=bool)
+    # A numerology whose best exact key already beats every remaining bound needs no more candidates,
+    # unless every feasible design is asked for (top >= the space: brute-force comparisons).
+    exhaustive = top >= order.size
     records = {k: [] for k in ("index", "key", "robust", "rate", "speed", "delay")}
-    evaluated, start, batch_size = 0, 0, 256
-    best = {}  # numerology (spacing, FFT size, CP) -> its best key so far
-    while start < order.size:
-        batch = order[start:start + batch_size]
+    evaluated, batch_size = 0, FIRST_BATCH
+    pending = order
+    while pending.size:
+        batch, pending = pending[:batch_size], pending[batch_size:]
         designs = grid.take(batch).designs()
         evaluation = link.evaluate(designs, environment, req)
         evaluated += batch.size
@@ -181,16 +190,16 @@ def search(req: Requirements, environment: Environment | None = None, objective:
                                  ("speed", axis_margins(evaluation, SPEED_RULES)[idx]),
                                  ("delay", axis_margins(evaluation, DELAY_RULES)[idx])):
                 records[name].append(np.asarray(values))
-            for number, key in zip(_numerology_ids(grid, batch[idx]), keys):
-                best[number] = max(best.get(number, -np.inf), float(key))
+            np.maximum.at(best, numerology[batch[idx]], keys)
             if first_feasible_only:
                 break
-        start += batch.size
         batch_size = min(batch_size * 2, BATCH)
-        next_bound = bound[objective][order[start]] if start < order.size else -np.inf
-        leaders = sorted(best.values(), reverse=True)
-        if len(leaders) >= top and leaders[top - 1] >= next_bound:
+        next_bound = bound[objective][pending[0]] if pending.size else -np.inf
+        if np.count_nonzero(best >= next_bound) >= top:
             break  # no unevaluated candidate can change the best `top` numerologies
+        if not exhaustive:
+            settled |= best >= next_bound
+            pending = pending[~settled[numerology[pending]]]
     found = {k: np.concatenate(v) if v else np.empty(0) for k, v in records.items()}
     stats = SearchStats(family.size, int(len(spacings_hz)), full_size, int(grid.size), evaluated,
                         int(found["index"].size), top)
@@ -212,11 +221,6 @@ def search(req: Requirements, environment: Environment | None = None, objective:
     evaluation = link.evaluate(designs, environment, req)
     ranked = Ranked(designs, evaluation, found["key"][rank][show], on_front[show], position[show])
     return Search(window, ranked, stats, rejected)
-
-
-def _numerology_ids(grid: cand.Grid, index) -> list:
-    """A hashable identity of each candidate's numerology (spacing, FFT size, CP samples)."""
-    return list(zip(grid.spacing_hz[index].tolist(), grid.fft_size[index].tolist(), grid.cp_samples[index].tolist()))
 
 
 def _screen(req: Requirements, environment: Environment, spacings_hz, ignore):
@@ -326,15 +330,23 @@ def brute_force(req: Requirements, environment: Environment | None = None, ignor
 
 
 def pareto_mask(rate, speed_margin, delay_margin) -> np.ndarray:
-    """True for designs no other design beats on all three axes (and strictly on one)."""
-    points = np.stack([rate, speed_margin, delay_margin], axis=1)
-    n = points.shape[0]
-    keep = np.ones(n, dtype=bool)
-    for start in range(0, n, 512):
-        block = points[start:start + 512]
-        ge = np.all(points[None, :, :] >= block[:, None, :], axis=2)
-        gt = np.any(points[None, :, :] > block[:, None, :], axis=2)
-        keep[start:start + 512] = ~np.any(ge & gt, axis=1)
+    """True for designs no other design beats on all three axes (and strictly on one).
+
+    Points are visited in decreasing lexicographic order, so no later point can
+    dominate an earlier one; a point is dominated exactly when a point already
+    on the front dominates it (dominance is transitive), so each point is
+    compared with the front only.
+    """
+    points = np.stack([rate, speed_margin, delay_margin], axis=1).astype(float)
+    order = np.lexsort((-points[:, 2], -points[:, 1], -points[:, 0]))
+    keep = np.zeros(points.shape[0], dtype=bool)
+    front = np.empty((0, 3))
+    for i in order:
+        p = points[i]
+        if front.size and np.any(np.all(front >= p, axis=1) & np.any(front > p, axis=1)):
+            continue
+        keep[i] = True
+        front = np.vstack([front, p])
     return keep
 
 

@@ -7,6 +7,8 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
 from numerology import api, candidates, solver
@@ -216,3 +218,12 @@ def test_evaluation_of_returned_designs_matches_arrays():
     env = derive_environment(req)
     again = api.link.evaluate(DesignArrays.from_designs([found.ranked.designs.design(0)]), env, req)
     assert_allclose(again.rate_bps[0], found.ranked.evaluation.rate_bps[0], rtol=1e-12)
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.tuples(st.integers(0, 4), st.integers(0, 4), st.integers(0, 4)), min_size=1, max_size=40))
+def test_pareto_front_equals_the_pairwise_definition(points):
+    """The front-only comparison gives the same Pareto set as comparing every pair."""
+    p = np.array(points, dtype=float)
+    expected = np.array([not np.any(np.all(p >= q, axis=1) & np.any(p > q, axis=1)) for q in p])
+    assert np.array_equal(solver.pareto_mask(p[:, 0], p[:, 1], p[:, 2]), expected)
