@@ -20,6 +20,7 @@ import numpy as np
 
 from . import link
 from .environment import derive_environment
+from .errors import InputError
 from .requirements import Requirements
 from .units import engineering
 
@@ -44,13 +45,13 @@ class Relaxation:
 
 
 def _feasible(req: Requirements, ignore=()) -> bool:
-    from .solver import search
+    from .solver import any_feasible
 
     try:
         environment = derive_environment(req)
-    except Exception:
+    except (InputError, ValueError):  # a trial value outside what the environment model accepts
         return False
-    return search(req, environment, top=1, ignore=ignore, first_feasible_only=True).feasible
+    return any_feasible(req, environment, ignore)
 
 
 def conflict_set(req: Requirements) -> tuple[str, ...]:
@@ -140,6 +141,8 @@ def _candidate_values(key, current, direction):
     if key == "radio.snr":
         return min(current + 40.0, 80.0)
     if direction < 0:
+        if key.startswith("environment."):
+            return current * 1e-3  # a thousandth of the speed or delay: any relief there is this side of it
         return current * 1e-6 if current > 0 else 0.0
     return current * 1e3
 

@@ -198,7 +198,10 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
     def freq_correlation(lag_hz):
         if batch:  # one profile per candidate row
             return _frequency_correlation_rows(lag_hz, delays, powers)
-        return delay.frequency_correlation(lag_hz, delays, powers)
+        # One profile for all: rows with the same spacing have the same lags, so compute each spacing once.
+        lag_hz = np.asarray(lag_hz, dtype=float)
+        rows, inverse = np.unique(lag_hz, axis=0, return_inverse=True)
+        return delay.frequency_correlation(rows, delays, powers)[np.ravel(inverse)]
 
     def time_correlation(lag_s):
         return doppler.doppler_autocorrelation(lag_s, f_d, spectrum, k)

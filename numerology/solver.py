@@ -93,8 +93,9 @@ def objective_key(objective: str, evaluation: link.Evaluation, designs: DesignAr
     raise ValueError(objective)
 
 
-#: Candidates built and screened at a time (bounds memory).
+#: Candidates built and screened at a time (bounds memory), and in a feasibility test (early exit).
 CHUNK = 1 << 20
+FEASIBILITY_CHUNK = 1 << 13
 
 
 def _relaxed_pilots(req: Requirements) -> dict:
@@ -223,11 +224,11 @@ def search(req: Requirements, environment: Environment | None = None, objective:
     return Search(window, ranked, stats, rejected)
 
 
-def _screen(req: Requirements, environment: Environment, spacings_hz, ignore):
-    """Build the candidates stage by stage and keep those the cheap rules cannot reject.
+def _screen_chunks(req: Requirements, environment: Environment, spacings_hz, ignore, chunk: int = CHUNK):
+    """Build the candidates stage by stage; yield, chunk by chunk, those the cheap rules cannot reject.
 
-    Returns the surviving candidates, the bounds of each objective for them,
-    and how many candidates each rule rejected.
+    Each item is (surviving candidates, objective bounds, rejections per rule);
+    the first item carries the numerology stage's rejections too.
     """
     df, n, used, cp = cand.numerologies(spacings_hz, environment, req)
     pf, pt, ps = cand.pilot_lattices(req)
@@ -244,11 +245,9 @@ def _screen(req: Requirements, environment: Environment, spacings_hz, ignore):
     cell = pf * pt
     low, high = _cell_bounds(numerologies, environment, req, ignore)
     first = np.searchsorted(cell, low, side="left")
-    stop = np.searchsorted(cell, high, side="right")
-    counts = np.maximum(stop - first, 0)
-    parts, bounds = [], {k: [] for k in OBJECTIVES}
+    counts = np.maximum(np.searchsorted(cell, high, side="right") - first, 0)
     any_slot = {"N_slot": float(min(slots))}  # the shortest slot is the best case for latency ...
-    blocks = np.searchsorted(np.cumsum(counts), np.arange(CHUNK, counts.sum() + CHUNK, CHUNK))
+    blocks = np.searchsorted(np.cumsum(counts), np.arange(chunk, counts.sum() + chunk, chunk))
     edges = np.unique(np.concatenate([[0], np.minimum(blocks + 1, numerologies.size), [numerologies.size]]))
     for start, end in zip(edges[:-1], edges[1:]):
         # Lattices first, with the slot left open (pilots_in_slot is checked once slots are crossed in).
@@ -262,19 +261,51 @@ def _screen(req: Requirements, environment: Environment, spacings_hz, ignore):
                                 pt[lattice], ps[lattice], np.full(rows.size, slots[0]))
         ok, _, _ = _cheap_stage(with_pilots, environment, req, ignore, any_slot)
         survivors = with_pilots.take(np.flatnonzero(ok))
-        chunk = cand.expand(survivors, (survivors.pilot_f, survivors.pilot_t, survivors.pilot_s), slots, paired=True)
-        ok, bound, counts = _cheap_stage(chunk, environment, req, ignore)
-        for name, count in counts.items():
+        candidates = cand.expand(survivors, (survivors.pilot_f, survivors.pilot_t, survivors.pilot_s), slots,
+                                 paired=True)
+        ok, bound, rejections = _cheap_stage(candidates, environment, req, ignore)
+        for name, count in rejections.items():
             rejected[name] = rejected.get(name, 0) + count
         keep = np.flatnonzero(ok)
-        parts.append(chunk.take(keep))
+        yield candidates.take(keep), {k: np.asarray(bound[k])[keep] for k in OBJECTIVES}, rejected
+        rejected = {}
+
+
+def _screen(req: Requirements, environment: Environment, spacings_hz, ignore):
+    """All candidates the cheap rules cannot reject, their objective bounds, and rejections per rule."""
+    parts, bounds, rejected = [], {k: [] for k in OBJECTIVES}, {}
+    for part, bound, rejections in _screen_chunks(req, environment, spacings_hz, ignore):
+        parts.append(part)
         for k in OBJECTIVES:
-            bounds[k].append(np.asarray(bound[k])[keep])
+            bounds[k].append(bound[k])
+        for name, count in rejections.items():
+            rejected[name] = rejected.get(name, 0) + count
     if not parts:
-        empty = cand.Grid(*(np.zeros(0, dtype=a.dtype) for a in (df, n, cp, used, n, n, n, n)))
+        empty = cand.Grid(*(np.zeros(0, dtype=dtype) for dtype in (float, np.int64, np.int64, np.int64, np.int64,
+                                                                    np.int64, np.int64, np.int64)))
         return empty, {k: np.zeros(0) for k in OBJECTIVES}, rejected
     grid = cand.Grid(*(np.concatenate([getattr(p, f) for p in parts]) for f in cand.Grid.__dataclass_fields__))
     return grid, {k: np.concatenate(v) for k, v in bounds.items()}, rejected
+
+
+def any_feasible(req: Requirements, environment: Environment, ignore=()) -> bool:
+    """Whether any candidate passes every rule not ignored (stops at the first one found).
+
+    Screens in small chunks and evaluates each chunk's survivors exactly, best bound
+    first, so a feasible request is answered without building the whole space.
+    """
+    window = cand.spacing_window(environment, req, ignore)
+    if window.empty:
+        return False
+    family = cand.spacing_family(req)
+    spacings = family[window.contains(family)]
+    for part, bound, _ in _screen_chunks(req, environment, spacings, ignore, chunk=FEASIBILITY_CHUNK):
+        order = np.argsort(-bound["robustness"], kind="stable")
+        for start in range(0, order.size, FIRST_BATCH):
+            index = order[start:start + FIRST_BATCH]
+            if _passed(link.evaluate(part.take(index).designs(), environment, req), ignore).any():
+                return True
+    return False
 
 
 def _cell_bounds(numerologies: cand.Grid, environment: Environment, req: Requirements, ignore):
