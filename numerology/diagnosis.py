@@ -147,10 +147,49 @@ def _candidate_values(key, current, direction):
     return current * 1e3
 
 
-def _relax_one(req, key, dimension, direction, current) -> Relaxation | None:
-    extreme = _candidate_values(key, current, direction)
-    if not _feasible(req.replace(key, extreme)):
+#: Goals whose nearest feasible value is an optimum: the best value of the goal's own quantity among
+#: the designs that meet everything else (one search instead of a bisection).
+GOAL_OBJECTIVES = {"goals.throughput": ("throughput", "throughput", 1.0),
+                   "goals.max_latency": ("latency", "latency", -1.0),
+                   "goals.max_overhead": ("overhead", "overhead", -1.0)}
+
+
+def _goal_optimum(req, key):
+    """The goal's best achievable value with the goal itself left out (None if nothing fits even then)."""
+    from .solver import search
+
+    rule, objective, sign = GOAL_OBJECTIVES[key]
+    try:
+        environment = derive_environment(req)
+    except (InputError, ValueError):
         return None
+    found = search(req, environment, objective=objective, top=1, ignore=(rule,))
+    return sign * float(found.ranked.keys[0]) if found.feasible else None
+
+
+def _relax_one(req, key, dimension, direction, current) -> Relaxation | None:
+    if key in GOAL_OBJECTIVES:
+        best = _goal_optimum(req, key)
+        if best is None:
+            return None
+        # The optimum is feasible; a value just past it on the other side is the boundary to round towards.
+        bad, good = current, best
+    else:
+        extreme = _candidate_values(key, current, direction)
+        if not _feasible(req.replace(key, extreme)):
+            return None
+        bad, good = _bisect(req, key, dimension, current, extreme)
+    # Round toward the feasible side and check that the pasted value really works.
+    for digits in (3, 4, 6):
+        text = _round_towards(good, bad, dimension, digits)
+        value = _parse_back(text, dimension)
+        if _feasible(req.replace(key, value)):
+            return Relaxation(key, text, value, current, "at least" if direction > 0 else "at most")
+    return None
+
+
+def _bisect(req, key, dimension, current, extreme):
+    """(infeasible, feasible) values bracketing the boundary to RELAX_RTOL."""
     bad, good = current, extreme
     log = dimension not in ("db", "ratio") and bad > 0 and good > 0
     for _ in range(MAX_STEPS):
@@ -159,15 +198,9 @@ def _relax_one(req, key, dimension, direction, current) -> Relaxation | None:
             good = mid
         else:
             bad = mid
-        if abs(good - bad) <= RELAX_RTOL * abs(good) or (dimension in ("db", "ratio") and abs(good - bad) < 0.01):
+        if abs(good - bad) <= RELAX_RTOL * abs(good) or (dimension in ("db", "ratio") and abs(good - bad) < 0.05):
             break
-    # Round toward the feasible side and check that the pasted value really works.
-    for digits in (3, 4, 6):
-        text = _round_towards(good, bad, dimension, digits)
-        value = _parse_back(text, dimension)
-        if _feasible(req.replace(key, value)):
-            return Relaxation(key, text, value, current, "at least" if direction > 0 else "at most")
-    return None
+    return bad, good
 
 
 def _round_towards(good: float, bad: float, dimension: str, digits: int) -> str:
