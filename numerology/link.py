@@ -187,8 +187,8 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
         keys.append(channel)
     columns = np.broadcast_arrays(*keys)
     shape = columns[0].shape
-    table = np.stack([np.asarray(c, dtype=float).ravel() for c in columns], axis=1)
-    unique, inverse = np.unique(table, axis=0, return_inverse=True)
+    table = np.ascontiguousarray(np.stack([np.asarray(c, dtype=float).ravel() for c in columns], axis=1))
+    unique, inverse = _unique_rows(table)
     if batch:
         site = first_site[unique[:, 6].astype(np.int64)]  # a site holding each distinct channel
         delays = delays.reshape(-1, delays.shape[-1])[site]
@@ -210,6 +210,13 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
         unique[:, 0].astype(np.int64), unique[:, 1].astype(np.int64), unique[:, 2].astype(np.int64),
         unique[:, 3], unique[:, 4], freq_correlation, time_correlation, unique[:, 5], estimator=req.rules.estimator)
     return np.asarray(mse)[np.ravel(inverse)].reshape(shape)
+
+
+def _unique_rows(table):
+    """np.unique(table, axis=0, return_inverse=True) for a float table, sorting whole rows as bytes (faster)."""
+    keys = table.view(np.dtype((np.void, table.dtype.itemsize * table.shape[1]))).ravel()
+    _, first, inverse = np.unique(keys, return_index=True, return_inverse=True)
+    return table[first], np.ravel(inverse)
 
 
 def _channel_index(delays_s, powers, max_doppler_hz):

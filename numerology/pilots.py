@@ -331,7 +331,8 @@ def _staircase(d_f, s):
     staircase depends on (D_f, s) only, so it is found once per distinct pair
     and padded by repeating its last point.
     """
-    pairs, inverse = np.unique(np.stack([d_f, s], axis=1), axis=0, return_inverse=True)
+    codes, inverse = np.unique(d_f * (int(s.max()) + 1) + s, return_inverse=True)  # one integer per (D_f, s)
+    pairs = np.stack([codes // (int(s.max()) + 1), codes % (int(s.max()) + 1)], axis=1)
     steps = []
     for lat_f, lat_s in pairs:
         (m, r), = _scan_blocks(np.array([lat_f]), np.array([lat_s]))

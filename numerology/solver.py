@@ -364,20 +364,26 @@ def pareto_mask(rate, speed_margin, delay_margin) -> np.ndarray:
     """True for designs no other design beats on all three axes (and strictly on one).
 
     Points are visited in decreasing lexicographic order, so no later point can
-    dominate an earlier one; a point is dominated exactly when a point already
-    on the front dominates it (dominance is transitive), so each point is
-    compared with the front only.
+    dominate an earlier one; a point is dominated exactly when an earlier point
+    dominates it, and then also a point of the front (dominance is
+    transitive), so each block of points is compared with the front found so
+    far and with the block's earlier points.
     """
     points = np.stack([rate, speed_margin, delay_margin], axis=1).astype(float)
     order = np.lexsort((-points[:, 2], -points[:, 1], -points[:, 0]))
     keep = np.zeros(points.shape[0], dtype=bool)
     front = np.empty((0, 3))
-    for i in order:
-        p = points[i]
-        if front.size and np.any(np.all(front >= p, axis=1) & np.any(front > p, axis=1)):
-            continue
-        keep[i] = True
-        front = np.vstack([front, p])
+    for start in range(0, order.size, 64):  # blocks: compared with the front and with earlier points of the block
+        block = order[start:start + 64]
+        p = points[block]
+        candidates = np.concatenate([front, p])  # the block's own points count only when earlier in it
+        ge = np.all(candidates[None, :, :] >= p[:, None, :], axis=2)
+        gt = np.any(candidates[None, :, :] > p[:, None, :], axis=2)
+        earlier = np.concatenate([np.ones((len(block), len(front)), dtype=bool),
+                                  np.tri(len(block), k=-1, dtype=bool)], axis=1)
+        winners = ~np.any(ge & gt & earlier, axis=1)
+        keep[block[winners]] = True
+        front = np.concatenate([front, p[winners]])
     return keep
 
 
