@@ -152,7 +152,8 @@ def oscillator_terms(req: Requirements, useful_symbol_s, subcarrier_spacing_hz):
         pn = _on_distinct(lambda t: oscillator.mask_phase_noise_ici(offsets, levels, t), useful_symbol_s)
     else:  # a closed form: cheap, and the linewidth may be an array (stretch limits)
         pn = np.asarray(oscillator.wiener_phase_noise_ici(radio.oscillator_linewidth_hz, useful_symbol_s), float)
-    cfo = _on_distinct(lambda df: oscillator.cfo_ici(radio.frequency_error_hz, df), subcarrier_spacing_hz)
+    # a closed form: cheap, and the offset may be an array (one per site of a sweep)
+    cfo = np.asarray(oscillator.cfo_ici(radio.frequency_error_hz, subcarrier_spacing_hz), dtype=float)
     return np.asarray(pn, dtype=float), np.asarray(cfo, dtype=float)
 
 
@@ -351,7 +352,8 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
     ns["oscillator_ici"] = lambda _df: pn + cfo  # the rule sees the same spacings: computed once
     # An environment batch and a per-site SNR (arrays) broadcast against the designs.
     shape = np.broadcast_shapes(np.shape(ns["df"]), np.shape(ns["N_cp"]), np.shape(ns["D_f"]),
-                                np.shape(environment.max_doppler_hz), np.shape(req.radio.snr_db), np.shape(pn))
+                                np.shape(environment.max_doppler_hz), np.shape(req.radio.snr_db), np.shape(pn),
+                                np.shape(cfo))
     doppler_ici = ns["doppler_ici"](environment.max_doppler_hz * ns["T_u"])
     terms = {
         "noise": np.full(shape, 10 ** (-req.radio.snr_db / 10)),

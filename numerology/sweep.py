@@ -22,9 +22,8 @@ file's consistency rules hold per site: a profile fixes the max excess delay
 spread is at most half the max excess delay, a normalised profile needs an
 rms spread.
 
-A frequency error given relative to the carrier ("0.1 ppm") was converted to
-Hz with the requirement's carrier when the file was read; a site with another
-carrier keeps that value in Hz, and :attr:`Sites.notes` says so.
+A frequency error given relative to the carrier ("0.1 ppm") is taken of each
+site's own carrier, as reading a requirement file with that carrier would.
 
 A malformed row is reported with its line (:attr:`Sites.problems`) and the
 other rows are still evaluated; a malformed header or an unreadable file is
@@ -125,6 +124,11 @@ class Sites:
                            ("environment.rms_delay_spread", self.rms_delay_spread_s),
                            ("environment.max_excess_delay", self.max_excess_delay_s)):
             edited = edited.replace(key, value(array))
+        if req.radio.frequency_error_hz and _given_as_ratio(req, "radio.frequency_error"):
+            # as reading the file with this carrier would: "0.1 ppm" of the site's carrier
+            edited = edited.replace("radio.frequency_error",
+                                    req.radio.frequency_error_hz * edited.environment.carrier_hz
+                                    / req.environment.carrier_hz)
         return edited
 
     def __str__(self) -> str:
@@ -428,9 +432,6 @@ def _resolve(req: Requirements, given: dict, lines, bad, problems: list, where: 
                 first[name] = int(lines[i])
     keep = ~bad
     notes = []
-    if "carrier" in given and radio.frequency_error_hz and _given_as_ratio(req, "radio.frequency_error"):
-        notes.append(f"radio.frequency_error was given relative to the carrier; every site keeps its value in Hz "
-                     f"({radio.frequency_error_hz:g} Hz, at the requirement's carrier)")
     return Sites(
         names=names[keep], lines=lines[keep], speed_mps=speed[keep], max_doppler_hz=doppler_hz[keep],
         carrier_hz=carrier[keep], snr_db=snr[keep], profile=profile[keep], profile_file=profile_file[keep],
@@ -859,7 +860,12 @@ def sweep(req: Requirements, design: Design, sites: Sites) -> SweepResult:
         return SweepResult(design, sites, environment, rules, {r.name: empty for r in rules},
                            {r.name: empty for r in rules}, np.zeros(0, dtype=bool), np.zeros(0, dtype=np.int64),
                            empty, empty, req.path)
-    evaluation = link.evaluate(DesignArrays.from_designs([design]), environment, req.replace("radio.snr", sites.snr_db))
+    site_req = req.replace("radio.snr", sites.snr_db)
+    if req.radio.frequency_error_hz and _given_as_ratio(req, "radio.frequency_error"):
+        # "0.1 ppm" is a fraction of each site's own carrier
+        site_req = site_req.replace("radio.frequency_error",
+                                    req.radio.frequency_error_hz * sites.carrier_hz / req.environment.carrier_hz)
+    evaluation = link.evaluate(DesignArrays.from_designs([design]), environment, site_req)
 
     def per_site(x):
         return np.broadcast_to(np.asarray(x, dtype=float), (n,)).copy()
