@@ -149,7 +149,7 @@ def oscillator_terms(req: Requirements, useful_symbol_s, subcarrier_spacing_hz):
     if radio.phase_noise is not None:
         offsets, levels = radio.phase_noise
         # The mask integral is the costly one: once per distinct symbol duration.
-        pn = _on_distinct(lambda t: oscillator.mask_phase_noise_ici(offsets, levels, t), useful_symbol_s)
+        pn = _on_distinct(lambda t: _mask_ici(offsets, levels, t), useful_symbol_s)
     else:  # a closed form: cheap, and the linewidth may be an array (stretch limits)
         pn = np.asarray(oscillator.wiener_phase_noise_ici(radio.oscillator_linewidth_hz, useful_symbol_s), float)
     # a closed form: cheap, and the offset may be an array (one per site of a sweep)
@@ -258,6 +258,22 @@ def _frequency_correlation_rows(lag_hz, delays_s, powers):
         out.real[rows] = np.einsum("nlk,nk->nl", np.cos(phase), p[rows])  # R = sum_k p_k exp(-j 2 pi f tau_k)
         out.imag[rows] = -np.einsum("nlk,nk->nl", np.sin(phase), p[rows])
     return out
+
+
+_MASK_CACHE: dict = {}  # (offsets, levels) -> {useful symbol s: ICI}; the mask integral is costly
+
+
+def _mask_ici(offsets, levels, useful_symbol_s):
+    """oscillator.mask_phase_noise_ici, remembered per mask and symbol duration within a process."""
+    known = _MASK_CACHE.setdefault((tuple(offsets), tuple(levels)), {})
+    if len(known) > 100_000:
+        known.clear()
+    t_u = np.asarray(useful_symbol_s, dtype=float)
+    missing = [t for t in t_u.ravel().tolist() if t not in known]
+    if missing:
+        values = np.atleast_1d(oscillator.mask_phase_noise_ici(offsets, levels, np.array(missing)))
+        known.update(zip(missing, values.tolist()))
+    return np.array([known[t] for t in t_u.ravel().tolist()]).reshape(t_u.shape)
 
 
 def _on_distinct(function, x):
