@@ -49,7 +49,6 @@ import json
 import math
 import re
 import numbers
-import tomllib
 from dataclasses import dataclass, fields
 from pathlib import Path
 from typing import Any, Mapping, Sequence
@@ -760,16 +759,7 @@ def load_design(path) -> Design:
         If the file cannot be read, is not UTF-8 TOML, or describes an
         invalid design; the message names the file and the key.
     """
+    from .requirements import read_toml
+
     path = Path(path)
-    place = str(path)
-    try:
-        raw = path.read_bytes()
-    except OSError as error:
-        raise InputError(place, f"cannot read the design file ({error.strerror or error})") from None
-    try:
-        data = tomllib.loads(raw.decode("utf-8"))
-    except UnicodeDecodeError:
-        raise InputError(place, "not a UTF-8 text file; a design file is TOML text") from None
-    except tomllib.TOMLDecodeError as error:
-        raise InputError(place, f"not valid TOML: {error}") from None
-    return design_from_mapping(data, place, default_name=path.stem)
+    return design_from_mapping(read_toml(path, "a TOML design file"), str(path), default_name=path.stem)

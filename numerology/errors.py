@@ -24,3 +24,27 @@ class InputError(ValueError):
         self.place = place
         self.message = message
         super().__init__(f"{place}: {message}" if place else message)
+
+
+def read_text(path, expected: str) -> str:
+    """The text of a user's file; any failure to read it becomes one :class:`InputError` line.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+    expected : str
+        What the file should be, for the message, e.g. ``"a TOML file"``.
+    """
+    from pathlib import Path
+
+    path = Path(path)
+    try:
+        data = path.read_bytes()
+    except IsADirectoryError:
+        raise InputError(str(path), f"is a folder; expected {expected}") from None
+    except (OSError, ValueError) as exc:  # ValueError: a NUL byte in the name
+        raise InputError(str(path), f"cannot be read ({getattr(exc, 'strerror', None) or exc})") from None
+    try:
+        return data.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        raise InputError(str(path), f"is not UTF-8 text; expected {expected}") from None

@@ -44,7 +44,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import InputError
+from .errors import InputError, read_text
 from .units import parse_db
 
 #: Gap to AWGN capacity assumed for the default table, in dB (common practice, see module docstring).
@@ -307,12 +307,7 @@ def load_mcs_table(path) -> tuple[McsEntry, ...]:
     """
     path = Path(path)
     place = str(path)
-    try:
-        text = path.read_bytes().decode("utf-8-sig")
-    except OSError as error:
-        raise InputError(place, f"cannot read the MCS table ({error.strerror or error})") from None
-    except UnicodeDecodeError:
-        raise InputError(place, "not a UTF-8 text file; an MCS table is CSV text") from None
+    text = read_text(path, "a CSV file of modulation-and-coding entries")
     reader = csv.reader(io.StringIO(text, newline=""), strict=True)
     entries: list[McsEntry] = []
     header_seen = False

@@ -23,7 +23,7 @@ from pathlib import Path
 import numpy as np
 
 from . import delay
-from .errors import InputError
+from .errors import InputError, read_text
 
 __all__ = ["Profile", "CATALOGUE", "get_profile", "load_profile_csv"]
 
@@ -309,10 +309,7 @@ def load_profile_csv(path) -> Profile:
     from .units import parse_quantity
 
     path = Path(path)
-    try:
-        text = path.read_bytes().decode("utf-8-sig")
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(str(path), f"could not read the profile file ({exc.__class__.__name__}: {exc})") from None
+    text = read_text(path, "a CSV file of taps (delay, power in dB)")
     factor = None
     rows = []  # (delay_s, power_db, line)
     seen = {}

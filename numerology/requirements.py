@@ -22,7 +22,7 @@ from dataclasses import dataclass, field, make_dataclass
 from pathlib import Path
 from typing import Any
 
-from .errors import InputError
+from .errors import InputError, read_text
 from .units import parse_db, parse_quantity
 
 SUFFIX = {"frequency": "_hz", "time": "_s", "speed": "_mps", "length": "_m", "bitrate": "_bps", "db": "_db", "ratio": ""}
@@ -339,19 +339,11 @@ def _did_you_mean(word: str, options) -> str:
     return f" (did you mean {close[0]!r}?)" if close else ""
 
 
-def read_toml(path: str | Path) -> dict:
-    """Read a TOML file; any failure becomes one :class:`InputError` line."""
-    path = Path(path)
+def read_toml(path: str | Path, expected: str = "a TOML file") -> dict:
+    """Read a TOML file; any failure becomes one :class:`InputError` line (``expected`` names the kind of file)."""
+    text = read_text(path, expected)
     try:
-        data = path.read_bytes()
-    except IsADirectoryError:
-        raise InputError(str(path), "is a folder; expected a TOML file") from None
-    except OSError as exc:
-        raise InputError(str(path), f"cannot be read ({exc.strerror or exc})") from None
-    try:
-        return tomllib.loads(data.decode("utf-8"))
-    except UnicodeDecodeError:
-        raise InputError(str(path), "is not UTF-8 text; expected a TOML file") from None
+        return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise InputError(str(path), f"is not valid TOML ({exc})") from None
 

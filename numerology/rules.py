@@ -22,7 +22,6 @@ in :data:`DERIVED` and used by name in the rules.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from functools import lru_cache
 
@@ -188,7 +187,3 @@ def normalised_margin(rule: Rule, capacity, demand):
         if rule.gate:
             return np.where(capacity >= demand, np.inf, -1.0)
         return capacity / demand - 1.0
-
-
-def is_infinite(x) -> bool:
-    return isinstance(x, float) and math.isinf(x)

@@ -74,11 +74,6 @@ class Search:
     def feasible(self) -> bool:
         return self.ranked is not None and self.ranked.keys.size > 0
 
-    @property
-    def top(self) -> np.ndarray:
-        """Indices into ``ranked`` of the best designs, in rank order."""
-        return np.flatnonzero(self.ranked.position < self.stats.top) if self.feasible else np.empty(0, int)
-
 
 def objective_key(objective: str, evaluation: link.Evaluation, designs: DesignArrays) -> np.ndarray:
     """Higher is better, for each objective."""

@@ -51,7 +51,7 @@ import numpy as np
 from . import delay, doppler, link, profiles
 from .design import Design, DesignArrays
 from .environment import WIDEBAND_FRACTION, EnvironmentBatch, derive_environment
-from .errors import InputError
+from .errors import InputError, read_text
 from .output import write_atomic
 from .requirements import SCHEMA, Requirements
 from .units import parse_quantity
@@ -236,16 +236,7 @@ def sites_from_values(req: Requirements, *, names=None, max_speed_mps=None, max_
 
 def _content_lines(path: Path) -> list:
     """(line number, text) of the lines that are neither blank nor comments."""
-    try:
-        data = path.read_bytes()
-    except IsADirectoryError:
-        raise InputError(str(path), "is a folder; expected a CSV file of sites") from None
-    except OSError as exc:
-        raise InputError(str(path), f"cannot be read ({exc.strerror or exc})") from None
-    try:
-        text = data.decode("utf-8-sig")
-    except UnicodeDecodeError:
-        raise InputError(str(path), "is not UTF-8 text; expected a CSV file of sites") from None
+    text = read_text(path, "a CSV file of sites")
     # Most lines start with a value: test the first character before stripping.
     return [(number, line) for number, line in enumerate(text.splitlines(), start=1)
             if (line[:1] not in " \t#" and line) or (line.strip() and not line.lstrip().startswith("#"))]

@@ -318,7 +318,7 @@ def test_all_problems_are_reported_together(tmp_path):
     [
         (b"fft_size = [1,\n", "not valid TOML"),
         (b"= 3\n", "not valid TOML"),
-        (b"name = \"\xff\xfe\"\n", "not a UTF-8 text file"),
+        (b"name = \"\xff\xfe\"\n", "is not UTF-8 text; expected a TOML design file"),
     ],
 )
 def test_unreadable_design_files(tmp_path, content, advice):
@@ -331,8 +331,9 @@ def test_unreadable_design_files(tmp_path, content, advice):
 
 
 def test_missing_file_and_directory(tmp_path):
-    for path in (tmp_path / "absent.toml", tmp_path):
-        with pytest.raises(InputError, match="cannot read the design file") as error:
+    for path, advice in ((tmp_path / "absent.toml", "cannot be read"),
+                         (tmp_path, "is a folder; expected a TOML design file")):
+        with pytest.raises(InputError, match=advice) as error:
             load_design(path)
         assert error.value.place == str(path)
 
