@@ -342,12 +342,8 @@ def _what_relaxing_buys(req, environment, objective, best: CheckResult, best_key
         return None
     binding = min(graded, key=lambda r: r.normalised)
     key = BY_NAME[binding.name].setting
-    section, name = key.split(".")
     kind, step = RELAX_STEPS[key]
-    from .requirements import _BY_SECTION
-
-    field = _BY_SECTION[section][name].field
-    current = getattr(getattr(req, section), field)
+    current = req.value(key)
     if current is None:
         from .link import cp_allowance_s
 

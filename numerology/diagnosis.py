@@ -36,6 +36,12 @@ class Relaxation:
     value_si: float
     current_si: float
     direction: str  # "at most" / "at least"
+    dimension: str = "ratio"  # how to show the values (see RELAXABLE)
+
+    @property
+    def current(self) -> str:
+        """The value the requirement file has now, written as the suggestion is."""
+        return quantity_string(self.current_si, self.dimension)
 
     def to_json(self) -> dict:
         return {"key": self.key, "value": self.value, "value_si": self.value_si, "current_si": self.current_si}
@@ -82,19 +88,7 @@ RELAXABLE = (
     ("radio.snr", "db", +1),
 )
 
-_UNITS = {"bitrate": ("bit/s", 1.0), "time": ("s", 1.0), "frequency": ("Hz", 1.0)}
-
-
-def _current(req: Requirements, key: str):
-    section, name = key.split(".")
-    table = getattr(req, section)
-    for field in (name, name + "_bps", name + "_s", name + "_mps", name + "_hz", name + "_db"):
-        if hasattr(table, field):
-            return getattr(table, field)
-    return None
-
-
-def _quantity_string(value: float, dimension: str) -> str:
+def quantity_string(value: float, dimension: str) -> str:
     if dimension == "speed":
         return f"{value * 3.6:.4g} km/h"
     if dimension == "db":
@@ -121,7 +115,7 @@ def relaxations(req: Requirements) -> list[Relaxation]:
     """For each movable key, the nearest value that makes the request feasible."""
     out = []
     for key, dimension, direction in RELAXABLE:
-        current = _current(req, key)
+        current = req.value(key)
         if current is None:
             continue
         if key == "goals.throughput" and not current > 0:
@@ -184,7 +178,7 @@ def _relax_one(req, key, dimension, direction, current) -> Relaxation | None:
         text = _round_towards(good, bad, dimension, digits)
         value = _parse_back(text, dimension)
         if _feasible(req.replace(key, value)):
-            return Relaxation(key, text, value, current, "at least" if direction > 0 else "at most")
+            return Relaxation(key, text, value, current, "at least" if direction > 0 else "at most", dimension)
     return None
 
 
@@ -216,11 +210,11 @@ def _round_towards(good: float, bad: float, dimension: str, digits: int) -> str:
     scale = 3.6 if dimension == "speed" else 1.0
     x = good * scale
     if x <= 0:
-        return _quantity_string(0.0, dimension)
+        return quantity_string(0.0, dimension)
     exponent = math.floor(math.log10(abs(x))) - (digits - 1)
     step = 10.0**exponent
     x = math.ceil(x / step) * step if good > bad else math.floor(x / step) * step
-    return _quantity_string(x / scale, dimension)
+    return quantity_string(x / scale, dimension)
 
 
 @dataclass(frozen=True)

@@ -178,6 +178,12 @@ SECTIONS = ("environment", "radio", "goals", "rules", "search")
 _BY_SECTION = {s: {k.name: k for k in SCHEMA if k.section == s} for s in SECTIONS}
 
 
+def key(dotted_key: str) -> Key:
+    """The declaration of a requirement key such as ``"goals.max_latency"``."""
+    section, name = dotted_key.split(".")
+    return _BY_SECTION[section][name]
+
+
 def _section_class(section: str):
     fields = [(k.field, Any, field(default=None)) for k in _BY_SECTION[section].values()]
     return make_dataclass(section.capitalize() + "Requirements", fields, frozen=True)
@@ -207,10 +213,14 @@ class Requirements:
         """A copy with one key set to an SI value (used for what-ifs and relaxations)."""
         import dataclasses
 
-        section, name = dotted_key.split(".")
-        key = _BY_SECTION[section][name]
-        table = dataclasses.replace(getattr(self, section), **{key.field: value})
-        return dataclasses.replace(self, **{section: table})
+        declared = key(dotted_key)
+        table = dataclasses.replace(getattr(self, declared.section), **{declared.field: value})
+        return dataclasses.replace(self, **{declared.section: table})
+
+    def value(self, dotted_key: str):
+        """The SI value of a key (its default when the file left it out)."""
+        declared = key(dotted_key)
+        return getattr(getattr(self, declared.section), declared.field)
 
 
 # --- parsing -------------------------------------------------------------------
