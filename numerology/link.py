@@ -174,60 +174,63 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
     """Mean-square channel-estimation error of each design's pilot lattice (relative to channel power).
 
     With an :class:`~numerology.environment.EnvironmentBatch` (taps on an extra
-    last axis) every site has its own frequency and time correlations; sites
-    with identical channels are solved once.
+    last axis) every site has its own frequency and time correlations. Each
+    distinct case (lattice, numerology, pilot SINR, channel) is solved once,
+    and each distinct correlation is tabulated once: a frequency correlation
+    per (power-delay profile, subcarrier spacing), a time correlation per
+    (maximum Doppler, symbol duration).
     """
     delays, powers = environment.taps
-    f_d, spectrum, k = environment.max_doppler_hz, environment.doppler_spectrum, environment.k_factor
-    # Many candidates share a lattice, a numerology and a pilot SINR: solve each distinct case once.
-    keys = [designs.pilot_freq_spacing, designs.pilot_time_spacing, designs.pilot_shift,
-            designs.subcarrier_spacing_hz, designs.symbol_s, pilot_sinr]
+    spectrum, k = environment.doppler_spectrum, environment.k_factor
     batch = np.ndim(delays) > 1
     if batch:
-        channel, first_site = _channel_index(delays, powers, f_d)
-        keys.append(channel)
-    columns = np.broadcast_arrays(*keys)
+        profile, profile_site = _row_index(np.concatenate([delays, powers], axis=-1))
+        delays = delays.reshape(-1, delays.shape[-1])[profile_site]  # one row per distinct profile
+        powers = powers.reshape(-1, powers.shape[-1])[profile_site]
+    else:
+        profile = 0
+        delays, powers = np.asarray(delays, float)[None, :], np.asarray(powers, float)[None, :]
+    columns = np.broadcast_arrays(designs.pilot_freq_spacing, designs.pilot_time_spacing, designs.pilot_shift,
+                                  designs.subcarrier_spacing_hz, designs.symbol_s, pilot_sinr, profile,
+                                  environment.max_doppler_hz)
     shape = columns[0].shape
     table = np.ascontiguousarray(np.stack([np.asarray(c, dtype=float).ravel() for c in columns], axis=1))
-    unique, inverse = _unique_rows(table)
-    if batch:
-        site = first_site[unique[:, 6].astype(np.int64)]  # a site holding each distinct channel
-        delays = delays.reshape(-1, delays.shape[-1])[site]
-        powers = powers.reshape(-1, powers.shape[-1])[site]
-        f_d = np.broadcast_to(f_d, channel.shape).ravel()[site][:, None]
-
-    def freq_correlation(lag_hz):
-        if batch:  # one profile per candidate row
-            return _frequency_correlation_rows(lag_hz, delays, powers)
-        # One profile for all: rows with the same spacing have the same lags, so compute each spacing once.
-        lag_hz = np.asarray(lag_hz, dtype=float)
-        rows, inverse = np.unique(lag_hz, axis=0, return_inverse=True)
-        return delay.frequency_correlation(rows, delays, powers)[np.ravel(inverse)]
-
-    def time_correlation(lag_s):
-        return doppler.doppler_autocorrelation(lag_s, f_d, spectrum, k)
-
-    mse = pilots.estimation_mse(
-        unique[:, 0].astype(np.int64), unique[:, 1].astype(np.int64), unique[:, 2].astype(np.int64),
-        unique[:, 3], unique[:, 4], freq_correlation, time_correlation, unique[:, 5], estimator=req.rules.estimator)
-    return np.asarray(mse)[np.ravel(inverse)].reshape(shape)
+    unique, inverse = _unique_rows(table)  # one row per distinct case
+    lattice = unique[:, :3].astype(np.int64)
+    k_max, l_max = pilots.correlation_lags(*lattice.T, estimator=req.rules.estimator)
+    f_keys, f_row = _unique_rows(np.ascontiguousarray(unique[:, [3, 6]]))  # (spacing, profile)
+    site = f_keys[:, 1].astype(np.int64)
+    f_table = _frequency_correlation_rows(np.arange(k_max + 1) * f_keys[:, :1], delays[site], powers[site])
+    t_keys, t_row = _unique_rows(np.ascontiguousarray(unique[:, [4, 7]]))  # (symbol duration, Doppler)
+    t_table = doppler.doppler_autocorrelation(np.arange(l_max + 1) * t_keys[:, :1], t_keys[:, 1:], spectrum, k)
+    mse = pilots.estimation_mse_tabulated(*lattice.T, unique[:, 5], f_table, f_row, t_table, t_row,
+                                          estimator=req.rules.estimator)
+    return np.asarray(mse)[inverse].reshape(shape)
 
 
 def _unique_rows(table):
-    """np.unique(table, axis=0, return_inverse=True) for a float table, sorting whole rows as bytes (faster)."""
-    keys = table.view(np.dtype((np.void, table.dtype.itemsize * table.shape[1]))).ravel()
-    _, first, inverse = np.unique(keys, return_index=True, return_inverse=True)
-    return table[first], np.ravel(inverse)
+    """np.unique(table, axis=0, return_inverse=True) for a 2-D float table (rows compared as bytes: faster)."""
+    index, first = _row_index(table)
+    return table[first], index
 
 
-def _channel_index(delays_s, powers, max_doppler_hz):
-    """For an environment batch: an index per site, equal for identical channels, and a site of each index."""
-    taps = delays_s.shape[-1]
-    f_d = np.broadcast_to(max_doppler_hz, delays_s.shape[:-1]).reshape(-1, 1)
-    rows = np.ascontiguousarray(np.concatenate([delays_s.reshape(-1, taps), powers.reshape(-1, taps), f_d], axis=1))
-    as_bytes = rows.view(np.dtype((np.void, rows.dtype.itemsize * rows.shape[1]))).ravel()  # one sortable key per row
-    _, first, inverse = np.unique(as_bytes, return_index=True, return_inverse=True)
-    return np.ravel(inverse).reshape(delays_s.shape[:-1]), first
+def _row_index(rows):
+    """An index per row of ``rows`` (..., m), equal for identical rows, and a flat row holding each index.
+
+    Rows are first told apart by one random projection each (a sort of n
+    floats rather than of n m-float byte strings); the grouping is then
+    checked exactly, and whole rows are sorted as bytes only if two different
+    rows happened to share a projection.
+    """
+    flat = np.ascontiguousarray(rows.reshape(-1, rows.shape[-1]), dtype=float)
+    projection = flat @ np.random.default_rng(0).uniform(1.0, 2.0, flat.shape[1])
+    _, first, inverse = np.unique(projection, return_index=True, return_inverse=True)
+    inverse = np.ravel(inverse)
+    if not np.array_equal(flat[first][inverse], flat):  # a collision, or NaN: compare whole rows
+        keys = flat.view(np.dtype((np.void, flat.dtype.itemsize * flat.shape[1]))).ravel()
+        _, first, inverse = np.unique(keys, return_index=True, return_inverse=True)
+        inverse = np.ravel(inverse)
+    return inverse.reshape(rows.shape[:-1]), first
 
 
 def _frequency_correlation_rows(lag_hz, delays_s, powers):

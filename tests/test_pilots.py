@@ -12,7 +12,9 @@ from scipy.special import j0
 from numerology.errors import InputError
 from numerology.pilots import (
     aliasing_scale,
+    correlation_lags,
     estimation_mse,
+    estimation_mse_tabulated,
     estimator_weights,
     max_delay_for_lattice,
     max_doppler_for_lattice,
@@ -449,3 +451,61 @@ def test_separable_cell_average_equals_per_target_average(d_f, d_t, data, snr):
     fast = estimation_mse(d_f, d_t, shift, df, ts, freq, time, np.full(100, snr))
     # atol 1e-10: both forms compute 1 - q with q close to 1, so round-off of order 1e-12 (absolute) remains
     assert_allclose(fast, np.mean(weights.mse), rtol=1e-8, atol=1e-10)
+
+
+@pytest.mark.parametrize("size", [16, 6, 9, 1])
+def test_trace_of_solve_real_form_equals_complex_solve(size):
+    """tr(A^-1 S) through the real form of a centrohermitian A equals the complex solve (the real form is
+    A. Lee, Linear Algebra Appl. 29, 1980; odd sizes take the complex solve)."""
+    from numerology.pilots import _trace_of_solve
+
+    rng = np.random.default_rng(size)
+    half = rng.standard_normal((size // 2, 2))
+    middle = [[0.0, 0.0]] if size % 2 else np.zeros((0, 2))
+    pos = np.concatenate([half, middle, -half[::-1]])  # a point-symmetric window
+    taus, powers = rng.uniform(0, 1, 5), rng.uniform(0.1, 1, 5)
+    lag = pos[:, None, :] - pos[None, :, :]
+    corr = (powers * np.exp(-2j * np.pi * lag[..., :1] * taus)).sum(-1) * np.exp(-lag[..., 1] ** 2)
+    a = np.stack([corr + noise * np.eye(size) for noise in (1e-6, 0.01, 1.0)])
+    m = rng.standard_normal((3, size, 40)) + 1j * rng.standard_normal((3, size, 40))
+    s = m @ m.conj().transpose(0, 2, 1)
+    expected = np.einsum("nii->n", np.linalg.solve(a, s)).real
+    assert_allclose(_trace_of_solve(a, s), expected, rtol=1e-9)
+
+
+@pytest.mark.parametrize("n_candidates", [40, 400])
+def test_tabulated_correlations_equal_callables(n_candidates):
+    """Shared correlation tables give what per-candidate callables give, whether few rows are shared by
+    many candidates (400: grouped by row) or most candidates have their own (40: gathered)."""
+    rng = np.random.default_rng(n_candidates)
+    lattice = (np.array([6, 8, 4, 4])[:, None], np.array([4, 14, 2, 1])[:, None], np.array([3, 2, 0, 1])[:, None])
+    df, ts = 30 * kHz, 1 / 28e3
+    rms = np.array([0.1, 0.4, 1.0]) * us
+    f_d = np.array([5.0, 80.0, 250.0, 600.0, 20.0])
+    f_row = rng.integers(0, rms.size, n_candidates)
+    t_row = rng.integers(0, f_d.size, n_candidates)
+    snr = rng.uniform(3.0, 3000.0, n_candidates)
+    k_max, l_max = correlation_lags(*lattice)
+    f_table = 1 / (1 + 2j * np.pi * np.arange(k_max + 1) * df * rms[:, None])
+    t_table = j0(2 * np.pi * f_d[:, None] * np.arange(l_max + 1) * ts)
+    got = estimation_mse_tabulated(*lattice, snr, f_table, f_row, t_table, t_row)
+    shape = (4, n_candidates)  # candidates flattened in C order for the callables
+    rms_c, f_d_c = (np.broadcast_to(x, shape).ravel()[:, None] for x in (rms[f_row], f_d[t_row]))
+    expected = estimation_mse(*lattice, df, ts, lambda lag: 1 / (1 + 2j * np.pi * lag * rms_c),
+                              lambda lag: j0(2 * np.pi * f_d_c * lag), snr, candidate_shape=shape)
+    assert got.shape == (4, n_candidates)
+    # atol 1e-10: the trace form computes 1 - q with q close to 1, so round-off of order 1e-12 (absolute) remains
+    assert_allclose(got, expected, rtol=1e-8, atol=1e-10)
+
+
+def test_tabulated_correlations_are_checked():
+    k_max, l_max = correlation_lags(6, 4, 3)
+    good_f, good_t = np.ones((1, k_max + 1)), np.ones((2, l_max + 1))
+    with pytest.raises(InputError, match="freq_table.*needs lags"):
+        estimation_mse_tabulated(6, 4, 3, 10.0, good_f[:, :-1], 0, good_t, 0)
+    with pytest.raises(InputError, match="time_table.*asks for row 2"):
+        estimation_mse_tabulated(6, 4, 3, 10.0, good_f, 0, good_t, 2)
+    with pytest.raises(InputError, match="normalised"):
+        estimation_mse_tabulated(6, 4, 3, 10.0, 2 * good_f, 0, good_t, 0)
+    with pytest.raises(InputError, match="non-finite"):
+        estimation_mse_tabulated(6, 4, 3, 10.0, good_f, 0, np.full((1, l_max + 1), np.nan), 0)
