@@ -329,3 +329,81 @@ def solve(con: Console, result) -> None:
     for note in env.notes:
         con.print(Text(f"note: {note}", style="yellow"))
     con.print(Text(CAUTION, style="dim"))
+
+
+def with_progress(con: Console, run):
+    """Run ``run(progress)`` under a rich progress bar; ``progress(done, total)`` advances it."""
+    from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
+
+    with Progress(TextColumn("simulating frames"), BarColumn(), TextColumn("{task.completed}/{task.total}"),
+                  TimeRemainingColumn(), console=con, transient=True) as bar:
+        task = bar.add_task("frames", total=None)
+
+        def progress(done, total):
+            bar.update(task, completed=done, total=total)
+
+        return run(progress)
+
+
+def verification(con: Console, design, result) -> None:
+    data = result.to_json()
+    verdict = (Text("model and simulation agree", style="bold green") if result.agree
+               else Text("model and simulation DISAGREE", style="bold red"))
+    con.print(Text.assemble("Verification of ", (design.name, "bold"), ": ", verdict))
+    con.print(design_line(design))
+    table = Table(title=f"Measured ({data['frames']} frames, {data['resource_elements']:,} resource elements, "
+                        f"seed {data['seed']}) against predicted", box=box.SIMPLE_HEAVY, title_justify="left")
+    for column, justify in (("figure", "left"), ("measured", "right"), ("confidence interval", "right"),
+                            ("predicted", "right"), ("difference", "right"), ("tolerance", "right"), ("", "left")):
+        table.add_column(column, justify=justify)
+    labels = {"interference": "Doppler + echo interference (perfect channel knowledge)",
+              "estimation": "channel-estimation MSE", "sinr_eff": "effective SINR"}
+    for check in result.checks:
+        low, high = check.ci
+        diff = check.difference_db
+        table.add_row(labels.get(check.name, check.name), _db_or_na(check.measured),
+                      f"{_db_or_na(low)} .. {_db_or_na(high)}", _db_or_na(check.predicted),
+                      f"{diff:+.2f} dB" if diff is not None else "n/a",
+                      f"{check.tolerance_db:.1f} dB", Text("ok", style="green") if check.agree
+                      else Text("off", style="bold red"))
+    con.print(table)
+    for note in result.notes:
+        con.print(Text(f"note: {note}", style="yellow"))
+
+
+def _db_or_na(value) -> str:
+    if value is None or not value > 0 or not math.isfinite(value):
+        return "n/a" if value is None or not math.isfinite(value or 0.0) else "-inf dB"
+    return db(10 * math.log10(value), 2)
+
+
+def sweep(con: Console, design, result, out) -> None:
+    summary = result.summary()
+    con.print(Text.assemble("Sweep of ", (design.name, "bold"), f" over {summary.sites} sites: ",
+                            (f"{summary.passed} pass", "bold green" if summary.passed == summary.sites else "bold"),
+                            f", {summary.sites - summary.passed} fail"))
+    con.print(design_line(design))
+    table = Table(box=box.SIMPLE_HEAVY)
+    for column, justify in (("site", "left"), ("", "left"), ("binding rule", "left"), ("margin", "right"),
+                            ("net rate", "right"), ("SINR", "right")):
+        table.add_column(column, justify=justify)
+    names = result.binding_rule
+    shown = range(min(summary.sites, 40))
+    for i in shown:
+        rule = next(r for r in result.rules if r.name == names[i])
+        margin = result.margin[rule.name][i]
+        margin_text = (db(margin) if rule.convention == "db" else f"{100 * margin:+.1f} %") if math.isfinite(margin) \
+            else "unbounded"
+        table.add_row(str(result.sites.names[i]), Text("PASS", style="green") if result.passed[i]
+                      else Text("FAIL", style="bold red"), names[i], margin_text,
+                      engineering(float(result.net_throughput_bps[i]), "bit/s"), db(float(result.effective_sinr_db[i])))
+    con.print(table)
+    if summary.sites > 40:
+        con.print(f"({summary.sites - 40} more sites: use --out FILE.csv or --json)", style="dim")
+    if summary.failures:
+        con.print("Rules failing most: " + ", ".join(f"{k} at {v} site{'s' if v != 1 else ''}" for k, v in summary.failures.items()))
+    if summary.worst_site is not None:
+        con.print(f"Worst site: {summary.worst_site} (line {summary.worst_line}), binding {summary.worst_rule}")
+    if out is not None:
+        con.print(f"Per-site results written to {out}")
+    con.print(Text(CAUTION, style="dim"))

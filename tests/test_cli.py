@@ -315,3 +315,28 @@ def test_version_through_python_dash_m():
     assert done.stdout.startswith("numerology ")
     assert "EVA" in done.stdout  # the bundled tables are listed
     assert done.stderr == ""
+
+
+# --- sweep and verify: the reports for people ------------------------------------------------
+
+
+def test_sweep_terminal_report(capsys):
+    """The sweep's terminal report: a verdict line, one row per site, the failing rules and the caution."""
+    sites = EXAMPLES / "harbour_sites.csv"
+    status, out, err = run(capsys, "sweep", HARBOUR, "--sites", sites, "--best")
+    assert status == 1  # some invented sites fail on purpose
+    assert "Traceback" not in err
+    assert out.startswith("Sweep of design 1 over 13 sites:")
+    assert "quay crane 1 (north berth)" in out and "PASS" in out and "FAIL" in out
+    assert "Rules failing most:" in out and "Worst site:" in out
+    assert " 1 sites" not in out  # singular where one site fails
+    assert "Caution" in out
+
+
+def test_verify_terminal_report(capsys):
+    """The verification's terminal report: the verdict and the measured-against-predicted table."""
+    status, out, err = run(capsys, "verify", HARBOUR, "--best", "--frames", "4", "--seed", "3")
+    assert status in (0, 1) and "Traceback" not in err
+    assert out.lstrip().startswith("Verification of design 1: model and simulation ")  # after the progress bar
+    for row in ("Doppler + echo interference", "channel-estimation MSE", "effective SINR"):
+        assert row in out
