@@ -40,7 +40,9 @@ from __future__ import annotations
 import csv
 import difflib
 import io
+import itertools
 import math
+import operator
 import re
 from dataclasses import dataclass, field
 from functools import lru_cache
@@ -158,25 +160,20 @@ def load_sites(path, req: Requirements) -> Sites:
         is malformed (unknown column, missing or wrong unit, repeated column).
     """
     where = str(path)
-    entries = _content_lines(Path(path))
-    if not entries:
+    numbers, texts = _content_lines(Path(path))
+    if not texts:
         raise InputError(where, f"has no header; expected a first row such as {_HEADER_EXAMPLE!r}")
-    header_line, header_text = entries[0]
-    header = next(csv.reader([header_text]))
-    columns = _parse_header(header, f"{where}: line {header_line}")
-    body = entries[1:]
-    if not body:
+    header = next(csv.reader([texts[0]]))
+    columns = _parse_header(header, f"{where}: line {numbers[0]}")
+    if len(texts) == 1:
         raise InputError(where, "has a header but no sites")
-    lines = np.array([line for line, _ in body], dtype=np.int64)
-    rows = list(csv.reader([text for _, text in body]))
-    problems: list = []
+    lines = numbers[1:]
     width = len(columns)
-    bad = np.fromiter(map(len, rows), dtype=np.int64, count=len(rows)) != width
+    flat, counts = _split_rows(texts[1:], lines, where)
+    bad = counts != width
     names = ", ".join(name for name, _, _ in columns)
-    for i in np.flatnonzero(bad):
-        problems.append((int(lines[i]), f"expected {width} values ({names}), got {len(rows[i])}"))
-        rows[i] = [""] * width
-    cells = list(zip(*rows))
+    problems: list = [(int(lines[i]), f"expected {width} values ({names}), got {counts[i]}") for i in np.flatnonzero(bad)]
+    cells = _columns(flat, counts, width, bad)
     given = {}
     for j, (name, unit, factor) in enumerate(columns):
         given[name] = _read_column(name, unit, factor, cells[j], lines, problems, bad)
@@ -234,12 +231,67 @@ def sites_from_values(req: Requirements, *, names=None, max_speed_mps=None, max_
     return _resolve(req, given, lines, bad, problems, "<memory>")
 
 
-def _content_lines(path: Path) -> list:
-    """(line number, text) of the lines that are neither blank nor comments."""
+def _content_lines(path: Path):
+    """Line numbers (int array) and texts of the lines that are neither blank nor comments."""
     text = read_text(path, "a CSV file of sites")
-    # Most lines start with a value: test the first character before stripping.
-    return [(number, line) for number, line in enumerate(text.splitlines(), start=1)
-            if (line[:1] not in " \t#" and line) or (line.strip() and not line.lstrip().startswith("#"))]
+    lines = text.splitlines()
+    # Most lines start with a value: only those starting with a blank, '#' or nothing need a closer look.
+    heads = np.array(list(map(_FIRST_CHARACTER, lines)), dtype=str)
+    keep = (heads != "") & (heads != "#") & ~np.strings.isspace(heads)
+    for i in np.flatnonzero(~keep & (heads != "")):
+        line = lines[i]
+        keep[i] = bool(line.strip()) and not line.lstrip().startswith("#")
+    numbers = np.flatnonzero(keep) + 1
+    texts = lines if keep.all() else [lines[i] for i in numbers - 1]
+    return numbers, texts
+
+
+_FIRST_CHARACTER = operator.itemgetter(slice(0, 1))
+
+
+def _split_rows(texts: list, lines, where: str):
+    """The cells of all rows in one flat list, and the number of cells of each row.
+
+    CSV as the ``csv`` module reads it (comma separated, double quotes). Rows
+    without a quote character are plain comma-separated text, which is what
+    ``csv`` gives for them: then the whole body is split at once and the
+    commas of each row are counted on its bytes.
+    """
+    body = "\n".join(texts)
+    if '"' not in body:
+        flat = body.replace("\n", ",").split(",")
+        raw = np.frombuffer(body.encode("utf-8"), dtype=np.uint8)  # a comma or newline byte is never part of
+        ends = np.append(np.flatnonzero(raw == ord("\n")), raw.size)  # a multi-byte character
+        commas_before = np.searchsorted(np.flatnonzero(raw == ord(",")), ends)
+        return flat, np.diff(commas_before, prepend=0) + 1
+    reader = csv.reader(texts)
+    try:
+        rows = list(reader)
+    except csv.Error as exc:  # e.g. a cell longer than the csv module's field limit
+        raise InputError(f"{where}: line {lines[reader.line_num - 1]}", f"cannot be read as CSV ({exc})") from None
+    counts = np.fromiter(map(len, rows), dtype=np.int64, count=len(rows))
+    return list(itertools.chain.from_iterable(rows)), counts
+
+
+def _columns(flat: list, counts, width: int, bad):
+    """The cells of each column (a list or an object array per column); rows of the wrong width get empty cells."""
+    if not bad.any():
+        return [flat[j::width] for j in range(width)]
+    starts = np.cumsum(counts) - counts
+    index = starts[:, None] + np.arange(width)
+    index[bad] = len(flat)  # an empty cell, appended below
+    table = np.array(flat + [""], dtype=object)[index]
+    return [table[:, j] for j in range(width)]
+
+
+def _distinct(values):
+    """The distinct values (in order of first appearance) and each value's index among them.
+
+    Hashing, not sorting: many cells repeat (few units, profiles, rounded
+    numbers), and each distinct one is then looked at once.
+    """
+    index = dict(zip(dict.fromkeys(values), itertools.count()))
+    return list(index), np.fromiter(map(index.__getitem__, values), dtype=np.intp, count=len(values))
 
 
 def _parse_header(header: list, place: str) -> list:
@@ -289,9 +341,9 @@ def _problem(problems, bad, lines, index, message, index_in_message=False):
 def _read_column(name, unit, factor, cells, lines, problems, bad):
     """Convert one column of text cells: SI floats (nan where empty), names, or profile names."""
     if name == "site":
-        return np.array([cell.strip() for cell in cells], dtype=object)
+        return np.array(list(map(str.strip, cells)), dtype=object)
     if name == "profile":
-        return _profile_values(np.array([cell.strip() for cell in cells], dtype=object), lines, problems, bad)
+        return _profile_values(cells, lines, problems, bad, strip=True)
     numbers, given = _numbers(cells)
     for i in np.flatnonzero(~given & ~bad):
         if cells[i].strip():
@@ -304,21 +356,21 @@ def _read_column(name, unit, factor, cells, lines, problems, bad):
 
 
 def _numbers(cells):
-    """Floats of text cells and a mask of the cells that hold one (Python's float: surrounding blanks allowed)."""
-    n = len(cells)
-    try:
-        return np.fromiter(map(float, cells), dtype=float, count=n), np.ones(n, dtype=bool)
-    except ValueError:  # empty or unreadable cells: one at a time
-        pass
-    numbers = np.full(n, np.nan)
-    given = np.zeros(n, dtype=bool)
-    for i, cell in enumerate(cells):
+    """Floats of text cells and a mask of the cells that hold one.
+
+    Python's ``float`` reads each distinct text once (surrounding blanks
+    allowed); an empty or unreadable cell gives nan and False.
+    """
+    distinct, codes = _distinct(cells)
+    values = np.full(len(distinct), np.nan)
+    readable = np.zeros(len(distinct), dtype=bool)
+    for i, text in enumerate(distinct):
         try:
-            numbers[i] = float(cell)
-            given[i] = True
+            values[i] = float(text)
+            readable[i] = True
         except ValueError:
             pass
-    return numbers, given
+    return values[codes], readable[codes]
 
 
 def _check_range(name, key, si, mask, shown, unit, factor, lines, problems, bad, index_in_message=False):
@@ -332,21 +384,25 @@ def _check_range(name, key, si, mask, shown, unit, factor, lines, problems, bad,
                  f"and at most {key.high / factor:g}{unit_text}", index_in_message)
 
 
-def _profile_values(text, lines, problems, bad, index_in_message=False):
-    """Catalogue names (canonical case), "none", or "" for an empty cell."""
-    canonical, unknown = {}, {}
-    for value in set(text.tolist()):
+def _profile_values(text, lines, problems, bad, index_in_message=False, strip=False):
+    """Catalogue names (canonical case), "none", or "" for an empty cell; each distinct cell looked up once."""
+    distinct, codes = _distinct(text)
+    canonical = np.empty(len(distinct), dtype=object)
+    unknown = {}
+    for i, raw in enumerate(distinct):
+        value = raw.strip() if strip else raw
         if value == "" or value.lower() == NO_PROFILE:
-            canonical[value] = value.lower()
+            canonical[i] = value.lower()
         else:
             try:
-                canonical[value] = profiles.get_profile(value).name
+                canonical[i] = profiles.get_profile(value).name
             except ValueError as exc:
-                canonical[value] = ""
-                unknown[value] = str(exc)
-    for i in np.flatnonzero([value in unknown for value in text.tolist()]):
-        _problem(problems, bad, lines, i, f"profile: {unknown[text[i]]}", index_in_message)
-    return np.array([canonical[value] for value in text.tolist()], dtype=object)
+                canonical[i] = ""
+                unknown[i] = str(exc)
+    if unknown:
+        for i in np.flatnonzero(np.isin(codes, list(unknown))):
+            _problem(problems, bad, lines, i, f"profile: {unknown[codes[i]]}", index_in_message)
+    return canonical[codes]
 
 
 def _resolve(req: Requirements, given: dict, lines, bad, problems: list, where: str) -> Sites:
@@ -375,16 +431,18 @@ def _resolve(req: Requirements, given: dict, lines, bad, problems: list, where: 
     rms, _ = column("rms_delay_spread", req_value(env.rms_delay_spread_s))
     site_max, has_max = column("max_excess_delay", None)
     cell = given.get("profile", np.full(n, "", dtype=object))
-    named = (cell != "") & (cell != NO_PROFILE)
-    profile = np.where(cell == "", env.profile or "", np.where(named, cell, "")).astype(object)
-    profile_file = np.where(cell == "", env.profile_file or "", "").astype(object)
+    empty = cell == ""
+    named = ~empty & (cell != NO_PROFILE)
+    profile = np.where(empty, env.profile or "", np.where(named, cell, "")).astype(object)
+    profile_file = np.where(empty, env.profile_file or "", "").astype(object)
     # A site naming a profile replaces the requirement's delay shape, max excess delay included.
     max_delay = np.where(has_max, site_max, np.where(named, np.nan, req_value(env.max_excess_delay_s)))
-    has_profile = (profile != "") | (profile_file != "")
+    has_profile = named | (empty & bool(env.profile or env.profile_file))
 
     normalised = np.zeros(n, dtype=bool)
-    for name in set(profile[has_profile & (profile != "")].tolist()):
-        normalised |= (profile == name) & profiles.get_profile(name).normalised
+    for name in set(profile[has_profile].tolist()) - {""}:
+        if profiles.get_profile(name).normalised:
+            normalised |= profile == name
     checks = (
         (has_profile & has_max & named,
          lambda i: f"max_excess_delay: profile {profile[i]} fixes the max excess delay; leave this cell empty "
@@ -407,20 +465,23 @@ def _resolve(req: Requirements, given: dict, lines, bad, problems: list, where: 
             _problem(problems, bad, lines, i, message(i))
     names = given.get("site")
     if names is None:
-        names = np.array([f"line {line}" if line else f"site {i + 1}" for i, line in enumerate(lines.tolist())],
-                         dtype=object)
+        label = "line {}".format if lines.all() else "site {}".format  # sites made in memory have no lines
+        names = np.array(list(map(label, lines.tolist() if lines.all() else range(1, n + 1))), dtype=object)
     else:
         names = names.copy()
-        for i in np.flatnonzero(names == ""):
-            names[i] = f"line {lines[i]}"
-        first = {}
-        for i, name in enumerate(names.tolist()):
-            if bad[i]:
-                continue
-            if name in first:
-                _problem(problems, bad, lines, i, f"site: {name!r} is already used on line {first[name]}")
-            else:
-                first[name] = int(lines[i])
+        empty = np.flatnonzero(names == "")
+        names[empty] = list(map("line {}".format, lines[empty].tolist()))
+        valid = np.flatnonzero(~bad)
+        valid_names = names[valid].tolist()
+        if len(set(valid_names)) < len(valid_names):
+            _, codes = _distinct(valid_names)
+            # _distinct numbers values in order of first appearance: a first use is a new largest index.
+            first_use = codes > np.maximum.accumulate(np.concatenate([[-1], codes[:-1]]))
+            first_line = lines[valid[first_use]]
+            for k in np.flatnonzero(~first_use):
+                i = valid[k]
+                _problem(problems, bad, lines, i,
+                         f"site: {names[i]!r} is already used on line {first_line[codes[k]]}")
     keep = ~bad
     notes = []
     return Sites(
