@@ -222,6 +222,48 @@ def test_batch_environment_site_is_derive_environment():
         assert site.notes == single.notes
 
 
+def test_environments_of_repeated_sites_are_each_site_alone():
+    """Sites sharing profile shapes (each evaluated once, then stretched per site) get their own environment:
+    a batch of 60 mixed sites with many repeats equals each site built alone, and derive_environment."""
+    req = requirements_from_mapping(SMALL)
+    rng = np.random.default_rng(3)
+    n = 60
+    span = rng.choice([np.nan, 0.0, 1e-6, 2e-6, 3e-6], n)
+    rms = rng.choice([np.nan, 0.0, 100e-9, 300e-9, 900e-9], n)
+    profile = rng.choice(["", "none", "TDL-C", "EVA"], n)
+    # keep the combinations a requirement file accepts (a profile fixes the span; rms <= span / 2)
+    span = np.where(np.isin(profile, ["TDL-C", "EVA"]), np.nan, np.where(rms > span / 2, np.nan, span))
+    rms = np.where((profile == "TDL-C") & np.isnan(rms), 200e-9, rms)
+    rms = np.where((profile == "TDL-C") & (rms == 0), 50e-9, np.where((profile == "EVA") & (rms == 0), np.nan, rms))
+    profile = np.where((profile == "none") & np.isnan(span) & np.isnan(rms), "", profile)
+    values = dict(max_speed_mps=rng.choice([0.0, 5.0, 30.0], n), carrier_hz=rng.choice([2e9, 0.3e9], n),
+                  max_excess_delay_s=span, rms_delay_spread_s=rms, profile=profile)
+    sites = sites_from_values(req, **values)
+    assert sites.problems == () and sites.size == n
+    batch = site_environments(req, sites)
+    for i in range(n):
+        alone = site_environments(req, sites_from_values(req, **{k: v[i:i + 1] for k, v in values.items()}))
+        for name in batch.PER_SITE:
+            expected, got = getattr(alone, name)[0], getattr(batch, name)[i]
+            if isinstance(got, str):
+                assert got == expected, name
+            else:
+                # Same arithmetic; the coherence bandwidth's bisection stops once every shape of the call is
+                # within 1e-12 relative (delay.coherence_bandwidth_hz), so batch-mates move its last digits.
+                rtol = 2e-12 if name == "coherence_bandwidth_hz" else 1e-15
+                assert_allclose(got, expected, rtol=rtol, atol=0, err_msg=name)
+        keep = batch.powers[i] > 0
+        assert_allclose(batch.delays_s[i][keep], alone.delays_s[0][alone.powers[0] > 0], rtol=1e-15, atol=0)
+        assert_allclose(batch.powers[i][keep], alone.powers[0][alone.powers[0] > 0], rtol=1e-15, atol=0)
+        assert batch.notes_at(i) == alone.notes_at(0)
+    for i in range(0, n, 7):  # and, to round-off, what derive_environment gives on its own route
+        single = derive_environment(sites.requirements_for(req, i))
+        site = batch.at(i)
+        for name in ("coherence_bandwidth_hz", "rms_delay_spread_s", "mean_excess_delay_s", "max_excess_delay_s"):
+            assert_allclose(getattr(site, name), getattr(single, name), rtol=RTOL, atol=1e-18, err_msg=name)
+        assert site.notes == single.notes
+
+
 @settings(max_examples=8, deadline=None)
 @given(st.lists(st.tuples(st.sampled_from([0.0, 3.0, 30.0, 60.0]), st.sampled_from([50e-9, 300e-9, 1.4e-6]),
                           st.sampled_from([5.0, 20.0])), min_size=1, max_size=5))
