@@ -30,9 +30,10 @@ other rows are still evaluated; a malformed header or an unreadable file is
 an :class:`~numerology.errors.InputError`.
 
 The evaluation is vectorised over sites: the environments are built as one
-:class:`~numerology.environment.EnvironmentBatch` (a loop runs over the few
-distinct profiles only) and ``link.evaluate`` broadcasts the design against
-it, so a sweep gives the same numbers as ``check`` site by site.
+:class:`~numerology.environment.EnvironmentBatch` (each distinct profile
+shape evaluated once, then stretched per site) and ``link.evaluate``
+broadcasts the design against it, so a sweep gives the same numbers as
+``check`` site by site.
 """
 
 from __future__ import annotations
