@@ -7,7 +7,8 @@ temporary folder, then times on one core
     internally; no conversion or checks), and
 (b) ``load_sites`` + ``sweep`` of the example's best design,
 
-and prints both with their ratio and the target (10^5 sites under 2 s).
+and prints both with their ratio and the target (10^5 sites under 2 s), with
+``load_sites`` and ``site_environments`` alone as ratios to (a).
 
 Run: python benchmarks/bench_sweep.py [rows]
 """
@@ -81,13 +82,16 @@ def main():
             return sweep.sweep(req, design, sweep.load_sites(path, req))
 
         parse_s = best_of(raw_parse, 3)
-        load_s = best_of(lambda: sweep.load_sites(path, req), 1)
+        load_s = best_of(lambda: sweep.load_sites(path, req), 3)
+        sites = sweep.load_sites(path, req)
+        environments_s = best_of(lambda: sweep.site_environments(req, sites), 3)
         total_s = best_of(load_and_sweep, 1)
         result = load_and_sweep()
     print(f"design: {design}")
     print(f"{rows:,} sites: {result.summary()}")
     print(f"(a) raw CSV parse:       {parse_s:8.3f} s")
-    print(f"    load_sites alone:    {load_s:8.3f} s")
+    print(f"    load_sites alone:    {load_s:8.3f} s   (ratio to (a): {load_s / parse_s:.1f})")
+    print(f"    site_environments:   {environments_s:8.3f} s   (ratio to (a): {environments_s / parse_s:.1f})")
     print(f"(b) load_sites + sweep:  {total_s:8.3f} s   (target: {TARGET_ROWS:,} sites under {TARGET_S:g} s"
           f"{'' if rows == TARGET_ROWS else f'; {TARGET_S * rows / TARGET_ROWS:.3g} s at this size'})")
     print(f"ratio (b)/(a): {total_s / parse_s:.1f}; ratio (b)/target: {total_s / (TARGET_S * rows / TARGET_ROWS):.2f}")

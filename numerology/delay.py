@@ -581,7 +581,8 @@ def echo_interference(delays_s, powers, guard_s, useful_symbol_s):
     taps) the sum is taken with prefix sums over the sorted taps and a binary
     search per design, O(designs log taps) time and O(designs) memory:
     with x = tau - T_g and u = x/T_u, 1 - w = 2u - u^2 for 0 < x <= T_u and 1
-    beyond. A stack of profiles is evaluated by plain broadcasting.
+    beyond. A stack of profiles (the sites of a sweep) is evaluated by plain
+    broadcasting of the same expression, u clipped to [0, 1].
 
     References
     ----------
@@ -601,8 +602,10 @@ def echo_interference(delays_s, powers, guard_s, useful_symbol_s):
     if not np.all(g >= 0):
         raise ValueError("guard_s must be >= 0")
     if d.ndim > 1:
-        w = echo_weight(d, g[..., None], tu[..., None])
-        interference = np.sum((1.0 - w) * p, axis=-1)
+        # Every tap with power lies at or after the first arrival, where 1 - w = 2u - u^2 with
+        # u = (tau - T_g)/T_u clipped to [0, 1] (no pre-echo branch; taps before it have no power).
+        u = np.clip((d - g[..., None]) / tu[..., None], 0.0, 1.0)
+        interference = np.einsum("...k,...k->...", u * (2.0 - u), p)
     else:
         g, tu = np.broadcast_arrays(g, tu)
         order = np.argsort(d, kind="stable")

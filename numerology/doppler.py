@@ -195,6 +195,8 @@ def _autocorrelation_x(x, spectrum: str, p_los):
     if spectrum == "flat":
         return np.sinc(2.0 * x) + 0j
     z = 2.0 * np.pi * x
+    if not np.any(p_los):  # no line of sight (classical, or K = 0): R = J0, and the complex exponential is costly
+        return sp.j0(z) + 0j
     r = p_los * np.exp(1j * z) + (1.0 - p_los) * sp.j0(z)
     if spectrum == "tracked":
         r = r * np.exp(-1j * z * p_los)  # remove the centroid P_los f_D
@@ -388,9 +390,12 @@ def coherence_time_s(max_doppler_hz, spectrum="classical", k_factor=0.0, correla
     p_los = _los_power(k_factor, spectrum)
     rho = _floats("correlation", correlation)
     _require("correlation", rho, (rho > 0) & (rho < 1), "a correlation level between 0 and 1 (exclusive)")
-    f_d, p_los, rho = np.broadcast_arrays(f_d, p_los, rho)
+    # The crossing depends on (P_los, rho) only: solved once per distinct pair, then divided by each f_D.
+    # (a sweep: one K and one level for every site, so one root for all, whatever the number of sites)
+    p_los, rho = np.broadcast_arrays(p_los, rho)
     pairs, inverse = np.unique(np.stack([p_los.ravel(), rho.ravel()], axis=1), axis=0, return_inverse=True)
-    x_c = _first_crossing_x(spectrum, pairs[:, 0], pairs[:, 1])[inverse.ravel()].reshape(f_d.shape)
+    x_c = _first_crossing_x(spectrum, pairs[:, 0], pairs[:, 1])[inverse.ravel()].reshape(p_los.shape)
+    f_d, x_c = np.broadcast_arrays(f_d, x_c)
     with np.errstate(divide="ignore", over="ignore"):  # a denormal f_D gives an infinite coherence time
         t_c = np.where(f_d > 0, x_c / np.where(f_d > 0, f_d, 1.0), np.inf)
     return _result(t_c)

@@ -30,9 +30,10 @@ other rows are still evaluated; a malformed header or an unreadable file is
 an :class:`~numerology.errors.InputError`.
 
 The evaluation is vectorised over sites: the environments are built as one
-:class:`~numerology.environment.EnvironmentBatch` (a loop runs over the few
-distinct profiles only) and ``link.evaluate`` broadcasts the design against
-it, so a sweep gives the same numbers as ``check`` site by site.
+:class:`~numerology.environment.EnvironmentBatch` (each distinct profile
+shape evaluated once, then stretched per site) and ``link.evaluate``
+broadcasts the design against it, so a sweep gives the same numbers as
+``check`` site by site.
 """
 
 from __future__ import annotations
@@ -40,7 +41,9 @@ from __future__ import annotations
 import csv
 import difflib
 import io
+import itertools
 import math
+import operator
 import re
 from dataclasses import dataclass, field
 from functools import lru_cache
@@ -158,25 +161,20 @@ def load_sites(path, req: Requirements) -> Sites:
         is malformed (unknown column, missing or wrong unit, repeated column).
     """
     where = str(path)
-    entries = _content_lines(Path(path))
-    if not entries:
+    numbers, texts = _content_lines(Path(path))
+    if not texts:
         raise InputError(where, f"has no header; expected a first row such as {_HEADER_EXAMPLE!r}")
-    header_line, header_text = entries[0]
-    header = next(csv.reader([header_text]))
-    columns = _parse_header(header, f"{where}: line {header_line}")
-    body = entries[1:]
-    if not body:
+    header = next(csv.reader([texts[0]]))
+    columns = _parse_header(header, f"{where}: line {numbers[0]}")
+    if len(texts) == 1:
         raise InputError(where, "has a header but no sites")
-    lines = np.array([line for line, _ in body], dtype=np.int64)
-    rows = list(csv.reader([text for _, text in body]))
-    problems: list = []
+    lines = numbers[1:]
     width = len(columns)
-    bad = np.fromiter(map(len, rows), dtype=np.int64, count=len(rows)) != width
+    flat, counts = _split_rows(texts[1:], lines, where)
+    bad = counts != width
     names = ", ".join(name for name, _, _ in columns)
-    for i in np.flatnonzero(bad):
-        problems.append((int(lines[i]), f"expected {width} values ({names}), got {len(rows[i])}"))
-        rows[i] = [""] * width
-    cells = list(zip(*rows))
+    problems: list = [(int(lines[i]), f"expected {width} values ({names}), got {counts[i]}") for i in np.flatnonzero(bad)]
+    cells = _columns(flat, counts, width, bad)
     given = {}
     for j, (name, unit, factor) in enumerate(columns):
         given[name] = _read_column(name, unit, factor, cells[j], lines, problems, bad)
@@ -234,12 +232,67 @@ def sites_from_values(req: Requirements, *, names=None, max_speed_mps=None, max_
     return _resolve(req, given, lines, bad, problems, "<memory>")
 
 
-def _content_lines(path: Path) -> list:
-    """(line number, text) of the lines that are neither blank nor comments."""
+def _content_lines(path: Path):
+    """Line numbers (int array) and texts of the lines that are neither blank nor comments."""
     text = read_text(path, "a CSV file of sites")
-    # Most lines start with a value: test the first character before stripping.
-    return [(number, line) for number, line in enumerate(text.splitlines(), start=1)
-            if (line[:1] not in " \t#" and line) or (line.strip() and not line.lstrip().startswith("#"))]
+    lines = text.splitlines()
+    # Most lines start with a value: only those starting with a blank, '#' or nothing need a closer look.
+    heads = np.array(list(map(_FIRST_CHARACTER, lines)), dtype=str)
+    keep = (heads != "") & (heads != "#") & ~np.strings.isspace(heads)
+    for i in np.flatnonzero(~keep & (heads != "")):
+        line = lines[i]
+        keep[i] = bool(line.strip()) and not line.lstrip().startswith("#")
+    numbers = np.flatnonzero(keep) + 1
+    texts = lines if keep.all() else [lines[i] for i in numbers - 1]
+    return numbers, texts
+
+
+_FIRST_CHARACTER = operator.itemgetter(slice(0, 1))
+
+
+def _split_rows(texts: list, lines, where: str):
+    """The cells of all rows in one flat list, and the number of cells of each row.
+
+    CSV as the ``csv`` module reads it (comma separated, double quotes). Rows
+    without a quote character are plain comma-separated text, which is what
+    ``csv`` gives for them: then the whole body is split at once and the
+    commas of each row are counted on its bytes.
+    """
+    body = "\n".join(texts)
+    if '"' not in body:
+        flat = body.replace("\n", ",").split(",")
+        raw = np.frombuffer(body.encode("utf-8"), dtype=np.uint8)  # a comma or newline byte is never part of
+        ends = np.append(np.flatnonzero(raw == ord("\n")), raw.size)  # a multi-byte character
+        commas_before = np.searchsorted(np.flatnonzero(raw == ord(",")), ends)
+        return flat, np.diff(commas_before, prepend=0) + 1
+    reader = csv.reader(texts)
+    try:
+        rows = list(reader)
+    except csv.Error as exc:  # e.g. a cell longer than the csv module's field limit
+        raise InputError(f"{where}: line {lines[reader.line_num - 1]}", f"cannot be read as CSV ({exc})") from None
+    counts = np.fromiter(map(len, rows), dtype=np.int64, count=len(rows))
+    return list(itertools.chain.from_iterable(rows)), counts
+
+
+def _columns(flat: list, counts, width: int, bad):
+    """The cells of each column (a list or an object array per column); rows of the wrong width get empty cells."""
+    if not bad.any():
+        return [flat[j::width] for j in range(width)]
+    starts = np.cumsum(counts) - counts
+    index = starts[:, None] + np.arange(width)
+    index[bad] = len(flat)  # an empty cell, appended below
+    table = np.array(flat + [""], dtype=object)[index]
+    return [table[:, j] for j in range(width)]
+
+
+def _distinct(values):
+    """The distinct values (in order of first appearance) and each value's index among them.
+
+    Hashing, not sorting: many cells repeat (few units, profiles, rounded
+    numbers), and each distinct one is then looked at once.
+    """
+    index = dict(zip(dict.fromkeys(values), itertools.count()))
+    return list(index), np.fromiter(map(index.__getitem__, values), dtype=np.intp, count=len(values))
 
 
 def _parse_header(header: list, place: str) -> list:
@@ -289,9 +342,9 @@ def _problem(problems, bad, lines, index, message, index_in_message=False):
 def _read_column(name, unit, factor, cells, lines, problems, bad):
     """Convert one column of text cells: SI floats (nan where empty), names, or profile names."""
     if name == "site":
-        return np.array([cell.strip() for cell in cells], dtype=object)
+        return np.array(list(map(str.strip, cells)), dtype=object)
     if name == "profile":
-        return _profile_values(np.array([cell.strip() for cell in cells], dtype=object), lines, problems, bad)
+        return _profile_values(cells, lines, problems, bad, strip=True)
     numbers, given = _numbers(cells)
     for i in np.flatnonzero(~given & ~bad):
         if cells[i].strip():
@@ -304,21 +357,21 @@ def _read_column(name, unit, factor, cells, lines, problems, bad):
 
 
 def _numbers(cells):
-    """Floats of text cells and a mask of the cells that hold one (Python's float: surrounding blanks allowed)."""
-    n = len(cells)
-    try:
-        return np.fromiter(map(float, cells), dtype=float, count=n), np.ones(n, dtype=bool)
-    except ValueError:  # empty or unreadable cells: one at a time
-        pass
-    numbers = np.full(n, np.nan)
-    given = np.zeros(n, dtype=bool)
-    for i, cell in enumerate(cells):
+    """Floats of text cells and a mask of the cells that hold one.
+
+    Python's ``float`` reads each distinct text once (surrounding blanks
+    allowed); an empty or unreadable cell gives nan and False.
+    """
+    distinct, codes = _distinct(cells)
+    values = np.full(len(distinct), np.nan)
+    readable = np.zeros(len(distinct), dtype=bool)
+    for i, text in enumerate(distinct):
         try:
-            numbers[i] = float(cell)
-            given[i] = True
+            values[i] = float(text)
+            readable[i] = True
         except ValueError:
             pass
-    return numbers, given
+    return values[codes], readable[codes]
 
 
 def _check_range(name, key, si, mask, shown, unit, factor, lines, problems, bad, index_in_message=False):
@@ -332,21 +385,25 @@ def _check_range(name, key, si, mask, shown, unit, factor, lines, problems, bad,
                  f"and at most {key.high / factor:g}{unit_text}", index_in_message)
 
 
-def _profile_values(text, lines, problems, bad, index_in_message=False):
-    """Catalogue names (canonical case), "none", or "" for an empty cell."""
-    canonical, unknown = {}, {}
-    for value in set(text.tolist()):
+def _profile_values(text, lines, problems, bad, index_in_message=False, strip=False):
+    """Catalogue names (canonical case), "none", or "" for an empty cell; each distinct cell looked up once."""
+    distinct, codes = _distinct(text)
+    canonical = np.empty(len(distinct), dtype=object)
+    unknown = {}
+    for i, raw in enumerate(distinct):
+        value = raw.strip() if strip else raw
         if value == "" or value.lower() == NO_PROFILE:
-            canonical[value] = value.lower()
+            canonical[i] = value.lower()
         else:
             try:
-                canonical[value] = profiles.get_profile(value).name
+                canonical[i] = profiles.get_profile(value).name
             except ValueError as exc:
-                canonical[value] = ""
-                unknown[value] = str(exc)
-    for i in np.flatnonzero([value in unknown for value in text.tolist()]):
-        _problem(problems, bad, lines, i, f"profile: {unknown[text[i]]}", index_in_message)
-    return np.array([canonical[value] for value in text.tolist()], dtype=object)
+                canonical[i] = ""
+                unknown[i] = str(exc)
+    if unknown:
+        for i in np.flatnonzero(np.isin(codes, list(unknown))):
+            _problem(problems, bad, lines, i, f"profile: {unknown[codes[i]]}", index_in_message)
+    return canonical[codes]
 
 
 def _resolve(req: Requirements, given: dict, lines, bad, problems: list, where: str) -> Sites:
@@ -375,16 +432,18 @@ def _resolve(req: Requirements, given: dict, lines, bad, problems: list, where: 
     rms, _ = column("rms_delay_spread", req_value(env.rms_delay_spread_s))
     site_max, has_max = column("max_excess_delay", None)
     cell = given.get("profile", np.full(n, "", dtype=object))
-    named = (cell != "") & (cell != NO_PROFILE)
-    profile = np.where(cell == "", env.profile or "", np.where(named, cell, "")).astype(object)
-    profile_file = np.where(cell == "", env.profile_file or "", "").astype(object)
+    empty = cell == ""
+    named = ~empty & (cell != NO_PROFILE)
+    profile = np.where(empty, env.profile or "", np.where(named, cell, "")).astype(object)
+    profile_file = np.where(empty, env.profile_file or "", "").astype(object)
     # A site naming a profile replaces the requirement's delay shape, max excess delay included.
     max_delay = np.where(has_max, site_max, np.where(named, np.nan, req_value(env.max_excess_delay_s)))
-    has_profile = (profile != "") | (profile_file != "")
+    has_profile = named | (empty & bool(env.profile or env.profile_file))
 
     normalised = np.zeros(n, dtype=bool)
-    for name in set(profile[has_profile & (profile != "")].tolist()):
-        normalised |= (profile == name) & profiles.get_profile(name).normalised
+    for name in set(profile[has_profile].tolist()) - {""}:
+        if profiles.get_profile(name).normalised:
+            normalised |= profile == name
     checks = (
         (has_profile & has_max & named,
          lambda i: f"max_excess_delay: profile {profile[i]} fixes the max excess delay; leave this cell empty "
@@ -407,20 +466,23 @@ def _resolve(req: Requirements, given: dict, lines, bad, problems: list, where: 
             _problem(problems, bad, lines, i, message(i))
     names = given.get("site")
     if names is None:
-        names = np.array([f"line {line}" if line else f"site {i + 1}" for i, line in enumerate(lines.tolist())],
-                         dtype=object)
+        label = "line {}".format if lines.all() else "site {}".format  # sites made in memory have no lines
+        names = np.array(list(map(label, lines.tolist() if lines.all() else range(1, n + 1))), dtype=object)
     else:
         names = names.copy()
-        for i in np.flatnonzero(names == ""):
-            names[i] = f"line {lines[i]}"
-        first = {}
-        for i, name in enumerate(names.tolist()):
-            if bad[i]:
-                continue
-            if name in first:
-                _problem(problems, bad, lines, i, f"site: {name!r} is already used on line {first[name]}")
-            else:
-                first[name] = int(lines[i])
+        empty = np.flatnonzero(names == "")
+        names[empty] = list(map("line {}".format, lines[empty].tolist()))
+        valid = np.flatnonzero(~bad)
+        valid_names = names[valid].tolist()
+        if len(set(valid_names)) < len(valid_names):
+            _, codes = _distinct(valid_names)
+            # _distinct numbers values in order of first appearance: a first use is a new largest index.
+            first_use = codes > np.maximum.accumulate(np.concatenate([[-1], codes[:-1]]))
+            first_line = lines[valid[first_use]]
+            for k in np.flatnonzero(~first_use):
+                i = valid[k]
+                _problem(problems, bad, lines, i,
+                         f"site: {names[i]!r} is already used on line {first_line[codes[k]]}")
     keep = ~bad
     notes = []
     return Sites(
@@ -462,10 +524,12 @@ def site_environments(req: Requirements, sites: Sites, notes: bool = True) -> En
     Returns
     -------
     EnvironmentBatch
-        Shape ``(sites.size,)``. Taps are built per distinct profile (a loop
-        over the few profiles, vectorised over the sites of each): a profile
-        scaled to a site's rms spread has its delays multiplied by the scale,
-        and its coherence bandwidth divided by it.
+        Shape ``(sites.size,)``. Every site's taps are one of a few profile
+        shapes (a catalogue or file profile, an assumed exponential or two-ray
+        profile, a bounded profile per distinct rms/span ratio) stretched by a
+        factor: the delays are multiplied by it, the delay statistics too,
+        and the coherence bandwidth is divided by it. Each shape is evaluated
+        once, on its own taps; the sites only gather and scale.
 
     References
     ----------
@@ -494,20 +558,21 @@ def site_environments(req: Requirements, sites: Sites, notes: bool = True) -> En
     k_factor = 0.0 if env.k_factor_db is None else 10 ** (env.k_factor_db / 10)
     spectrum = env.doppler_spectrum
 
-    delays, powers, names, sources, coherence_bw, kind = _site_taps(req, sites)
+    shapes, shape, scale = _site_shapes(req, sites)
+    delays = shapes.delays_s[shape] * scale[:, None]
     stated = sites.max_excess_delay_s
-    max_excess = np.where(np.isnan(stated), delay.max_excess_delay_s(delays, powers, rules.delay_threshold_db), stated)
+    max_excess = np.where(np.isnan(stated), shapes.max_excess_delay_s[shape] * scale, stated)
     batch = EnvironmentBatch(
         carrier_hz=carrier, propagation_speed_mps=c, wavelength_m=np.asarray(doppler.wavelength_m(carrier, c), float),
         speed_mps=speed, max_doppler_hz=f_d, doppler_spectrum=spectrum, k_factor=k_factor,
         doppler_centroid_hz=_array(doppler.doppler_centroid_hz(f_d, spectrum, k_factor), n),
         doppler_spread_hz=_array(doppler.doppler_spread_hz(f_d, spectrum, k_factor), n),
         coherence_correlation=rho, coherence_time_s=_array(doppler.coherence_time_s(f_d, spectrum, k_factor, rho), n),
-        delays_s=delays, powers=powers, profile_name=names, profile_source=sources,
-        mean_excess_delay_s=_array(delay.mean_excess_delay_s(delays, powers), n),
-        rms_delay_spread_s=_array(delay.rms_delay_spread_s(delays, powers), n),
-        max_excess_delay_s=np.asarray(max_excess, float), coherence_bandwidth_hz=coherence_bw, notes=())
-    return _with_notes(batch, req, sites, fraction, has_speed, kind) if notes else batch
+        delays_s=delays, powers=shapes.powers[shape], profile_name=shapes.name[shape],
+        profile_source=shapes.source[shape], mean_excess_delay_s=shapes.mean_excess_delay_s[shape] * scale,
+        rms_delay_spread_s=shapes.rms_delay_spread_s[shape] * scale, max_excess_delay_s=max_excess,
+        coherence_bandwidth_hz=shapes.coherence_bandwidth_hz[shape] / scale, notes=())
+    return _with_notes(batch, req, sites, fraction, has_speed, shapes.cause[shape]) if notes else batch
 
 
 def _array(x, n):
@@ -518,13 +583,35 @@ def _array(x, n):
 _SINGLE, _EXPONENTIAL, _TWO_RAY, _BOUNDED_EXP, _BOUNDED_FLAT, _PROFILE = range(6)
 
 
-def _site_taps(req: Requirements, sites: Sites):
-    """Padded taps (n, K), profile names and sources, coherence bandwidths, and a kind code per site."""
+@dataclass(frozen=True)
+class _Shapes:
+    """Profile shapes of unit scale, one per row (taps padded with zero power), and their statistics."""
+
+    delays_s: np.ndarray  # (shapes, taps)
+    powers: np.ndarray  # (shapes, taps), each row summing to 1
+    name: np.ndarray  # object
+    source: np.ndarray  # object
+    cause: np.ndarray  # int: what derive_environment's notes depend on (the kind, and which profile)
+    mean_excess_delay_s: np.ndarray
+    rms_delay_spread_s: np.ndarray
+    max_excess_delay_s: np.ndarray
+    coherence_bandwidth_hz: np.ndarray
+
+
+def _site_shapes(req: Requirements, sites: Sites):
+    """The distinct profile shapes of the sites, the shape of each site, and its stretch factor.
+
+    A site's taps are ``delays_s[shape] * scale`` and ``powers[shape]``; its
+    delay statistics are the shape's times ``scale`` and its coherence
+    bandwidth the shape's divided by ``scale`` (round-off apart, what
+    derive_environment gives from the stretched taps).
+    """
     rules = req.rules
     rho = rules.coherence_correlation
     n = sites.size
     rms, span = sites.rms_delay_spread_s, sites.max_excess_delay_s
-    has_profile = (sites.profile != "") | (sites.profile_file != "")
+    labels, label = _distinct(list(zip(sites.profile.tolist(), sites.profile_file.tolist())))
+    has_profile = np.array([name != "" or path != "" for name, path in labels], dtype=bool)[label]
     kind = np.full(n, _PROFILE)
     free = ~has_profile
     kind[free & np.isnan(span) & (rms == 0)] = _SINGLE
@@ -532,57 +619,69 @@ def _site_taps(req: Requirements, sites: Sites):
     kind[free & np.isnan(span) & (rms > 0)] = _EXPONENTIAL
     kind[free & (span > 0) & np.isnan(rms)] = _TWO_RAY
     both = free & (span > 0) & (rms >= 0)
-    pieces = []  # (site indices, delays (m, k), powers (m, k), name, source, coherence bandwidth (m,))
+    shape = np.zeros(n, dtype=np.intp)
+    scale = np.ones(n)
+    rows = []  # (delays (m, k), powers (m, k), name(s), source, cause(s), coherence bandwidth (m,))
 
-    if np.any(kind == _SINGLE):
-        idx = np.flatnonzero(kind == _SINGLE)
-        pieces.append((idx, np.zeros((idx.size, 1)), np.ones((idx.size, 1)), "single path (no delay spread)", "given",
-                       np.full(idx.size, np.inf)))
-    if np.any(kind == _EXPONENTIAL):
-        idx = np.flatnonzero(kind == _EXPONENTIAL)
-        d1, p1, bc1 = _unit_profile("exponential", rules.delay_threshold_db, rho)  # delays scale with the rms
-        sigma = rms[idx, None]
-        pieces.append((idx, d1 * sigma, np.broadcast_to(p1, (idx.size, p1.size)), "exponential",
-                       "assumed from rms_delay_spread", bc1 / sigma[:, 0]))
-    if np.any(kind == _TWO_RAY):
-        idx = np.flatnonzero(kind == _TWO_RAY)
-        d1, p1, bc1 = _unit_profile("two rays", 0.0, rho)
-        tau = span[idx, None]
-        pieces.append((idx, d1 * tau, np.broadcast_to(p1, (idx.size, 2)), "two equal rays",
-                       "assumed from max_excess_delay", bc1 / tau[:, 0]))
-    if np.any(both):
-        idx = np.flatnonzero(both)
-        d, p, flat, bc = _bounded_profiles(span[idx], rms[idx], rho)
-        kind[idx] = np.where(flat, _BOUNDED_FLAT, _BOUNDED_EXP)
-        pieces.append((idx, d, p, np.where(flat, "flat profile with two equal rays at its ends", "exponential"),
-                       "assumed from max_excess_delay and rms_delay_spread", bc))
-    for label in sorted(set(zip(sites.profile[has_profile].tolist(), sites.profile_file[has_profile].tolist()))):
-        name, path = label
-        idx = np.flatnonzero(has_profile & (sites.profile == name) & (sites.profile_file == path))
+    def add(sites_of, index, factor, *row):
+        if not sites_of.any():  # an unused shape would only widen the padded taps of every site
+            return
+        shape[sites_of] = sum(len(r[5]) for r in rows) + index
+        scale[sites_of] = factor
+        rows.append(row)
+
+    add(kind == _SINGLE, 0, 1.0, np.zeros((1, 1)), np.ones((1, 1)), "single path (no delay spread)", "given",
+        _SINGLE, np.array([np.inf]))
+    d1, p1, bc1 = _unit_profile("exponential", rules.delay_threshold_db, rho)  # delays scale with the rms
+    exponential = kind == _EXPONENTIAL
+    add(exponential, 0, rms[exponential], d1[None], p1[None], "exponential", "assumed from rms_delay_spread",
+        _EXPONENTIAL, np.array([bc1]))
+    d1, p1, bc1 = _unit_profile("two rays", 0.0, rho)
+    two_ray = kind == _TWO_RAY
+    add(two_ray, 0, span[two_ray], d1[None], p1[None], "two equal rays", "assumed from max_excess_delay", _TWO_RAY,
+        np.array([bc1]))
+    if both.any():
+        ratios, which = _distinct((rms[both] / span[both]).tolist())
+        t, p, flat, bc = _bounded_profiles(np.array(ratios, dtype=float), rho)
+        add(both, which, span[both], np.broadcast_to(t, p.shape), p,
+            np.where(flat, "flat profile with two equal rays at its ends", "exponential"),
+            "assumed from max_excess_delay and rms_delay_spread", np.where(flat, _BOUNDED_FLAT, _BOUNDED_EXP), bc)
+    for j, (name, path) in enumerate(labels):
+        if not (name or path):
+            continue
+        on = label == j
         stamp = Path(path).stat().st_mtime_ns if path else 0
         profile, d0, p0, bc0 = _template(name, path, stamp, rho)
-        sigma = rms[idx]
+        sigma = rms[on]
         scaled = ~np.isnan(sigma)
         if profile.normalised:
             factor = np.where(scaled, sigma, 1.0)  # 3GPP TR 38.901 sect. 7.7.3: delays in units of the rms spread
         else:
             factor = np.where(scaled, sigma / profile.rms_delay_spread_s, 1.0)  # as Profile.scaled
-        pieces.append((idx, d0[None, :] * factor[:, None], np.broadcast_to(p0, (idx.size, p0.size)), profile.name,
-                       profile.source, bc0 / factor))
+        add(on, 0, factor, d0[None], p0[None], profile.name, profile.source, _PROFILE + 1 + j, np.array([bc0]))
 
-    width = max((piece[1].shape[1] for piece in pieces), default=1)
-    delays = np.zeros((n, width))
-    powers = np.zeros((n, width))  # zero-power padding taps play no part
-    names = np.empty(n, dtype=object)
-    sources = np.empty(n, dtype=object)
-    coherence_bw = np.full(n, np.inf)
-    for idx, d, p, name, source, bc in pieces:
-        delays[idx, :d.shape[1]] = d
-        powers[idx, :p.shape[1]] = p
-        names[idx] = name
-        sources[idx] = source
-        coherence_bw[idx] = bc
-    return delays, powers, names, sources, coherence_bw, kind
+    width = max(r[0].shape[1] for r in rows)
+    count = sum(len(r[5]) for r in rows)
+    delays = np.zeros((count, width))
+    powers = np.zeros((count, width))  # zero-power padding taps play no part
+    columns = {key: np.empty(count, dtype=object) for key in ("name", "source")}
+    cause = np.empty(count, dtype=np.int64)
+    bandwidth = np.empty(count)
+    start = 0
+    for d, p, name, source, code, bc in rows:
+        part = slice(start, start + len(bc))
+        delays[part, :d.shape[1]] = d
+        powers[part, :p.shape[1]] = p
+        columns["name"][part] = name
+        columns["source"][part] = source
+        cause[part] = code
+        bandwidth[part] = bc
+        start += len(bc)
+    shapes = _Shapes(delays, powers, columns["name"], columns["source"], cause,
+                     np.atleast_1d(delay.mean_excess_delay_s(delays, powers)),
+                     np.atleast_1d(delay.rms_delay_spread_s(delays, powers)),
+                     np.atleast_1d(delay.max_excess_delay_s(delays, powers, rules.delay_threshold_db)), bandwidth)
+    return shapes, shape, scale
 
 
 @lru_cache(maxsize=64)
@@ -606,21 +705,20 @@ def _template(name: str, path: str, stamp: int, rho: float):
     return profile, d0, p0, float(delay.coherence_bandwidth_hz(d0, p0, rho))
 
 
-def _bounded_profiles(span_s, rms_s, rho):
-    """environment.bounded_profile for many (span, rms) pairs at once.
+def _bounded_profiles(ratio, rho):
+    """environment.bounded_profile on a unit span for many rms/span ratios at once.
 
-    The shape depends on rms/span only: the exponential decay rate is found
-    by bisection (vectorised over the distinct ratios) to the precision of
-    the Brent's-method root in ``bounded_profile``.
+    Returns the unit delays (ASSUMED_TAPS,), the powers (m, ASSUMED_TAPS)
+    summing to 1, whether each is the flat kind, and each shape's coherence
+    bandwidth on the unit span. The exponential decay rate is found by
+    bisection (vectorised over the ratios) to the precision of the Brent's-
+    method root in ``bounded_profile``.
     """
     from .environment import ASSUMED_TAPS
 
-    t = np.linspace(0.0, span_s, ASSUMED_TAPS, axis=-1)  # (m, 64), as np.linspace(0, span, 64) per site
     unit = np.linspace(0.0, 1.0, ASSUMED_TAPS)
-    flat_rms = delay.rms_delay_spread_s(t, np.ones_like(t))
-    exponential = rms_s < flat_rms
-    ratio, inverse = np.unique(rms_s / span_s, return_inverse=True)
-    inverse = np.ravel(inverse)
+    flat_rms = delay.rms_delay_spread_s(unit, np.ones_like(unit))
+    exponential = ratio < flat_rms
     # Bisection on log(rate) over [-30, 12], as bounded_profile's bracket: the rms falls as the rate grows.
     lo = np.full(ratio.size, -30.0)
     hi = np.full(ratio.size, 12.0)
@@ -629,25 +727,25 @@ def _bounded_profiles(span_s, rms_s, rho):
         too_wide = delay.rms_delay_spread_s(unit, np.exp(-np.exp(mid)[:, None] * unit)) > ratio
         lo = np.where(too_wide, mid, lo)
         hi = np.where(too_wide, hi, mid)
-    log_rate = 0.5 * (lo + hi)[inverse]
-    decay = np.exp(-np.exp(log_rate)[:, None] * t / span_s[:, None])
+    decay = np.exp(-np.exp(0.5 * (lo + hi))[:, None] * unit)
     # Above the flat profile's rms: a flat bed plus two equal rays at the ends, variance matched.
-    w = (rms_s**2 - flat_rms**2) / (span_s**2 / 4 - flat_rms**2)
-    bed = (1 - w)[:, None] * np.ones_like(t) / ASSUMED_TAPS
+    w = (ratio**2 - flat_rms**2) / (1 / 4 - flat_rms**2)
+    bed = np.broadcast_to((1 - w)[:, None] / ASSUMED_TAPS, decay.shape).copy()
     bed[:, 0] += w / 2
     bed[:, -1] += w / 2
     powers = np.where(exponential[:, None], decay, bed)
     powers = powers / powers.sum(axis=-1, keepdims=True)
-    # Coherence bandwidth of each distinct shape on a unit span, then scaled by 1/span.
-    shapes, first = np.unique(np.round(rms_s / span_s, 15), return_index=True)
-    unit_powers = powers[first]
-    bc_unit = np.asarray(delay.coherence_bandwidth_hz(np.broadcast_to(unit, unit_powers.shape), unit_powers, rho))
-    which = np.searchsorted(shapes, np.round(rms_s / span_s, 15))
-    return t, powers, ~exponential, bc_unit[which] / span_s
+    bc = delay.coherence_bandwidth_hz(np.broadcast_to(unit, powers.shape), powers, rho)
+    return unit, powers, ~exponential, np.atleast_1d(bc)
 
 
-def _with_notes(batch: EnvironmentBatch, req: Requirements, sites: Sites, fraction, has_speed, kind):
-    """Attach the notes derive_environment gives, computed once per distinct combination of causes."""
+def _with_notes(batch: EnvironmentBatch, req: Requirements, sites: Sites, fraction, has_speed, cause):
+    """Attach the notes derive_environment gives, computed once per distinct combination of causes.
+
+    ``cause``: per site, a small code of its delay-profile kind (and profile);
+    the others are the carrier against the propagation speed and the
+    fractional bandwidth (the note states its percentage).
+    """
     import dataclasses
 
     n = sites.size
@@ -655,33 +753,24 @@ def _with_notes(batch: EnvironmentBatch, req: Requirements, sites: Sites, fracti
         return batch
     c = req.environment.propagation_speed_mps
     carrier = sites.carrier_hz
-    wide = np.where(fraction > WIDEBAND_FRACTION, np.round(100 * fraction), -1)  # the note states the percentage
-    causes = ((c < 1e7) & (carrier > 1e7)).astype(np.int64)
-    for code, size in (((c > 1e7) & (carrier < 1e6) & has_speed, 2), (_codes(wide), n + 1), (kind, 8),
-                       (_codes(sites.profile), n + 1), (_codes(sites.profile_file), n + 1)):
-        _, causes = np.unique(causes * size + code, return_inverse=True)  # renumber: the key stays small
-        causes = np.ravel(causes)
-    _, first, inverse = np.unique(causes, return_index=True, return_inverse=True)
-    inverse = np.ravel(inverse)
+    wide = np.where(fraction > WIDEBAND_FRACTION, np.round(100 * fraction), -1)
+    _, wide_code = _distinct(wide.tolist())
+    key = (((c < 1e7) & (carrier > 1e7)) * 2 + ((c > 1e7) & (carrier < 1e6) & has_speed)).astype(np.int64)
+    for code in (wide_code, cause):
+        key = key * (int(code.max()) + 1) + code
+        present = np.bincount(key) > 0
+        key = (np.cumsum(present) - 1)[key]  # renumbered 0, 1, ...: the key stays small
     masks: dict = {}
     order: list = []  # one order of all texts that keeps each site's notes in derive_environment's order
-    for j, site in enumerate(first):
+    for j in range(int(key.max()) + 1):
+        group = key == j
         previous = None
-        for text in derive_environment(sites.requirements_for(req, int(site))).notes:
-            masks[text] = masks.get(text, np.zeros(n, dtype=bool)) | (inverse == j)
+        for text in derive_environment(sites.requirements_for(req, int(np.argmax(group)))).notes:
+            masks[text] = masks.get(text, np.zeros(n, dtype=bool)) | group
             if text not in order:
                 order.insert(0 if previous is None else order.index(previous) + 1, text)
             previous = text
     return dataclasses.replace(batch, notes=tuple((text, masks[text]) for text in order))
-
-
-def _codes(values):
-    """Small integer codes of the distinct values of an array (few distinct values)."""
-    values = np.asarray(values)
-    if values.dtype != object:
-        return np.ravel(np.unique(values, return_inverse=True)[1])
-    index = {value: i for i, value in enumerate(set(values.tolist()))}
-    return np.array([index[value] for value in values.tolist()], dtype=np.int64)
 
 
 # --- the sweep -------------------------------------------------------------------

@@ -319,6 +319,22 @@ def test_echo_interference_of_a_stack_matches_one_profile_at_a_time():
         assert_allclose(together[:, k], alone, rtol=1e-12, atol=1e-15)
 
 
+def test_echo_interference_of_padded_profiles_is_the_weighted_sum():
+    """A stack with zero-power padding (and a zero-power tap ahead of the first arrival, as the sites of a
+    sweep are padded): the interference is sum p (1 - w) over the taps with power, from echo_weight itself."""
+    d = np.array([[-5.0, 0.0, 3.0, 9.0, 0.0], [2.0, 4.0, 30.0, 0.0, 0.0]]) * us
+    p = np.array([[0.0, 1.0, 0.5, 0.25, 0.0], [0.7, 0.2, 0.1, 0.0, 0.0]])
+    guards = np.array([0.0, 2.5, 6.0])[:, None] * us  # 3 designs x 2 profiles
+    useful, interference = delay.echo_interference(d, p, guards, 8 * us)
+    for k in range(2):
+        has = p[k] > 0
+        excess = d[k][has] - d[k][has].min()  # window on the first arrival
+        weights = delay.echo_weight(excess[None, :], guards, 8 * us)
+        expected = np.sum((1 - weights) * p[k][has], axis=-1) / p[k].sum()
+        assert_allclose(interference[:, k], expected, rtol=1e-14, atol=1e-16)
+    assert_allclose(useful + interference, 1.0, rtol=1e-15)
+
+
 def test_path_difference_delay():
     """1 km of path difference is 3.336 us; indoors tens of metres give about 100 ns
     (common practice); 1.5 m at 1500 m/s in sea water is 1 ms (common practice)."""

@@ -464,3 +464,13 @@ def test_bad_input_names_its_place(call, place):
     with pytest.raises(InputError) as info:
         call()
     assert info.value.place == place
+
+
+def test_coherence_time_of_arrays_is_each_value_alone():
+    """Per-site arrays of f_D, K and rho (the root is solved once per distinct (K, rho)) give each value's own result."""
+    f_d = np.array([0.0, 50.0, 120.0, 50.0, 120.0])
+    k = np.array([0.0, 3.0, 3.0, 10.0, 0.0])
+    rho = np.array([0.5, 0.9, 0.5, 0.5, 0.5])
+    together = coherence_time_s(f_d, "rician", k, rho)
+    alone = [coherence_time_s(f, "rician", kk, r) for f, kk, r in zip(f_d, k, rho)]
+    assert_allclose(together, alone, rtol=1e-15, atol=0)  # same arithmetic per element

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import copy
 import csv
+import io
 import json
 import math
 from pathlib import Path
@@ -221,6 +222,48 @@ def test_batch_environment_site_is_derive_environment():
         assert site.notes == single.notes
 
 
+def test_environments_of_repeated_sites_are_each_site_alone():
+    """Sites sharing profile shapes (each evaluated once, then stretched per site) get their own environment:
+    a batch of 60 mixed sites with many repeats equals each site built alone, and derive_environment."""
+    req = requirements_from_mapping(SMALL)
+    rng = np.random.default_rng(3)
+    n = 60
+    span = rng.choice([np.nan, 0.0, 1e-6, 2e-6, 3e-6], n)
+    rms = rng.choice([np.nan, 0.0, 100e-9, 300e-9, 900e-9], n)
+    profile = rng.choice(["", "none", "TDL-C", "EVA"], n)
+    # keep the combinations a requirement file accepts (a profile fixes the span; rms <= span / 2)
+    span = np.where(np.isin(profile, ["TDL-C", "EVA"]), np.nan, np.where(rms > span / 2, np.nan, span))
+    rms = np.where((profile == "TDL-C") & np.isnan(rms), 200e-9, rms)
+    rms = np.where((profile == "TDL-C") & (rms == 0), 50e-9, np.where((profile == "EVA") & (rms == 0), np.nan, rms))
+    profile = np.where((profile == "none") & np.isnan(span) & np.isnan(rms), "", profile)
+    values = dict(max_speed_mps=rng.choice([0.0, 5.0, 30.0], n), carrier_hz=rng.choice([2e9, 0.3e9], n),
+                  max_excess_delay_s=span, rms_delay_spread_s=rms, profile=profile)
+    sites = sites_from_values(req, **values)
+    assert sites.problems == () and sites.size == n
+    batch = site_environments(req, sites)
+    for i in range(n):
+        alone = site_environments(req, sites_from_values(req, **{k: v[i:i + 1] for k, v in values.items()}))
+        for name in batch.PER_SITE:
+            expected, got = getattr(alone, name)[0], getattr(batch, name)[i]
+            if isinstance(got, str):
+                assert got == expected, name
+            else:
+                # Same arithmetic; the coherence bandwidth's bisection stops once every shape of the call is
+                # within 1e-12 relative (delay.coherence_bandwidth_hz), so batch-mates move its last digits.
+                rtol = 2e-12 if name == "coherence_bandwidth_hz" else 1e-15
+                assert_allclose(got, expected, rtol=rtol, atol=0, err_msg=name)
+        keep = batch.powers[i] > 0
+        assert_allclose(batch.delays_s[i][keep], alone.delays_s[0][alone.powers[0] > 0], rtol=1e-15, atol=0)
+        assert_allclose(batch.powers[i][keep], alone.powers[0][alone.powers[0] > 0], rtol=1e-15, atol=0)
+        assert batch.notes_at(i) == alone.notes_at(0)
+    for i in range(0, n, 7):  # and, to round-off, what derive_environment gives on its own route
+        single = derive_environment(sites.requirements_for(req, i))
+        site = batch.at(i)
+        for name in ("coherence_bandwidth_hz", "rms_delay_spread_s", "mean_excess_delay_s", "max_excess_delay_s"):
+            assert_allclose(getattr(site, name), getattr(single, name), rtol=RTOL, atol=1e-18, err_msg=name)
+        assert site.notes == single.notes
+
+
 @settings(max_examples=8, deadline=None)
 @given(st.lists(st.tuples(st.sampled_from([0.0, 3.0, 30.0, 60.0]), st.sampled_from([50e-9, 300e-9, 1.4e-6]),
                           st.sampled_from([5.0, 20.0])), min_size=1, max_size=5))
@@ -286,6 +329,83 @@ def test_malformed_rows_are_named_by_line_and_the_rest_evaluated(tmp_path):
     for name in expected.margin:
         assert_allclose(got.margin[name], expected.margin[name], rtol=1e-12)
     assert got.summary().problems == 9
+
+
+def _quoted(text: str) -> str:
+    """The same file with every cell of every header and site row in double quotes (comments and blanks kept)."""
+    out = []
+    for line in text.splitlines():
+        if line.strip() and not line.lstrip().startswith("#"):
+            buffer = io.StringIO()
+            csv.writer(buffer, quoting=csv.QUOTE_ALL, lineterminator="").writerow(next(csv.reader([line])))
+            line = buffer.getvalue()
+        out.append(line)
+    return "\n".join(out) + "\n"
+
+
+def _assert_same_sites(a, b):
+    assert a.problems == b.problems
+    assert a.names.tolist() == b.names.tolist() and a.lines.tolist() == b.lines.tolist()
+    for name in ("speed_mps", "max_doppler_hz", "carrier_hz", "snr_db", "rms_delay_spread_s", "max_excess_delay_s"):
+        np.testing.assert_array_equal(getattr(a, name), getattr(b, name), err_msg=name)
+    assert a.profile.tolist() == b.profile.tolist() and a.profile_file.tolist() == b.profile_file.tolist()
+
+
+@pytest.mark.parametrize("text", [BAD_ROWS, HARBOUR_SITES.read_text()], ids=["bad rows", "harbour"])
+def test_quoted_cells_read_as_plain_ones(tmp_path, text):
+    """Rows without quotes are split directly; rows with quotes go through the csv module: the same sites."""
+    plain, quoted = tmp_path / "plain.csv", tmp_path / "quoted.csv"
+    plain.write_text(text)
+    quoted.write_text(_quoted(text))
+    rows = [line for line in text.splitlines() if line.strip() and not line.lstrip().startswith("#")]
+    assert not any('"' in line for line in rows) and quoted.read_text().count('"') > 20
+    req = api.load(HARBOUR)
+    _assert_same_sites(load_sites(plain, req), load_sites(quoted, req))
+
+
+def test_a_quoted_comma_belongs_to_its_cell(tmp_path):
+    path = tmp_path / "sites.csv"
+    path.write_text('site,max_speed [km/h]\n"berth 4, east",12\nwest , 1e1 \n"said ""hi""",3\n')
+    sites = load_sites(path, api.load(HARBOUR))
+    assert sites.problems == ()
+    assert sites.names.tolist() == ["berth 4, east", "west", 'said "hi"']
+    assert_allclose(sites.speed_mps, np.array([12, 10, 3]) * KMH, rtol=1e-15)
+
+
+def test_blank_and_comment_lines_keep_the_line_numbers(tmp_path):
+    """Lines of blanks (any Unicode white space) and indented comments are skipped; the others keep their number."""
+    path = tmp_path / "sites.csv"
+    path.write_text("  # indented comment\nsite,snr [dB]\n\t\na,1\n\u00a0\n   \n  # another\n b ,2\n\nc,\n")
+    sites = load_sites(path, api.load(HARBOUR))
+    assert sites.names.tolist() == ["a", "b", "c"]
+    assert sites.lines.tolist() == [4, 8, 10]
+    assert_allclose(sites.snr_db, [1.0, 2.0, 22.0], rtol=0)  # the empty cell takes the file's 22 dB
+
+
+def test_rows_of_the_wrong_width_with_and_without_quotes(tmp_path):
+    """Each row with another number of cells is named by its line; its neighbours keep their own values."""
+    req = api.load(HARBOUR)
+    rows = "site,max_speed [km/h],snr [dB]\na,1,20\nb,2\nc,3,21,9\nd,4,22\n"
+    plain, quoted = tmp_path / "plain.csv", tmp_path / "quoted.csv"
+    plain.write_text(rows)
+    quoted.write_text(rows.replace("d,", '"d",'))
+    for path in (plain, quoted):
+        sites = load_sites(path, req)
+        assert sites.problems == ((3, "expected 3 values (site, max_speed, snr), got 2"),
+                                  (4, "expected 3 values (site, max_speed, snr), got 4"))
+        assert sites.names.tolist() == ["a", "d"]
+        assert_allclose(sites.speed_mps, np.array([1, 4]) * KMH, rtol=1e-15)
+        assert_allclose(sites.snr_db, [20.0, 22.0], rtol=0)
+
+
+def test_a_row_the_csv_module_cannot_read_is_an_input_error(tmp_path):
+    """A quoted cell longer than the csv module's field limit (131072 characters by default) names its line."""
+    path = tmp_path / "sites.csv"
+    path.write_text('# sites\nsite,snr [dB]\na,1\n"' + "x" * 200_000 + '",2\n')
+    with pytest.raises(InputError) as caught:
+        load_sites(path, api.load(HARBOUR))
+    assert caught.value.place == f"{path}: line 4"
+    assert caught.value.message.startswith("cannot be read as CSV (field larger than field limit")
 
 
 @pytest.mark.parametrize("text, place, message", [
