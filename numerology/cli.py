@@ -100,7 +100,11 @@ def main(argv: Sequence[str] | None = None) -> int:
                                            "sweep (numerology --help lists them)")
         from . import commands
 
-        return getattr(commands, args.command)(args)
+        status = getattr(commands, args.command)(args)
+        from .units import save_cache
+
+        save_cache()  # quantity strings pint read in this run: later runs skip importing pint
+        return status
     except InputError as exc:
         print("numerology: " + " ".join(str(exc).splitlines()), file=sys.stderr)  # always one line
         return EXIT_BAD_INPUT

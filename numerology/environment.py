@@ -357,37 +357,66 @@ def bounded_profile(max_excess_delay_s: float, rms_delay_spread_s: float):
     max_excess_delay_s : float
         Span of the profile, in s.
     rms_delay_spread_s : float
-        Wanted rms delay spread, in s; at most half the span.
+        Wanted rms delay spread, in s; above 0 and at most half the span.
 
     Returns
     -------
     delays_s, powers, description
-        ``ASSUMED_TAPS`` (+2) taps; linear powers summing to 1.
+        ``ASSUMED_TAPS`` taps; linear powers summing to 1.
 
     Notes
     -----
-    Up to span/sqrt(12) (a flat profile's rms) the profile is an exponential
-    decay whose rate is fitted by Brent's method; above it, a flat bed plus
-    two equal rays at 0 and the span, mixed so that the variance matches
-    (two equal rays alone have rms span/2).
+    The shape depends on the ratio rms / span only: see :func:`bounded_shapes`.
     """
-    from scipy.optimize import brentq
+    unit, powers, flat = bounded_shapes(np.array([rms_delay_spread_s / max_excess_delay_s]))
+    description = "a flat profile with two equal rays at its ends" if flat[0] else "an exponential profile"
+    return unit * max_excess_delay_s, powers[0], description
 
-    span, rms = max_excess_delay_s, rms_delay_spread_s
-    t = np.linspace(0.0, span, ASSUMED_TAPS)
-    flat_rms = float(delay.rms_delay_spread_s(t, np.ones_like(t)))
-    if rms < flat_rms:
-        def excess(log_rate):
-            return float(delay.rms_delay_spread_s(t, np.exp(-np.exp(log_rate) * t / span))) - rms
 
-        log_rate = brentq(excess, -30.0, 12.0, xtol=1e-12)
-        return t, np.exp(-np.exp(log_rate) * t / span), "an exponential profile"
-    # variance of the mix: w span^2/4 (two rays) + (1 - w) flat_rms^2, both centred on span/2
-    w = (rms**2 - flat_rms**2) / (span**2 / 4 - flat_rms**2)
-    powers = (1 - w) * np.ones_like(t) / t.size
-    powers[0] += w / 2
-    powers[-1] += w / 2
-    return t, powers, "a flat profile with two equal rays at its ends"
+def bounded_shapes(ratio):
+    """Profiles on a unit span [0, 1] with given rms spreads (rms / span ratios, vectorised).
+
+    Parameters
+    ----------
+    ratio : ndarray (m,)
+        Wanted rms delay spread over span, in (0, 1/2].
+
+    Returns
+    -------
+    unit : ndarray (ASSUMED_TAPS,)
+        Tap delays, evenly spaced over [0, 1].
+    powers : ndarray (m, ASSUMED_TAPS)
+        Linear powers summing to 1.
+    flat : ndarray of bool (m,)
+        True where the shape is the flat kind (see Notes).
+
+    Notes
+    -----
+    Up to 1/sqrt(12) (about; the sampled flat profile's rms) the profile is an
+    exponential decay exp(-a u) whose rate a is found by bisection on log(a)
+    over [-30, 12] (60 halvings: to the last bit); above it, a flat bed plus
+    two equal rays at 0 and 1, mixed so that the variance matches (two equal
+    rays alone have rms 1/2).
+    """
+    ratio = np.asarray(ratio, dtype=float)
+    unit = np.linspace(0.0, 1.0, ASSUMED_TAPS)
+    flat_rms = float(delay.rms_delay_spread_s(unit, np.ones_like(unit)))
+    exponential = ratio < flat_rms
+    lo = np.full(ratio.size, -30.0)
+    hi = np.full(ratio.size, 12.0)
+    for _ in range(60):  # the rms falls as the rate grows
+        mid = 0.5 * (lo + hi)
+        too_wide = delay.rms_delay_spread_s(unit, np.exp(-np.exp(mid)[:, None] * unit)) > ratio
+        lo = np.where(too_wide, mid, lo)
+        hi = np.where(too_wide, hi, mid)
+    decay = np.exp(-np.exp(0.5 * (lo + hi))[:, None] * unit)
+    # variance of the mix: w / 4 (two rays) + (1 - w) flat_rms^2, both centred on 1/2
+    w = (ratio**2 - flat_rms**2) / (1 / 4 - flat_rms**2)
+    bed = np.broadcast_to((1 - w)[:, None] / ASSUMED_TAPS, decay.shape).copy()
+    bed[:, 0] += w / 2
+    bed[:, -1] += w / 2
+    powers = np.where(exponential[:, None], decay, bed)
+    return unit, powers / powers.sum(axis=-1, keepdims=True), ~exponential
 
 
 def derivations(environment: Environment) -> list[Derivation]:

@@ -23,7 +23,7 @@ from pathlib import Path
 from typing import Any
 
 from .errors import InputError, read_text
-from .units import parse_db, parse_quantity
+from .units import parse_db, parse_either, parse_quantity
 
 SUFFIX = {"frequency": "_hz", "time": "_s", "speed": "_mps", "length": "_m", "bitrate": "_bps", "db": "_db", "ratio": ""}
 
@@ -303,15 +303,13 @@ def _parse_value(key: Key, raw, place: str, base_dir: Path):
 
 def _parse_offset(raw, place):
     """A frequency ("40 Hz") or a ratio of the carrier ("0.1 ppm"); returned as ("hz"|"ratio", value)."""
-    try:
-        value = parse_quantity(raw, "frequency", place)
-        kind = "hz"
-    except InputError:
+    kind, value = "ratio", math.nan
+    if isinstance(raw, str):
         try:
-            value = parse_quantity(raw, "ratio", place) if isinstance(raw, str) else math.nan
+            dimension, value = parse_either(raw, ("frequency", "ratio"), place)
+            kind = "hz" if dimension == "frequency" else "ratio"
         except InputError:
-            value = math.nan
-        kind = "ratio"
+            pass
     if not (value >= 0) or math.isinf(value) or (kind == "ratio" and value > 1e-3):
         raise InputError(place, f"expected a non-negative frequency error such as \"40 Hz\" or \"0.1 ppm\", got {raw!r}")
     return (kind, value)

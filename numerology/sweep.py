@@ -57,7 +57,7 @@ from .environment import WIDEBAND_FRACTION, EnvironmentBatch, derive_environment
 from .errors import InputError, read_text
 from .output import write_atomic
 from .requirements import SCHEMA, Requirements
-from .units import parse_quantity
+from .units import parse_either, parse_quantity
 
 #: Columns of a sites file: name -> the requirement key it replaces (None: the site identifier).
 COLUMNS = {
@@ -501,10 +501,9 @@ def _given_as_ratio(req: Requirements, dotted: str) -> bool:
     if not isinstance(text, str):
         return False
     try:
-        parse_quantity(text, "frequency", dotted)
+        return parse_either(text, ("frequency", "ratio"), dotted)[0] == "ratio"
     except InputError:
         return True
-    return False
 
 
 # --- the environments of the sites ---------------------------------------------
@@ -706,37 +705,12 @@ def _template(name: str, path: str, stamp: int, rho: float):
 
 
 def _bounded_profiles(ratio, rho):
-    """environment.bounded_profile on a unit span for many rms/span ratios at once.
+    """environment.bounded_shapes for many rms/span ratios, with each shape's coherence bandwidth on the unit span."""
+    from .environment import bounded_shapes
 
-    Returns the unit delays (ASSUMED_TAPS,), the powers (m, ASSUMED_TAPS)
-    summing to 1, whether each is the flat kind, and each shape's coherence
-    bandwidth on the unit span. The exponential decay rate is found by
-    bisection (vectorised over the ratios) to the precision of the Brent's-
-    method root in ``bounded_profile``.
-    """
-    from .environment import ASSUMED_TAPS
-
-    unit = np.linspace(0.0, 1.0, ASSUMED_TAPS)
-    flat_rms = delay.rms_delay_spread_s(unit, np.ones_like(unit))
-    exponential = ratio < flat_rms
-    # Bisection on log(rate) over [-30, 12], as bounded_profile's bracket: the rms falls as the rate grows.
-    lo = np.full(ratio.size, -30.0)
-    hi = np.full(ratio.size, 12.0)
-    for _ in range(60):
-        mid = 0.5 * (lo + hi)
-        too_wide = delay.rms_delay_spread_s(unit, np.exp(-np.exp(mid)[:, None] * unit)) > ratio
-        lo = np.where(too_wide, mid, lo)
-        hi = np.where(too_wide, hi, mid)
-    decay = np.exp(-np.exp(0.5 * (lo + hi))[:, None] * unit)
-    # Above the flat profile's rms: a flat bed plus two equal rays at the ends, variance matched.
-    w = (ratio**2 - flat_rms**2) / (1 / 4 - flat_rms**2)
-    bed = np.broadcast_to((1 - w)[:, None] / ASSUMED_TAPS, decay.shape).copy()
-    bed[:, 0] += w / 2
-    bed[:, -1] += w / 2
-    powers = np.where(exponential[:, None], decay, bed)
-    powers = powers / powers.sum(axis=-1, keepdims=True)
+    unit, powers, flat = bounded_shapes(ratio)
     bc = delay.coherence_bandwidth_hz(np.broadcast_to(unit, powers.shape), powers, rho)
-    return unit, powers, ~exponential, np.atleast_1d(bc)
+    return unit, powers, flat, np.atleast_1d(bc)
 
 
 def _with_notes(batch: EnvironmentBatch, req: Requirements, sites: Sites, fraction, has_speed, cause):

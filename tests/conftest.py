@@ -1,12 +1,20 @@
 """Shared fixtures: the shipped example files and a small TOML writer for modified copies."""
 
+import atexit
 import json
 import math
+import os
 import re
 import shutil
+import tempfile
 from pathlib import Path
 
 import pytest
+
+# The tests never touch the user's cache of quantity strings: theirs lives in a folder of this session.
+_CACHE_DIR = tempfile.mkdtemp(prefix="numerology-test-cache-")
+os.environ["NUMEROLOGY_CACHE_DIR"] = _CACHE_DIR
+atexit.register(shutil.rmtree, _CACHE_DIR, ignore_errors=True)
 
 ROOT = Path(__file__).resolve().parent.parent
 EXAMPLES = ROOT / "requirements_examples"

@@ -4,6 +4,7 @@ Unit definitions (km/h, mi/h, knot, ppm) are those of the SI brochure, 9th ed. (
 NIST SP 811 (2008) appendix B: 1 mi = 1609.344 m, 1 knot = 1852 m/h, 1 ppm = 1e-6.
 """
 
+import json
 import math
 import time
 
@@ -12,6 +13,7 @@ from hypothesis import given
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
+from numerology import units
 from numerology.errors import InputError
 from numerology.units import DIMENSIONS, EXAMPLES, db, engineering, parse_db, parse_quantity, speed_kmh
 
@@ -226,3 +228,67 @@ def test_any_text_gives_a_db_value_or_an_input_error(text):
         assert "\n" not in str(error)
     else:
         assert -400 <= value <= 400
+
+
+# --- the cache of quantity strings pint read in earlier runs ----------------------------------------
+
+
+@pytest.fixture
+def fresh_cache(tmp_path, monkeypatch):
+    """An empty cache folder, nothing learned or loaded in this process."""
+    monkeypatch.setenv("NUMEROLOGY_CACHE_DIR", str(tmp_path))
+    monkeypatch.setattr(units, "_LEARNED", {})
+    units._known.cache_clear()
+    yield tmp_path / "quantities.json"
+    units._known.cache_clear()
+
+
+def test_cached_values_equal_what_pint_gives(fresh_cache):
+    strings = [("120 km/h", "speed"), ("3.5 GHz", "frequency"), ("2.3 us", "time"), ("50 Mbit/s", "bitrate")]
+    first = [units.parse_quantity(t, d, "x") for t, d in strings]
+    units.save_cache()
+    assert fresh_cache.exists()
+    units._known.cache_clear()
+    assert units._LEARNED == {}
+    again = [units.parse_quantity(t, d, "x") for t, d in strings]
+    assert again == first  # the very same floats
+    assert units._LEARNED == {}  # all from the file: pint was not asked
+
+
+def test_cache_keeps_the_dimension_check(fresh_cache):
+    units.parse_quantity("1 ms", "time", "x")
+    units.save_cache()
+    units._known.cache_clear()
+    with pytest.raises(InputError, match="expected a frequency"):
+        units.parse_quantity("1 ms", "frequency", "radio.bandwidth")
+
+
+def test_unreadable_or_foreign_cache_is_ignored(fresh_cache):
+    fresh_cache.write_text("{not json", encoding="utf-8")
+    assert units.parse_quantity("36 km/h", "speed", "x") == pytest.approx(10.0)
+    # an entry written by another installation (other fingerprint) is not used, even if wrong
+    fresh_cache.write_text(json.dumps({"fingerprint": "other", "values": {"speed|36 km/h": 99.0}}), encoding="utf-8")
+    units._known.cache_clear()
+    assert units.parse_quantity("36 km/h", "speed", "x") == pytest.approx(10.0)
+
+
+def test_cache_can_be_switched_off(monkeypatch):
+    monkeypatch.setenv("NUMEROLOGY_CACHE_DIR", "")
+    assert units.cache_path() is None
+
+
+def test_a_run_with_known_strings_never_imports_pint(tmp_path):
+    """Second run of the same requirement file: every quantity string comes from the cache."""
+    import os
+    import subprocess
+    import sys
+
+    from conftest import EXAMPLES
+
+    env = {**os.environ, "NUMEROLOGY_CACHE_DIR": str(tmp_path)}
+    code = ("import sys; from numerology.cli import main; status = main(['env', sys.argv[1]]); "
+            "print('pint' in sys.modules, status, file=sys.stderr)")
+    runs = [subprocess.run([sys.executable, "-c", code, str(EXAMPLES / "rail_corridor.toml")], env=env,
+                           capture_output=True, text=True) for _ in range(2)]
+    assert [r.stderr.split()[-2:] for r in runs] == [["True", "0"], ["False", "0"]]
+    assert runs[0].stdout == runs[1].stdout
