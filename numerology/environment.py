@@ -406,7 +406,10 @@ def bounded_shapes(ratio):
     hi = np.full(ratio.size, 12.0)
     for _ in range(60):  # the rms falls as the rate grows
         mid = 0.5 * (lo + hi)
-        too_wide = delay.rms_delay_spread_s(unit, np.exp(-np.exp(mid)[:, None] * unit)) > ratio
+        p = np.exp(-np.exp(mid)[:, None] * unit)
+        p /= p.sum(axis=-1, keepdims=True)
+        mean = p @ unit
+        too_wide = np.sqrt(np.einsum("mk,mk->m", p, (unit - mean[:, None]) ** 2)) > ratio  # rms of the taps
         lo = np.where(too_wide, mid, lo)
         hi = np.where(too_wide, hi, mid)
     decay = np.exp(-np.exp(0.5 * (lo + hi))[:, None] * unit)

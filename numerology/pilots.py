@@ -334,18 +334,29 @@ def _staircase(d_f, s):
     and padded by repeating its last point.
     """
     codes, inverse = np.unique(d_f * (int(s.max()) + 1) + s, return_inverse=True)  # one integer per (D_f, s)
-    pairs = np.stack([codes // (int(s.max()) + 1), codes % (int(s.max()) + 1)], axis=1)
-    steps = []
-    for lat_f, lat_s in pairs:
+    steps = [_steps(int(c // (int(s.max()) + 1)), int(c % (int(s.max()) + 1))) for c in codes]
+    width = max(len(m) for m, _ in steps)
+    m_table = np.empty((len(steps), width), dtype=np.int64)
+    r_table = np.empty((len(steps), width), dtype=np.int64)
+    for row, (m, r) in enumerate(steps):  # padded by repeating the last point
+        m_table[row, :len(m)], m_table[row, len(m):] = m, m[-1]
+        r_table[row, :len(r)], r_table[row, len(r):] = r, r[-1]
+    index = np.ravel(inverse)
+    return m_table[index], r_table[index]
+
+
+_STEPS: dict = {}  # (D_f, s) -> the staircase (m, r): lattices recur across calls
+
+
+def _steps(lat_f: int, lat_s: int):
+    """The staircase of one lattice (D_f, s), remembered within a process."""
+    found = _STEPS.get((lat_f, lat_s))
+    if found is None:
         (m, r), = _scan_blocks(np.array([lat_f]), np.array([lat_s]))
         m, r = m[0], r[0]
         keep = r < np.minimum.accumulate(np.concatenate([[np.iinfo(np.int64).max], r[:-1]]))
-        steps.append((m[keep], r[keep]))
-    width = max(len(m) for m, _ in steps)
-    m_table = np.array([np.pad(m, (0, width - len(m)), mode="edge") for m, _ in steps])
-    r_table = np.array([np.pad(r, (0, width - len(r)), mode="edge") for _, r in steps])
-    index = np.ravel(inverse)
-    return m_table[index], r_table[index]
+        found = _STEPS.setdefault((lat_f, lat_s), (m[keep], r[keep]))
+    return found
 
 
 def max_delay_for_lattice(

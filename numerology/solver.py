@@ -289,11 +289,13 @@ def any_feasible(req: Requirements, environment: Environment, ignore=()) -> bool
     Screens in small chunks and evaluates each chunk's survivors exactly, best bound
     first, so a feasible request is answered without building the whole space.
     """
-    window = cand.spacing_window(environment, req, ignore)
-    if window.empty:
-        return False
+    # Only the family's own spacings matter here, not the window's edges: keep those that relaxed
+    # designs allow (one evaluation instead of the edge refinement of spacing_window).
     family = cand.spacing_family(req)
-    spacings = family[window.contains(family)]
+    margins = cand.relaxed_margins(family, environment, req, ignore)
+    spacings = family[np.all([m >= 0 for m in margins.values()], axis=0)] if margins else family
+    if spacings.size == 0:
+        return False
     for part, bound, _ in _screen_chunks(req, environment, spacings, ignore, chunk=FEASIBILITY_CHUNK):
         order = np.argsort(-bound["robustness"], kind="stable")
         for start in range(0, order.size, FIRST_BATCH):
