@@ -292,3 +292,16 @@ def test_a_run_with_known_strings_never_imports_pint(tmp_path):
                            capture_output=True, text=True) for _ in range(2)]
     assert [r.stderr.split()[-2:] for r in runs] == [["True", "0"], ["False", "0"]]
     assert runs[0].stdout == runs[1].stdout
+
+
+def test_a_run_that_stops_on_bad_input_writes_no_cache(tmp_path, monkeypatch):
+    from numerology.cli import main
+
+    monkeypatch.setenv("NUMEROLOGY_CACHE_DIR", str(tmp_path / "cache"))
+    monkeypatch.setattr(units, "_LEARNED", {})
+    units._known.cache_clear()
+    req = tmp_path / "bad.toml"
+    req.write_text('[environment]\ncarrier = "2.4 GHz"\nmax_speed = "fast"\n', encoding="utf-8")
+    assert main(["env", str(req)]) == 2
+    assert not (tmp_path / "cache").exists()
+    units._known.cache_clear()
