@@ -649,15 +649,19 @@ def _lower_inverse(low):
     else:
         x11 = _lower_inverse(np.ascontiguousarray(low[:, :h, :h]))
         x22 = _lower_inverse(np.ascontiguousarray(low[:, h:, h:]))
-    out = np.zeros_like(low)
+    out = np.empty_like(low)
     out[:, :h, :h] = x11
+    out[:, :h, h:] = 0.0
     out[:, h:, h:] = x22
-    out[:, h:, :h] = np.matmul(np.matmul(x22, low[:, h:, :h]), -x11)
+    np.matmul(np.matmul(x22, low[:, h:, :h]), -x11, out=out[:, h:, :h])
     return out
 
 
 def _trace_of_solve(a, s):
     """tr(a^-1 s) per batch item, for Hermitian positive-definite ``a`` and Hermitian ``s`` (axis 0: batch).
+
+    ``a`` may be given by its top half only, shape (n, size // 2, size) for an
+    even size: the rest follows from J a J = conj(a).
 
     The window's pilot-pilot matrix is centrohermitian, J a J = conj(a) with J
     the exchange matrix (the window is point-symmetric: reversing the pilot
@@ -676,7 +680,7 @@ def _trace_of_solve(a, s):
         m, top, low = size // 2, slice(None, size // 2), slice(size // 2, None)
         rev = slice(size - 1, m - 1, -1)  # the second half, reversed (J applied)
         a11, a12j = a[:, top, top], a[:, top, rev]
-        b = np.empty(a.shape)
+        b = np.empty((a.shape[0], size, size))
         np.add(a11.real, a12j.real, out=b[:, top, top])  # Re P
         np.subtract(a12j.imag, a11.imag, out=b[:, top, low])  # -Im M
         np.add(a11.imag, a12j.imag, out=b[:, low, top])  # Im P
@@ -684,7 +688,7 @@ def _trace_of_solve(a, s):
         s11, s12j, js21, js22j = s[:, top, top], s[:, top, rev], s[:, rev, top], s[:, rev, rev]
         u, v = s11 + js22j, s12j + js21
         w, x = s11 - js22j, s12j - js21
-        c = np.empty(a.shape)
+        c = np.empty(b.shape)
         np.add(u.real, v.real, out=c[:, top, top])
         np.subtract(x.imag, w.imag, out=c[:, top, low])
         np.add(w.imag, x.imag, out=c[:, low, top])
@@ -695,6 +699,8 @@ def _trace_of_solve(a, s):
             pass  # not numerically positive definite: the general solve below copes
         else:
             return 0.5 * np.sum(np.matmul(inv_low, c) * inv_low, axis=(1, 2))
+        if a.shape[1] < size:  # the whole matrix from its top half
+            a = np.concatenate([a, a[:, ::-1, ::-1].conj()], axis=1)
     return np.einsum("nii->n", np.linalg.solve(a, s)).real
 
 
@@ -775,12 +781,14 @@ def _lmmse_lattice_mean(d_f, d_t, s, snr, f_table, f_row, t_table, t_row, window
     f_sorted, t_sorted = f_of[order], t_of[order]
     by_runs = f_used.size * 8 <= snr.size
     size = n_f * n_t
-    diagonal = np.arange(size)
+    rows = size // 2 if size % 2 == 0 else size  # R is centrohermitian: its top half is enough
+    r_f, r_t = np.ascontiguousarray(r_f[:, :rows]), np.ascontiguousarray(r_t[:, :rows])
+    diagonal = np.arange(rows)
     out = np.empty(snr.shape)
     for lo in range(0, snr.size, _GROUP_CHUNK):  # bounded memory: (chunk, W, W) per matrix
         fi, ti = f_sorted[lo:lo + _GROUP_CHUNK], t_sorted[lo:lo + _GROUP_CHUNK]
-        big_r = np.empty((fi.size, size, size), dtype=np.complex128)
-        s_mat = np.empty_like(big_r)
+        big_r = np.empty((fi.size, rows, size), dtype=np.complex128)
+        s_mat = np.empty((fi.size, size, size), dtype=np.complex128)
         if by_runs:
             runs = np.flatnonzero(np.diff(fi)) + 1
             edges = zip(np.r_[0, runs], np.r_[runs, fi.size])

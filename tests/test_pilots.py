@@ -471,6 +471,11 @@ def test_trace_of_solve_real_form_equals_complex_solve(size):
     s = m @ m.conj().transpose(0, 2, 1)
     expected = np.einsum("nii->n", np.linalg.solve(a, s)).real
     assert_allclose(_trace_of_solve(a, s), expected, rtol=1e-9)
+    if size % 2 == 0:  # the top half is enough; an indefinite matrix takes the general solve
+        assert_allclose(_trace_of_solve(a[:, :size // 2], s), expected, rtol=1e-9)
+        indefinite = corr - 2.0 * np.eye(size)
+        expected = np.einsum("ii->", np.linalg.solve(indefinite, s[0])).real
+        assert_allclose(_trace_of_solve(indefinite[None, :size // 2], s[:1]), [expected], rtol=1e-9)
 
 
 @pytest.mark.parametrize("n_candidates", [40, 400])
