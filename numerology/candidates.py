@@ -207,22 +207,32 @@ def spacing_window(environment: Environment, req: Requirements, ignore=()) -> Wi
 
 #: Points evaluated at once while narrowing a window edge.
 EDGE_POINTS = 40
+#: Bracket width (in log spacing) below which an edge is finished one point at a time.
+EDGE_FINE_BELOW = 1e-3
+#: Final width of an edge's bracket (in log spacing, i.e. relative).
+EDGE_RTOL = 1e-10
 
 
 def _edge(a, b, environment, req, rule_name) -> float:
     """The spacing between grid points a < b where the bounding rule's relaxed margin changes sign.
 
     The bracket is narrowed ``EDGE_POINTS`` points at a time (log scale) to
-    1e-10 relative; the passing end is returned (so the window's edges pass).
+    ``EDGE_FINE_BELOW``, then one point at a time by the Illinois variant of
+    regula falsi on the margin itself (superlinear where the margin is smooth;
+    a bisection step whenever a step gains too little, as where the margin
+    jumps) to ``EDGE_RTOL`` relative: a few single evaluations, which matters
+    for rules that are costly per spacing (a phase-noise mask). The passing
+    end is returned (so the window's edges pass).
     """
-    def passes(x):
-        return relaxed_margins(x, environment, req, only=rule_name)[rule_name] >= 0
+    def margin(log_x):
+        x = np.exp(np.atleast_1d(log_x))
+        return relaxed_margins(x, environment, req, only=rule_name)[rule_name]
 
     lo, hi = np.log(a), np.log(b)
-    lo_passes = bool(passes(np.array([a]))[0])
-    while hi - lo > 1e-10:
+    lo_passes = bool(margin(lo)[0] >= 0)
+    while hi - lo > EDGE_FINE_BELOW:
         inside = np.linspace(lo, hi, EDGE_POINTS + 2)[1:-1]
-        ok = passes(np.exp(inside))
+        ok = margin(inside) >= 0
         change = np.flatnonzero(ok != lo_passes)
         if change.size == 0:
             lo = inside[-1]
@@ -230,6 +240,26 @@ def _edge(a, b, environment, req, rule_name) -> float:
             j = int(change[0])
             hi = inside[j]
             lo = inside[j - 1] if j > 0 else lo
+    f_lo, f_hi = float(margin(lo)[0]), float(margin(hi)[0])
+    kept = 0  # the end the last step kept: +1 hi, -1 lo (Illinois halves a value kept twice)
+    widths = [np.inf, np.inf]  # the bracket two steps back must at least halve, else bisect
+    while hi - lo > EDGE_RTOL:
+        width = hi - lo
+        x = np.nan
+        if width < 0.5 * widths[0] and np.isfinite(f_lo - f_hi) and f_lo != f_hi:
+            x = lo + f_lo * width / (f_lo - f_hi)
+        if not lo < x < hi:
+            x = 0.5 * (lo + hi)
+        widths = [widths[1], width]
+        f_x = float(margin(x)[0])
+        if (f_x >= 0) == lo_passes:
+            lo, f_lo = x, f_x
+            f_hi = f_hi / 2 if kept == +1 else f_hi
+            kept = +1
+        else:
+            hi, f_hi = x, f_x
+            f_lo = f_lo / 2 if kept == -1 else f_lo
+            kept = -1
     return float(np.exp(lo if lo_passes else hi))
 
 
