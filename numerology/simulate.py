@@ -768,20 +768,44 @@ def _power(values: np.ndarray, weights2: np.ndarray, scratch: bool = False) -> n
     return (np.square(flat, out=flat) if scratch else flat * flat) @ weights2
 
 
-def _draw(rng: np.random.Generator, plan: _Plan):
-    """All random numbers of one frame, in a fixed order (results do not depend on the block size).
+@dataclass(frozen=True)
+class _Draws:
+    """The random numbers of a block of frames (leading axis: frame)."""
 
-    One random byte per sent resource element selects its data or pilot
-    point (:attr:`_Plan.symbol_table`); the fading parameters; the phase-noise
+    values: np.ndarray  # (F, pre + S, columns) uint8: one random byte per sent resource element
+    freqs: np.ndarray  # (F, taps, sinusoids + 1) sum-of-sinusoids frequencies, Hz
+    amps: np.ndarray  # amplitudes
+    phases: np.ndarray  # phases, rad
+    increments: np.ndarray  # (F, S, N) standard normal phase-noise increments, or None
+    uniforms: np.ndarray  # (F, 2, noise values) float32 uniforms for the noise, or None
+
+
+def _draw(plan: _Plan, seeds, work: _Workspace) -> _Draws:
+    """All random numbers of a block of frames; frame f draws from its own ``seeds[f]`` in a fixed order.
+
+    So results do not depend on the block size. Per frame: one random byte
+    per sent resource element, which selects its data or pilot point
+    (:attr:`_Plan.symbol_table`); the fading parameters; the phase-noise
     increments; two single-precision uniforms per noise value (Box-Muller,
-    see :func:`_noise`), only where noise is read.
+    see :func:`_noise`), only where noise is read. The large arrays are
+    written straight into the workspace.
     """
-    values = rng.integers(0, 256, plan.symbol_offset.shape, dtype=np.uint8)
-    freqs, amps, phases = _sos_draw(rng, plan.delays.size, plan.max_doppler_hz, plan.spectrum, plan.k_factor,
-                                    plan.sinusoids)
-    increments = rng.standard_normal((plan.symbols, plan.n)) if plan.linewidth_hz > 0 else None
-    uniforms = rng.random((2, plan.noise_count), dtype=np.float32) if plan.noise_std > 0 else None
-    return values, freqs, amps, phases, increments, uniforms
+    frames = len(seeds)
+    values = work("values", frames, plan.symbol_offset.shape, np.uint8)
+    increments = work("increments", frames, (plan.symbols, plan.n), float) if plan.linewidth_hz > 0 else None
+    uniforms = work("uniforms", frames, (2, plan.noise_count), np.float32) if plan.noise_std > 0 else None
+    fading = []
+    for f, seed in enumerate(seeds):
+        rng = np.random.default_rng(seed)
+        values[f] = rng.integers(0, 256, plan.symbol_offset.shape, dtype=np.uint8)
+        fading.append(_sos_draw(rng, plan.delays.size, plan.max_doppler_hz, plan.spectrum, plan.k_factor,
+                                plan.sinusoids))
+        if increments is not None:
+            rng.standard_normal(out=increments[f])
+        if uniforms is not None:
+            rng.random(dtype=np.float32, out=uniforms[f])
+    freqs, amps, phases = (np.stack([f[i] for f in fading]) for i in range(3))
+    return _Draws(values, freqs, amps, phases, increments, uniforms)
 
 
 def _noise(uniforms: np.ndarray, std: float, work: _Workspace):
@@ -810,7 +834,7 @@ def _noise(uniforms: np.ndarray, std: float, work: _Workspace):
     return noise
 
 
-def _tap_gains(plan: _Plan, freqs: np.ndarray, amps: np.ndarray, phases: np.ndarray):
+def _tap_gains(plan: _Plan, freqs: np.ndarray, amps: np.ndarray, phases: np.ndarray, work: _Workspace):
     """Legendre coefficients ``beta[f, m, s, q]`` of each tap over each receive window, and each tap's power.
 
     The sinusoids' phasors at the window centres advance by the same factor
@@ -819,7 +843,7 @@ def _tap_gains(plan: _Plan, freqs: np.ndarray, amps: np.ndarray, phases: np.ndar
     grows by about 1e-16 per symbol) rather than one exponential per window.
     """
     n, ncp, fs, symbols = plan.n, plan.ncp, plan.fs, plan.symbols
-    phasor = np.empty(freqs.shape[:2] + (symbols,) + freqs.shape[2:], dtype=complex)  # (F, taps, S, C)
+    phasor = work("phasor", freqs.shape[0], (freqs.shape[1], symbols, freqs.shape[2]), complex)  # (F, taps, S, C)
     phasor[:, :, 0] = amps * np.exp(1j * (2.0 * np.pi * freqs * ((ncp + (n - 1) / 2.0) / fs) + phases))
     phasor[:, :, 1:] = np.exp((2j * np.pi * (n + ncp) / fs) * freqs)[:, :, None, :]
     np.multiply.accumulate(phasor, axis=2, out=phasor)
@@ -871,16 +895,16 @@ def _varying_samples(plan: _Plan, beta: np.ndarray, sent: np.ndarray, work: _Wor
     return varying
 
 
-def _oscillator_phasor(plan: _Plan, draws) -> np.ndarray:
+def _oscillator_phasor(plan: _Plan, increments: np.ndarray, frames: int) -> np.ndarray:
     """``exp(j theta)`` over every receive window (F, S, N): frequency offset and Wiener phase noise."""
     n, ncp, fs, symbols = plan.n, plan.ncp, plan.fs, plan.symbols
     t = (np.arange(symbols)[:, None] * (n + ncp) + ncp + np.arange(n)[None, :]) / fs
-    phase = np.broadcast_to(2.0 * np.pi * plan.frequency_offset_hz * t, (len(draws), symbols, n)).copy()
+    phase = np.broadcast_to(2.0 * np.pi * plan.frequency_offset_hz * t, (frames, symbols, n)).copy()
     if plan.linewidth_hz > 0:
-        steps = np.stack([d[4] for d in draws]) * math.sqrt(2.0 * np.pi * plan.linewidth_hz / fs)
+        steps = increments * math.sqrt(2.0 * np.pi * plan.linewidth_hz / fs)
         steps[:, :, 0] *= math.sqrt(ncp + 1.0)  # the gap across the cyclic prefix
         steps[:, 0, 0] = 0.0
-        phase += np.cumsum(steps.reshape(len(draws), -1), axis=1).reshape(phase.shape)  # Wiener process
+        phase += np.cumsum(steps.reshape(frames, -1), axis=1).reshape(phase.shape)  # Wiener process
     return np.exp(1j * phase)
 
 
@@ -903,16 +927,15 @@ def _estimate(plan: _Plan, pilot_values: np.ndarray, work: _Workspace) -> np.nda
 
 
 def _simulate_block(plan: _Plan, seeds, work: _Workspace) -> dict:
-    draws = [_draw(np.random.default_rng(s), plan) for s in seeds]
-    frames = len(draws)
+    draws = _draw(plan, seeds, work)
+    frames = len(seeds)
     cols = plan.k_phys.size
     grid = (plan.symbols, cols)
     measured = plan.measured_symbols * cols
-    values = np.stack([d[0] for d in draws], out=work("values", frames, plan.symbol_offset.shape, np.uint8))
-    index = np.add(values, plan.symbol_offset, out=work("index", frames, plan.symbol_offset.shape, np.uint16))
+    index = np.add(draws.values, plan.symbol_offset, out=work("index", frames, plan.symbol_offset.shape, np.uint16))
     # (indices are valid by construction; mode="clip" lets np.take write into ``out`` unbuffered)
     sent = np.take(plan.symbol_table, index, out=work("sent", frames, plan.symbol_offset.shape, complex), mode="clip")
-    beta, tap_power = _tap_gains(plan, *(np.stack([d[i] for d in draws]) for i in (1, 2, 3)))
+    beta, tap_power = _tap_gains(plan, draws.freqs, draws.amps, draws.phases, work)
     main = sent[:, plan.pre:]  # the received frame's own symbols
     rows = slice(plan.first_measured, plan.first_measured + plan.measured_symbols)
 
@@ -941,7 +964,7 @@ def _simulate_block(plan: _Plan, seeds, work: _Workspace) -> dict:
     x = main[:, rows].reshape(frames, measured)
 
     if with_oscillator:
-        rotation = _oscillator_phasor(plan, draws)
+        rotation = _oscillator_phasor(plan, draws.increments, frames)
         received *= rotation
         y = _from_bins(_fft(received), plan)
         derotate = np.exp(-1j * np.angle(rotation.mean(axis=-1)))[..., None]  # mean of exp(j theta) per window
@@ -970,8 +993,7 @@ def _simulate_block(plan: _Plan, seeds, work: _Workspace) -> dict:
         useful_data = useful[:, 1]
 
     if plan.noise_std > 0:
-        uniforms = np.stack([d[5] for d in draws], out=work("uniforms", frames, (2, plan.noise_count), np.float32))
-        noise = _noise(uniforms, plan.noise_std, work)
+        noise = _noise(draws.uniforms, plan.noise_std, work)
         y[:, rows] += noise[:, :measured].reshape(frames, plan.measured_symbols, cols)
         y.reshape(frames, -1)[:, plan.extra_pilot_flat] += noise[:, measured:]
 
