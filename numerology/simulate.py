@@ -190,6 +190,8 @@ CONFIDENCE = 0.95
 QAM_ORDERS = (4, 16, 64, 256)
 #: Working-memory budget of one block of frames, bytes.
 BLOCK_BYTES = 96 * 2**20
+#: Frames handled at a time by the steps before and after the block's FFTs (their arrays stay in the cache).
+CACHE_FRAMES = 1
 #: Received samples aimed at when the number of frames is not given ...
 AUTO_SAMPLES = 2**25
 #: ... within these bounds on the number of frames.
@@ -704,21 +706,20 @@ class _Workspace:
     A fresh multi-megabyte numpy array is fresh memory from the operating
     system, and its first touch costs a page fault per 4 KiB: in the
     simulator that was about as long as the arithmetic. The block's large
-    intermediates are written into these buffers instead (``out=``), sized
-    for ``plan.block_frames`` frames; a shorter last block uses their first
+    intermediates are written into these buffers instead (``out=``), each
+    allocated at its first request; a shorter last block uses their first
     frames. Results never live here: every buffer is overwritten by the next
-    block.
+    block (or the next frames of the block).
     """
 
-    def __init__(self, frames: int):
-        self.frames = frames
+    def __init__(self):
         self._buffers = {}
 
     def __call__(self, name: str, frames: int, shape: tuple, dtype) -> np.ndarray:
         """Buffer ``name`` of shape ``(frames,) + shape``, uninitialised."""
         buffer = self._buffers.get(name)
-        if buffer is None or buffer.shape[1:] != shape or buffer.dtype != dtype:
-            buffer = self._buffers[name] = np.empty((self.frames,) + shape, dtype=dtype)
+        if buffer is None or buffer.shape[0] < frames or buffer.shape[1:] != shape or buffer.dtype != dtype:
+            buffer = self._buffers[name] = np.empty((frames,) + shape, dtype=dtype)
         return buffer[:frames]
 
 
@@ -869,14 +870,18 @@ def _varying_samples(plan: _Plan, beta: np.ndarray, sent: np.ndarray, work: _Wor
     samples = (plan.symbols, plan.n)
     varying = None
     if inside.size and order > 0 and not plan.per_tap:
-        main_time = work("main_time", frames, main.shape[1:], plan.time_dtype)
-        np.copyto(main_time, main)
         ramps = plan.ramps_cols[inside].astype(plan.time_dtype)
+        gains = np.take(beta, inside, axis=1).transpose(0, 3, 2, 1).astype(plan.time_dtype)  # (F, Q+1, S, taps)
         for q in range(1, order + 1):  # H(u, k) = sum_q P_q(u) H_q(k): one IFFT per order for all these taps
-            gains = np.take(beta[..., q], inside, axis=1).transpose(0, 2, 1).astype(plan.time_dtype)
-            h_q = np.matmul(gains, ramps, out=work("h_q", frames, main.shape[1:], plan.time_dtype))  # (F, S, cols)
-            wave = _fft(_to_bins(main_time, plan, h_q,
-                                 out=work(f"wave{min(q, 2)}", frames, samples, plan.time_dtype)), inverse=True)
+            wave = work(f"wave{min(q, 2)}", frames, samples, plan.time_dtype)
+            for first in range(0, frames, CACHE_FRAMES):  # the products H_q X, a few frames at a time
+                some = slice(first, first + CACHE_FRAMES)
+                main_time = work("main_time", 1, main.shape[1:], plan.time_dtype)[:main[some].shape[0]]
+                np.copyto(main_time, main[some])
+                h_q = np.matmul(gains[some, q], ramps, out=work("h_q", main_time.shape[0], main.shape[1:],
+                                                                 plan.time_dtype))  # (F, S, columns)
+                _to_bins(main_time, plan, h_q, out=wave[some])
+            wave = _fft(wave, inverse=True)
             wave *= plan.legendre_time[q]
             varying = _accumulate(varying, wave)
     spectrum = None
@@ -926,61 +931,54 @@ def _estimate(plan: _Plan, pilot_values: np.ndarray, work: _Workspace) -> np.nda
                    out=work("estimate", frames, (plan.grid_to_cell.size,), complex))
 
 
-def _simulate_block(plan: _Plan, seeds, work: _Workspace) -> dict:
-    draws = _draw(plan, seeds, work)
-    frames = len(seeds)
-    cols = plan.k_phys.size
-    grid = (plan.symbols, cols)
-    measured = plan.measured_symbols * cols
-    index = np.add(draws.values, plan.symbol_offset, out=work("index", frames, plan.symbol_offset.shape, np.uint16))
-    # (indices are valid by construction; mode="clip" lets np.take write into ``out`` unbuffered)
-    sent = np.take(plan.symbol_table, index, out=work("sent", frames, plan.symbol_offset.shape, complex), mode="clip")
-    beta, tap_power = _tap_gains(plan, draws.freqs, draws.amps, draws.phases, work)
-    main = sent[:, plan.pre:]  # the received frame's own symbols
-    rows = slice(plan.first_measured, plan.first_measured + plan.measured_symbols)
+def _static_part(plan: _Plan, beta: np.ndarray, main: np.ndarray, work: _Workspace) -> np.ndarray:
+    """Static part of the received subcarriers (F, S, columns): order 0 of the taps inside the guard.
 
-    # Order 0 of the taps inside the guard is static over the window: IFFT and receiver FFT cancel,
-    # so it is applied on the subcarriers. Everything else goes through the time domain.
+    It is constant over the window, so the IFFT and the receiver's FFT cancel
+    for it and it is applied on the subcarriers.
+    """
     inside = plan.inside
     static = np.matmul(np.take(beta[..., 0], inside, axis=1).transpose(0, 2, 1), plan.ramps_cols[inside],
-                       out=work("static", frames, grid, complex))  # (F, S, columns)
-    static *= main  # the static part of the received subcarriers
-    varying = _varying_samples(plan, beta, sent, work)
-    with_oscillator = plan.linewidth_hz > 0 or plan.frequency_offset_hz != 0
-    if with_oscillator:
-        received = _fft(_to_bins(static, plan), inverse=True)
-        if varying is not None:
-            received += varying
-    if varying is None:
-        y_channel = static
-    else:
-        y_channel = _from_bins(_fft(varying), plan, out=work("y_channel", frames, grid, complex))
-        y_channel += static
+                       out=work("static", main.shape[0], main.shape[1:], complex))
+    static *= main
+    return static
+
+
+def _without_noise(plan: _Plan, static: np.ndarray, bins, work: _Workspace) -> np.ndarray:
+    """Received subcarriers without noise and oscillator: the static part plus the used bins of ``bins``.
+
+    ``bins`` is the FFT of the time-domain part (F, S, N), or None when there is none.
+    """
+    if bins is None:
+        return static
+    out = _from_bins(bins, plan, out=work("y_channel", static.shape[0], static.shape[1:], complex))
+    out += static
+    return out
+
+
+def _measure(plan: _Plan, beta, main, y_channel, y, reference, uniforms, work: _Workspace) -> tuple:
+    """Per-frame numerators and denominators of the measured figures, for a few frames.
+
+    ``y_channel``: received subcarriers without noise and oscillator (F, S,
+    columns); ``y``: as received, before noise (``y_channel`` itself without
+    an oscillator: the noise is then added in place once the interference is
+    measured); ``reference``: the true channel as received on the measured
+    symbols (F, measured grid), or None for the window-average channel.
+    Returns ``(interference, useful, estimation error, channel power, error,
+    useful data power)``, each of shape (F,).
+    """
+    frames, cols = main.shape[0], plan.k_phys.size
+    measured = plan.measured_symbols * cols
+    rows = slice(plan.first_measured, plan.first_measured + plan.measured_symbols)
 
     # true channel: window average of the frequency response (current-symbol samples only)
     mean_gain = np.einsum("fmsq,mq->fsm", beta[:, :, rows], plan.current_mean)
-    true_channel = np.matmul(mean_gain, plan.ramps_cols, out=work("true_channel", frames, (plan.measured_symbols, cols), complex))
+    true_channel = np.matmul(mean_gain, plan.ramps_cols,
+                             out=work("true_channel", frames, (plan.measured_symbols, cols), complex))
     true_channel = true_channel.reshape(frames, measured)
     x = main[:, rows].reshape(frames, measured)
-
-    if with_oscillator:
-        rotation = _oscillator_phasor(plan, draws.increments, frames)
-        received *= rotation
-        y = _from_bins(_fft(received), plan)
-        derotate = np.exp(-1j * np.angle(rotation.mean(axis=-1)))[..., None]  # mean of exp(j theta) per window
-        y *= derotate  # ideal common-phase correction
-        # true channel as received: window average of the response times the oscillator phasor
-        rotation = rotation[:, rows]
-        mean_osc = np.empty(beta[:, :, rows].shape, dtype=complex)
-        mean_osc[:, inside] = (rotation @ (plan.legendre.T / plan.n))[:, None]  # whole window: same for these taps
-        for m in np.flatnonzero(plan.isi):
-            weights = np.where(plan.source_symbol[m] == 0, 1.0, 0.0)[None, :] * plan.legendre / plan.n  # (Q+1, N)
-            mean_osc[:, m] = rotation @ weights.T
-        reference = ((np.einsum("fmsq,fmsq->fsm", beta[:, :, rows], mean_osc) @ plan.ramps_cols)
-                     * derotate[:, rows]).reshape(frames, measured)
-        useful_data = _power(reference * x, plan.weight_data, scratch=True)
-    else:
-        y = y_channel  # the noise is added in place once the interference is measured
+    useful_data = None if reference is None else _power(reference * x, plan.weight_data, scratch=True)
+    if reference is None:
         reference = true_channel
 
     # interference with perfect channel knowledge, before noise and oscillator
@@ -989,11 +987,11 @@ def _simulate_block(plan: _Plan, seeds, work: _Workspace) -> dict:
     interference = _power(np.subtract(y_channel[:, rows].reshape(frames, measured), useful, out=scratch),
                           plan.weight_all, scratch=True)
     useful = _power(useful, plan.weight_useful, scratch=True)  # (F, 2): all measured REs, data REs
-    if not with_oscillator:
+    if useful_data is None:
         useful_data = useful[:, 1]
 
-    if plan.noise_std > 0:
-        noise = _noise(draws.uniforms, plan.noise_std, work)
+    if uniforms is not None:
+        noise = _noise(uniforms, plan.noise_std, work)
         y[:, rows] += noise[:, :measured].reshape(frames, plan.measured_symbols, cols)
         y.reshape(frames, -1)[:, plan.extra_pilot_flat] += noise[:, measured:]
 
@@ -1001,17 +999,67 @@ def _simulate_block(plan: _Plan, seeds, work: _Workspace) -> dict:
     pilot_values = np.multiply(np.take(y.reshape(frames, -1), plan.pilot_flat, axis=1),
                                np.conj(np.take(main.reshape(frames, -1), plan.pilot_flat, axis=1)))
     estimate = _estimate(plan, pilot_values, work)
-
-    estimation = (_power(np.subtract(estimate, reference, out=scratch), plan.weight_cell, scratch=True),
-                  _power(reference, plan.weight_cell, scratch=True))
+    estimation_error = _power(np.subtract(estimate, reference, out=scratch), plan.weight_cell, scratch=True)
+    channel_power = _power(reference, plan.weight_cell, scratch=True)
     error = np.multiply(estimate, x, out=estimate)
     error -= y[:, rows].reshape(frames, measured)
-    return {
-        "interference": (interference, useful[:, 0]),
-        "estimation": estimation,
-        "error": (_power(error, plan.weight_data, scratch=True), useful_data),
-        "tap_power": tap_power,
-    }
+    return (interference, useful[:, 0], estimation_error, channel_power,
+            _power(error, plan.weight_data, scratch=True), useful_data)
+
+
+def _simulate_block(plan: _Plan, seeds, work: _Workspace) -> dict:
+    """Measured sums of a block of frames.
+
+    The time-domain synthesis and its FFTs run on the whole block; what
+    follows the FFT runs ``CACHE_FRAMES`` frames at a time, so that its
+    arrays stay in the processor's cache.
+    """
+    draws = _draw(plan, seeds, work)
+    frames = len(seeds)
+    index = np.add(draws.values, plan.symbol_offset, out=work("index", frames, plan.symbol_offset.shape, np.uint16))
+    # (indices are valid by construction; mode="clip" lets np.take write into ``out`` unbuffered)
+    sent = np.take(plan.symbol_table, index, out=work("sent", frames, plan.symbol_offset.shape, complex), mode="clip")
+    beta, tap_power = _tap_gains(plan, draws.freqs, draws.amps, draws.phases, work)
+    main = sent[:, plan.pre:]  # the received frame's own symbols
+    varying = _varying_samples(plan, beta, sent, work)
+
+    with_oscillator = plan.linewidth_hz > 0 or plan.frequency_offset_hz != 0
+    if with_oscillator:  # the whole signal goes through the time domain
+        rows = slice(plan.first_measured, plan.first_measured + plan.measured_symbols)
+        static = _static_part(plan, beta, main, work)
+        received = _fft(_to_bins(static, plan), inverse=True)
+        if varying is not None:
+            received += varying
+        y_channel = _without_noise(plan, static, None if varying is None else _fft(varying), work)
+        rotation = _oscillator_phasor(plan, draws.increments, frames)
+        received *= rotation
+        y = _from_bins(_fft(received), plan)
+        derotate = np.exp(-1j * np.angle(rotation.mean(axis=-1)))[..., None]  # mean of exp(j theta) per window
+        y *= derotate  # ideal common-phase correction
+        # true channel as received: window average of the response times the oscillator phasor
+        rotation = rotation[:, rows]
+        mean_osc = np.empty(beta[:, :, rows].shape, dtype=complex)
+        mean_osc[:, plan.inside] = (rotation @ (plan.legendre.T / plan.n))[:, None]  # whole window: same for these
+        for m in np.flatnonzero(plan.isi):
+            weights = np.where(plan.source_symbol[m] == 0, 1.0, 0.0)[None, :] * plan.legendre / plan.n  # (Q+1, N)
+            mean_osc[:, m] = rotation @ weights.T
+        reference = ((np.einsum("fmsq,fmsq->fsm", beta[:, :, rows], mean_osc) @ plan.ramps_cols)
+                     * derotate[:, rows]).reshape(frames, -1)
+    else:
+        bins = None if varying is None else _fft(varying)
+
+    sums = np.empty((6, frames))
+    for first in range(0, frames, CACHE_FRAMES):
+        some = slice(first, first + CACHE_FRAMES)
+        uniforms = None if draws.uniforms is None else draws.uniforms[some]
+        if with_oscillator:
+            parts = (y_channel[some], y[some], reference[some])
+        else:
+            received = _without_noise(plan, _static_part(plan, beta[some], main[some], work),
+                                      None if bins is None else bins[some], work)
+            parts = (received, received, None)
+        sums[:, some] = _measure(plan, beta[some], main[some], *parts, uniforms, work)
+    return {"interference": sums[0:2], "estimation": sums[2:4], "error": sums[4:6], "tap_power": tap_power}
 
 
 # --- statistics ------------------------------------------------------------------
@@ -1119,7 +1167,7 @@ def simulate_link(design, environment, snr_db, *, frequency_offset_hz=0.0, linew
     if frames is None:
         frames = int(np.clip(round(AUTO_SAMPLES / (plan.symbols * plan.n)), *AUTO_FRAMES))
     seeds = np.random.SeedSequence(seed).spawn(frames)
-    work = _Workspace(min(frames, plan.block_frames))
+    work = _Workspace()
     parts = []
     for first in range(0, frames, plan.block_frames):
         parts.append(_simulate_block(plan, seeds[first:first + plan.block_frames], work))

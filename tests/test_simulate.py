@@ -346,7 +346,7 @@ def test_estimator_applies_the_pilot_weights():
     plan, pilot_snr = simulate._plan(design, environment, 20.0, 0.0, 0.0, "lmmse", 8, 4)
     rng = np.random.default_rng(5)
     values = rng.standard_normal((2, plan.pilot_flat.size)) + 1j * rng.standard_normal((2, plan.pilot_flat.size))
-    estimate = simulate._estimate(plan, values, simulate._Workspace(2))
+    estimate = simulate._estimate(plan, values, simulate._Workspace())
 
     weights = simulate._weights(design, environment, pilot_snr, "lmmse")
     cols = plan.k_phys.size
