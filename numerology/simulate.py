@@ -546,10 +546,11 @@ def _cell_estimator(pw, active: np.ndarray, design: Design, first: int, measured
     A pilot outside the band or on DC gets the number ``pilot count``, read
     as zero; resource elements that need one are not measured anyway.
 
-    Returns ``(cell_pilots, cell_weights, grid_to_cell)``: the pilot number
-    of each cell's pilots (cells, U), the weight matrix, and for each
-    resource element of the measured symbols (C order) its index into the
-    flattened ``(cells, D_f D_t)`` estimates.
+    Returns ``(cell_pilots, cell_weights, grid_to_cell, complete)``: the
+    pilot number of each cell's pilots (cells, U), the weight matrix, and for
+    each resource element of the measured symbols (C order) its index into
+    the flattened ``(cells, D_f D_t)`` estimates and whether every pilot its
+    estimator uses is there.
     """
     d_f, d_t = design.pilot_freq_spacing, design.pilot_time_spacing
     rows, cols = pilot_number.shape
@@ -576,9 +577,13 @@ def _cell_estimator(pw, active: np.ndarray, design: Design, first: int, measured
     pilot_col = (cells % (cols + d_f) - d_f)[:, None] + union_col[None, :]
     inside = (pilot_row >= 0) & (pilot_row < rows) & (pilot_col >= 0) & (pilot_col < cols)
     number = pilot_number[np.clip(pilot_row, 0, rows - 1), np.clip(pilot_col, 0, cols - 1)]
-    missing = int(pilot_number.max()) + 1
-    cell_pilots = np.where(inside & (number >= 0), number, missing)
-    return cell_pilots, cell_weights, cell * positions + cls
+    present = inside & (number >= 0)
+    cell_pilots = np.where(present, number, int(pilot_number.max()) + 1)
+    needs = np.zeros(cell_weights.shape, dtype=np.int64)  # which pilots each position uses
+    needs[slot, position[active]] = 1
+    complete = ((~present).astype(np.int64) @ needs) == 0  # (cells, positions): every pilot it uses is there
+    grid = cell * positions + cls
+    return cell_pilots, cell_weights, grid, complete.ravel()[grid]
 
 
 def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estimator, symbols_per_frame,
@@ -594,7 +599,6 @@ def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estima
     pilot_snr = math.inf if total == 0 else 1.0 / total  # as link.evaluate: pilots see every other term
     pw = _weights(design, environment, pilot_snr, estimator)
     active = pw.weights != 0
-    dk = np.where(active, pw.subcarrier_offset, 0)
     dl = np.where(active, pw.symbol_offset, 0)
     margin_lo = int(max(0, -dl.min()))
     margin_hi = int(max(0, dl.max()))
@@ -643,22 +647,13 @@ def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estima
     pilot_flat = np.flatnonzero(received_pilots)
 
     # measured resource elements: every used RE of the measured symbols whose estimator finds its pilots
-    ml, mc = np.nonzero(np.broadcast_to(used[None, :], (measured_symbols, cols)))
-    ml = ml + margin_lo
-    cls = _lattice_class(ml, mc, design)
-    pl = ml[:, None] + dl[cls]
-    pc = mc[:, None] + dk[cls]
-    inside = (pl >= 0) & (pl < symbols) & (pc >= 0) & (pc < cols)
-    number = np.where(inside, pilot_number[np.clip(pl, 0, symbols - 1), np.clip(pc, 0, cols - 1)], -1)
-    valid = np.all((number >= 0) | ~active[cls], axis=1)
-    if not valid.any():
+    cell_pilots, cell_weights, grid_to_cell, complete = _cell_estimator(pw, active, design, margin_lo,
+                                                                        measured_symbols, pilot_number)
+    grid_rows = np.flatnonzero(complete & np.tile(used, measured_symbols))  # measured grid, C order
+    if not grid_rows.size:
         raise InputError("design", f"{design.name!r}: no resource element has every pilot its {estimator} estimator "
                                    "needs inside the used band; the band is narrower than the estimator's reach")
-    grid_rows = (ml - margin_lo) * cols + mc  # measured grid, C order
-    cls = cls[valid]
-    grid_rows = grid_rows[valid]
-    cell_pilots, cell_weights, grid_to_cell = _cell_estimator(pw, active, design, margin_lo, measured_symbols,
-                                                              pilot_number)
+    cls = _lattice_class(grid_rows // cols + margin_lo, grid_rows % cols, design)
     counts = np.bincount(cls, minlength=pw.mse.size)
     weight_all = np.zeros(measured_symbols * cols)
     weight_all[grid_rows] = 1.0
