@@ -175,6 +175,28 @@ def test_spherical_bessel_series(order):
     assert_allclose(got[~series], exact[~series], rtol=1e-12, atol=0)
 
 
+def test_noise_is_circular_complex_gaussian():
+    """The simulator's noise has the moments and the |n|^2 tail of circular complex Gaussian noise.
+
+    Common practice (e.g. Proakis, Digital Communications, ch. 2; from
+    memory): for circular complex Gaussian n of variance s^2, E n = 0,
+    E n^2 = 0, E|n|^2 = s^2, and |n|^2 / s^2 is exponential with unit mean,
+    so P(|n|^2 > t s^2) = exp(-t). 10^6 values; tolerances are 5 standard
+    errors of each estimate (1e-3 for the moments, binomial for the tails).
+    """
+    count, std = 10**6, 0.3
+    uniforms = np.random.default_rng(11).random((1, 2, count), dtype=np.float32)
+    noise = np.zeros((1, count), dtype=complex)
+    simulate._add_noise(noise, uniforms, std, simulate._Workspace())
+    noise = noise[0] / std
+    assert abs(noise.mean()) < 5 * math.sqrt(1 / count)
+    assert abs(np.mean(noise**2)) < 5 * math.sqrt(1 / count)
+    assert_allclose(np.mean(np.abs(noise) ** 2), 1.0, atol=5 * math.sqrt(1 / count))
+    for t in (0.1, 1.0, 4.0, 9.0):
+        p = math.exp(-t)
+        assert_allclose(np.mean(np.abs(noise) ** 2 > t), p, atol=5 * math.sqrt(p * (1 - p) / count))
+
+
 def test_tap_powers_follow_the_profile():
     """Mean power of each simulated tap equals the profile's power.
 
