@@ -462,6 +462,7 @@ class _Plan:
     source_symbol: np.ndarray  # (taps, N) symbol offset q <= 0 of each window sample
     source_index: np.ndarray  # (taps, N) index into that symbol's periodic waveform
     current_mean: np.ndarray  # (taps, Q+1) mean over the window of P_q on current-symbol samples
+    true_is_static: bool  # the true channel is the static gains (no late path, orders >= 1 average to zero)
     legendre: np.ndarray  # (Q+1, N) P_q(u_n)
     legendre_time: np.ndarray  # the same in the real type of the time-domain samples
     time_dtype: type  # complex type of the time-domain synthesis
@@ -629,6 +630,8 @@ def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estima
     legendre = np.polynomial.legendre.legvander(u, order).T  # (Q+1, N)
     current = (source_symbol == 0)  # (taps, N)
     current_mean = current.astype(float) @ legendre.T / n  # (taps, Q+1)
+    # a whole window is symmetric in u, so odd orders average to zero exactly for the taps inside the guard
+    current_mean[np.ix_(~isi, np.arange(1, order + 1, 2))] = 0.0
 
     signed_bins = np.fft.fftfreq(n, 1.0 / n)
     ramps = np.exp(-2j * np.pi * np.outer(delays, signed_bins) / n)  # ideal fractional delay per subcarrier
@@ -684,7 +687,7 @@ def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estima
         grid_to_cell=grid_to_cell, noise_count=measured_symbols * cols + extra_pilot_flat.size,
         extra_pilot_flat=extra_pilot_flat, delays=delays, amplitudes=np.sqrt(powers), inside=taps_inside, isi=isi,
         ramps=ramps.astype(time_dtype), ramps_cols=ramps_cols, source_symbol=source_symbol, source_index=source_index,
-        current_mean=current_mean, legendre=legendre, legendre_time=legendre.astype(np.finfo(time_dtype).dtype),
+        current_mean=current_mean, true_is_static=not isi.any() and not current_mean[:, 1:].any(), legendre=legendre, legendre_time=legendre.astype(np.finfo(time_dtype).dtype),
         time_dtype=time_dtype, per_tap=_TAP_PATH == "taps" or (_TAP_PATH == "auto" and taps_inside.size <= order),
         order=order, spectrum=environment.doppler_spectrum, max_doppler_hz=environment.max_doppler_hz,
         k_factor=environment.k_factor, sinusoids=SINUSOIDS, noise_std=math.sqrt(terms["noise"]),
@@ -965,36 +968,32 @@ def _estimate(plan: _Plan, pilot_values: np.ndarray, work: _Workspace) -> np.nda
                    out=work("estimate", frames, (plan.grid_to_cell.size,), complex))
 
 
-def _static_part(plan: _Plan, beta: np.ndarray, main: np.ndarray, work: _Workspace) -> np.ndarray:
-    """Static part of the received subcarriers (F, S, columns): order 0 of the taps inside the guard.
+def _static_gains(plan: _Plan, beta: np.ndarray, work: _Workspace) -> np.ndarray:
+    """Order 0 of the taps inside the guard on the subcarriers (F, S, columns).
 
     It is constant over the window, so the IFFT and the receiver's FFT cancel
     for it and it is applied on the subcarriers.
     """
     inside = plan.inside
-    static = np.matmul(np.take(beta[..., 0], inside, axis=1).transpose(0, 2, 1), plan.ramps_cols[inside],
-                       out=work("static", main.shape[0], main.shape[1:], complex))
-    static *= main
-    return static
+    return np.matmul(np.take(beta[..., 0], inside, axis=1).transpose(0, 2, 1), plan.ramps_cols[inside],
+                     out=work("static", beta.shape[0], (plan.symbols, plan.k_phys.size), complex))
 
 
-def _without_noise(plan: _Plan, static: np.ndarray, bins, work: _Workspace) -> np.ndarray:
-    """Received subcarriers without noise and oscillator: the static part plus the used bins of ``bins``.
-
-    ``bins`` is the FFT of the time-domain part (F, S, N), or None when there is none.
-    """
-    if bins is None:
-        return static
-    out = _from_bins(bins, plan, out=work("y_channel", static.shape[0], static.shape[1:], complex))
-    out += static
+def _without_noise(plan: _Plan, main: np.ndarray, static: np.ndarray, bins, work: _Workspace) -> np.ndarray:
+    """Received subcarriers without noise and oscillator: the static part ``main * static`` plus the used
+    bins of ``bins``, the FFT of the time-domain part (F, S, N), or None when there is none."""
+    out = np.multiply(main, static, out=work("y_channel", main.shape[0], main.shape[1:], complex))
+    if bins is not None:
+        out += _from_bins(bins, plan, out=work("from_bins", main.shape[0], main.shape[1:], complex))
     return out
 
 
-def _measure(plan: _Plan, beta, main, y_channel, y, reference, uniforms, work: _Workspace) -> tuple:
+def _measure(plan: _Plan, beta, main, static, y_channel, y, reference, uniforms, work: _Workspace) -> tuple:
     """Per-frame numerators and denominators of the measured figures, for a few frames.
 
-    ``y_channel``: received subcarriers without noise and oscillator (F, S,
-    columns); ``y``: as received, before noise (``y_channel`` itself without
+    ``static``: the static gains (:func:`_static_gains`, F, S, columns; may
+    be overwritten); ``y_channel``: received subcarriers without noise and
+    oscillator (same shape); ``y``: as received, before noise (``y_channel`` itself without
     an oscillator: the noise is then added in place once the interference is
     measured); ``reference``: the true channel as received on the measured
     symbols (F, measured grid), or None for the window-average channel.
@@ -1006,9 +1005,12 @@ def _measure(plan: _Plan, beta, main, y_channel, y, reference, uniforms, work: _
     rows = slice(plan.first_measured, plan.first_measured + plan.measured_symbols)
 
     # true channel: window average of the frequency response (current-symbol samples only)
-    mean_gain = np.einsum("fmsq,mq->fsm", beta[:, :, rows], plan.current_mean)
-    true_channel = np.matmul(mean_gain, plan.ramps_cols,
-                             out=work("true_channel", frames, (plan.measured_symbols, cols), complex))
+    if plan.true_is_static:
+        true_channel = static[:, rows]
+    else:
+        mean_gain = np.einsum("fmsq,mq->fsm", beta[:, :, rows], plan.current_mean)
+        true_channel = np.matmul(mean_gain, plan.ramps_cols,
+                                 out=work("true_channel", frames, (plan.measured_symbols, cols), complex))
     true_channel = true_channel.reshape(frames, measured)
     x = main[:, rows].reshape(frames, measured)
     useful_data = None if reference is None else _power(reference * x, plan.weight_data, scratch=True)
@@ -1061,11 +1063,11 @@ def _simulate_block(plan: _Plan, seeds, work: _Workspace) -> dict:
     with_oscillator = plan.linewidth_hz > 0 or plan.frequency_offset_hz != 0
     if with_oscillator:  # the whole signal goes through the time domain
         rows = slice(plan.first_measured, plan.first_measured + plan.measured_symbols)
-        static = _static_part(plan, beta, main, work)
-        received = _fft(_to_bins(static, plan), inverse=True)
+        static = _static_gains(plan, beta, work)
+        received = _fft(_to_bins(main, plan, static), inverse=True)
         if varying is not None:
             received += varying
-        y_channel = _without_noise(plan, static, None if varying is None else _fft(varying), work)
+        y_channel = _without_noise(plan, main, static, None if varying is None else _fft(varying), work)
         rotation = _oscillator_phasor(plan, draws.increments, frames)
         received *= rotation
         y = _from_bins(_fft(received), plan)
@@ -1088,11 +1090,11 @@ def _simulate_block(plan: _Plan, seeds, work: _Workspace) -> dict:
         some = slice(first, first + CACHE_FRAMES)
         uniforms = None if draws.uniforms is None else draws.uniforms[some]
         if with_oscillator:
-            parts = (y_channel[some], y[some], reference[some])
+            parts = (static[some], y_channel[some], y[some], reference[some])
         else:
-            received = _without_noise(plan, _static_part(plan, beta[some], main[some], work),
-                                      None if bins is None else bins[some], work)
-            parts = (received, received, None)
+            gains = _static_gains(plan, beta[some], work)
+            received = _without_noise(plan, main[some], gains, None if bins is None else bins[some], work)
+            parts = (gains, received, received, None)
         sums[:, some] = _measure(plan, beta[some], main[some], *parts, uniforms, work)
     return {"interference": sums[0:2], "estimation": sums[2:4], "error": sums[4:6], "tap_power": tap_power}
 
