@@ -913,10 +913,10 @@ def _varying_samples(plan: _Plan, beta: np.ndarray, sent: np.ndarray, work: _Wor
             wave = work(f"wave{min(q, 2)}", frames, samples, plan.time_dtype)
             for first in range(0, frames, CACHE_FRAMES):  # the products H_q X, a few frames at a time
                 some = slice(first, first + CACHE_FRAMES)
-                main_time = work("main_time", 1, main.shape[1:], plan.time_dtype)[:main[some].shape[0]]
+                count = main[some].shape[0]
+                main_time = work("main_time", count, main.shape[1:], plan.time_dtype)
                 np.copyto(main_time, main[some])
-                h_q = np.matmul(gains[some, q], ramps, out=work("h_q", main_time.shape[0], main.shape[1:],
-                                                                 plan.time_dtype))  # (F, S, columns)
+                h_q = np.matmul(gains[some, q], ramps, out=work("h_q", count, main.shape[1:], plan.time_dtype))
                 _to_bins(main_time, plan, h_q, out=wave[some])
             wave = _fft(wave, inverse=True)
             wave *= plan.legendre_time[q]

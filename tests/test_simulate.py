@@ -314,18 +314,24 @@ def test_oscillator_ici_after_common_phase_correction(linewidth_hz, offset_hz):
     assert abs(db_ratio(1 / result.sinr_eff, ici + result.estimation_mse)) <= 0.5 * DB
 
 
-def test_same_seed_same_result_and_block_size_does_not_matter(monkeypatch):
-    """Frames draw from their own seeds: equal seeds give identical results, whatever the block size."""
+@pytest.mark.parametrize("tap_path", ["taps", "orders"])
+def test_same_seed_same_result_and_block_size_does_not_matter(monkeypatch, tap_path):
+    """Frames draw from their own seeds: equal seeds give identical results, whatever the block size
+    and however many frames are handled at a time within a block (both ways of applying the taps)."""
+    monkeypatch.setattr(simulate, "_TAP_PATH", tap_path)
     environment = make_environment([0.0, 3.3 * SAMPLE_S, 40.5 * SAMPLE_S], [0.6, 0.3, 0.1], 600.0)
     kwargs = dict(frames=6, linewidth_hz=20.0, frequency_offset_hz=50.0, seed=7)
     first = simulate.simulate_link(small_design(), environment, 15.0, **kwargs)
     again = simulate.simulate_link(small_design(), environment, 15.0, **kwargs)
+    monkeypatch.setattr(simulate, "CACHE_FRAMES", 4)  # several frames at a time around the FFTs
+    grouped = simulate.simulate_link(small_design(), environment, 15.0, **kwargs)
     monkeypatch.setattr(simulate, "BLOCK_BYTES", 1)  # one frame per block
     blocks = simulate.simulate_link(small_design(), environment, 15.0, **kwargs)
     other = simulate.simulate_link(small_design(), environment, 15.0, **dict(kwargs, seed=8))
     assert first == again
-    assert_allclose(blocks.sinr_eff, first.sinr_eff, rtol=1e-12)  # only summation order may differ
-    assert_allclose(blocks.interference, first.interference, rtol=1e-12)
+    for result in (blocks, grouped):
+        assert_allclose(result.sinr_eff, first.sinr_eff, rtol=1e-12)  # only summation order may differ
+        assert_allclose(result.interference, first.interference, rtol=1e-12)
     assert other.sinr_eff != first.sinr_eff
 
 
