@@ -87,7 +87,7 @@ Oscillator and noise
     in distribution to adding white noise to the samples; it is drawn only
     where the receiver reads it (every resource element of the measured
     symbols, and the pilots), by the Box-Muller transform (exact in
-    distribution; single-precision uniforms, see :func:`_add_noise`).
+    distribution; single-precision uniforms, see :func:`_noise`).
 
 Receiver
     FFT window synchronised to the first tap (the ``N`` samples after the
@@ -786,7 +786,7 @@ def _draw(plan: _Plan, seeds, work: _Workspace) -> _Draws:
     per sent resource element, which selects its data or pilot point
     (:attr:`_Plan.symbol_table`); the fading parameters; the phase-noise
     increments; two single-precision uniforms per noise value (Box-Muller,
-    see :func:`_add_noise`), only where noise is read. The large arrays are
+    see :func:`_noise`), only where noise is read. The large arrays are
     written straight into the workspace.
     """
     frames = len(seeds)
@@ -807,17 +807,16 @@ def _draw(plan: _Plan, seeds, work: _Workspace) -> _Draws:
     return _Draws(values, freqs, amps, phases, increments, uniforms)
 
 
-def _add_noise(values: np.ndarray, uniforms: np.ndarray, std: float, work: _Workspace) -> None:
-    """Add complex white Gaussian noise of variance ``std**2`` to ``values`` (F, ...), in place.
+def _noise(uniforms: np.ndarray, std: float, work: _Workspace):
+    """Complex white Gaussian noise of variance ``std**2``: real and imaginary parts (F, L), float32.
 
-    ``uniforms`` (F, 2, L), L values per frame, holds two uniforms for each.
-    Box-Muller in polar form: ``|n|^2 = -std^2 ln(1 - u)`` is exponential
-    and the phase ``2 pi v`` uniform, independent, which is the circular
-    complex Gaussian exactly (G. E. P. Box, M. E. Muller, Ann. Math. Stat.
-    29(2), 1958). Single precision suffices: the uniforms are multiples of
-    2^-24, so ``|n|^2 / std^2`` is cut at 16.6 (probability 6e-8) and its
-    steps are below 1e-7 relative; the noise is added to double-precision
-    values.
+    ``uniforms`` (F, 2, L) holds two uniforms for each value. Box-Muller in
+    polar form: ``|n|^2 = -std^2 ln(1 - u)`` is exponential and the phase
+    ``2 pi v`` uniform, independent, which is the circular complex Gaussian
+    exactly (G. E. P. Box, M. E. Muller, Ann. Math. Stat. 29(2), 1958).
+    Single precision suffices: the uniforms are multiples of 2^-24, so
+    ``|n|^2 / std^2`` is cut at 16.6 (probability 6e-8) and its steps are
+    below 1e-7 relative; the noise is added to double-precision values.
     """
     frames, _, count = uniforms.shape
     radius = np.subtract(np.float32(1.0), uniforms[:, 0], out=work("noise_radius", frames, (count,), np.float32))
@@ -825,12 +824,10 @@ def _add_noise(values: np.ndarray, uniforms: np.ndarray, std: float, work: _Work
     radius *= np.float32(-std * std)
     np.sqrt(radius, out=radius)
     angle = np.multiply(uniforms[:, 1], np.float32(2.0 * np.pi), out=work("noise_angle", frames, (count,), np.float32))
-    part = work("noise_part", frames, (count,), np.float32)
-    shaped = part.reshape(values.shape)  # a view: the buffer is contiguous
-    np.multiply(np.cos(angle, out=part), radius, out=part)
-    np.add(values.real, shaped, out=values.real)
-    np.multiply(np.sin(angle, out=part), radius, out=part)
-    np.add(values.imag, shaped, out=values.imag)
+    real = np.cos(angle, out=work("noise_real", frames, (count,), np.float32))
+    real *= radius
+    np.multiply(np.sin(angle, out=angle), radius, out=radius)
+    return real, radius
 
 
 #: Below this argument the spherical Bessel functions are summed from their power series.
@@ -1027,10 +1024,11 @@ def _measure(plan: _Plan, beta, main, static, y_channel, y, reference, uniforms,
         useful_data = useful[:, 1]
 
     if uniforms is not None:  # measured symbols, then the other pilots
-        extra = np.take(y.reshape(frames, -1), plan.extra_pilot_flat, axis=1)
-        _add_noise(y[:, rows], uniforms[:, :, :measured], plan.noise_std, work)
-        _add_noise(extra, uniforms[:, :, measured:], plan.noise_std, work)
-        y.reshape(frames, -1)[:, plan.extra_pilot_flat] = extra
+        real, imag = _noise(uniforms, plan.noise_std, work)
+        grid = (frames, plan.measured_symbols, cols)
+        np.add(y[:, rows].real, real[:, :measured].reshape(grid), out=y[:, rows].real)
+        np.add(y[:, rows].imag, imag[:, :measured].reshape(grid), out=y[:, rows].imag)
+        y.reshape(frames, -1)[:, plan.extra_pilot_flat] += real[:, measured:] + 1j * imag[:, measured:]
 
     # channel estimate with the analytic model's weights
     pilot_values = np.multiply(np.take(y.reshape(frames, -1), plan.pilot_flat, axis=1),
