@@ -79,7 +79,8 @@ def main() -> None:
     runs, fft_runs, frame_fft_runs = [], [], []
     for _ in range(REPEATS):  # interleaved, so that all sides meet the same machine load
         start = time.perf_counter()
-        result = simulate.simulate_link(design, environment, 20.0, frames=frames, symbols_per_frame=symbols_per_frame)
+        result = simulate.simulate_link(design, environment, 20.0, frames=frames,
+                                        symbols_per_frame=symbols_per_frame)
         runs.append(time.perf_counter() - start)
         start = time.perf_counter()
         for _ in range(blocks):

@@ -682,12 +682,15 @@ def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estima
         symbol_table=symbol_table, symbol_offset=symbol_offset, pilot_flat=pilot_flat,
         first_measured=margin_lo, weight_all=np.repeat(weight_all, 2), weight_cell=np.repeat(weight_cell, 2),
         weight_data=np.repeat(weight_data, 2),
-        weight_useful=np.repeat(np.stack([weight_all, weight_data], axis=1), 2, axis=0), measured_count=int(weight_all.sum()),
-        data_count=int(weight_data.sum()), cell_pilots=cell_pilots, cell_weights=cell_weights,
-        grid_to_cell=grid_to_cell, noise_count=measured_symbols * cols + extra_pilot_flat.size,
+        weight_useful=np.repeat(np.stack([weight_all, weight_data], axis=1), 2, axis=0),
+        measured_count=int(weight_all.sum()), data_count=int(weight_data.sum()), cell_pilots=cell_pilots,
+        cell_weights=cell_weights, grid_to_cell=grid_to_cell,
+        noise_count=measured_symbols * cols + extra_pilot_flat.size,
         extra_pilot_flat=extra_pilot_flat, delays=delays, amplitudes=np.sqrt(powers), inside=taps_inside, isi=isi,
-        ramps=ramps.astype(time_dtype), ramps_cols=ramps_cols, source_symbol=source_symbol, source_index=source_index,
-        current_mean=current_mean, true_is_static=not isi.any() and not current_mean[:, 1:].any(), legendre=legendre, legendre_time=legendre.astype(np.finfo(time_dtype).dtype),
+        ramps=ramps.astype(time_dtype), ramps_cols=ramps_cols, source_symbol=source_symbol,
+        source_index=source_index, current_mean=current_mean,
+        true_is_static=not isi.any() and not current_mean[:, 1:].any(),
+        legendre=legendre, legendre_time=legendre.astype(np.finfo(time_dtype).dtype),
         time_dtype=time_dtype, per_tap=_TAP_PATH == "taps" or (_TAP_PATH == "auto" and taps_inside.size <= order),
         order=order, spectrum=environment.doppler_spectrum, max_doppler_hz=environment.max_doppler_hz,
         k_factor=environment.k_factor, sinusoids=SINUSOIDS, noise_std=math.sqrt(terms["noise"]),
@@ -823,7 +826,8 @@ def _noise(uniforms: np.ndarray, std: float, work: _Workspace):
     np.log(radius, out=radius)
     radius *= np.float32(-std * std)
     np.sqrt(radius, out=radius)
-    angle = np.multiply(uniforms[:, 1], np.float32(2.0 * np.pi), out=work("noise_angle", frames, (count,), np.float32))
+    angle = np.multiply(uniforms[:, 1], np.float32(2.0 * np.pi),
+                        out=work("noise_angle", frames, (count,), np.float32))
     real = np.cos(angle, out=work("noise_real", frames, (count,), np.float32))
     real *= radius
     np.multiply(np.sin(angle, out=angle), radius, out=radius)
@@ -1053,7 +1057,8 @@ def _simulate_block(plan: _Plan, seeds, work: _Workspace) -> dict:
     frames = len(seeds)
     index = np.add(draws.values, plan.symbol_offset, out=work("index", frames, plan.symbol_offset.shape, np.uint16))
     # (indices are valid by construction; mode="clip" lets np.take write into ``out`` unbuffered)
-    sent = np.take(plan.symbol_table, index, out=work("sent", frames, plan.symbol_offset.shape, complex), mode="clip")
+    sent = np.take(plan.symbol_table, index, mode="clip",
+                   out=work("sent", frames, plan.symbol_offset.shape, complex))
     beta, tap_power = _tap_gains(plan, draws.freqs, draws.amps, draws.phases, work)
     main = sent[:, plan.pre:]  # the received frame's own symbols
     varying = _varying_samples(plan, beta, sent, work)
