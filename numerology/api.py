@@ -358,7 +358,7 @@ def _what_relaxing_buys(req, environment, objective, best: CheckResult, best_key
     if key in ("rules.max_doppler_ici", "rules.max_oscillator_ici"):
         new = min(new, 0.0)
     relaxed_req = req.replace(key, new)
-    found = solver.search(relaxed_req, derive_environment(relaxed_req), objective=objective, top=1)
+    found = solver.search(relaxed_req, derive_environment(relaxed_req), objective=objective, top=1, pareto=False)
     after = float(found.ranked.keys[0]) if found.feasible else None
     return Relaxed(key, float(current), float(new), objective, best_key, after)
 

@@ -157,7 +157,7 @@ def _goal_optimum(req, key):
         environment = derive_environment(req)
     except (InputError, ValueError):
         return None
-    found = search(req, environment, objective=objective, top=1, ignore=(rule,))
+    found = search(req, environment, objective=objective, top=1, ignore=(rule,), pareto=False)
     return sign * float(found.ranked.keys[0]) if found.feasible else None
 
 

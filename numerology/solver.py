@@ -132,7 +132,8 @@ def _cheap_stage(grid: cand.Grid, environment: Environment, req: Requirements, i
 
 
 def search(req: Requirements, environment: Environment | None = None, objective: str | None = None,
-           top: int = 5, ignore=(), first_feasible_only: bool = False, spacings_hz=None) -> Search:
+           top: int = 5, ignore=(), first_feasible_only: bool = False, spacings_hz=None,
+           pareto: bool = True) -> Search:
     """Search the candidate space.
 
     Parameters
@@ -151,6 +152,8 @@ def search(req: Requirements, environment: Environment | None = None, objective:
         Stop at the first feasible design (a feasibility test).
     spacings_hz : array, optional
         Use these spacings instead of the family within the window (brute force).
+    pareto : bool
+        Find the Pareto front (False: only the ranking is wanted, as for a what-if).
     """
     environment = environment or derive_environment(req)
     objective = objective or req.goals.objective
@@ -203,9 +206,11 @@ def search(req: Requirements, environment: Environment | None = None, objective:
         return Search(window, None, stats, rejected)
     # Best first; ties broken by robustness, then by enumeration order (deterministic).
     rank = np.lexsort((found["index"], -found["robust"], -found["key"]))
-    pareto = pareto_mask(found["rate"], found["speed"], found["delay"])
+    if pareto:
+        on_front = pareto_mask(found["rate"], found["speed"], found["delay"])[rank]
+    else:
+        on_front = np.zeros(rank.size, dtype=bool)
     chosen = found["index"][rank].astype(np.int64)
-    on_front = pareto[rank]
     # The ranking lists each numerology (spacing, FFT size, CP) once, with its best pilots and slot.
     numerology_table = np.stack([grid.spacing_hz[chosen], grid.fft_size[chosen], grid.cp_samples[chosen]], axis=1)
     _, first = np.unique(numerology_table, axis=0, return_index=True)
