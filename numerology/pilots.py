@@ -70,6 +70,10 @@ _TRACE_FORM_MAX_SNR = 1e6
 _GROUP_CHUNK = 512
 _GROUP_MIN = 64
 
+#: Complex values the per-row correlation factors of one lattice may take at once (64 MiB); beyond
+#: it, each chunk of candidates builds the factors of its own rows only.
+_FACTOR_BUDGET = 1 << 22
+
 #: Targets (candidate x cell position) processed per block in estimation_mse.
 _TARGETS_PER_BLOCK = 1 << 13
 
@@ -748,7 +752,8 @@ def _lmmse_lattice_mean(d_f, d_t, s, snr, f_table, f_row, t_table, t_row, window
     the symbols l with c_l = c; likewise R = R_F o R_T. The factors depend on
     one correlation each, so they are computed once per distinct table row
     (sites of a sweep share few), and each candidate only multiplies its
-    factors. Then, as in ``_lmmse_cell_mean``, mean MSE = 1 - tr(A^-1 S) / P
+    factors; when all rows' factors would exceed ``_FACTOR_BUDGET``, each
+    chunk of candidates builds those of its own rows (bounded memory). Then, as in ``_lmmse_cell_mean``, mean MSE = 1 - tr(A^-1 S) / P
     (pilot SNR up to ``_TRACE_FORM_MAX_SNR``, where the design and true noise
     coincide).
     """
@@ -758,35 +763,47 @@ def _lmmse_lattice_mean(d_f, d_t, s, snr, f_table, f_row, t_table, t_row, window
     ii, jj = (g.ravel() for g in np.meshgrid(i, j, indexing="ij"))
     kappa = ii * d_f + jj * s  # pilot subcarrier (lattice point (ii, jj))
     lam = jj * d_t  # pilot symbol
-    f_used, f_of = np.unique(f_row, return_inverse=True)
-    t_used, t_of = np.unique(t_row, return_inverse=True)
-    f_tab, t_tab = f_table[f_used], t_table[t_used]
-    # Correlation factors, one per distinct table row: (n_F, W, W) and (n_F, C, W, W) in frequency,
-    # (n_T, W, W) and (n_T, C, W, W) in time.
-    r_f = _lookup(f_tab, (kappa[:, None] - kappa[None, :])[None])  # F(kappa_p - kappa_q)
-    r_t = _lookup(t_tab, (lam[:, None] - lam[None, :])[None])  # T(lambda_p - lambda_q)
     symbols = np.arange(d_t)
     starts = -((-symbols * s) // d_t)  # c_l = ceil(l s / D_t)
-    k_all = np.arange(starts.max() + d_f)
-    f_parts = _lookup(f_tab, (kappa[None, :] - k_all[:, None])[None])  # (n_F, K, W): F(kappa_p - k)
-    t_parts = _lookup(t_tab, (lam[None, :] - symbols[:, None])[None])  # (n_T, D_t, W): T(lambda_p - l)
-    firsts = np.unique(starts)
-    a_f = np.stack([np.matmul(f_parts[:, c:c + d_f, :].transpose(0, 2, 1), f_parts[:, c:c + d_f, :].conj())
-                    for c in firsts], axis=1)  # sum_k f f^H
-    b_t = np.stack([np.matmul(t_parts[:, starts == c, :].transpose(0, 2, 1), t_parts[:, starts == c, :].conj())
-                    for c in firsts], axis=1)  # sum_l tau tau^H
-    # Candidates in order of their frequency correlation: where few distinct ones are shared by many
-    # candidates (the sites of a sweep), each run multiplies one broadcast factor instead of gathering it.
-    order = np.argsort(f_of, kind="stable")
-    f_sorted, t_sorted = f_of[order], t_of[order]
-    by_runs = f_used.size * 8 <= snr.size
     size = n_f * n_t
     rows = size // 2 if size % 2 == 0 else size  # R is centrohermitian: its top half is enough
-    r_f, r_t = np.ascontiguousarray(r_f[:, :rows]), np.ascontiguousarray(r_t[:, :rows])
+    per_row = (np.unique(starts).size + 1) * size * size  # complex values of one row's factors
+
+    def factors(f_rows, t_rows):
+        """R_F (top rows), A_F(c) per frequency row; R_T (top rows), B_T(c) per time row."""
+        f_tab, t_tab = f_table[f_rows], t_table[t_rows]
+        r_f = _lookup(f_tab, (kappa[:rows, None] - kappa[None, :])[None])  # F(kappa_p - kappa_q)
+        r_t = _lookup(t_tab, (lam[:rows, None] - lam[None, :])[None])  # T(lambda_p - lambda_q)
+        k_all = np.arange(starts.max() + d_f)
+        f_parts = _lookup(f_tab, (kappa[None, :] - k_all[:, None])[None])  # (n_F, K, W): F(kappa_p - k)
+        t_parts = _lookup(t_tab, (lam[None, :] - symbols[:, None])[None])  # (n_T, D_t, W): T(lambda_p - l)
+        a_f = np.stack([np.matmul(f_parts[:, c:c + d_f, :].transpose(0, 2, 1), f_parts[:, c:c + d_f, :].conj())
+                        for c in np.unique(starts)], axis=1)  # sum_k f f^H
+        b_t = np.stack([np.matmul(t_parts[:, starts == c, :].transpose(0, 2, 1), t_parts[:, starts == c, :].conj())
+                        for c in np.unique(starts)], axis=1)  # sum_l tau tau^H
+        return r_f, a_f, r_t, b_t
+
+    # Candidates in order of their frequency correlation: where few distinct ones are shared by many
+    # candidates (the sites of a sweep), each run multiplies one broadcast factor instead of gathering it.
+    order = np.argsort(f_row, kind="stable")
+    f_sorted, t_sorted = f_row[order], t_row[order]
+    f_used, t_used = np.unique(f_sorted), np.unique(t_sorted)
+    shared = (f_used.size + t_used.size) * per_row <= _FACTOR_BUDGET
+    if shared:  # every distinct row's factors at once
+        common = factors(f_used, t_used)
+    chunk = _GROUP_CHUNK if shared else max(16, min(_GROUP_CHUNK, _FACTOR_BUDGET // (2 * per_row)))
     diagonal = np.arange(rows)
     out = np.empty(snr.shape)
-    for lo in range(0, snr.size, _GROUP_CHUNK):  # bounded memory: (chunk, W, W) per matrix
-        fi, ti = f_sorted[lo:lo + _GROUP_CHUNK], t_sorted[lo:lo + _GROUP_CHUNK]
+    for lo in range(0, snr.size, chunk):  # bounded memory: (chunk, W, W) per matrix
+        fi, ti = f_sorted[lo:lo + chunk], t_sorted[lo:lo + chunk]
+        if shared:
+            r_f, a_f, r_t, b_t = common
+            fi, ti = np.searchsorted(f_used, fi), np.searchsorted(t_used, ti)
+        else:  # factors of this chunk's rows only
+            f_here, fi = np.unique(fi, return_inverse=True)
+            t_here, ti = np.unique(ti, return_inverse=True)
+            r_f, a_f, r_t, b_t = factors(f_here, t_here)
+        by_runs = (f_used.size if shared else f_here.size) * 8 <= fi.size
         big_r = np.empty((fi.size, rows, size), dtype=np.complex128)
         s_mat = np.empty((fi.size, size, size), dtype=np.complex128)
         if by_runs:
@@ -799,10 +816,10 @@ def _lmmse_lattice_mean(d_f, d_t, s, snr, f_table, f_row, t_table, t_row, window
             t = ti[a:b]
             np.multiply(r_f[f], r_t[t], out=big_r[a:b])  # R = R_F o R_T
             np.multiply(a_f[f, 0], b_t[t, 0], out=s_mat[a:b])  # S = sum over c of A_F(c) o B_T(c)
-            for c in range(1, firsts.size):
+            for c in range(1, a_f.shape[1]):
                 s_mat[a:b] += a_f[f, c] * b_t[t, c]
-        big_r[:, diagonal, diagonal] += 1.0 / snr[order[lo:lo + _GROUP_CHUNK]][:, None]
-        out[order[lo:lo + _GROUP_CHUNK]] = 1.0 - _trace_of_solve(big_r, s_mat) / (d_f * d_t)
+        big_r[:, diagonal, diagonal] += 1.0 / snr[order[lo:lo + chunk]][:, None]
+        out[order[lo:lo + chunk]] = 1.0 - _trace_of_solve(big_r, s_mat) / (d_f * d_t)
     return np.maximum(out, 0.0)
 
 

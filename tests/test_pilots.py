@@ -478,10 +478,17 @@ def test_trace_of_solve_real_form_equals_complex_solve(size):
         assert_allclose(_trace_of_solve(indefinite[None, :size // 2], s[:1]), [expected], rtol=1e-9)
 
 
+@pytest.mark.parametrize("budget", ["all rows at once", "chunk by chunk"])
 @pytest.mark.parametrize("n_candidates", [40, 400])
-def test_tabulated_correlations_equal_callables(n_candidates):
+def test_tabulated_correlations_equal_callables(n_candidates, budget, monkeypatch):
     """Shared correlation tables give what per-candidate callables give, whether few rows are shared by
-    many candidates (400: grouped by row) or most candidates have their own (40: gathered)."""
+    many candidates (400: grouped by row) or most candidates have their own (40: gathered), and whether
+    the factors of all rows fit the memory budget or each chunk builds its own."""
+    import numerology.pilots as pilots
+
+    if budget == "chunk by chunk":
+        monkeypatch.setattr(pilots, "_FACTOR_BUDGET", 1)
+        monkeypatch.setattr(pilots, "_GROUP_CHUNK", 37)
     rng = np.random.default_rng(n_candidates)
     lattice = (np.array([6, 8, 4, 4])[:, None], np.array([4, 14, 2, 1])[:, None], np.array([3, 2, 0, 1])[:, None])
     df, ts = 30 * kHz, 1 / 28e3
