@@ -464,7 +464,8 @@ class _Plan:
     current_mean: np.ndarray  # (taps, Q+1) mean over the window of P_q on current-symbol samples
     true_is_static: bool  # the true channel is the static gains (no late path, orders >= 1 average to zero)
     legendre: np.ndarray  # (Q+1, N) P_q(u_n)
-    legendre_time: np.ndarray  # the same in the real type of the time-domain samples
+    legendre_scaled: np.ndarray  # P_q(u_n) / N: the 1/N of the inverse FFT, folded in (see _fft)
+    legendre_time: np.ndarray  # legendre_scaled in the real type of the time-domain samples
     time_dtype: type  # complex type of the time-domain synthesis
     per_tap: bool  # taps inside the guard synthesised one IFFT per tap (else one per Legendre order)
     order: int
@@ -690,7 +691,8 @@ def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estima
         ramps=ramps.astype(time_dtype), ramps_cols=ramps_cols, source_symbol=source_symbol,
         source_index=source_index, current_mean=current_mean,
         true_is_static=not isi.any() and not current_mean[:, 1:].any(),
-        legendre=legendre, legendre_time=legendre.astype(np.finfo(time_dtype).dtype),
+        legendre=legendre, legendre_scaled=legendre / n,
+        legendre_time=(legendre / n).astype(np.finfo(time_dtype).dtype),
         time_dtype=time_dtype, per_tap=_TAP_PATH == "taps" or (_TAP_PATH == "auto" and taps_inside.size <= order),
         order=order, spectrum=environment.doppler_spectrum, max_doppler_hz=environment.max_doppler_hz,
         k_factor=environment.k_factor, sinusoids=SINUSOIDS, noise_std=math.sqrt(terms["noise"]),
@@ -724,10 +726,16 @@ class _Workspace:
         return buffer[:frames]
 
 
-def _fft(values: np.ndarray, inverse: bool = False) -> np.ndarray:
-    """FFT (or inverse) over the last axis on one core; ``values`` may be overwritten (pocketfft in scipy)."""
-    transform = scipy.fft.ifft if inverse else scipy.fft.fft
-    return transform(values, axis=-1, overwrite_x=True, workers=1)
+def _fft(values: np.ndarray, inverse: bool = False, scaled: bool = True) -> np.ndarray:
+    """FFT (or inverse) over the last axis on one core; ``values`` may be overwritten (pocketfft in scipy).
+
+    ``scaled=False`` leaves out the inverse's factor 1/N, for callers that
+    multiply the samples by a window anyway and fold 1/N into it (one pass
+    over the block less; exact for a power-of-two N).
+    """
+    if not inverse:
+        return scipy.fft.fft(values, axis=-1, overwrite_x=True, workers=1)
+    return scipy.fft.ifft(values, axis=-1, overwrite_x=True, workers=1, norm="backward" if scaled else "forward")
 
 
 def _to_bins(values: np.ndarray, plan: _Plan, factor: np.ndarray = None, out: np.ndarray = None) -> np.ndarray:
@@ -836,8 +844,11 @@ def _noise(uniforms: np.ndarray, std: float, work: _Workspace):
 
 #: Below this argument the spherical Bessel functions are summed from their power series.
 SERIES_Z = 0.1
-#: Terms of that series: each is at most SERIES_Z^2 / 6 = 1.7e-3 of the one before, so 7 terms reach 1e-19.
+#: Terms of that series: each is at most z^2 / 6 of the one before (1.7e-3 at SERIES_Z), so 7 terms reach
+#: 1e-19 at SERIES_Z; smaller arguments need fewer (SERIES_REACH).
 SERIES_TERMS = 7
+#: Size of the last term summed, relative to the first.
+SERIES_REACH = 1e-19
 
 
 def _spherical_bessel(order: int, z: np.ndarray) -> np.ndarray:
@@ -850,14 +861,24 @@ def _spherical_bessel(order: int, z: np.ndarray) -> np.ndarray:
     ``scipy.special.spherical_jn``, which is used otherwise.
     """
     q = np.arange(order + 1)
-    if not np.max(np.abs(z), initial=0.0) < SERIES_Z:
+    largest = float(np.max(np.abs(z), initial=0.0))
+    if not largest < SERIES_Z:
         return sp.spherical_jn(q, z[..., None])
-    half_square = -0.5 * z[..., None] ** 2
-    total = np.ones(z.shape + (order + 1,))
-    for k in range(SERIES_TERMS, 0, -1):
-        total = 1.0 + total * half_square / (k * (2 * q + 2 * k + 1))
-    double_factorial = np.cumprod(2 * q + 1.0)  # (2q+1)!! = 1, 3, 15, ...
-    return total * z[..., None] ** q / double_factorial
+    ratio = largest * largest / 6.0  # bound of a term over the one before
+    terms = SERIES_TERMS
+    if ratio > 0.0:
+        terms = min(terms, max(1, math.ceil(math.log(SERIES_REACH) / math.log(ratio))))
+    # order on the leading axis while summing: numpy's loops then run over z, not over the few orders
+    shape = (order + 1,) + (1,) * z.ndim
+    half_square = -0.5 * z * z
+    total = np.ones((order + 1,) + z.shape)
+    for k in range(terms, 0, -1):
+        total *= half_square
+        total *= (1.0 / (k * (2 * q + 2 * k + 1))).reshape(shape)
+        total += 1.0
+    for order_q in range(1, order + 1):  # z^q / (2q+1)!! by repeated products (a float power costs 40 ns)
+        total[order_q:] *= z / (2 * order_q + 1)
+    return np.moveaxis(total, 0, -1)
 
 
 def _tap_gains(plan: _Plan, freqs: np.ndarray, amps: np.ndarray, phases: np.ndarray, work: _Workspace):
@@ -867,31 +888,42 @@ def _tap_gains(plan: _Plan, freqs: np.ndarray, amps: np.ndarray, phases: np.ndar
     ``r = exp(j 2 pi f (N + N_cp) / f_s)`` from one window to the next, so
     they are products of powers of ``r`` rather than one complex exponential
     per window: with ``s = B a + b`` (B about sqrt(S)), the phasor of window
-    ``s`` is ``(phasor_0 r^(B a)) r^b``, two short running products and one
-    product of the two (round-off about 1e-16 per factor).
+    ``s`` is ``(phasor_0 r^(B a)) r^b``, two short running products (round-off
+    about 1e-16 per factor). The second factor is merged with the Legendre
+    expansion first, ``G[b, q] = r^b E[q]`` (and a column of ones for the
+    gain at the window centre), so that the sum over the sinusoids is one
+    small matrix product per frame and tap, ``beta[a, b, q] = sum_c
+    (phasor_0 r^(B a))_c G_c[b, q]``: no (windows x sinusoids) array is formed.
     """
-    n, ncp, fs, symbols = plan.n, plan.ncp, plan.fs, plan.symbols
+    n, ncp, fs, symbols, order = plan.n, plan.ncp, plan.fs, plan.symbols, plan.order
     frames, taps, count = freqs.shape
     fine = max(1, math.isqrt(symbols - 1) + 1)
     coarse = -(-symbols // fine)
-    step = np.exp((2j * np.pi * (n + ncp) / fs) * freqs)  # (F, taps, C)
-    powers = work("phasor_fine", frames, (taps, fine, count), complex)  # r^b
-    powers[:, :, 0] = 1.0
-    powers[:, :, 1:] = step[:, :, None, :]
-    np.multiply.accumulate(powers, axis=2, out=powers)
-    starts = work("phasor_coarse", frames, (taps, coarse, count), complex)  # phasor_0 r^(B a)
+    step = np.exp((2j * np.pi * (n + ncp) / fs) * freqs)  # r, (F, taps, C)
+    q = np.arange(order + 1)
+    expansion = np.empty((frames, taps, count, order + 2), dtype=complex)
+    np.multiply(_spherical_bessel(order, (np.pi * plan.t_u) * freqs), (2 * q + 1) * (1j ** q),
+                out=expansion[..., :-1])  # exp(j z u) = sum (2q+1) j^q j_q(z) P_q(u)
+    expansion[..., -1] = 1.0  # the window centre, u = 0: the sum of the phasors themselves
+    powers = np.empty((frames, taps, count, fine), dtype=complex)  # r^b
+    powers[..., 0] = 1.0
+    for b in range(1, fine):
+        np.multiply(powers[..., b - 1], step, out=powers[..., b])
+    merged = np.multiply(expansion[..., None], powers[..., None, :],
+                         out=work("phasor_fine", frames, (taps, count, order + 2, fine), complex))  # E[q] r^b
+    starts = work("phasor_coarse", frames, (taps, coarse, count), complex)  # phasor_0 r^(B a), tap amplitude
     starts[:, :, 0] = amps * np.exp(1j * (2.0 * np.pi * freqs * ((ncp + (n - 1) / 2.0) / fs) + phases))
-    starts[:, :, 1:] = (powers[:, :, -1] * step)[:, :, None, :]
-    np.multiply.accumulate(starts, axis=2, out=starts)
-    phasor = np.multiply(starts[:, :, :, None], powers[:, :, None],
-                         out=work("phasor", frames, (taps, coarse, fine, count), complex))
-    phasor = phasor.reshape(frames, taps, coarse * fine, count)[:, :, :symbols]  # (F, taps, S, C)
-    q = np.arange(plan.order + 1)
-    expansion = ((2 * q + 1) * (1j ** q)) * _spherical_bessel(plan.order, (np.pi * plan.t_u) * freqs)
-    beta = (phasor @ expansion) * plan.amplitudes[None, :, None, None]  # exp(j z u) = sum (2q+1) j^q j_q(z) P_q(u)
-    centre_gain = phasor.sum(axis=-1) * plan.amplitudes[None, :, None]  # h_m at the window centres
-    tap_power = np.mean(centre_gain.real ** 2 + centre_gain.imag ** 2, axis=2)  # (F, taps)
-    return beta, tap_power
+    starts[:, :, 0] *= plan.amplitudes[None, :, None]
+    jump = powers[..., -1] * step  # r^B
+    for a in range(1, coarse):
+        np.multiply(starts[:, :, a - 1], jump, out=starts[:, :, a])
+    gains = np.matmul(starts, merged.reshape(frames, taps, count, (order + 2) * fine),
+                      out=work("tap_gains", frames, (taps, coarse, (order + 2) * fine), complex))
+    gains = gains.reshape(frames, taps, coarse, order + 2, fine).transpose(0, 1, 2, 4, 3)
+    gains = gains.reshape(frames, taps, coarse * fine, order + 2)[:, :, :symbols]  # (F, taps, S, Q+2), a copy
+    centre_gain = gains.view(float)[..., -2:]  # h_m at the window centres, (real, imaginary)
+    tap_power = np.einsum("fmsi,fmsi->fm", centre_gain, centre_gain) / symbols  # (F, taps)
+    return gains[..., :-1], tap_power
 
 
 def _varying_samples(plan: _Plan, beta: np.ndarray, sent: np.ndarray, work: _Workspace):
@@ -919,21 +951,21 @@ def _varying_samples(plan: _Plan, beta: np.ndarray, sent: np.ndarray, work: _Wor
                 np.copyto(main_time, main[some])
                 h_q = np.matmul(gains[some, q], ramps, out=work("h_q", count, main.shape[1:], plan.time_dtype))
                 _to_bins(main_time, plan, h_q, out=wave[some])
-            wave = _fft(wave, inverse=True)
-            wave *= plan.legendre_time[q]
+            wave = _fft(wave, inverse=True, scaled=False)
+            wave *= plan.legendre_time[q]  # P_q(u) / N
             varying = _accumulate(varying, wave)
     spectrum = None
     if (plan.per_tap and order > 0 and inside.size) or plan.isi.any():
         spectrum = _to_bins(sent, plan)
     for m in (inside if plan.per_tap and order > 0 else ()):
-        wave = _fft(spectrum[:, pre:] * plan.ramps[m], inverse=True)
-        wave *= beta[:, m, :, 1:] @ plan.legendre[1:]
+        wave = _fft(spectrum[:, pre:] * plan.ramps[m], inverse=True, scaled=False)
+        wave *= beta[:, m, :, 1:] @ plan.legendre_scaled[1:]
         varying = _accumulate(varying, wave)
     for m in np.flatnonzero(plan.isi):
-        wave = _fft(spectrum * plan.ramps[m], inverse=True)  # every sent symbol, delayed by tau_m
+        wave = _fft(spectrum * plan.ramps[m], inverse=True, scaled=False)  # every sent symbol, delayed by tau_m
         source = pre + np.arange(plan.symbols)[:, None] + plan.source_symbol[m][None, :]
         part = wave[:, source, plan.source_index[m][None, :]]
-        part *= beta[:, m] @ plan.legendre
+        part *= beta[:, m] @ plan.legendre_scaled
         varying = _accumulate(varying, part)
     return varying
 
