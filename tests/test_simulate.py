@@ -185,8 +185,8 @@ def test_noise_is_circular_complex_gaussian():
     errors of each estimate (1e-3 for the moments, binomial for the tails).
     """
     count, std = 10**6, 0.3
-    uniforms = np.random.default_rng(11).random((1, 2, count), dtype=np.float32)
-    real, imag = simulate._noise(uniforms, std, simulate._Workspace())
+    words = np.random.default_rng(11).integers(0, 2**32, (1, 2, count), dtype=np.uint32)
+    real, imag = simulate._noise(words, std, simulate._Workspace())
     noise = (real[0] + 1j * imag[0].astype(float)) / std
     assert abs(noise.mean()) < 5 * math.sqrt(1 / count)
     assert abs(np.mean(noise**2)) < 5 * math.sqrt(1 / count)
@@ -194,6 +194,23 @@ def test_noise_is_circular_complex_gaussian():
     for t in (0.1, 1.0, 4.0, 9.0):
         p = math.exp(-t)
         assert_allclose(np.mean(np.abs(noise) ** 2 > t), p, atol=5 * math.sqrt(p * (1 - p) / count))
+
+
+def test_random_words_give_numpys_uniforms():
+    """The simulator's uniforms from raw 64-bit words are those of numpy's ``Generator.random``.
+
+    Source: numpy's documented bit layout (from memory): a double uniform is
+    the top 53 bits of a 64-bit word times 2^-53, a single-precision one the
+    top 24 bits of a 32-bit word (two per 64-bit word, low half first) times
+    2^-24. The same seed gives the same stream, so the values must be equal.
+    """
+    seed = np.random.SeedSequence(3)
+    words = np.random.PCG64(seed).random_raw(1000)
+    doubles = (words >> np.uint64(64 - simulate._DOUBLE_BITS)) * 2.0**-simulate._DOUBLE_BITS
+    assert np.array_equal(doubles, np.random.Generator(np.random.PCG64(seed)).random(1000))
+    singles = (words.view(np.uint32) >> np.uint32(32 - simulate._NOISE_BITS)).astype(np.float32)
+    singles *= np.float32(2.0**-simulate._NOISE_BITS)
+    assert np.array_equal(singles, np.random.Generator(np.random.PCG64(seed)).random(2000, dtype=np.float32))
 
 
 def test_tap_powers_follow_the_profile():
