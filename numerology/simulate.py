@@ -448,10 +448,11 @@ class _Plan:
     symbol_offset: np.ndarray  # (pre + symbols, columns) uint16: 0 (unused), 256 (data) or 512 (pilot)
     pilot_flat: np.ndarray  # flat indices of the received-frame pilots in (symbols, columns)
     first_measured: int  # first measured symbol of the received frame
-    weight_all: np.ndarray  # (2 x measured grid) 1 on measured REs, repeated for (re, im)
-    weight_cell: np.ndarray  # equal weight per lattice-cell position, sums to 1
-    weight_data: np.ndarray  # 1 on measured data REs
-    weight_useful: np.ndarray  # (2 x measured grid, 2): weight_all and weight_data side by side
+    weight_all: np.ndarray  # (measured grid,) 1 on measured REs, else 0
+    unmeasured: np.ndarray  # flat indices into the measured grid of the REs that are not measured
+    measured_pilots: np.ndarray  # ... and of the measured pilots (measured, not data)
+    cell_weight: float  # the weight of every measured RE in the cell average when they are all alike, else 0
+    weight_cell: np.ndarray  # (2 x measured grid) equal weight per lattice-cell position (sum 1), for (re, im)
     measured_count: int
     data_count: int
     cell_pilots: np.ndarray  # (cells, U) pilot number of each cell's pilots; the pilot count means "none"
@@ -687,9 +688,10 @@ def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estima
         n=n, ncp=ncp, fs=fs, t_u=design.useful_symbol_s, k_phys=k_phys, neg=int((k_phys < 0).sum()),
         pos=int((k_phys > 0).sum()), pre=pre, symbols=symbols, measured_symbols=measured_symbols,
         symbol_table=symbol_table, symbol_offset=symbol_offset, pilot_flat=pilot_flat,
-        first_measured=margin_lo, weight_all=np.repeat(weight_all, 2), weight_cell=np.repeat(weight_cell, 2),
-        weight_data=np.repeat(weight_data, 2),
-        weight_useful=np.repeat(np.stack([weight_all, weight_data], axis=1), 2, axis=0),
+        first_measured=margin_lo, weight_all=weight_all, unmeasured=np.flatnonzero(weight_all == 0),
+        measured_pilots=np.flatnonzero((weight_all != 0) & (weight_data == 0)),
+        cell_weight=float(weight_cell[grid_rows[0]]) if np.all(weight_cell[grid_rows] == weight_cell[grid_rows[0]])
+        else 0.0, weight_cell=np.repeat(weight_cell, 2),
         measured_count=int(weight_all.sum()), data_count=int(weight_data.sum()), cell_pilots=cell_pilots,
         cell_weights=cell_weights, grid_to_cell=grid_to_cell,
         noise_count=measured_symbols * cols + extra_pilot_flat.size,
@@ -775,13 +777,35 @@ def _accumulate(total, part):
     return part if total is None else np.add(total, part, out=total)
 
 
-def _power(values: np.ndarray, weights2: np.ndarray, scratch: bool = False) -> np.ndarray:
-    """Per-frame weighted sum of |values|^2; ``weights2`` repeats each weight for (re, im).
+def _power(values: np.ndarray, weights2: np.ndarray) -> np.ndarray:
+    """Per-frame weighted sum of |values|^2 (F, L), squares formed in ``values``; ``weights2`` repeats each
+    weight for (re, im)."""
+    flat = values.reshape(values.shape[0], -1).view(np.float64)
+    return np.square(flat, out=flat) @ weights2
 
-    With ``scratch`` the squares are formed in ``values`` (a temporary of the caller).
+
+def _measured_power(values: np.ndarray, plan: _Plan, data: bool = False):
+    """Per-frame sum of |values|^2 (F, measured grid) over the measured resource elements, and with
+    ``data`` also over the measured data resource elements (a second array).
+
+    ``values`` is overwritten: it is set to zero where it is not summed, then
+    summed whole (a scatter of zeros to a tenth of it and one BLAS dot
+    product, instead of squares and a product with a weight vector).
     """
-    flat = np.ascontiguousarray(values).reshape(values.shape[0], -1).view(np.float64)
-    return (np.square(flat, out=flat) if scratch else flat * flat) @ weights2
+    values[:, plan.unmeasured] = 0.0
+    flat = values.view(np.float64)
+    total = np.vecdot(flat, flat)
+    if not data:
+        return total
+    values[:, plan.measured_pilots] = 0.0
+    return total, np.vecdot(flat, flat)
+
+
+def _cell_power(values: np.ndarray, plan: _Plan) -> np.ndarray:
+    """Per-frame average of |values|^2 (F, measured grid) over the lattice-cell positions; overwrites ``values``."""
+    if plan.cell_weight:  # every measured RE weighs the same (the usual case: whole periods, no edge effect)
+        return plan.cell_weight * _measured_power(values, plan)
+    return _power(values, plan.weight_cell)
 
 
 @dataclass(frozen=True)
@@ -1052,26 +1076,34 @@ def _static_gains(plan: _Plan, beta: np.ndarray, work: _Workspace) -> np.ndarray
                      out=work("static", beta.shape[0], (plan.symbols, plan.k_phys.size), complex))
 
 
-def _without_noise(plan: _Plan, main: np.ndarray, static: np.ndarray, bins, work: _Workspace) -> np.ndarray:
-    """Received subcarriers without noise and oscillator: the static part ``main * static`` plus the used
-    bins of ``bins``, the FFT of the time-domain part (F, S, N), or None when there is none."""
+def _without_noise(plan: _Plan, main: np.ndarray, static: np.ndarray, bins, work: _Workspace):
+    """Received subcarriers without noise and oscillator, and their varying part.
+
+    The static part ``main * static`` plus the used bins of ``bins``, the
+    FFT of the time-domain part (F, S, N), or None when there is none.
+    Returns ``(received, varying part on the grid or None)``.
+    """
     out = np.multiply(main, static, out=work("y_channel", main.shape[0], main.shape[1:], complex))
-    if bins is not None:
-        out += _from_bins(bins, plan, out=work("from_bins", main.shape[0], main.shape[1:], complex))
-    return out
+    if bins is None:
+        return out, None
+    part = _from_bins(bins, plan, out=work("from_bins", main.shape[0], main.shape[1:], complex))
+    out += part
+    return out, part
 
 
-def _measure(plan: _Plan, beta, main, static, y_channel, y, reference, noise_words, work: _Workspace) -> tuple:
+def _measure(plan: _Plan, beta, main, static, y_channel, part, y, reference, noise_words, work: _Workspace) -> tuple:
     """Per-frame numerators and denominators of the measured figures, for a few frames.
 
     ``static``: the static gains (:func:`_static_gains`, F, S, columns; may
     be overwritten); ``y_channel``: received subcarriers without noise and
-    oscillator (same shape); ``y``: as received, before noise (``y_channel`` itself without
-    an oscillator: the noise is then added in place once the interference is
-    measured); ``reference``: the true channel as received on the measured
-    symbols (F, measured grid), or None for the window-average channel.
-    Returns ``(interference, useful, estimation error, channel power, error,
-    useful data power)``, each of shape (F,).
+    oscillator (same shape), ``main * static + part`` with ``part`` its
+    varying part (or None: zero; may be overwritten); ``y``: as received,
+    before noise (``y_channel`` itself without an oscillator: the noise is
+    then added in place once the interference is measured); ``reference``:
+    the true channel as received on the measured symbols (F, measured grid;
+    may be overwritten), or None for the window-average channel. Returns
+    ``(interference, useful, estimation error, channel power, error, useful
+    data power)``, each of shape (F,).
     """
     frames, cols = main.shape[0], plan.k_phys.size
     measured = plan.measured_symbols * cols
@@ -1086,18 +1118,21 @@ def _measure(plan: _Plan, beta, main, static, y_channel, y, reference, noise_wor
                                  out=work("true_channel", frames, (plan.measured_symbols, cols), complex))
     true_channel = true_channel.reshape(frames, measured)
     x = main[:, rows].reshape(frames, measured)
-    useful_data = None if reference is None else _power(reference * x, plan.weight_data, scratch=True)
-    if reference is None:
-        reference = true_channel
+    scratch = work("scratch", frames, (measured,), complex)
 
     # interference with perfect channel knowledge, before noise and oscillator
-    useful = np.multiply(true_channel, x, out=work("useful", frames, (measured,), complex))
-    scratch = work("scratch", frames, (measured,), complex)
-    interference = _power(np.subtract(y_channel[:, rows].reshape(frames, measured), useful, out=scratch),
-                          plan.weight_all, scratch=True)
-    useful = _power(useful, plan.weight_useful, scratch=True)  # (F, 2): all measured REs, data REs
-    if useful_data is None:
-        useful_data = useful[:, 1]
+    if not plan.true_is_static:
+        interference = _measured_power(np.subtract(y_channel[:, rows].reshape(frames, measured),
+                                                   np.multiply(true_channel, x, out=scratch), out=scratch), plan)
+    elif part is None:  # y_channel is the true channel times the symbols
+        interference = np.zeros(frames)
+    else:  # y_channel - true_channel x is the varying part, exactly
+        interference = _measured_power(part[:, rows].reshape(frames, measured), plan)
+    useful, useful_data = _measured_power(np.multiply(true_channel, x, out=scratch), plan, data=True)
+    if reference is None:
+        reference = true_channel
+    else:
+        useful_data = _measured_power(np.multiply(reference, x, out=scratch), plan, data=True)[1]
 
     if noise_words is not None:  # measured symbols, then the other pilots
         real, imag = _noise(noise_words, plan.noise_std, work)
@@ -1110,12 +1145,12 @@ def _measure(plan: _Plan, beta, main, static, y_channel, y, reference, noise_wor
     pilot_values = np.multiply(np.take(y.reshape(frames, -1), plan.pilot_flat, axis=1),
                                np.conj(np.take(main.reshape(frames, -1), plan.pilot_flat, axis=1)))
     estimate = _estimate(plan, pilot_values, work)
-    estimation_error = _power(np.subtract(estimate, reference, out=scratch), plan.weight_cell, scratch=True)
-    channel_power = _power(reference, plan.weight_cell, scratch=True)
+    estimation_error = _cell_power(np.subtract(estimate, reference, out=scratch), plan)
+    channel_power = _cell_power(reference, plan)
     error = np.multiply(estimate, x, out=estimate)
     error -= y[:, rows].reshape(frames, measured)
-    return (interference, useful[:, 0], estimation_error, channel_power,
-            _power(error, plan.weight_data, scratch=True), useful_data)
+    error = _measured_power(error, plan, data=True)[1]
+    return interference, useful, estimation_error, channel_power, error, useful_data
 
 
 def _simulate_block(plan: _Plan, seeds, work: _Workspace) -> dict:
@@ -1141,7 +1176,7 @@ def _simulate_block(plan: _Plan, seeds, work: _Workspace) -> dict:
         received = _fft(_to_bins(main, plan, static), inverse=True)
         if varying is not None:
             received += varying
-        y_channel = _without_noise(plan, main, static, None if varying is None else _fft(varying), work)
+        y_channel, part = _without_noise(plan, main, static, None if varying is None else _fft(varying), work)
         rotation = _oscillator_phasor(plan, draws.increments, frames)
         received *= rotation
         y = _from_bins(_fft(received), plan)
@@ -1164,11 +1199,11 @@ def _simulate_block(plan: _Plan, seeds, work: _Workspace) -> dict:
         some = slice(first, first + CACHE_FRAMES)
         noise_words = draws.noise(some) if draws.noise_words else None
         if with_oscillator:
-            parts = (static[some], y_channel[some], y[some], reference[some])
+            parts = (static[some], y_channel[some], None if part is None else part[some], y[some], reference[some])
         else:
             gains = _static_gains(plan, beta[some], work)
-            received = _without_noise(plan, main[some], gains, None if bins is None else bins[some], work)
-            parts = (gains, received, received, None)
+            received, part = _without_noise(plan, main[some], gains, None if bins is None else bins[some], work)
+            parts = (gains, received, part, received, None)
         sums[:, some] = _measure(plan, beta[some], main[some], *parts, noise_words, work)
     return {"interference": sums[0:2], "estimation": sums[2:4], "error": sums[4:6], "tap_power": tap_power}
 

@@ -417,7 +417,7 @@ def test_estimator_applies_the_pilot_weights():
     weights = simulate._weights(design, environment, pilot_snr, "lmmse")
     cols = plan.k_phys.size
     pilot_at = {int(flat): i for i, flat in enumerate(plan.pilot_flat)}
-    measured = np.flatnonzero(plan.weight_all[::2])
+    measured = np.flatnonzero(plan.weight_all)
     assert measured.size > 100
     for position in measured:
         row, col = divmod(int(position), cols)
@@ -428,6 +428,31 @@ def test_estimator_applies_the_pilot_weights():
             if w != 0:
                 expected += w * values[:, pilot_at[(row + dl) * cols + col + dk]]
         assert_allclose(estimate[:, position], expected, rtol=1e-12, atol=1e-12)
+
+
+@pytest.mark.parametrize("estimator", ["lmmse", "linear"], ids=["equal cell weights", "unequal cell weights"])
+def test_measured_sums_are_the_weighted_sums(estimator):
+    """The simulator's sums over the measured resource elements equal the weighted sums that define them.
+
+    Internal consistency: zeros scattered where nothing is summed and one
+    dot product give sum |v|^2 over the measured REs, over the measured
+    data REs (data: the symbol table's data rows) and the lattice-cell
+    average with the per-position weights; the linear estimator's reach
+    leaves unequal weights on this band, the LMMSE one equal weights.
+    """
+    design = small_design(lattice=(4, 2, 0))
+    environment = make_environment([0.0, 2.5 * SAMPLE_S], [0.6, 0.4], 0.02 * SPACING_HZ)
+    plan, _ = simulate._plan(design, environment, 20.0, 0.0, 0.0, estimator, 8, 4)
+    assert (plan.cell_weight > 0) == (estimator == "lmmse")
+    first = plan.pre + plan.first_measured
+    data = (plan.symbol_offset[first:first + plan.measured_symbols] == 256).ravel()
+    rng = np.random.default_rng(2)
+    values = rng.standard_normal((3, data.size)) + 1j * rng.standard_normal((3, data.size))
+    power = np.abs(values) ** 2
+    total, data_total = simulate._measured_power(values.copy(), plan, data=True)
+    assert_allclose(total, power @ plan.weight_all, rtol=1e-13)
+    assert_allclose(data_total, power @ (plan.weight_all * data), rtol=1e-13)
+    assert_allclose(simulate._cell_power(values.copy(), plan), power @ plan.weight_cell[::2], rtol=1e-13)
 
 
 def test_result_text_and_db_properties():
