@@ -817,11 +817,18 @@ class _Draws:
     amps: np.ndarray  # amplitudes
     phases: np.ndarray  # phases, rad
     increments: np.ndarray  # (F, S, N) standard normal phase-noise increments, or None
-    noise_words: tuple  # per frame, (2, noise values) uint32 random words for the noise; empty without noise
+    generators: tuple  # per frame, its bit generator, which draws the noise words last (see noise())
+    noise_count: int  # noise values per frame, 0 for none
 
     def noise(self, frames: slice) -> np.ndarray:
-        """The noise words of some frames, (F, 2, noise values)."""
-        words = self.noise_words[frames]
+        """Two random 32-bit words per noise value of some frames, (F, 2, noise values), or None.
+
+        Drawn when needed, the last from each frame's generator: the words
+        are then still in the processor's cache when they are converted.
+        """
+        if not self.noise_count:
+            return None
+        words = [bits.random_raw(self.noise_count).view(np.uint32).reshape(2, -1) for bits in self.generators[frames]]
         return words[0][None] if len(words) == 1 else np.stack(words)
 
 
@@ -839,35 +846,33 @@ def _draw(plan: _Plan, seeds, work: _Workspace) -> _Draws:
     per sent resource element, which selects its data or pilot point
     (:attr:`_Plan.symbol_table`); a double-precision uniform per fading
     parameter, from the top 53 bits of a word (exactly numpy's
-    ``Generator.random``); two 32-bit words per noise value (Box-Muller, see
-    :func:`_noise`), only where noise is read. The phase-noise increments
-    follow, from the same generator. Words are turned into values with whole-array operations.
+    ``Generator.random``); then the phase-noise increments (numpy's normal
+    sampler on the same generator); last, when the frame is measured, two
+    32-bit words per noise value (Box-Muller, see :func:`_noise`), only where
+    noise is read (:meth:`_Draws.noise`). Words are turned into values with
+    whole-array operations.
     """
     frames = len(seeds)
     taps, sinusoids = plan.delays.size, plan.sinusoids
     sent = plan.symbol_offset.size
     byte_words = -(-sent // 8)
     fading_words = taps * (2 * sinusoids + 1)
-    noise_words = plan.noise_count if plan.noise_std > 0 else 0
     index = work("index", frames, plan.symbol_offset.shape, np.uint16)
     increments = work("increments", frames, (plan.symbols, plan.n), float) if plan.linewidth_hz > 0 else None
     fading = np.empty((frames, fading_words), dtype=np.uint64)
-    noise = []
-    for f, seed in enumerate(seeds):
-        bits = np.random.PCG64(seed)
-        words = bits.random_raw(byte_words + fading_words + noise_words)
+    generators = tuple(np.random.PCG64(seed) for seed in seeds)
+    for f, bits in enumerate(generators):
+        words = bits.random_raw(byte_words + fading_words)
         np.add(words[:byte_words].view(np.uint8)[:sent].reshape(plan.symbol_offset.shape), plan.symbol_offset,
                out=index[f])
-        fading[f] = words[byte_words:byte_words + fading_words]
-        if noise_words:
-            noise.append(words[byte_words + fading_words:].view(np.uint32).reshape(2, noise_words))
+        fading[f] = words[byte_words:]
         if increments is not None:
             np.random.Generator(bits).standard_normal(out=increments[f])
     uniforms = (fading >> np.uint64(64 - _DOUBLE_BITS)) * 2.0**-_DOUBLE_BITS
     freqs, amps, phases = _sos_parameters(uniforms[:, :taps * sinusoids].reshape(frames, taps, sinusoids),
                                           uniforms[:, taps * sinusoids:].reshape(frames, taps, sinusoids + 1),
                                           plan.max_doppler_hz, plan.spectrum, plan.k_factor)
-    return _Draws(index, freqs, amps, phases, increments, tuple(noise))
+    return _Draws(index, freqs, amps, phases, increments, generators, plan.noise_count if plan.noise_std > 0 else 0)
 
 
 #: Random bits behind each single-precision uniform of the noise.
@@ -1197,7 +1202,7 @@ def _simulate_block(plan: _Plan, seeds, work: _Workspace) -> dict:
     sums = np.empty((6, frames))
     for first in range(0, frames, CACHE_FRAMES):
         some = slice(first, first + CACHE_FRAMES)
-        noise_words = draws.noise(some) if draws.noise_words else None
+        noise_words = draws.noise(some)
         if with_oscillator:
             parts = (static[some], y_channel[some], None if part is None else part[some], y[some], reference[some])
         else:
