@@ -828,7 +828,8 @@ class _Draws:
         """
         if not self.noise_count:
             return None
-        words = [bits.random_raw(self.noise_count).view(np.uint32).reshape(2, -1) for bits in self.generators[frames]]
+        words = [bits.random_raw(self.noise_count).view(np.uint32).reshape(2, -1)
+                 for bits in self.generators[frames]]
         return words[0][None] if len(words) == 1 else np.stack(words)
 
 
