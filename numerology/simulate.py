@@ -664,6 +664,13 @@ def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estima
     if not grid_rows.size:
         raise InputError("design", f"{design.name!r}: no resource element has every pilot its {estimator} estimator "
                                    "needs inside the used band; the band is narrower than the estimator's reach")
+    # only the cells that hold a measured RE are estimated; the others' REs read cell 0 (never summed)
+    positions = cell_weights.shape[1]
+    kept = np.unique(grid_to_cell[grid_rows] // positions)
+    renumber = np.zeros(cell_pilots.shape[0], dtype=np.int64)
+    renumber[kept] = np.arange(kept.size)
+    cell_pilots = cell_pilots[kept]
+    grid_to_cell = renumber[grid_to_cell // positions] * positions + grid_to_cell % positions
     cls = _lattice_class(grid_rows // cols + margin_lo, grid_rows % cols, design)
     counts = np.bincount(cls, minlength=pw.mse.size)
     weight_all = np.zeros(measured_symbols * cols)
