@@ -540,6 +540,16 @@ def _lattice_class(l, col, design: Design):
     return (l - j * d_t) * d_f + np.mod(col - j * s, d_f)
 
 
+def _dense_unique(keys: np.ndarray):
+    """``np.unique(keys, return_inverse=True)`` for integers of a small range, by a presence table (no sort)."""
+    low = int(keys.min())
+    present = np.zeros(int(keys.max()) - low + 1, dtype=bool)
+    present[keys - low] = True
+    values = np.flatnonzero(present)
+    rank = np.cumsum(present) - 1
+    return values + low, rank[keys - low]
+
+
 def _cell_estimator(pw, active: np.ndarray, design: Design, first: int, measured_symbols: int,
                     pilot_number: np.ndarray):
     """The channel estimator as one matrix product per lattice cell, with the weights of ``pw`` unchanged.
@@ -555,11 +565,11 @@ def _cell_estimator(pw, active: np.ndarray, design: Design, first: int, measured
     A pilot outside the band or on DC gets the number ``pilot count``, read
     as zero; resource elements that need one are not measured anyway.
 
-    Returns ``(cell_pilots, cell_weights, grid_to_cell, complete)``: the
-    pilot number of each cell's pilots (cells, U), the weight matrix, and for
-    each resource element of the measured symbols (C order) its index into
-    the flattened ``(cells, D_f D_t)`` estimates and whether every pilot its
-    estimator uses is there.
+    Returns ``(cell_pilots, cell_weights, grid_to_cell, complete, position)``:
+    the pilot number of each cell's pilots (cells, U), the weight matrix, and
+    for each resource element of the measured symbols (C order) its index
+    into the flattened ``(cells, D_f D_t)`` estimates, whether every pilot
+    its estimator uses is there, and its cell position (:func:`_lattice_class`).
     """
     d_f, d_t = design.pilot_freq_spacing, design.pilot_time_spacing
     rows, cols = pilot_number.shape
@@ -581,18 +591,18 @@ def _cell_estimator(pw, active: np.ndarray, design: Design, first: int, measured
     origin_row = grid_row - cls // d_f
     origin_col = grid_col - cls % d_f
     cell_key = origin_row * (cols + d_f) + (origin_col + d_f)  # origin_col >= 1 - D_f
-    cells, cell = np.unique(cell_key, return_inverse=True)
+    cells, cell = _dense_unique(cell_key)
     pilot_row = (cells // (cols + d_f))[:, None] + union_row[None, :]
     pilot_col = (cells % (cols + d_f) - d_f)[:, None] + union_col[None, :]
     inside = (pilot_row >= 0) & (pilot_row < rows) & (pilot_col >= 0) & (pilot_col < cols)
     number = pilot_number[np.clip(pilot_row, 0, rows - 1), np.clip(pilot_col, 0, cols - 1)]
     present = inside & (number >= 0)
     cell_pilots = np.where(present, number, int(pilot_number.max()) + 1)
-    needs = np.zeros(cell_weights.shape, dtype=np.int64)  # which pilots each position uses
-    needs[slot, position[active]] = 1
-    complete = ((~present).astype(np.int64) @ needs) == 0  # (cells, positions): every pilot it uses is there
+    needs = np.zeros(cell_weights.shape)  # which pilots each position uses
+    needs[slot, position[active]] = 1.0
+    complete = ((~present).astype(float) @ needs) == 0  # (cells, positions): every pilot it uses is there
     grid = cell * positions + cls
-    return cell_pilots, cell_weights, grid, complete.ravel()[grid]
+    return cell_pilots, cell_weights, grid, complete.ravel()[grid], cls
 
 
 def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estimator, symbols_per_frame,
@@ -658,7 +668,7 @@ def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estima
     pilot_flat = np.flatnonzero(received_pilots)
 
     # measured resource elements: every used RE of the measured symbols whose estimator finds its pilots
-    cell_pilots, cell_weights, grid_to_cell, complete = _cell_estimator(pw, active, design, margin_lo,
+    cell_pilots, cell_weights, grid_to_cell, complete, grid_class = _cell_estimator(pw, active, design, margin_lo,
                                                                         measured_symbols, pilot_number)
     grid_rows = np.flatnonzero(complete & np.tile(used, measured_symbols))  # measured grid, C order
     if not grid_rows.size:
@@ -666,12 +676,12 @@ def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estima
                                    "needs inside the used band; the band is narrower than the estimator's reach")
     # only the cells that hold a measured RE are estimated; the others' REs read cell 0 (never summed)
     positions = cell_weights.shape[1]
-    kept = np.unique(grid_to_cell[grid_rows] // positions)
+    kept = _dense_unique(grid_to_cell[grid_rows] // positions)[0]
     renumber = np.zeros(cell_pilots.shape[0], dtype=np.int64)
     renumber[kept] = np.arange(kept.size)
     cell_pilots = cell_pilots[kept]
     grid_to_cell = renumber[grid_to_cell // positions] * positions + grid_to_cell % positions
-    cls = _lattice_class(grid_rows // cols + margin_lo, grid_rows % cols, design)
+    cls = grid_class[grid_rows]
     counts = np.bincount(cls, minlength=pw.mse.size)
     weight_all = np.zeros(measured_symbols * cols)
     weight_all[grid_rows] = 1.0
