@@ -466,6 +466,8 @@ class _Plan:
     isi: np.ndarray  # bool per tap: reaches beyond the guard
     ramps: np.ndarray  # (taps, N): exp(-j 2 pi k tau f_s / N) per FFT bin
     ramps_cols: np.ndarray  # (taps, columns)
+    ramps_inside: np.ndarray  # ramps_cols of the taps inside the guard in real form (see _real_form), float64
+    ramps_inside_time: np.ndarray  # the same in the real type of the time-domain samples
     source_symbol: np.ndarray  # (taps, N) symbol offset q <= 0 of each window sample
     source_index: np.ndarray  # (taps, N) index into that symbol's periodic waveform
     current_mean: np.ndarray  # (taps, Q+1) mean over the window of P_q on current-symbol samples
@@ -605,6 +607,21 @@ def _cell_estimator(pw, active: np.ndarray, design: Design, first: int, measured
     return cell_pilots, cell_weights, grid, complete.ravel()[grid], cls
 
 
+def _real_form(matrix: np.ndarray) -> np.ndarray:
+    """The real (2K, 2N) matrix ``R`` with ``(a @ matrix).view(float) == a.view(float) @ R`` for complex ``a``.
+
+    Rows 2m and 2m+1 take the real and imaginary part of ``a[..., m]``:
+    ``(x + jy) M = x M + y (jM)``, and each complex row is stored as
+    interleaved (real, imaginary) pairs. A complex product with few terms
+    (K taps) runs faster as this real product in BLAS (about 0.7 times the
+    time of the complex one here), with the same arithmetic.
+    """
+    real = np.empty((2 * matrix.shape[0], 2 * matrix.shape[1]))
+    real[0::2] = np.ascontiguousarray(matrix).view(float)
+    real[1::2] = np.ascontiguousarray(1j * matrix).view(float)
+    return real
+
+
 def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estimator, symbols_per_frame,
           qam_order):
     n, ncp = design.fft_size, design.cp_samples
@@ -713,7 +730,9 @@ def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estima
         cell_weights=cell_weights, grid_to_cell=grid_to_cell,
         noise_count=measured_symbols * cols + extra_pilot_flat.size,
         extra_pilot_flat=extra_pilot_flat, delays=delays, amplitudes=np.sqrt(powers), inside=taps_inside, isi=isi,
-        ramps=ramps.astype(time_dtype), ramps_cols=ramps_cols, source_symbol=source_symbol,
+        ramps=ramps.astype(time_dtype), ramps_cols=ramps_cols, ramps_inside=_real_form(ramps_cols[taps_inside]),
+        ramps_inside_time=_real_form(ramps_cols[taps_inside]).astype(np.finfo(time_dtype).dtype),
+        source_symbol=source_symbol,
         source_index=source_index, current_mean=current_mean,
         true_is_static=not isi.any() and not current_mean[:, 1:].any(),
         legendre=legendre, legendre_scaled=legendre / n,
@@ -1027,8 +1046,7 @@ def _varying_samples(plan: _Plan, beta: np.ndarray, sent: np.ndarray, work: _Wor
     samples = (plan.symbols, plan.n)
     varying = None
     if inside.size and order > 0 and not plan.per_tap:
-        ramps = plan.ramps_cols[inside].astype(plan.time_dtype)
-        gains = np.take(beta, inside, axis=1).transpose(0, 3, 2, 1).astype(plan.time_dtype)  # (F, Q+1, S, taps)
+        gains = np.take(beta, inside, axis=1).transpose(0, 3, 2, 1).astype(plan.time_dtype, order="C")  # (F, Q+1, S, m)
         for q in range(1, order + 1):  # H(u, k) = sum_q P_q(u) H_q(k): one IFFT per order for all these taps
             wave = work(f"wave{min(q, 2)}", frames, samples, plan.time_dtype)
             for first in range(0, frames, CACHE_FRAMES):  # the products H_q X, a few frames at a time
@@ -1036,7 +1054,9 @@ def _varying_samples(plan: _Plan, beta: np.ndarray, sent: np.ndarray, work: _Wor
                 count = main[some].shape[0]
                 main_time = work("main_time", count, main.shape[1:], plan.time_dtype)
                 np.copyto(main_time, main[some])
-                h_q = np.matmul(gains[some, q], ramps, out=work("h_q", count, main.shape[1:], plan.time_dtype))
+                h_q = work("h_q", count, main.shape[1:], plan.time_dtype)
+                np.matmul(gains[some, q].view(plan.ramps_inside_time.dtype), plan.ramps_inside_time,
+                          out=h_q.view(plan.ramps_inside_time.dtype))
                 _to_bins(main_time, plan, h_q, out=wave[some])
             wave = _fft(wave, inverse=True, scaled=False)
             wave *= plan.legendre_time[q]  # P_q(u) / N
@@ -1094,9 +1114,10 @@ def _static_gains(plan: _Plan, beta: np.ndarray, work: _Workspace) -> np.ndarray
     It is constant over the window, so the IFFT and the receiver's FFT cancel
     for it and it is applied on the subcarriers.
     """
-    inside = plan.inside
-    return np.matmul(np.take(beta[..., 0], inside, axis=1).transpose(0, 2, 1), plan.ramps_cols[inside],
-                     out=work("static", beta.shape[0], (plan.symbols, plan.k_phys.size), complex))
+    gains = np.ascontiguousarray(np.take(beta[..., 0], plan.inside, axis=1).transpose(0, 2, 1))  # (F, S, taps)
+    out = work("static", beta.shape[0], (plan.symbols, plan.k_phys.size), complex)
+    np.matmul(gains.view(float), plan.ramps_inside, out=out.view(float))  # real form: see _real_form
+    return out
 
 
 def _without_noise(plan: _Plan, main: np.ndarray, static: np.ndarray, bins, work: _Workspace):
