@@ -1046,7 +1046,8 @@ def _varying_samples(plan: _Plan, beta: np.ndarray, sent: np.ndarray, work: _Wor
     samples = (plan.symbols, plan.n)
     varying = None
     if inside.size and order > 0 and not plan.per_tap:
-        gains = np.take(beta, inside, axis=1).transpose(0, 3, 2, 1).astype(plan.time_dtype, order="C")  # (F, Q+1, S, m)
+        gains = np.take(beta, inside, axis=1).transpose(0, 3, 2, 1)  # (F, Q+1, S, taps)
+        gains = gains.astype(plan.time_dtype, order="C")
         for q in range(1, order + 1):  # H(u, k) = sum_q P_q(u) H_q(k): one IFFT per order for all these taps
             wave = work(f"wave{min(q, 2)}", frames, samples, plan.time_dtype)
             for first in range(0, frames, CACHE_FRAMES):  # the products H_q X, a few frames at a time
