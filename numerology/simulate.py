@@ -457,6 +457,7 @@ class _Plan:
     data_count: int
     cell_pilots: np.ndarray  # (cells, U) pilot number of each cell's pilots; the pilot count means "none"
     cell_weights: np.ndarray  # (U, D_f D_t) estimator weight of each cell pilot for each cell position
+    cell_weights_real: np.ndarray  # the same in real form (see _real_form)
     grid_to_cell: np.ndarray  # (measured grid,) index into the (cells, D_f D_t) estimates
     noise_count: int  # noise values per frame: the measured symbols' grid, then the other pilots
     extra_pilot_flat: np.ndarray  # flat indices of the pilots outside the measured symbols
@@ -727,7 +728,7 @@ def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estima
         cell_weight=float(weight_cell[grid_rows[0]]) if np.all(weight_cell[grid_rows] == weight_cell[grid_rows[0]])
         else 0.0, weight_cell=np.repeat(weight_cell, 2),
         measured_count=int(weight_all.sum()), data_count=int(weight_data.sum()), cell_pilots=cell_pilots,
-        cell_weights=cell_weights, grid_to_cell=grid_to_cell,
+        cell_weights=cell_weights, cell_weights_real=_real_form(cell_weights), grid_to_cell=grid_to_cell,
         noise_count=measured_symbols * cols + extra_pilot_flat.size,
         extra_pilot_flat=extra_pilot_flat, delays=delays, amplitudes=np.sqrt(powers), inside=taps_inside, isi=isi,
         ramps=ramps.astype(time_dtype), ramps_cols=ramps_cols, ramps_inside=_real_form(ramps_cols[taps_inside]),
@@ -1103,8 +1104,8 @@ def _estimate(plan: _Plan, pilot_values: np.ndarray, work: _Workspace) -> np.nda
     padded[:, :-1] = pilot_values
     cell_pilots = np.take(padded, plan.cell_pilots, axis=1, mode="clip",
                           out=work("cell_pilots", frames, plan.cell_pilots.shape, complex))
-    cells = np.matmul(cell_pilots, plan.cell_weights,
-                      out=work("cells", frames, (plan.cell_pilots.shape[0], plan.cell_weights.shape[1]), complex))
+    cells = work("cells", frames, (plan.cell_pilots.shape[0], plan.cell_weights.shape[1]), complex)
+    np.matmul(cell_pilots.view(float), plan.cell_weights_real, out=cells.view(float))  # real form: see _real_form
     return np.take(cells.reshape(frames, -1), plan.grid_to_cell, axis=1, mode="clip",
                    out=work("estimate", frames, (plan.grid_to_cell.size,), complex))
 
