@@ -451,6 +451,7 @@ class _Plan:
     weight_all: np.ndarray  # (measured grid,) 1 on measured REs, else 0
     unmeasured: np.ndarray  # flat indices into the measured grid of the REs that are not measured
     measured_pilots: np.ndarray  # ... and of the measured pilots (measured, not data)
+    not_data: np.ndarray  # ... and of both (the REs that are not measured data)
     cell_weight: float  # the weight of every measured RE in the cell average when they are all alike, else 0
     weight_cell: np.ndarray  # (2 x measured grid) equal weight per lattice-cell position (sum 1), for (re, im)
     measured_count: int
@@ -725,6 +726,7 @@ def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estima
         symbol_table=symbol_table, symbol_offset=symbol_offset, pilot_flat=pilot_flat,
         first_measured=margin_lo, weight_all=weight_all, unmeasured=np.flatnonzero(weight_all == 0),
         measured_pilots=np.flatnonzero((weight_all != 0) & (weight_data == 0)),
+        not_data=np.flatnonzero(weight_data == 0),
         cell_weight=float(weight_cell[grid_rows[0]]) if np.all(weight_cell[grid_rows] == weight_cell[grid_rows[0]])
         else 0.0, weight_cell=np.repeat(weight_cell, 2),
         measured_count=int(weight_all.sum()), data_count=int(weight_data.sum()), cell_pilots=cell_pilots,
@@ -823,14 +825,17 @@ def _power(values: np.ndarray, weights2: np.ndarray) -> np.ndarray:
 
 def _measured_power(values: np.ndarray, plan: _Plan, data: bool = False):
     """Per-frame sum of |values|^2 (F, measured grid) over the measured resource elements, and with
-    ``data`` also over the measured data resource elements (a second array).
+    ``data`` also over the measured data resource elements (a second array); with ``data="only"``, only that.
 
     ``values`` is overwritten: it is set to zero where it is not summed, then
     summed whole (a scatter of zeros to a tenth of it and one BLAS dot
     product, instead of squares and a product with a weight vector).
     """
-    values[:, plan.unmeasured] = 0.0
     flat = values.view(np.float64)
+    if data == "only":
+        values[:, plan.not_data] = 0.0
+        return np.vecdot(flat, flat)
+    values[:, plan.unmeasured] = 0.0
     total = np.vecdot(flat, flat)
     if not data:
         return total
@@ -920,7 +925,7 @@ _NOISE_BITS = 24
 def _noise(words: np.ndarray, std: float, work: _Workspace):
     """Complex white Gaussian noise of variance ``std**2``: real and imaginary parts (F, L), float32.
 
-    ``words`` (F, 2, L) holds two random 32-bit words for each value; the
+    ``words`` (F, 2, L, overwritten) holds two random 32-bit words for each value; the
     top 24 bits of each make a uniform ``u`` (resp. ``v``) in [0, 1),
     exactly a float32 (as numpy's single-precision ``Generator.random``).
     Box-Muller in polar form: ``|n|^2 = -std^2 ln(1 - u)`` is exponential
@@ -932,7 +937,7 @@ def _noise(words: np.ndarray, std: float, work: _Workspace):
     values.
     """
     frames, _, count = words.shape
-    shifted = np.right_shift(words, 32 - _NOISE_BITS, out=work("noise_words", frames, (2, count), np.uint32))
+    shifted = np.right_shift(words, 32 - _NOISE_BITS, out=words)
     integers = work("noise_integers", frames, (2, count), np.float32)
     np.copyto(integers, shifted.view(np.int32), casting="unsafe")  # exact: below 2^24 (int32 converts faster)
     step = 2.0**-_NOISE_BITS
@@ -1178,24 +1183,27 @@ def _measure(plan: _Plan, beta, main, static, y_channel, part, y, reference, noi
     if reference is None:
         reference = true_channel
     else:
-        useful_data = _measured_power(np.multiply(reference, x, out=scratch), plan, data=True)[1]
+        useful_data = _measured_power(np.multiply(reference, x, out=scratch), plan, data="only")
 
     if noise_words is not None:  # measured symbols, then the other pilots
         real, imag = _noise(noise_words, plan.noise_std, work)
         grid = (frames, plan.measured_symbols, cols)
         np.add(y[:, rows].real, real[:, :measured].reshape(grid), out=y[:, rows].real)
         np.add(y[:, rows].imag, imag[:, :measured].reshape(grid), out=y[:, rows].imag)
-        y.reshape(frames, -1)[:, plan.extra_pilot_flat] += real[:, measured:] + 1j * imag[:, measured:]
+        flat = y.reshape(frames, -1)
+        flat.real[:, plan.extra_pilot_flat] += real[:, measured:]
+        flat.imag[:, plan.extra_pilot_flat] += imag[:, measured:]
 
     # channel estimate with the analytic model's weights
-    pilot_values = np.multiply(np.take(y.reshape(frames, -1), plan.pilot_flat, axis=1),
-                               np.conj(np.take(main.reshape(frames, -1), plan.pilot_flat, axis=1)))
+    pilots_sent = np.take(main.reshape(frames, -1), plan.pilot_flat, axis=1)
+    pilot_values = np.take(y.reshape(frames, -1), plan.pilot_flat, axis=1)
+    pilot_values *= np.conjugate(pilots_sent, out=pilots_sent)
     estimate = _estimate(plan, pilot_values, work)
     estimation_error = _cell_power(np.subtract(estimate, reference, out=scratch), plan)
     channel_power = _cell_power(reference, plan)
     error = np.multiply(estimate, x, out=estimate)
     error -= y[:, rows].reshape(frames, measured)
-    error = _measured_power(error, plan, data=True)[1]
+    error = _measured_power(error, plan, data="only")
     return interference, useful, estimation_error, channel_power, error, useful_data
 
 

@@ -452,6 +452,7 @@ def test_measured_sums_are_the_weighted_sums(estimator):
     total, data_total = simulate._measured_power(values.copy(), plan, data=True)
     assert_allclose(total, power @ plan.weight_all, rtol=1e-13)
     assert_allclose(data_total, power @ (plan.weight_all * data), rtol=1e-13)
+    assert_allclose(simulate._measured_power(values.copy(), plan, data="only"), data_total, rtol=1e-13)
     assert_allclose(simulate._cell_power(values.copy(), plan), power @ plan.weight_cell[::2], rtol=1e-13)
 
 
