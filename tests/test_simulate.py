@@ -435,7 +435,7 @@ def test_measured_sums_are_the_weighted_sums(estimator):
     """The simulator's sums over the measured resource elements equal the weighted sums that define them.
 
     Internal consistency: zeros scattered where nothing is summed and one
-    dot product give sum |v|^2 over the measured REs, over the measured
+    dot product (or the whole sum less the gathered rest) give sum |v|^2 over the measured REs, over the measured
     data REs (data: the symbol table's data rows) and the lattice-cell
     average with the per-position weights; the linear estimator's reach
     leaves unequal weights on this band, the LMMSE one equal weights.
@@ -453,6 +453,9 @@ def test_measured_sums_are_the_weighted_sums(estimator):
     assert_allclose(total, power @ plan.weight_all, rtol=1e-13)
     assert_allclose(data_total, power @ (plan.weight_all * data), rtol=1e-13)
     assert_allclose(simulate._measured_power(values.copy(), plan, data="only"), data_total, rtol=1e-13)
+    kept = values.copy()
+    assert_allclose(simulate._measured_power_kept(kept, plan), (total, data_total), rtol=1e-13)
+    assert np.array_equal(kept, values)
     assert_allclose(simulate._cell_power(values.copy(), plan), power @ plan.weight_cell[::2], rtol=1e-13)
 
 
