@@ -445,6 +445,7 @@ class _Plan:
     symbols: int  # received symbols per frame (margins + measured)
     measured_symbols: int
     symbol_table: np.ndarray  # (3 x 256) complex: nothing, data point, pilot point for each random byte
+    symbol_table_time: np.ndarray  # the same in the time-domain type
     symbol_offset: np.ndarray  # (pre + symbols, columns) uint16: 0 (unused), 256 (data) or 512 (pilot)
     pilot_flat: np.ndarray  # flat indices of the received-frame pilots in (symbols, columns)
     first_measured: int  # first measured symbol of the received frame
@@ -723,7 +724,8 @@ def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estima
     return _Plan(
         n=n, ncp=ncp, fs=fs, t_u=design.useful_symbol_s, k_phys=k_phys, neg=int((k_phys < 0).sum()),
         pos=int((k_phys > 0).sum()), pre=pre, symbols=symbols, measured_symbols=measured_symbols,
-        symbol_table=symbol_table, symbol_offset=symbol_offset, pilot_flat=pilot_flat,
+        symbol_table=symbol_table, symbol_table_time=symbol_table.astype(time_dtype), symbol_offset=symbol_offset,
+        pilot_flat=pilot_flat,
         first_measured=margin_lo, weight_all=weight_all, unmeasured=np.flatnonzero(weight_all == 0),
         measured_pilots=np.flatnonzero((weight_all != 0) & (weight_data == 0)),
         not_data=np.flatnonzero(weight_data == 0),
@@ -1054,17 +1056,19 @@ def _tap_gains(plan: _Plan, freqs: np.ndarray, amps: np.ndarray, phases: np.ndar
     return gains[..., :-1], tap_power
 
 
-def _varying_samples(plan: _Plan, beta: np.ndarray, sent: np.ndarray, work: _Workspace):
+def _varying_samples(plan: _Plan, beta: np.ndarray, index: np.ndarray, sent, work: _Workspace):
     """Time-domain samples (F, S, N) of what is not applied on the subcarriers, or None.
 
     That is the variation within the window (Legendre orders >= 1) of the
     taps inside the guard, and the whole response of the taps beyond it. In
     ``plan.time_dtype``: this part carries the interference, and single
-    precision leaves a round-off of about 1e-14 of its power.
+    precision leaves a round-off of about 1e-14 of its power. ``index``:
+    the rows of the symbol table sent (F, pre + S, columns); ``sent``: the
+    sent points, or None where the one-IFFT-per-order path alone is used
+    (it takes them a frame at a time).
     """
     order, pre, inside = plan.order, plan.pre, plan.inside
-    frames = sent.shape[0]
-    main = sent[:, pre:]
+    frames = index.shape[0]
     samples = (plan.symbols, plan.n)
     varying = None
     if inside.size and order > 0 and not plan.per_tap:
@@ -1074,10 +1078,11 @@ def _varying_samples(plan: _Plan, beta: np.ndarray, sent: np.ndarray, work: _Wor
             wave = work(f"wave{min(q, 2)}", frames, samples, plan.time_dtype)
             for first in range(0, frames, CACHE_FRAMES):  # the products H_q X, a few frames at a time
                 some = slice(first, first + CACHE_FRAMES)
-                count = main[some].shape[0]
-                main_time = work("main_time", count, main.shape[1:], plan.time_dtype)
-                np.copyto(main_time, main[some])
-                h_q = work("h_q", count, main.shape[1:], plan.time_dtype)
+                sent_index = index[some, pre:]
+                count, shape = sent_index.shape[0], sent_index.shape[1:]
+                main_time = work("main_time", count, shape, plan.time_dtype)
+                _symbols(plan.symbol_table_time, sent_index, main_time)
+                h_q = work("h_q", count, shape, plan.time_dtype)
                 np.matmul(gains[some, q].view(plan.ramps_inside_time.dtype), plan.ramps_inside_time,
                           out=h_q.view(plan.ramps_inside_time.dtype))
                 _to_bins(main_time, plan, h_q, out=wave[some])
@@ -1234,24 +1239,36 @@ def _measure(plan: _Plan, beta, main, static, y_channel, part, y, reference, noi
     return interference, useful, estimation_error, channel_power, error, useful_data
 
 
+def _symbols(table: np.ndarray, index: np.ndarray, out: np.ndarray) -> np.ndarray:
+    """The sent points ``table[index]`` into ``out``.
+
+    The indices are valid by construction; ``mode="clip"`` lets ``np.take``
+    write into ``out`` unbuffered.
+    """
+    return np.take(table, index, mode="clip", out=out)
+
+
 def _simulate_block(plan: _Plan, seeds, work: _Workspace) -> dict:
     """Measured sums of a block of frames.
 
     The time-domain synthesis and its FFTs run on the whole block; what
     follows the FFT runs ``CACHE_FRAMES`` frames at a time, so that its
-    arrays stay in the processor's cache.
+    arrays stay in the processor's cache. For the same reason the sent
+    points are looked up a frame at a time where no step needs the whole
+    block's (a block's would be 5 MB for the benchmark).
     """
     draws = _draw(plan, seeds, work)
     frames = len(seeds)
-    # (indices are valid by construction; mode="clip" lets np.take write into ``out`` unbuffered)
-    sent = np.take(plan.symbol_table, draws.index, mode="clip",
-                   out=work("sent", frames, plan.symbol_offset.shape, complex))
-    beta, tap_power = _tap_gains(plan, draws.freqs, draws.amps, draws.phases, work)
-    main = sent[:, plan.pre:]  # the received frame's own symbols
-    varying = _varying_samples(plan, beta, sent, work)
-
     with_oscillator = plan.linewidth_hz > 0 or plan.frequency_offset_hz != 0
+    # the sent symbols of the whole block where a step needs them all at once; else a frame at a time
+    whole = with_oscillator or plan.isi.any() or (plan.per_tap and plan.order > 0 and plan.inside.size > 0)
+    sent = _symbols(plan.symbol_table, draws.index, work("sent", frames, plan.symbol_offset.shape, complex)) \
+        if whole else None
+    beta, tap_power = _tap_gains(plan, draws.freqs, draws.amps, draws.phases, work)
+    varying = _varying_samples(plan, beta, draws.index, sent, work)
+
     if with_oscillator:  # the whole signal goes through the time domain
+        main = sent[:, plan.pre:]  # the received frame's own symbols
         rows = slice(plan.first_measured, plan.first_measured + plan.measured_symbols)
         static = _static_gains(plan, beta, work)
         received = _fft(_to_bins(main, plan, static), inverse=True)
@@ -1279,14 +1296,19 @@ def _simulate_block(plan: _Plan, seeds, work: _Workspace) -> dict:
     for first in range(0, frames, CACHE_FRAMES):
         some = slice(first, first + CACHE_FRAMES)
         noise_words = draws.noise(some)
+        if whole:
+            main = sent[some, plan.pre:]
+        else:
+            index = draws.index[some, plan.pre:]
+            main = _symbols(plan.symbol_table, index, work("main", index.shape[0], index.shape[1:], complex))
         if with_oscillator:
             parts = (static[some], y_channel[some], None if part is None else part[some], y[some], reference[some])
         else:
             gains = _static_gains(plan, beta[some], work)
-            static_part, part = _without_noise(plan, main[some], gains, None if bins is None else bins[some], work,
+            static_part, part = _without_noise(plan, main, gains, None if bins is None else bins[some], work,
                                                combine=False)
             parts = (gains, static_part, part, None, None)
-        sums[:, some] = _measure(plan, beta[some], main[some], *parts, noise_words, work)
+        sums[:, some] = _measure(plan, beta[some], main, *parts, noise_words, work)
     return {"interference": sums[0:2], "estimation": sums[2:4], "error": sums[4:6], "tap_power": tap_power}
 
 
