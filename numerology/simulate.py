@@ -1051,8 +1051,8 @@ def _tap_gains(plan: _Plan, freqs: np.ndarray, amps: np.ndarray, phases: np.ndar
                       out=work("tap_gains", frames, (taps, coarse, (order + 2) * fine), complex))
     gains = gains.reshape(frames, taps, coarse, order + 2, fine).transpose(0, 1, 2, 4, 3)
     gains = gains.reshape(frames, taps, coarse * fine, order + 2)[:, :, :symbols]  # (F, taps, S, Q+2), a copy
-    centre_gain = gains.view(float)[..., -2:]  # h_m at the window centres, (real, imaginary)
-    tap_power = np.einsum("fmsi,fmsi->fm", centre_gain, centre_gain) / symbols  # (F, taps)
+    centre_gain = gains[..., -1]  # h_m at the window centres
+    tap_power = np.mean(np.square(centre_gain.real) + np.square(centre_gain.imag), axis=2)  # (F, taps)
     return gains[..., :-1], tap_power
 
 
@@ -1123,17 +1123,32 @@ def _estimate(plan: _Plan, pilot_values: np.ndarray, work: _Workspace) -> np.nda
 
     The weights of :func:`pilots.estimator_weights`, applied one lattice cell
     at a time (:func:`_cell_estimator`); resource elements that are not
-    measured get values that are never read.
+    measured get values that are never read. ``pilot_values`` may carry one
+    more column, zero (:func:`_pilot_values`), read for a missing pilot.
     """
-    frames = pilot_values.shape[0]
-    padded = np.zeros((frames, pilot_values.shape[1] + 1), dtype=complex)  # the last one reads as "no pilot"
-    padded[:, :-1] = pilot_values
+    frames, count = pilot_values.shape
+    padded = pilot_values
+    if count == plan.pilot_flat.size:
+        padded = np.zeros((frames, count + 1), dtype=complex)  # the last one reads as "no pilot"
+        padded[:, :-1] = pilot_values
     cell_pilots = np.take(padded, plan.cell_pilots, axis=1, mode="clip",
                           out=work("cell_pilots", frames, plan.cell_pilots.shape, complex))
     cells = work("cells", frames, (plan.cell_pilots.shape[0], plan.cell_weights.shape[1]), complex)
     np.matmul(cell_pilots.view(float), plan.cell_weights_real, out=cells.view(float))  # real form: see _real_form
     return np.take(cells.reshape(frames, -1), plan.grid_to_cell, axis=1, mode="clip",
                    out=work("estimate", frames, (plan.grid_to_cell.size,), complex))
+
+
+def _pilot_values(plan: _Plan, y: np.ndarray, main: np.ndarray, work: _Workspace) -> np.ndarray:
+    """Received over sent values at the pilots, ``y conj(x)`` (unit-power points), and a zero column after them."""
+    frames, count = y.shape[0], plan.pilot_flat.size
+    values = work("pilot_values", frames, (count + 1,), complex)
+    values[:, -1] = 0.0  # read for a pilot outside the band or on DC
+    sent = np.take(main.reshape(frames, -1), plan.pilot_flat, axis=1, mode="clip",
+                   out=work("pilots_sent", frames, (count,), complex))
+    np.take(y.reshape(frames, -1), plan.pilot_flat, axis=1, mode="clip", out=values[:, :-1])
+    values[:, :-1] *= np.conjugate(sent, out=sent)
+    return values
 
 
 def _static_gains(plan: _Plan, beta: np.ndarray, work: _Workspace) -> np.ndarray:
@@ -1227,10 +1242,7 @@ def _measure(plan: _Plan, beta, main, static, y_channel, part, y, reference, noi
         flat.imag[:, plan.extra_pilot_flat] += imag[:, measured:]
 
     # channel estimate with the analytic model's weights
-    pilots_sent = np.take(main.reshape(frames, -1), plan.pilot_flat, axis=1)
-    pilot_values = np.take(y.reshape(frames, -1), plan.pilot_flat, axis=1)
-    pilot_values *= np.conjugate(pilots_sent, out=pilots_sent)
-    estimate = _estimate(plan, pilot_values, work)
+    estimate = _estimate(plan, _pilot_values(plan, y, main, work), work)
     estimation_error = _cell_power(np.subtract(estimate, reference, out=scratch), plan)
     channel_power = _cell_power(reference, plan)
     error = np.multiply(estimate, x, out=estimate)
