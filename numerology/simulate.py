@@ -1243,11 +1243,13 @@ def _measure(plan: _Plan, beta, main, static, y_channel, part, y, reference, noi
 
     # channel estimate with the analytic model's weights
     estimate = _estimate(plan, _pilot_values(plan, y, main, work), work)
-    estimation_error = _cell_power(np.subtract(estimate, reference, out=scratch), plan)
-    channel_power = _cell_power(reference, plan)
-    error = np.multiply(estimate, x, out=estimate)
+    if part is not None:  # the varying part is measured: its buffer serves as scratch (fewer arrays in the cache)
+        scratch = part[:, rows].reshape(frames, measured)
+    error = np.multiply(estimate, x, out=scratch)
     error -= y[:, rows].reshape(frames, measured)
     error = _measured_power(error, plan, data="only")
+    estimation_error = _cell_power(np.subtract(estimate, reference, out=estimate), plan)
+    channel_power = _cell_power(reference, plan)
     return interference, useful, estimation_error, channel_power, error, useful_data
 
 
