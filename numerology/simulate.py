@@ -463,6 +463,12 @@ class _Plan:
     grid_to_cell: np.ndarray  # (measured grid,) index into the (cells, D_f D_t) estimates
     noise_count: int  # noise values per frame: the measured symbols' grid, then the other pilots
     extra_pilot_flat: np.ndarray  # flat indices of the pilots outside the measured symbols
+    extra_pilot_rows: np.ndarray  # ... their symbols
+    extra_pilot_cols: np.ndarray  # ... their grid columns
+    extra_pilot_bins: np.ndarray  # ... their FFT bins
+    extra_pilot_ramps: np.ndarray  # (taps inside the guard, extra pilots) ramps_cols at their columns
+    pilots_before: int  # pilots before the measured symbols (the first of extra_pilot_flat)
+    pilots_in_rows: np.ndarray  # flat indices into the measured symbols' grid of the pilots there
     delays: np.ndarray  # tap delays in samples (float)
     amplitudes: np.ndarray  # sqrt(tap powers)
     inside: np.ndarray  # indices of the taps inside the guard
@@ -711,7 +717,8 @@ def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estima
 
     # noise is drawn where it is read: every RE of the measured symbols, then the other pilots
     pilot_row = pilot_flat // cols
-    extra_pilot_flat = pilot_flat[(pilot_row < margin_lo) | (pilot_row >= margin_lo + measured_symbols)]
+    in_rows = (pilot_row >= margin_lo) & (pilot_row < margin_lo + measured_symbols)
+    extra_pilot_flat = pilot_flat[~in_rows]
     symbol_table = np.concatenate([np.zeros(256), _qam(np.arange(256) % qam_order, qam_order),
                                    _qam(np.arange(256) % 4, 4)])
     symbol_offset = np.where(pilot_mask, 512, np.where(data_mask, 256, 0)).astype(np.uint16)
@@ -734,7 +741,12 @@ def _plan(design, environment, snr_db, frequency_offset_hz, linewidth_hz, estima
         measured_count=int(weight_all.sum()), data_count=int(weight_data.sum()), cell_pilots=cell_pilots,
         cell_weights=cell_weights, cell_weights_real=_real_form(cell_weights), grid_to_cell=grid_to_cell,
         noise_count=measured_symbols * cols + extra_pilot_flat.size,
-        extra_pilot_flat=extra_pilot_flat, delays=delays, amplitudes=np.sqrt(powers), inside=taps_inside, isi=isi,
+        extra_pilot_flat=extra_pilot_flat, extra_pilot_rows=extra_pilot_flat // cols,
+        extra_pilot_cols=extra_pilot_flat % cols, extra_pilot_bins=bins[extra_pilot_flat % cols],
+        extra_pilot_ramps=ramps_cols[taps_inside][:, extra_pilot_flat % cols],
+        pilots_before=int(np.count_nonzero(pilot_row < margin_lo)),
+        pilots_in_rows=pilot_flat[in_rows] - margin_lo * cols, delays=delays, amplitudes=np.sqrt(powers),
+        inside=taps_inside, isi=isi,
         ramps=ramps.astype(time_dtype), ramps_cols=ramps_cols, ramps_inside=_real_form(ramps_cols[taps_inside]),
         ramps_inside_time=_real_form(ramps_cols[taps_inside]).astype(np.finfo(time_dtype).dtype),
         source_symbol=source_symbol,
@@ -1139,26 +1151,62 @@ def _estimate(plan: _Plan, pilot_values: np.ndarray, work: _Workspace) -> np.nda
                    out=work("estimate", frames, (plan.grid_to_cell.size,), complex))
 
 
-def _pilot_values(plan: _Plan, y: np.ndarray, main: np.ndarray, work: _Workspace) -> np.ndarray:
-    """Received over sent values at the pilots, ``y conj(x)`` (unit-power points), and a zero column after them."""
+def _pilot_values(plan: _Plan, y: np.ndarray, main: np.ndarray, margin, work: _Workspace) -> np.ndarray:
+    """Received over sent values at the pilots, ``y conj(x)`` (unit-power points), and a zero column after them.
+
+    ``y`` and ``main`` cover every symbol of the frame, or with ``margin``
+    (:func:`_margin_pilots`) only the measured ones.
+    """
     frames, count = y.shape[0], plan.pilot_flat.size
     values = work("pilot_values", frames, (count + 1,), complex)
     values[:, -1] = 0.0  # read for a pilot outside the band or on DC
-    sent = np.take(main.reshape(frames, -1), plan.pilot_flat, axis=1, mode="clip",
-                   out=work("pilots_sent", frames, (count,), complex))
-    np.take(y.reshape(frames, -1), plan.pilot_flat, axis=1, mode="clip", out=values[:, :-1])
+    sent = work("pilots_sent", frames, (count,), complex)
+    if margin is None:
+        np.take(main.reshape(frames, -1), plan.pilot_flat, axis=1, mode="clip", out=sent)
+        np.take(y.reshape(frames, -1), plan.pilot_flat, axis=1, mode="clip", out=values[:, :-1])
+    else:  # pilots in the symbols before, in the measured ones, after
+        before, inside = plan.pilots_before, plan.pilots_in_rows.size
+        margin_y, margin_x = margin
+        for out, rows, extra in ((sent, main, margin_x), (values[:, :-1], y, margin_y)):
+            out[:, :before] = extra[:, :before]
+            np.take(rows.reshape(frames, -1), plan.pilots_in_rows, axis=1, mode="clip",
+                    out=out[:, before:before + inside])
+            out[:, before + inside:] = extra[:, before:]
     values[:, :-1] *= np.conjugate(sent, out=sent)
     return values
 
 
+def _margin_pilots(plan: _Plan, beta: np.ndarray, index: np.ndarray, bins, work: _Workspace):
+    """Received values without noise and sent points at the pilots of the symbols around the measured ones.
+
+    Nothing else of those symbols is read on the subcarriers (they are
+    synthesised and transformed like the others: their samples reach the
+    measured symbols), so only their pilots are formed: ``x (sum over the
+    taps of beta_0 ramp) + bins``, the terms of :func:`_static_gains` and
+    :func:`_without_noise` at these points. ``index``: the frame's symbol
+    table rows (F, pre + S, columns); ``bins``: the FFT of the varying part
+    (F, S, N) or None. Returns ``(y, x)``, each (F, extra pilots).
+    """
+    frames = index.shape[0]
+    rows = plan.extra_pilot_rows
+    sent = np.take(plan.symbol_table, index[:, plan.pre:].reshape(frames, -1)[:, plan.extra_pilot_flat], mode="clip")
+    gains = beta[:, plan.inside[:, None], rows[None, :], 0]  # (F, taps, extra pilots)
+    gains *= plan.extra_pilot_ramps
+    received = gains.sum(axis=1)
+    received *= sent
+    if bins is not None:
+        received += bins.reshape(frames, -1)[:, rows * plan.n + plan.extra_pilot_bins]
+    return received, sent
+
+
 def _static_gains(plan: _Plan, beta: np.ndarray, work: _Workspace) -> np.ndarray:
-    """Order 0 of the taps inside the guard on the subcarriers (F, S, columns).
+    """Order 0 of the taps inside the guard on the subcarriers (F, S, columns), for the symbols of ``beta``.
 
     It is constant over the window, so the IFFT and the receiver's FFT cancel
     for it and it is applied on the subcarriers.
     """
     gains = np.ascontiguousarray(np.take(beta[..., 0], plan.inside, axis=1).transpose(0, 2, 1))  # (F, S, taps)
-    out = work("static", beta.shape[0], (plan.symbols, plan.k_phys.size), complex)
+    out = work("static", beta.shape[0], (beta.shape[2], plan.k_phys.size), complex)
     np.matmul(gains.view(float), plan.ramps_inside, out=out.view(float))  # real form: see _real_form
     return out
 
@@ -1180,7 +1228,8 @@ def _without_noise(plan: _Plan, main: np.ndarray, static: np.ndarray, bins, work
     return out, part
 
 
-def _measure(plan: _Plan, beta, main, static, y_channel, part, y, reference, noise_words, work: _Workspace) -> tuple:
+def _measure(plan: _Plan, beta, main, static, y_channel, part, y, reference, noise_words, work: _Workspace,
+             margin=None) -> tuple:
     """Per-frame numerators and denominators of the measured figures, for a few frames.
 
     ``static``: the static gains (:func:`_static_gains`, F, S, columns; may
@@ -1192,13 +1241,16 @@ def _measure(plan: _Plan, beta, main, static, y_channel, part, y, reference, noi
     power is measured, and the noise once the interference is measured (in
     place: ``y_channel`` is overwritten); ``reference``:
     the true channel as received on the measured symbols (F, measured grid;
-    may be overwritten), or None for the window-average channel. Returns
-    ``(interference, useful, estimation error, channel power, error, useful
-    data power)``, each of shape (F,).
+    may be overwritten), or None for the window-average channel. These
+    arrays cover every symbol of the frame, or with ``margin`` only the
+    measured ones: ``margin`` is then :func:`_margin_pilots`' ``(y, x)`` of
+    the pilots around them (y is overwritten). Returns ``(interference,
+    useful, estimation error, channel power, error, useful data power)``,
+    each of shape (F,).
     """
     frames, cols = main.shape[0], plan.k_phys.size
     measured = plan.measured_symbols * cols
-    rows = slice(plan.first_measured, plan.first_measured + plan.measured_symbols)
+    rows = slice(plan.first_measured, plan.first_measured + plan.measured_symbols) if margin is None else slice(None)
 
     # true channel: window average of the frequency response (current-symbol samples only)
     if plan.true_is_static:
@@ -1237,12 +1289,16 @@ def _measure(plan: _Plan, beta, main, static, y_channel, part, y, reference, noi
         grid = (frames, plan.measured_symbols, cols)
         np.add(y[:, rows].real, real[:, :measured].reshape(grid), out=y[:, rows].real)
         np.add(y[:, rows].imag, imag[:, :measured].reshape(grid), out=y[:, rows].imag)
-        flat = y.reshape(frames, -1)
-        flat.real[:, plan.extra_pilot_flat] += real[:, measured:]
-        flat.imag[:, plan.extra_pilot_flat] += imag[:, measured:]
+        if margin is None:
+            flat = y.reshape(frames, -1)
+            flat.real[:, plan.extra_pilot_flat] += real[:, measured:]
+            flat.imag[:, plan.extra_pilot_flat] += imag[:, measured:]
+        else:
+            margin[0].real += real[:, measured:]
+            margin[0].imag += imag[:, measured:]
 
     # channel estimate with the analytic model's weights
-    estimate = _estimate(plan, _pilot_values(plan, y, main, work), work)
+    estimate = _estimate(plan, _pilot_values(plan, y, main, margin, work), work)
     if part is not None:  # the varying part is measured: its buffer serves as scratch (fewer arrays in the cache)
         scratch = part[:, rows].reshape(frames, measured)
     error = np.multiply(estimate, x, out=scratch)
@@ -1307,22 +1363,24 @@ def _simulate_block(plan: _Plan, seeds, work: _Workspace) -> dict:
         bins = None if varying is None else _fft(varying)
 
     sums = np.empty((6, frames))
+    rows = slice(plan.first_measured, plan.first_measured + plan.measured_symbols)
     for first in range(0, frames, CACHE_FRAMES):
         some = slice(first, first + CACHE_FRAMES)
         noise_words = draws.noise(some)
-        if whole:
-            main = sent[some, plan.pre:]
-        else:
-            index = draws.index[some, plan.pre:]
-            main = _symbols(plan.symbol_table, index, work("main", index.shape[0], index.shape[1:], complex))
         if with_oscillator:
+            main = sent[some, plan.pre:]
             parts = (static[some], y_channel[some], None if part is None else part[some], y[some], reference[some])
-        else:
-            gains = _static_gains(plan, beta[some], work)
-            static_part, part = _without_noise(plan, main, gains, None if bins is None else bins[some], work,
-                                               combine=False)
-            parts = (gains, static_part, part, None, None)
-        sums[:, some] = _measure(plan, beta[some], main, *parts, noise_words, work)
+            sums[:, some] = _measure(plan, beta[some], main, *parts, noise_words, work)
+            continue
+        # the measured symbols on the subcarriers, and the pilots of the others
+        index = draws.index[some, plan.pre + rows.start:plan.pre + rows.stop]
+        main = _symbols(plan.symbol_table, index, work("main", index.shape[0], index.shape[1:], complex))
+        gains = _static_gains(plan, beta[some, :, rows], work)
+        varying_bins = None if bins is None else bins[some, rows]
+        static_part, part = _without_noise(plan, main, gains, varying_bins, work, combine=False)
+        margin = _margin_pilots(plan, beta[some], draws.index[some], None if bins is None else bins[some], work)
+        sums[:, some] = _measure(plan, beta[some, :, rows], main, gains, static_part, part, None, None, noise_words,
+                                 work, margin)
     return {"interference": sums[0:2], "estimation": sums[2:4], "error": sums[4:6], "tap_power": tap_power}
 
 

@@ -459,6 +459,33 @@ def test_measured_sums_are_the_weighted_sums(estimator):
     assert_allclose(simulate._cell_power(values.copy(), plan), power @ plan.weight_cell[::2], rtol=1e-13)
 
 
+def test_pilots_around_the_measured_symbols_are_the_full_frames():
+    """The received pilots of the symbols around the measured ones, formed alone, are those of the whole frame.
+
+    Internal consistency: without an oscillator the simulator forms the
+    subcarriers of the measured symbols only, and of the others just their
+    pilots (:func:`simulate._margin_pilots`); on the whole frame the same
+    values come from the static gains and the varying part's bins
+    (staggered lattice, a Doppler that makes a varying part).
+    """
+    design = small_design(lattice=(6, 2, 3))
+    environment = make_environment([0.0, 2.5 * SAMPLE_S, 9.0 * SAMPLE_S], [0.5, 0.3, 0.2], 0.05 * SPACING_HZ)
+    plan, _ = simulate._plan(design, environment, 20.0, 0.0, 0.0, "lmmse", 8, 4)
+    assert plan.extra_pilot_flat.size > 0
+    work = simulate._Workspace()
+    draws = simulate._draw(plan, np.random.SeedSequence(4).spawn(2), work)
+    beta, _ = simulate._tap_gains(plan, draws.freqs, draws.amps, draws.phases, work)
+    rng = np.random.default_rng(6)
+    bins = (rng.standard_normal((2, plan.symbols, FFT)) + 1j * rng.standard_normal((2, plan.symbols, FFT)))
+    bins = bins.astype(np.complex64)
+    y, x = simulate._margin_pilots(plan, beta, draws.index, bins, work)
+
+    main = plan.symbol_table[draws.index[:, plan.pre:]]
+    full, _ = simulate._without_noise(plan, main, simulate._static_gains(plan, beta, work), bins, work)
+    assert_allclose(x, main.reshape(2, -1)[:, plan.extra_pilot_flat], rtol=0, atol=0)
+    assert_allclose(y, full.reshape(2, -1)[:, plan.extra_pilot_flat], rtol=1e-14, atol=1e-15)
+
+
 def test_result_text_and_db_properties():
     environment = make_environment([0.0], [1.0], 100.0)
     result = simulate.simulate_link(small_design(), environment, 20.0, frames=2)
