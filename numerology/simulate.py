@@ -135,7 +135,16 @@ Numerics (none of these changes a figure beyond round-off)
     1e-2. The sinusoids' phasors advance from window to window by a constant
     factor, so they are a running product rather than one complex
     exponential per window. The estimator's weights are applied one
-    lattice cell at a time, as a dense matrix product (:func:`_cell_estimator`).
+    lattice cell at a time, as a dense matrix product (:func:`_cell_estimator`);
+    products with few terms (the taps' ramps, the estimator weights) run as
+    real BLAS products on interleaved (real, imaginary) pairs
+    (:func:`_real_form`). Random numbers are raw 64-bit words of each
+    frame's PCG64 generator, turned into bytes and uniforms with whole-array
+    operations (:func:`_draw`). Sums over the measured resource elements
+    are dot products after zeros are scattered where nothing is summed
+    (:func:`_measured_power`). Without an oscillator the symbols around the
+    measured ones are synthesised and transformed like the others, but on
+    the subcarriers only their pilots are formed (:func:`_margin_pilots`).
     Large intermediates live in buffers reused from block to block
     (:class:`_Workspace`).
 
