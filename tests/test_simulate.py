@@ -185,8 +185,8 @@ def test_noise_is_circular_complex_gaussian():
     errors of each estimate (1e-3 for the moments, binomial for the tails).
     """
     count, std = 10**6, 0.3
-    uniforms = np.random.default_rng(11).random((1, 2, count), dtype=np.float32)
-    real, imag = simulate._noise(uniforms, std, simulate._Workspace())
+    words = np.random.default_rng(11).integers(0, 2**32, (1, 2, count), dtype=np.uint32)
+    real, imag = simulate._noise(words, std, simulate._Workspace())
     noise = (real[0] + 1j * imag[0].astype(float)) / std
     assert abs(noise.mean()) < 5 * math.sqrt(1 / count)
     assert abs(np.mean(noise**2)) < 5 * math.sqrt(1 / count)
@@ -194,6 +194,23 @@ def test_noise_is_circular_complex_gaussian():
     for t in (0.1, 1.0, 4.0, 9.0):
         p = math.exp(-t)
         assert_allclose(np.mean(np.abs(noise) ** 2 > t), p, atol=5 * math.sqrt(p * (1 - p) / count))
+
+
+def test_random_words_give_numpys_uniforms():
+    """The simulator's uniforms from raw 64-bit words are those of numpy's ``Generator.random``.
+
+    Source: numpy's documented bit layout (from memory): a double uniform is
+    the top 53 bits of a 64-bit word times 2^-53, a single-precision one the
+    top 24 bits of a 32-bit word (two per 64-bit word, low half first) times
+    2^-24. The same seed gives the same stream, so the values must be equal.
+    """
+    seed = np.random.SeedSequence(3)
+    words = np.random.PCG64(seed).random_raw(1000)
+    doubles = (words >> np.uint64(64 - simulate._DOUBLE_BITS)) * 2.0**-simulate._DOUBLE_BITS
+    assert np.array_equal(doubles, np.random.Generator(np.random.PCG64(seed)).random(1000))
+    singles = (words.view(np.uint32) >> np.uint32(32 - simulate._NOISE_BITS)).astype(np.float32)
+    singles *= np.float32(2.0**-simulate._NOISE_BITS)
+    assert np.array_equal(singles, np.random.Generator(np.random.PCG64(seed)).random(2000, dtype=np.float32))
 
 
 def test_tap_powers_follow_the_profile():
@@ -400,7 +417,7 @@ def test_estimator_applies_the_pilot_weights():
     weights = simulate._weights(design, environment, pilot_snr, "lmmse")
     cols = plan.k_phys.size
     pilot_at = {int(flat): i for i, flat in enumerate(plan.pilot_flat)}
-    measured = np.flatnonzero(plan.weight_all[::2])
+    measured = np.flatnonzero(plan.weight_all)
     assert measured.size > 100
     for position in measured:
         row, col = divmod(int(position), cols)
@@ -411,6 +428,62 @@ def test_estimator_applies_the_pilot_weights():
             if w != 0:
                 expected += w * values[:, pilot_at[(row + dl) * cols + col + dk]]
         assert_allclose(estimate[:, position], expected, rtol=1e-12, atol=1e-12)
+
+
+@pytest.mark.parametrize("estimator", ["lmmse", "linear"], ids=["equal cell weights", "unequal cell weights"])
+def test_measured_sums_are_the_weighted_sums(estimator):
+    """The simulator's sums over the measured resource elements equal the weighted sums that define them.
+
+    Internal consistency: zeros scattered where nothing is summed and one
+    dot product (or the whole sum less the gathered rest) give sum |v|^2 over the measured REs, over the measured
+    data REs (data: the symbol table's data rows) and the lattice-cell
+    average with the per-position weights; the linear estimator's reach
+    leaves unequal weights on this band, the LMMSE one equal weights.
+    """
+    design = small_design(lattice=(4, 2, 0))
+    environment = make_environment([0.0, 2.5 * SAMPLE_S], [0.6, 0.4], 0.02 * SPACING_HZ)
+    plan, _ = simulate._plan(design, environment, 20.0, 0.0, 0.0, estimator, 8, 4)
+    assert (plan.cell_weight > 0) == (estimator == "lmmse")
+    first = plan.pre + plan.first_measured
+    data = (plan.symbol_offset[first:first + plan.measured_symbols] == 256).ravel()
+    rng = np.random.default_rng(2)
+    values = rng.standard_normal((3, data.size)) + 1j * rng.standard_normal((3, data.size))
+    power = np.abs(values) ** 2
+    total, data_total = simulate._measured_power(values.copy(), plan, data=True)
+    assert_allclose(total, power @ plan.weight_all, rtol=1e-13)
+    assert_allclose(data_total, power @ (plan.weight_all * data), rtol=1e-13)
+    assert_allclose(simulate._measured_power(values.copy(), plan, data="only"), data_total, rtol=1e-13)
+    kept = values.copy()
+    assert_allclose(simulate._measured_power_kept(kept, plan), (total, data_total), rtol=1e-13)
+    assert np.array_equal(kept, values)
+    assert_allclose(simulate._cell_power(values.copy(), plan), power @ plan.weight_cell[::2], rtol=1e-13)
+
+
+def test_pilots_around_the_measured_symbols_are_the_full_frames():
+    """The received pilots of the symbols around the measured ones, formed alone, are those of the whole frame.
+
+    Internal consistency: without an oscillator the simulator forms the
+    subcarriers of the measured symbols only, and of the others just their
+    pilots (:func:`simulate._margin_pilots`); on the whole frame the same
+    values come from the static gains and the varying part's bins
+    (staggered lattice, a Doppler that makes a varying part).
+    """
+    design = small_design(lattice=(6, 2, 3))
+    environment = make_environment([0.0, 2.5 * SAMPLE_S, 9.0 * SAMPLE_S], [0.5, 0.3, 0.2], 0.05 * SPACING_HZ)
+    plan, _ = simulate._plan(design, environment, 20.0, 0.0, 0.0, "lmmse", 8, 4)
+    assert plan.extra_pilot_flat.size > 0
+    work = simulate._Workspace()
+    draws = simulate._draw(plan, np.random.SeedSequence(4).spawn(2), work)
+    beta, _ = simulate._tap_gains(plan, draws.freqs, draws.amps, draws.phases, work)
+    rng = np.random.default_rng(6)
+    bins = (rng.standard_normal((2, plan.symbols, FFT)) + 1j * rng.standard_normal((2, plan.symbols, FFT)))
+    bins = bins.astype(np.complex64)
+    y, x = simulate._margin_pilots(plan, beta, draws.index, bins, work)
+
+    main = plan.symbol_table[draws.index[:, plan.pre:]]
+    full, _ = simulate._without_noise(plan, main, simulate._static_gains(plan, beta, work), bins, work)
+    assert_allclose(x, main.reshape(2, -1)[:, plan.extra_pilot_flat], rtol=0, atol=0)
+    assert_allclose(y, full.reshape(2, -1)[:, plan.extra_pilot_flat], rtol=1e-14, atol=1e-15)
 
 
 def test_result_text_and_db_properties():
