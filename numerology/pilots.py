@@ -785,7 +785,7 @@ def _lmmse_lattice_mean(d_f, d_t, s, snr, f_table, f_row, t_table, t_row, window
 
     # Candidates in order of their frequency correlation: where few distinct ones are shared by many
     # candidates (the sites of a sweep), each run multiplies one broadcast factor instead of gathering it.
-    order = np.argsort(f_row, kind="stable")
+    order = np.lexsort((t_row, f_row))  # by frequency row, then time row (gathers read nearby rows)
     f_sorted, t_sorted = f_row[order], t_row[order]
     f_used, t_used = np.unique(f_sorted), np.unique(t_sorted)
     shared = (f_used.size + t_used.size) * per_row <= _FACTOR_BUDGET
@@ -803,7 +803,7 @@ def _lmmse_lattice_mean(d_f, d_t, s, snr, f_table, f_row, t_table, t_row, window
             f_here, fi = np.unique(fi, return_inverse=True)
             t_here, ti = np.unique(ti, return_inverse=True)
             r_f, a_f, r_t, b_t = factors(f_here, t_here)
-        by_runs = (f_used.size if shared else f_here.size) * 8 <= fi.size
+        by_runs = f_used.size * 8 <= snr.size if shared else f_here.size * 8 <= fi.size
         big_r = np.empty((fi.size, rows, size), dtype=np.complex128)
         s_mat = np.empty((fi.size, size, size), dtype=np.complex128)
         if by_runs:
@@ -1122,9 +1122,12 @@ def _cell_mean(d_f, d_t, s, snr, f_table, f_row, t_table, t_row, estimator, reac
     todo = np.ones(n, dtype=bool)
     if estimator == "lmmse" and reach[0] % 2 == 0 and reach[1] % 2 == 0:
         fast = snr <= _TRACE_FORM_MAX_SNR
-        lattices, inverse, counts = np.unique(np.stack([d_f, d_t, s], axis=1)[fast], axis=0, return_inverse=True,
-                                              return_counts=True)
         members = np.flatnonzero(fast)
+        # One integer per lattice (D_f, D_t, s): a 1-D sort instead of np.unique over rows.
+        base_t, base_s = int(d_t.max()) + 1, int(s.max()) + 1
+        codes = (d_f[members] * base_t + d_t[members]) * base_s + s[members]
+        _, first, inverse, counts = np.unique(codes, return_index=True, return_inverse=True, return_counts=True)
+        lattices = np.stack([d_f, d_t, s], axis=1)[members[first]]
         inverse = np.ravel(inverse)
         for g, (lat_f, lat_t, lat_s) in enumerate(lattices):
             if counts[g] < _GROUP_MIN:
