@@ -15,7 +15,8 @@ import math
 from . import __version__
 from .environment import derivations, rules_of_thumb
 from .output import write_atomic
-from .render_terminal import CAUTION, LIMIT_LABELS, TERM_LABELS, _quantity, design_line, fmt, setting, show_margin
+from .render_terminal import (CAUTION, LIMIT_LABELS, TERM_LABELS, _quantity, design_line, fmt, relaxed_sentence,
+                              show_margin)
 from .rules import BY_NAME
 from .units import db, engineering, speed_kmh
 
@@ -136,10 +137,7 @@ def _solution_section(solution) -> list[str]:
                          rows)
         out.append("")
         if solution.relaxed is not None:
-            r = solution.relaxed
-            out.append(f"Relaxing `{r.key}` from {setting(r.key, r.from_si)} to {setting(r.key, r.to_si)} changes "
-                       f"the best {r.objective} figure from {r.best_before:.6g} to "
-                       f"{'infeasible' if r.best_after is None else f'{r.best_after:.6g}'}.")
+            out.append(relaxed_sentence(solution.relaxed, solution.objective, code=lambda key: f"`{key}`"))
             out.append("")
         if solution.neighbours:
             out.append("Designs one step away from the chosen one:")

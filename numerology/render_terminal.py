@@ -244,7 +244,8 @@ def designs_table(result) -> Table:
     return table
 
 
-def _relaxed_line(relaxed, objective) -> str:
+def relaxed_sentence(relaxed, objective, code=str) -> str:
+    """What relaxing the binding setting buys, in words and engineering units (``code`` marks up the key)."""
     def show(value):
         if value is None:
             return "still infeasible"
@@ -256,7 +257,7 @@ def _relaxed_line(relaxed, objective) -> str:
             return f"overhead {100 * -value:.1f} %"
         return f"slot {engineering(-value, 's')}"
 
-    return (f"Relaxing {relaxed.key} from {setting(relaxed.key, relaxed.from_si)} to "
+    return (f"Relaxing {code(relaxed.key)} from {setting(relaxed.key, relaxed.from_si)} to "
             f"{setting(relaxed.key, relaxed.to_si)} would take the best design from {show(relaxed.best_before)} "
             f"to {show(relaxed.best_after)}.")
 
@@ -314,7 +315,7 @@ def solve(con: Console, result) -> None:
     con.print(Text.assemble("Binding rule: ", (b.name, "bold"), f" (margin {show_margin(b)}) - {b.statement}"))
     con.print(rules_table(best.rules, title="Rules for the best design"))
     if result.relaxed is not None:
-        con.print(_relaxed_line(result.relaxed, result.objective))
+        con.print(relaxed_sentence(result.relaxed, result.objective))
     if result.neighbours:
         table = Table(title="One step away from the best design", box=box.SIMPLE, title_justify="left")
         table.add_column("change")

@@ -340,3 +340,13 @@ def test_verify_terminal_report(capsys):
     assert out.lstrip().startswith("Verification of design 1: model and simulation ")  # after the progress bar
     for row in ("Doppler + echo interference", "channel-estimation MSE", "effective SINR"):
         assert row in out
+
+
+def test_design_note_states_the_relaxation_in_engineering_units(tmp_path, capsys):
+    """The note's what-if sentence reads like the terminal's: units, not raw floats."""
+    note = tmp_path / "note.md"
+    status, _, err = run(capsys, "solve", HARBOUR, "--markdown", note)
+    assert status == 0 and err == ""
+    line = next(x for x in note.read_text(encoding="utf-8").splitlines() if x.startswith("Relaxing"))
+    assert "`rules.cp_allowance`" in line and "Mbit/s" in line
+    assert "e+0" not in line
