@@ -218,7 +218,7 @@ def _window_line(window) -> Text:
     if window.empty:
         rules = sorted({window.lower_bound_rule, window.upper_bound_rule} - {None})
         return Text.assemble(("No subcarrier spacing fits: ", "bold red"),
-                             f"{' and '.join(rules)} rule{'s' if len(rules) > 1 else ''} out every spacing.")
+                             f"{' and '.join(rules)} {'rule' if len(rules) > 1 else 'rules'} out every spacing.")
     low = engineering(window.min_hz, "Hz")
     high = engineering(window.max_hz, "Hz")
     lower = window.lower_bound_rule or "the search range"

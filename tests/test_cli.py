@@ -350,3 +350,9 @@ def test_design_note_states_the_relaxation_in_engineering_units(tmp_path, capsys
     line = next(x for x in note.read_text(encoding="utf-8").splitlines() if x.startswith("Relaxing"))
     assert "`rules.cp_allowance`" in line and "Mbit/s" in line
     assert "e+0" not in line
+
+
+def test_infeasible_window_sentence_agrees_in_number(capsys):
+    status, out, _ = run(capsys, "solve", DRONE)
+    assert status == 1
+    assert "throughput rules out every spacing." in " ".join(out.split())
