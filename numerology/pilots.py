@@ -672,7 +672,7 @@ def _trace_of_solve(a, s):
     order negates every lag, and R(-x) = conj(R(x))). For even size 2m the
     unitary Q = [[I, jI], [J, -jJ]] / sqrt(2) makes b = Q^H a Q real
     symmetric (A. Lee, "Centrohermitian and skew-centrohermitian matrices",
-    Linear Algebra Appl. 29, 1980); with P = a11 + a12 J and M = a11 - a12 J,
+    Linear Algebra Appl. 29, 1980, from memory); with P = a11 + a12 J and M = a11 - a12 J,
     b = [[Re P, -Im M], [Im P, Re M]]. As tr(a^-1 s) is real, it equals
     tr(b^-1 c) with c = Re(Q^H s Q), and b^-1 comes from a real Cholesky
     factor: tr(b^-1 c) = sum((X c) o X), X = L^-1. About four times fewer

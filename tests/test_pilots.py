@@ -456,7 +456,8 @@ def test_separable_cell_average_equals_per_target_average(d_f, d_t, data, snr):
 @pytest.mark.parametrize("size", [16, 6, 9, 1])
 def test_trace_of_solve_real_form_equals_complex_solve(size):
     """tr(A^-1 S) through the real form of a centrohermitian A equals the complex solve (the real form is
-    A. Lee, Linear Algebra Appl. 29, 1980; odd sizes take the complex solve)."""
+    A. Lee, Linear Algebra Appl. 29, 1980, from memory; checked here numerically; odd sizes take the
+    complex solve)."""
     from numerology.pilots import _trace_of_solve
 
     rng = np.random.default_rng(size)
