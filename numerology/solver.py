@@ -380,6 +380,15 @@ def pareto_mask(rate, speed_margin, delay_margin) -> np.ndarray:
     far and with the block's earlier points.
     """
     points = np.stack([rate, speed_margin, delay_margin], axis=1).astype(float)
+    if points.shape[0] == 0:
+        return np.zeros(0, dtype=bool)
+    # Equal points never dominate one another, so they share a verdict: decide each distinct point once.
+    points, inverse = np.unique(points, axis=0, return_inverse=True)
+    return _front_of_distinct(points)[np.ravel(inverse)]
+
+
+def _front_of_distinct(points) -> np.ndarray:
+    """pareto_mask for distinct points (rows of ``points``)."""
     order = np.lexsort((-points[:, 2], -points[:, 1], -points[:, 0]))
     keep = np.zeros(points.shape[0], dtype=bool)
     front = np.empty((0, 3))
