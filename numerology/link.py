@@ -36,6 +36,7 @@ import numpy as np
 from . import delay, doppler, mcs, oscillator, pilots
 from .design import DesignArrays
 from .environment import Environment
+from .grouping import distinct_rows
 from .requirements import Requirements
 from .rules import RULES, Rule, evaluate as evaluate_rule, evaluate_derived, normalised_margin
 
@@ -184,7 +185,7 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
     spectrum, k = environment.doppler_spectrum, environment.k_factor
     batch = np.ndim(delays) > 1
     if batch:
-        profile, profile_site = _row_index(np.concatenate([delays, powers], axis=-1))
+        profile, profile_site = distinct_rows(np.concatenate([delays, powers], axis=-1))
         delays = delays.reshape(-1, delays.shape[-1])[profile_site]  # one row per distinct profile
         powers = powers.reshape(-1, powers.shape[-1])[profile_site]
     else:
@@ -209,28 +210,9 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
 
 
 def _unique_rows(table):
-    """np.unique(table, axis=0, return_inverse=True) for a 2-D float table (rows compared as bytes: faster)."""
-    index, first = _row_index(table)
+    """The distinct rows of a 2-D float table and, per row, the index of its distinct row."""
+    index, first = distinct_rows(table)
     return table[first], index
-
-
-def _row_index(rows):
-    """An index per row of ``rows`` (..., m), equal for identical rows, and a flat row holding each index.
-
-    Rows are first told apart by one random projection each (a sort of n
-    floats rather than of n m-float byte strings); the grouping is then
-    checked exactly, and whole rows are sorted as bytes only if two different
-    rows happened to share a projection.
-    """
-    flat = np.ascontiguousarray(rows.reshape(-1, rows.shape[-1]), dtype=float)
-    projection = flat @ np.random.default_rng(0).uniform(1.0, 2.0, flat.shape[1])
-    _, first, inverse = np.unique(projection, return_index=True, return_inverse=True)
-    inverse = np.ravel(inverse)
-    if not np.array_equal(flat[first][inverse], flat):  # a collision, or NaN: compare whole rows
-        keys = flat.view(np.dtype((np.void, flat.dtype.itemsize * flat.shape[1]))).ravel()
-        _, first, inverse = np.unique(keys, return_index=True, return_inverse=True)
-        inverse = np.ravel(inverse)
-    return inverse.reshape(rows.shape[:-1]), first
 
 
 def _frequency_correlation_rows(lag_hz, delays_s, powers):

@@ -34,6 +34,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import InputError
+from .grouping import distinct_rows
 
 __all__ = [
     "PilotWeights",
@@ -337,15 +338,14 @@ def _staircase(d_f, s):
     staircase depends on (D_f, s) only, so it is found once per distinct pair
     and padded by repeating its last point.
     """
-    codes, inverse = np.unique(d_f * (int(s.max()) + 1) + s, return_inverse=True)  # one integer per (D_f, s)
-    steps = [_steps(int(c // (int(s.max()) + 1)), int(c % (int(s.max()) + 1))) for c in codes]
+    index, first = distinct_rows(np.stack([d_f, s], axis=1))
+    steps = [_steps(int(d_f[i]), int(s[i])) for i in first]
     width = max(len(m) for m, _ in steps)
     m_table = np.empty((len(steps), width), dtype=np.int64)
     r_table = np.empty((len(steps), width), dtype=np.int64)
     for row, (m, r) in enumerate(steps):  # padded by repeating the last point
         m_table[row, :len(m)], m_table[row, len(m):] = m, m[-1]
         r_table[row, :len(r)], r_table[row, len(r):] = r, r[-1]
-    index = np.ravel(inverse)
     return m_table[index], r_table[index]
 
 
@@ -1123,12 +1123,9 @@ def _cell_mean(d_f, d_t, s, snr, f_table, f_row, t_table, t_row, estimator, reac
     if estimator == "lmmse" and reach[0] % 2 == 0 and reach[1] % 2 == 0:
         fast = snr <= _TRACE_FORM_MAX_SNR
         members = np.flatnonzero(fast)
-        # One integer per lattice (D_f, D_t, s): a 1-D sort instead of np.unique over rows.
-        base_t, base_s = int(d_t.max()) + 1, int(s.max()) + 1
-        codes = (d_f[members] * base_t + d_t[members]) * base_s + s[members]
-        _, first, inverse, counts = np.unique(codes, return_index=True, return_inverse=True, return_counts=True)
+        inverse, first = distinct_rows(np.stack([d_f, d_t, s], axis=1)[members])
         lattices = np.stack([d_f, d_t, s], axis=1)[members[first]]
-        inverse = np.ravel(inverse)
+        counts = np.bincount(inverse, minlength=first.size)
         for g, (lat_f, lat_t, lat_s) in enumerate(lattices):
             if counts[g] < _GROUP_MIN:
                 continue  # a small group costs more in Python than it saves: the block path takes it

@@ -23,6 +23,7 @@ from . import candidates as cand
 from . import link
 from .design import DesignArrays
 from .environment import Environment, derive_environment
+from .grouping import distinct_rows
 from .requirements import Requirements
 
 OBJECTIVES = ("throughput", "robustness", "overhead", "latency")
@@ -164,7 +165,7 @@ def search(req: Requirements, environment: Environment | None = None, objective:
     full_size = _space_size(req, environment, family)
     grid, bound, rejected = _screen(req, environment, spacings_hz, ignore)
     order = np.argsort(-bound[objective], kind="stable")
-    numerology = _numerology_index(grid)
+    numerology = distinct_rows(np.stack([grid.spacing_hz, grid.fft_size, grid.cp_samples], axis=1))[0]
     best = np.full(int(numerology.max()) + 1 if numerology.size else 0, -np.inf)  # best exact key per numerology
     settled = np.zeros(best.size, dtype=bool)
     # A numerology whose best exact key already beats every remaining bound needs no more candidates,
@@ -358,16 +359,6 @@ def brute_force(req: Requirements, environment: Environment | None = None, ignor
     grid = cand.enumerate_grid(req, environment, cand.spacing_family(req))
     evaluation = link.evaluate(grid.designs(), environment, req)
     return grid, _passed(evaluation, ignore)
-
-
-def _numerology_index(grid: cand.Grid) -> np.ndarray:
-    """An index per candidate, equal for equal (spacing, FFT size, CP): one integer key, one 1-D sort."""
-    if grid.size == 0:
-        return np.zeros(0, dtype=np.int64)
-    _, spacing = np.unique(grid.spacing_hz, return_inverse=True)
-    fft_base, cp_base = int(grid.fft_size.max()) + 1, int(grid.cp_samples.max()) + 1
-    key = (np.ravel(spacing).astype(np.int64) * fft_base + grid.fft_size) * cp_base + grid.cp_samples
-    return np.ravel(np.unique(key, return_inverse=True)[1])
 
 
 def pareto_mask(rate, speed_margin, delay_margin) -> np.ndarray:

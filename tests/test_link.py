@@ -228,17 +228,17 @@ def test_every_preset_checks_against_every_shipped_example():
         assert np.all(np.isfinite(evaluation.rate_bps))
 
 
-def test_row_index_groups_identical_rows_exactly():
+def test_distinct_rows_groups_identical_rows_exactly():
     """Rows are grouped by value: equal rows share an index, different rows never do, NaN rows included."""
-    from numerology.link import _row_index
+    from numerology.grouping import distinct_rows
 
     rng = np.random.default_rng(3)
     base = rng.uniform(size=(5, 4))
     picks = rng.integers(0, 5, 200)
     rows = base[picks]
-    index, first = _row_index(rows)
+    index, first = distinct_rows(rows)
     assert np.array_equal(rows[first][index], rows)
     assert len(first) == len(np.unique(picks))
     nan_rows = np.array([[1.0, np.nan], [1.0, np.nan], [2.0, 0.0]])
-    index, first = _row_index(nan_rows)  # NaN != NaN: compared as bytes instead
+    index, first = distinct_rows(nan_rows)  # NaN != NaN: compared as bytes instead
     assert index[0] == index[1] != index[2]
