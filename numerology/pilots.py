@@ -138,6 +138,19 @@ def _broadcast_flat(*arrays, extra_shape=()):
     return shape, [np.broadcast_to(a, shape).ravel() for a in arrays]
 
 
+def _checked(freq_spacing, time_spacing, shift, subcarrier_spacing_hz, symbol_s, *others, extra_shape=()):
+    """Lattice, numerology and further real parameters, checked, broadcast together and flattened.
+
+    ``others``: ``(name, value, positive, allow_inf)`` per further parameter.
+    Returns ``(shape, [d_f, d_t, s, df, ts, *others])``.
+    """
+    d_f, d_t, s = _lattice(freq_spacing, time_spacing, shift)
+    reals = [_real("subcarrier_spacing_hz", subcarrier_spacing_hz, positive=True),
+             _real("symbol_s", symbol_s, positive=True)]
+    reals += [_real(name, value, positive=positive, allow_inf=allow_inf) for name, value, positive, allow_inf in others]
+    return _broadcast_flat(d_f, d_t, s, *reals, extra_shape=extra_shape)
+
+
 def _ratio(numerator, denominator):
     """numerator / denominator for numerator >= 0, denominator >= 0, with 0/0 = 0 and x/0 = inf.
 
@@ -225,11 +238,8 @@ def reciprocal_lattice_points(freq_spacing, time_spacing, shift, subcarrier_spac
     >>> round(float(tau[2, 1]) * 1e6, 3)
     16.667
     """
-    d_f, d_t, s = _lattice(freq_spacing, time_spacing, shift)
-    df = _real("subcarrier_spacing_hz", subcarrier_spacing_hz, positive=True)
-    ts = _real("symbol_s", symbol_s, positive=True)
+    shape, (d_f, d_t, s, df, ts) = _checked(freq_spacing, time_spacing, shift, subcarrier_spacing_hz, symbol_s)
     r = int(_whole("index_max", index_max, 0))
-    shape, (d_f, d_t, s, df, ts) = _broadcast_flat(d_f, d_t, s, df, ts)
     g = np.zeros(d_f.shape + (2, 2))
     g[:, 0, 0] = d_f * df
     g[:, 0, 1] = s * df
@@ -314,12 +324,9 @@ def aliasing_scale(freq_spacing, time_spacing, shift, subcarrier_spacing_hz, sym
     >>> round(float(aliasing_scale(12, 1, 3, 1 / 896e-6, 1120e-6, 224e-6, 50.0)), 4)
     1.3333
     """
-    d_f, d_t, s = _lattice(freq_spacing, time_spacing, shift)
-    df = _real("subcarrier_spacing_hz", subcarrier_spacing_hz, positive=True)
-    ts = _real("symbol_s", symbol_s, positive=True)
-    tau = _real("max_delay_s", max_delay_s, positive=False)
-    f_d = _real("max_doppler_hz", max_doppler_hz, positive=False)
-    shape, (d_f, d_t, s, df, ts, tau, f_d) = _broadcast_flat(d_f, d_t, s, df, ts, tau, f_d)
+    shape, (d_f, d_t, s, df, ts, tau, f_d) = _checked(
+        freq_spacing, time_spacing, shift, subcarrier_spacing_hz, symbol_s,
+        ("max_delay_s", max_delay_s, False, False), ("max_doppler_hz", max_doppler_hz, False, False))
     delay_unit = (d_f * df * tau)[:, None]  # m / this = abs(dtau) / tau_max
     doppler_unit = (d_f * d_t * ts * 2.0 * f_d)[:, None]  # r / this = abs(dnu) / (2 f_D)
     if d_f.size == 0:
@@ -403,12 +410,9 @@ def max_delay_for_lattice(
     >>> round(float(max_delay_for_lattice(12, 1, 3, 1 / 896e-6, 1120e-6, 10.0)) * 1e6, 1)
     298.7
     """
-    d_f, d_t, s = _lattice(freq_spacing, time_spacing, shift)
-    df = _real("subcarrier_spacing_hz", subcarrier_spacing_hz, positive=True)
-    ts = _real("symbol_s", symbol_s, positive=True)
-    f_d = _real("max_doppler_hz", max_doppler_hz, positive=False)
-    over = _real("oversampling", oversampling, positive=True)
-    shape, (d_f, d_t, s, df, ts, f_d, over) = _broadcast_flat(d_f, d_t, s, df, ts, f_d, over)
+    shape, (d_f, d_t, s, df, ts, f_d, over) = _checked(
+        freq_spacing, time_spacing, shift, subcarrier_spacing_hz, symbol_s,
+        ("max_doppler_hz", max_doppler_hz, False, False), ("oversampling", oversampling, True, False))
     # r < 2 f_D (scaled) D_f D_t T_s  <=>  abs(dnu) < scaled Doppler width
     width = (2.0 * f_d * over * d_f * d_t * ts * (1.0 - _TOUCH_RTOL))[:, None]
     tau = np.full(d_f.shape, np.inf)
@@ -459,12 +463,9 @@ def max_doppler_for_lattice(
     >>> round(float(max_doppler_for_lattice(12, 1, 3, 1 / 896e-6, 1120e-6, 200e-6)), 1)
     111.6
     """
-    d_f, d_t, s = _lattice(freq_spacing, time_spacing, shift)
-    df = _real("subcarrier_spacing_hz", subcarrier_spacing_hz, positive=True)
-    ts = _real("symbol_s", symbol_s, positive=True)
-    tau = _real("max_delay_s", max_delay_s, positive=False)
-    over = _real("oversampling", oversampling, positive=True)
-    shape, (d_f, d_t, s, df, ts, tau, over) = _broadcast_flat(d_f, d_t, s, df, ts, tau, over)
+    shape, (d_f, d_t, s, df, ts, tau, over) = _checked(
+        freq_spacing, time_spacing, shift, subcarrier_spacing_hz, symbol_s,
+        ("max_delay_s", max_delay_s, False, False), ("oversampling", oversampling, True, False))
     # m < tau_max (scaled) D_f df  <=>  abs(dtau) < scaled delay width
     width = (tau * over * d_f * df * (1.0 - _TOUCH_RTOL))[:, None]
     f_max = np.full(d_f.shape, np.inf)
@@ -824,17 +825,14 @@ def _lmmse_lattice_mean(d_f, d_t, s, snr, f_table, f_row, t_table, t_row, window
 
 
 def _prepare(freq_spacing, time_spacing, shift, subcarrier_spacing_hz, symbol_s, pilot_snr, candidate_shape, lead_shape=()):
-    d_f, d_t, s = _lattice(freq_spacing, time_spacing, shift)
-    df = _real("subcarrier_spacing_hz", subcarrier_spacing_hz, positive=True)
-    ts = _real("symbol_s", symbol_s, positive=True)
-    snr = _real("pilot_snr", pilot_snr, positive=True, allow_inf=True)
     try:
         extra = np.broadcast_shapes(tuple(candidate_shape), tuple(lead_shape))
     except (TypeError, ValueError):
         raise InputError(
             "candidate_shape", f"expected a shape that broadcasts with the candidates, got {candidate_shape!r}"
         ) from None
-    return _broadcast_flat(d_f, d_t, s, df, ts, snr, extra_shape=extra)
+    return _checked(freq_spacing, time_spacing, shift, subcarrier_spacing_hz, symbol_s,
+                    ("pilot_snr", pilot_snr, True, True), extra_shape=extra)
 
 
 def estimator_weights(
