@@ -20,7 +20,6 @@ for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
     os.environ[var] = "1"
 
 import sys  # noqa: E402
-import time  # noqa: E402
 from pathlib import Path  # noqa: E402
 
 import numpy as np  # noqa: E402
@@ -32,6 +31,7 @@ from numerology.design import DesignArrays  # noqa: E402
 from numerology.environment import derive_environment  # noqa: E402
 from numerology.requirements import requirements_from_mapping  # noqa: E402
 from numerology.sweep import site_environments, sites_from_values  # noqa: E402
+from timing import best_of, timed  # noqa: E402
 
 REQ = {  # invented scenario
     "environment": {"carrier": "3.5 GHz", "max_speed": "120 km/h", "profile": "EVA"},
@@ -63,25 +63,21 @@ def main():
     pairs = side * side
 
     def model(estimation):
-        t = time.perf_counter()
         for start in range(0, side, CHUNK):
             link.evaluate(column(designs, np.arange(start, min(start + CHUNK, side))), batch, req,
                           estimation=estimation)
-        return time.perf_counter() - t
 
     a = np.asarray(designs.subcarrier_spacing_hz, float)[:, None] * np.ones((1, side))
     b = np.asarray(batch.max_doppler_hz)[None, :] * np.ones((side, 1))
 
     def plain():
-        t = time.perf_counter()
         x = a * b
         y = np.sqrt(x) + a / b
         np.log10(y * y + 1.0).sum()
-        return time.perf_counter() - t
 
-    t_plain = min(plain() for _ in range(3))
-    t_fast = min(model(False) for _ in range(2))
-    t_full = model(True)
+    t_plain = best_of(plain, 3)
+    t_fast = best_of(lambda: model(False), 2)
+    t_full = timed(lambda: model(True))
     print(f"{pairs:,} (design, environment) pairs, one core")
     print(f"  plain numpy pass:                 {t_plain:8.3f} s")
     print(f"  link model without estimation:    {t_fast:8.3f} s  ratio {t_fast / t_plain:7.1f}  (target < 1 s)")

@@ -29,7 +29,6 @@ for _name in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
 
 import math  # noqa: E402
 import sys  # noqa: E402
-import time  # noqa: E402
 from pathlib import Path  # noqa: E402
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
@@ -39,6 +38,7 @@ import numpy as np  # noqa: E402
 from numerology import simulate  # noqa: E402
 from numerology.design import Design  # noqa: E402
 from numerology.environment import Environment  # noqa: E402
+from timing import timed  # noqa: E402
 
 TARGET_RE_PER_S = 2e6
 TARGET_FFT_RATIO = 5.0
@@ -77,21 +77,22 @@ def main() -> None:
 
     simulate.simulate_link(design, environment, 20.0, frames=2, symbols_per_frame=symbols_per_frame)  # warm up
     np.fft.fft(block, axis=-1)
-    runs, fft_runs, frame_fft_runs = [], [], []
-    for _ in range(REPEATS):  # interleaved, so that all sides meet the same machine load
-        start = time.perf_counter()
-        result = simulate.simulate_link(design, environment, 20.0, frames=frames,
-                                        symbols_per_frame=symbols_per_frame)
-        runs.append(time.perf_counter() - start)
-        start = time.perf_counter()
+    def fft_of_blocks():  # each result dropped at once, as the simulator's buffers are reused
         for _ in range(blocks):
             np.fft.fft(block, axis=-1)
-        fft_runs.append((time.perf_counter() - start) * frames / (blocks * plan.block_frames))
-        start = time.perf_counter()
-        for frame in range(frames):  # for information: one frame per call, small enough for the cache
+
+    def fft_of_frames():  # for information: one frame per call, small enough for the cache
+        for frame in range(frames):
             np.fft.fft(block[frame % plan.block_frames], axis=-1)
-        frame_fft_runs.append(time.perf_counter() - start)
+
+    runs, fft_runs, frame_fft_runs = [], [], []
+    for _ in range(REPEATS):  # interleaved, so that all sides meet the same machine load
+        runs.append(timed(lambda: simulate.simulate_link(design, environment, 20.0, frames=frames,
+                                                         symbols_per_frame=symbols_per_frame)))
+        fft_runs.append(timed(fft_of_blocks) * frames / (blocks * plan.block_frames))
+        frame_fft_runs.append(timed(fft_of_frames))
     elapsed, fft_s, frame_fft_s = min(runs), min(fft_runs), min(frame_fft_runs)
+    result = simulate.simulate_link(design, environment, 20.0, frames=frames, symbols_per_frame=symbols_per_frame)
     measured_re = frames * result.measured_per_frame
 
     print(f"design {design}")

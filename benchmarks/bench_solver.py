@@ -16,15 +16,15 @@ for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
 
 import subprocess  # noqa: E402
 import sys  # noqa: E402
-import time  # noqa: E402
 from pathlib import Path  # noqa: E402
 
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
 from numerology import solver  # noqa: E402
+from timing import best_of, timed  # noqa: E402
 from numerology.environment import derive_environment  # noqa: E402
-from numerology.requirements import load_requirements, requirements_from_mapping  # noqa: E402
+from numerology.requirements import requirements_from_mapping  # noqa: E402
 
 LARGE = {  # an invented scenario with a large search space
     "environment": {"carrier": "3.5 GHz", "max_speed": "120 km/h", "profile": "EVA"},
@@ -39,26 +39,11 @@ LARGE = {  # an invented scenario with a large search space
 REPEATS = 5
 
 
-def timed(fn):
-    t = time.perf_counter()
-    fn()
-    return time.perf_counter() - t
-
-
-def best_of(fn, repeats=5):
-    times = []
-    for _ in range(repeats):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return min(times)
-
-
 def main():
     req = requirements_from_mapping(LARGE)
     env = derive_environment(req)
     found = solver.search(req, env)
-    seconds = best_of(lambda: solver.search(req, env))
+    seconds = best_of(lambda: solver.search(req, env), 5)
     print(f"candidate space: {found.stats.candidates:,} designs; after screening {found.stats.after_cheap_rules:,}; "
           f"evaluated exactly {found.stats.evaluated_exactly:,}")
     print(f"solver time: {seconds:.3f} s (target < 0.3 s; ratio to target {seconds / 0.3:.2f})")

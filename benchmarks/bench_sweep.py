@@ -23,7 +23,6 @@ for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
 import csv  # noqa: E402
 import sys  # noqa: E402
 import tempfile  # noqa: E402
-import time  # noqa: E402
 from pathlib import Path  # noqa: E402
 
 import numpy as np  # noqa: E402
@@ -32,6 +31,7 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
 from numerology import api, sweep  # noqa: E402
+from timing import best_of  # noqa: E402
 
 TARGET_S = 2.0
 TARGET_ROWS = 100_000
@@ -55,15 +55,6 @@ def write_sites(path: Path, rows: int, seed: int = 7) -> None:
         writer.writerow(["site", "max_speed [km/h]", "rms_delay_spread [ns]", "profile", "carrier [GHz]", "snr [dB]"])
         writer.writerows(zip((f"S{i:06d}" for i in range(rows)), speed.tolist(), rms.tolist(), profile.tolist(),
                              carrier.tolist(), snr.tolist()))
-
-
-def best_of(fn, repeats):
-    times = []
-    for _ in range(repeats):
-        start = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - start)
-    return min(times)
 
 
 def main():
