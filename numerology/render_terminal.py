@@ -40,20 +40,13 @@ def fmt(value: float, unit: str) -> str:
 
 
 def environment(con: Console, env, rows, thumbs, title: str) -> None:
-    table = Table(title=title, box=box.SIMPLE_HEAVY, title_justify="left")
-    table.add_column("quantity")
-    table.add_column("value", justify="right")
-    table.add_column("formula")
-    table.add_column("source", style="dim")
+    table = _table(title, "quantity", ">value", "formula", "~source")
     for row in rows:
         table.add_row(row.label, fmt(row.value, row.unit), row.formula, row.source)
     con.print(table)
     con.print(f"Profile: {env.profile_name} ({len(env.delays_s)} taps) - {env.profile_source}")
     if thumbs:
-        alt = Table(title="Other definitions in use (for comparison)", box=box.SIMPLE, title_justify="left")
-        alt.add_column("quantity")
-        alt.add_column("rule of thumb")
-        alt.add_column("value", justify="right")
+        alt = _table("Other definitions in use (for comparison)", "quantity", "rule of thumb", ">value", heavy=False)
         for quantity, label, value in thumbs:
             alt.add_row(quantity, label, engineering(value, "s" if "time" in quantity else "Hz"))
         con.print(alt)
@@ -61,14 +54,22 @@ def environment(con: Console, env, rows, thumbs, title: str) -> None:
         con.print(Text(f"note: {note}", style="yellow"))
 
 
+def _table(title, *columns, heavy=True, **options) -> Table:
+    """A report table: ``columns`` are headers, ``">name"`` right-justified, ``"~name"`` dimmed (sources)."""
+    table = Table(title=title, box=box.SIMPLE_HEAVY if heavy else box.SIMPLE, title_justify="left", **options)
+    for column in columns:
+        if column.startswith(">"):
+            table.add_column(column[1:], justify="right")
+        elif column.startswith("~"):
+            table.add_column(column[1:], style="dim")
+        else:
+            table.add_column(column)
+    return table
+
+
 def profiles(con: Console, catalogue) -> None:
-    table = Table(title="Built-in power-delay profiles", box=box.SIMPLE_HEAVY, title_justify="left")
-    table.add_column("name")
-    table.add_column("taps", justify="right")
-    table.add_column("rms (computed)", justify="right")
-    table.add_column("rms (stated)", justify="right")
-    table.add_column("span", justify="right")
-    table.add_column("source", style="dim")
+    table = _table("Built-in power-delay profiles", "name", ">taps", ">rms (computed)", ">rms (stated)", ">span",
+                   "~source")
     for profile in catalogue.values():
         if profile.normalised:
             computed = f"{profile.rms_delay_spread_s:.4f} x rms"
@@ -84,14 +85,8 @@ def profiles(con: Console, catalogue) -> None:
 
 
 def presets(con: Console, presets) -> None:
-    table = Table(title="Published numerologies (use with --preset NAME)", box=box.SIMPLE_HEAVY, title_justify="left")
-    table.add_column("name")
-    table.add_column("spacing", justify="right")
-    table.add_column("FFT", justify="right")
-    table.add_column("CP", justify="right")
-    table.add_column("used", justify="right")
-    table.add_column("pilots (f x t / shift)", justify="right")
-    table.add_column("source", style="dim")
+    table = _table("Published numerologies (use with --preset NAME)", "name", ">spacing", ">FFT", ">CP", ">used",
+                   ">pilots (f x t / shift)", "~source")
     for preset in presets.values():
         d = preset.design
         table.add_row(preset.name, engineering(d.subcarrier_spacing_hz, "Hz"), str(d.fft_size),
@@ -148,12 +143,7 @@ def _quantity(rule_name: str, value: float) -> str:
 
 def rules_table(rules, title="Rules") -> Table:
     binding = min(rules, key=lambda r: r.normalised)
-    table = Table(title=title, box=box.SIMPLE_HEAVY, title_justify="left")
-    table.add_column("")
-    table.add_column("rule")
-    table.add_column("needs", justify="right")
-    table.add_column("has", justify="right")
-    table.add_column("margin", justify="right")
+    table = _table(title, "", "rule", ">needs", ">has", ">margin")
     for r in rules:
         mark = Text("PASS", style="green") if r.passed else Text("FAIL", style="bold red")
         name = Text(r.name + ("  <- binding" if r is binding else ""), style="bold" if r is binding else "")
@@ -162,9 +152,7 @@ def rules_table(rules, title="Rules") -> Table:
 
 
 def sinr_table(result) -> Table:
-    table = Table(title="SINR budget (each term relative to the signal)", box=box.SIMPLE, title_justify="left")
-    table.add_column("term")
-    table.add_column("power", justify="right")
+    table = _table("SINR budget (each term relative to the signal)", "term", ">power", heavy=False)
     for name, value in result.sinr_terms.items():
         table.add_row(TERM_LABELS[name], db(10 * math.log10(value)) if value > 0 else "none")
     table.add_row(Text("effective SINR", style="bold"), Text(db(result.effective_sinr_db), style="bold"))
@@ -172,10 +160,8 @@ def sinr_table(result) -> Table:
 
 
 def limits_table(limits) -> Table:
-    table = Table(title="Stretch limits (each alone, the rest as required)", box=box.SIMPLE, title_justify="left")
-    table.add_column("stress")
-    table.add_column("limit", justify="right")
-    table.add_column("rule that fails first")
+    table = _table("Stretch limits (each alone, the rest as required)", "stress", ">limit", "rule that fails first",
+                   heavy=False)
     for key, limit in limits.items():
         label, unit = LIMIT_LABELS[key]
         if math.isinf(limit.value):
@@ -228,11 +214,8 @@ def _window_line(window) -> Text:
 
 
 def designs_table(result) -> Table:
-    table = Table(title=f"Ranked designs - objective: {OBJECTIVE_LABELS[result.objective]}", box=box.SIMPLE_HEAVY,
-                  title_justify="left", pad_edge=False)
-    for column, justify in (("#", "right"), ("spacing", "right"), ("FFT/CP", "right"), ("pilots", "right"),
-                            ("slot", "right"), ("net rate", "right"), ("binding rule", "left")):
-        table.add_column(column, justify=justify)
+    table = _table(f"Ranked designs - objective: {OBJECTIVE_LABELS[result.objective]}", ">#", ">spacing", ">FFT/CP",
+                   ">pilots", ">slot", ">net rate", "binding rule", pad_edge=False)
     for ranked in result.designs:
         c = ranked.check
         d = c.design
@@ -295,11 +278,8 @@ def solve(con: Console, result) -> None:
         if diag is not None:
             con.print(Text.assemble("These conflict: ", (", ".join(diag.conflict), "bold")))
             if diag.relaxations:
-                table = Table(title="Any one of these would make the request feasible", box=box.SIMPLE,
-                              title_justify="left")
-                table.add_column("key")
-                table.add_column("now", justify="right")
-                table.add_column("change to", justify="right")
+                table = _table("Any one of these would make the request feasible", "key", ">now", ">change to",
+                               heavy=False)
                 for r in diag.relaxations:
                     table.add_row(r.key, r.current, f"{r.direction} {r.value}")
                 con.print(table)
@@ -317,9 +297,7 @@ def solve(con: Console, result) -> None:
     if result.relaxed is not None:
         con.print(relaxed_sentence(result.relaxed, result.objective))
     if result.neighbours:
-        table = Table(title="One step away from the best design", box=box.SIMPLE, title_justify="left")
-        table.add_column("change")
-        table.add_column("verdict")
+        table = _table("One step away from the best design", "change", "verdict", heavy=False)
         for n in result.neighbours:
             verdict = (Text(f"rejected by {n.failing_rule} ({n.margin:+.3g})", style="red") if n.failing_rule
                        else Text("also feasible", style="green"))
@@ -352,11 +330,9 @@ def verification(con: Console, design, result) -> None:
                else Text("model and simulation DISAGREE", style="bold red"))
     con.print(Text.assemble("Verification of ", (design.name, "bold"), ": ", verdict))
     con.print(design_line(design))
-    table = Table(title=f"Measured ({data['frames']} frames, {data['resource_elements']:,} resource elements, "
-                        f"seed {data['seed']}) against predicted", box=box.SIMPLE_HEAVY, title_justify="left")
-    for column, justify in (("figure", "left"), ("measured", "right"), ("confidence interval", "right"),
-                            ("predicted", "right"), ("difference", "right"), ("tolerance", "right"), ("", "left")):
-        table.add_column(column, justify=justify)
+    table = _table(f"Measured ({data['frames']} frames, {data['resource_elements']:,} resource elements, "
+                   f"seed {data['seed']}) against predicted", "figure", ">measured", ">confidence interval",
+                   ">predicted", ">difference", ">tolerance", "")
     labels = {"interference": "Doppler + echo interference (perfect channel knowledge)",
               "estimation": "channel-estimation MSE", "sinr_eff": "effective SINR"}
     for check in result.checks:
@@ -384,10 +360,7 @@ def sweep(con: Console, design, result, out) -> None:
                             (f"{summary.passed} pass", "bold green" if summary.passed == summary.sites else "bold"),
                             f", {summary.sites - summary.passed} fail"))
     con.print(design_line(design))
-    table = Table(box=box.SIMPLE_HEAVY)
-    for column, justify in (("site", "left"), ("", "left"), ("binding rule", "left"), ("margin", "right"),
-                            ("net rate", "right"), ("SINR", "right")):
-        table.add_column(column, justify=justify)
+    table = _table(None, "site", "", "binding rule", ">margin", ">net rate", ">SINR")
     names = result.binding_rule
     shown = range(min(summary.sites, 40))
     for i in shown:
