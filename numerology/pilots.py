@@ -578,24 +578,41 @@ def _window_start(numerator, denominator, n):
     return (2 * numerator + denominator) // (2 * denominator) - n // 2  # round(x) -+ (n-1)/2
 
 
+def _lmmse_window(d_f, d_t, s, f_table, t_table, tk, tl, window):
+    """The LMMSE window of each target: offsets, target and pilot correlations.
+
+    For flat candidates (n,) and targets (n, P): the n_f x n_t pilots (i, j)
+    nearest the target's lattice coordinates (a, b), as subcarrier and symbol
+    offsets from the target ``dk``, ``dl`` (n, P, W); ``r`` (n, P, W), r_p =
+    E[h_p H*] (WSSUS product); and ``big_r`` (n, W, W), R_pq = E[h_p h_q*],
+    the same for every target of a candidate.
+    """
+    n_f, n_t = window
+    num_a = tk * d_t[:, None] - tl * s[:, None]  # a = num_a / (D_f D_t): target along v1
+    ii, jj = (g.ravel() for g in np.meshgrid(np.arange(n_f), np.arange(n_t), indexing="ij"))
+    pi = _window_start(num_a, (d_f * d_t)[:, None], n_f)[..., None] + ii
+    pj = _window_start(tl, d_t[:, None], n_t)[..., None] + jj
+    dk = pi * d_f[:, None, None] + pj * s[:, None, None] - tk[..., None]
+    dl = pj * d_t[:, None, None] - tl[..., None]
+    r = _lookup(f_table, dk) * _lookup(t_table, dl)
+    di = ii[:, None] - ii[None, :]
+    dj = jj[:, None] - jj[None, :]
+    big_r = _lookup(f_table, di * d_f[:, None, None] + dj * s[:, None, None]) * _lookup(t_table, dj * d_t[:, None, None])
+    return dk, dl, r, big_r
+
+
 def _weights_core(d_f, d_t, s, snr, f_table, t_table, tk, tl, estimator, window):
     """Offsets, weights and MSE for flat candidates (n,) and targets (n, P)."""
-    n, _ = tk.shape
     noise = np.where(np.isinf(snr), 0.0, 1.0 / snr)[:, None]  # noise / pilot power
-    num_a = tk * d_t[:, None] - tl * s[:, None]  # a = num_a / (D_f D_t): target along v1
-    den_a = (d_f * d_t)[:, None]
     if estimator == "lmmse":
-        n_f, n_t = window
-        # The n_f x n_t pilots (i, j) nearest the target's lattice coordinates (a, b).
-        ii, jj = (g.ravel() for g in np.meshgrid(np.arange(n_f), np.arange(n_t), indexing="ij"))
-        pi = _window_start(num_a, den_a, n_f)[..., None] + ii
-        pj = _window_start(tl, d_t[:, None], n_t)[..., None] + jj
-        # Pilot-pilot lags are the same for every target: one matrix per candidate.
-        di = ii[:, None] - ii[None, :]
-        dj = jj[:, None] - jj[None, :]
-        rk = di * d_f[:, None, None] + dj * s[:, None, None]
-        rl = dj * d_t[:, None, None]
+        dk, dl, r, big_r = _lmmse_window(d_f, d_t, s, f_table, t_table, tk, tl, window)
+        eye = np.eye(big_r.shape[-1])
+        design = big_r + np.maximum(noise, _DESIGN_NOISE_FLOOR)[..., None] * eye
+        w = np.linalg.solve(design, r.transpose(0, 2, 1)).transpose(0, 2, 1)  # w = (R + I/snr)^-1 r, Wiener
+        aw = w @ big_r.transpose(0, 2, 1) + noise[..., None] * w  # (R + I/snr) w
     else:
+        num_a = tk * d_t[:, None] - tl * s[:, None]  # a = num_a / (D_f D_t): target along v1
+        den_a = (d_f * d_t)[:, None]
         i0 = num_a // den_a
         j0 = tl // d_t[:, None]
         alpha = (num_a - i0 * den_a) / den_a  # fractional lattice coordinates in [0, 1)
@@ -605,22 +622,14 @@ def _weights_core(d_f, d_t, s, snr, f_table, t_table, tk, tl, estimator, window)
         corner = upper.astype(np.int64)
         pi = i0[..., None] + np.stack([corner, np.ones_like(corner), np.zeros_like(corner)], axis=-1)
         pj = j0[..., None] + np.stack([corner, np.zeros_like(corner), np.ones_like(corner)], axis=-1)
-        bary = np.where(
+        w = np.where(
             upper[..., None],
             np.stack([alpha + beta - 1.0, 1.0 - beta, 1.0 - alpha], axis=-1),  # barycentric, upper
             np.stack([1.0 - alpha - beta, alpha, beta], axis=-1),  # barycentric, lower
-        )
-    dk = pi * d_f[:, None, None] + pj * s[:, None, None] - tk[..., None]
-    dl = pj * d_t[:, None, None] - tl[..., None]
-    r = _lookup(f_table, dk) * _lookup(t_table, dl)  # r_p = E[h_p H*], WSSUS product
-    if estimator == "lmmse":
-        big_r = _lookup(f_table, rk) * _lookup(t_table, rl)  # R_pq = E[h_p h_q*]
-        eye = np.eye(big_r.shape[-1])
-        design = big_r + np.maximum(noise, _DESIGN_NOISE_FLOOR)[..., None] * eye
-        w = np.linalg.solve(design, r.transpose(0, 2, 1)).transpose(0, 2, 1)  # w = (R + I/snr)^-1 r, Wiener
-        aw = w @ big_r.transpose(0, 2, 1) + noise[..., None] * w  # (R + I/snr) w
-    else:
-        w = bary.astype(np.complex128)
+        ).astype(np.complex128)
+        dk = pi * d_f[:, None, None] + pj * s[:, None, None] - tk[..., None]
+        dl = pj * d_t[:, None, None] - tl[..., None]
+        r = _lookup(f_table, dk) * _lookup(t_table, dl)  # r_p = E[h_p H*], WSSUS product
         big_r = _lookup(f_table, dk[..., :, None] - dk[..., None, :]) * _lookup(t_table, dl[..., :, None] - dl[..., None, :])
         aw = np.einsum("npij,npj->npi", big_r, w) + noise[..., None] * w
     # MSE = 1 - 2 Re(w^H r) + w^H (R + I/snr) w, channel power 1
@@ -719,19 +728,9 @@ def _lmmse_cell_mean(d_f, d_t, s, snr, f_table, t_table, tk, tl, valid, window):
     MSE_t = 1 - r^H A^-1 r is 1 - tr(A^-1 S) / P: one trace per candidate
     instead of one solve per target.
     """
-    n_f, n_t = window
     noise = 1.0 / snr
-    num_a = tk * d_t[:, None] - tl * s[:, None]
-    den_a = (d_f * d_t)[:, None]
-    ii, jj = (g.ravel() for g in np.meshgrid(np.arange(n_f), np.arange(n_t), indexing="ij"))
-    pi = _window_start(num_a, den_a, n_f)[..., None] + ii
-    pj = _window_start(tl, d_t[:, None], n_t)[..., None] + jj
-    dk = pi * d_f[:, None, None] + pj * s[:, None, None] - tk[..., None]
-    dl = pj * d_t[:, None, None] - tl[..., None]
-    r = _lookup(f_table, dk) * _lookup(t_table, dl) * valid[..., None]  # padding targets contribute nothing
-    di = ii[:, None] - ii[None, :]
-    dj = jj[:, None] - jj[None, :]
-    big_r = _lookup(f_table, di * d_f[:, None, None] + dj * s[:, None, None]) * _lookup(t_table, dj * d_t[:, None, None])
+    _, _, r, big_r = _lmmse_window(d_f, d_t, s, f_table, t_table, tk, tl, window)
+    r = r * valid[..., None]  # padding targets contribute nothing
     a = big_r + noise[:, None, None] * np.eye(big_r.shape[-1])
     s_mat = np.matmul(r.transpose(0, 2, 1), r.conj())  # S = sum_t r_t r_t^H (batched BLAS, not einsum)
     return np.maximum(1.0 - _trace_of_solve(a, s_mat) / valid.sum(axis=1), 0.0)
