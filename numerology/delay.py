@@ -26,6 +26,7 @@ from .doppler import SPEED_OF_LIGHT_MPS  # exact by the SI definition of the met
 __all__ = [
     "mean_excess_delay_s",
     "rms_delay_spread_s",
+    "rms_of_normalised",
     "max_excess_delay_s",
     "frequency_correlation",
     "coherence_bandwidth_hz",
@@ -73,8 +74,8 @@ def _profile(delays_s, powers):
     return d - first, p / total
 
 
-def _rms(d, p):
-    """Rms spread of excess delays d with powers p summing to 1 (last axis)."""
+def rms_of_normalised(d, p):
+    """Rms spread of delays d with powers p already summing to 1 (last axis), unchecked (for inner loops)."""
     mean = np.sum(p * d, axis=-1, keepdims=True)  # Rappaport eq. 5.35
     return np.sqrt(np.sum(p * (d - mean) ** 2, axis=-1))  # eqs. 5.36-5.37, as a central moment
 
@@ -136,7 +137,7 @@ def rms_delay_spread_s(delays_s, powers):
     >>> round(rms_delay_spread_s([0, 1e-6, 2e-6, 5e-6], [0.01, 0.1, 0.1, 1]) * 1e6, 2)
     1.37
     """
-    return _scalar_or_array(_rms(*_profile(delays_s, powers)))
+    return _scalar_or_array(rms_of_normalised(*_profile(delays_s, powers)))
 
 
 def max_excess_delay_s(delays_s, powers, threshold_db=30.0):
@@ -448,7 +449,7 @@ def exponential_profile(rms_delay_spread_s, floor_db=30.0, num_taps=64):
     delays = np.linspace(0.0, tau_max, int(num_taps))
     powers = np.exp(-delays / sigma)
     powers /= powers.sum()
-    delays *= sigma / _rms(delays, powers)
+    delays *= sigma / rms_of_normalised(delays, powers)
     return delays, powers
 
 

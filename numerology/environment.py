@@ -408,8 +408,7 @@ def bounded_shapes(ratio):
         mid = 0.5 * (lo + hi)
         p = np.exp(-np.exp(mid)[:, None] * unit)
         p /= p.sum(axis=-1, keepdims=True)
-        mean = p @ unit
-        too_wide = np.sqrt(np.einsum("mk,mk->m", p, (unit - mean[:, None]) ** 2)) > ratio  # rms of the taps
+        too_wide = delay.rms_of_normalised(unit, p) > ratio
         lo = np.where(too_wide, mid, lo)
         hi = np.where(too_wide, hi, mid)
     decay = np.exp(-np.exp(0.5 * (lo + hi))[:, None] * unit)
