@@ -385,11 +385,13 @@ def _neighbours(req, environment, design: Design) -> tuple:
                     sample_rate_hz=None)))
     if design.cp_samples > 0:
         variants.append(("cyclic prefix one sample shorter", dataclasses.replace(design, cp_samples=design.cp_samples - 1)))
-    variants.append(("pilots one subcarrier sparser", dataclasses.replace(
-        design, pilot_freq_spacing=design.pilot_freq_spacing + 1,
-        pilot_shift=0 if design.pilot_shift == 0 else design.pilot_shift)))
-    variants.append(("pilots one symbol sparser", dataclasses.replace(
-        design, pilot_time_spacing=design.pilot_time_spacing + 1)))
+    if design.pilot_scope != "differential":
+        variants.append(("pilots one subcarrier sparser", dataclasses.replace(
+            design, pilot_freq_spacing=design.pilot_freq_spacing + 1,
+            pilot_shift=0 if design.pilot_shift == 0 else design.pilot_shift)))
+        sparser = _sparser_in_time(design)
+        if sparser is not None:
+            variants.append(sparser)
     out = []
     for label, variant in variants:
         variant = dataclasses.replace(variant, name=label)
@@ -399,6 +401,24 @@ def _neighbours(req, environment, design: Design) -> tuple:
         worst = min(failing, key=lambda r: r.normalised) if failing else None
         out.append(Neighbour(label, variant, worst.name if worst else None, worst.margin if worst else None))
     return tuple(out)
+
+
+def _sparser_in_time(design: Design):
+    """(label, design) with pilots one step sparser in time: a lattice one symbol longer, a slot one pilot fewer."""
+    import dataclasses
+
+    from . import arrangement
+
+    if design.is_lattice:
+        spacing = design.pilot_time_spacing + 1
+        return "pilots one symbol sparser", dataclasses.replace(design, pilot_time_spacing=spacing,
+                                                                  pilot_period=spacing)
+    symbols = arrangement.symbols_of(design.pilot_symbols)
+    if design.pilot_scope == "slot" and len(symbols) > 1:
+        mask = arrangement.evenly_spread(len(symbols) - 1, design.symbols_per_slot)
+        return "one pilot-bearing symbol fewer per slot", dataclasses.replace(
+            design, pilot_symbols=mask, pilot_time_spacing=int(arrangement.max_gap(mask, design.pilot_period)))
+    return None
 
 
 __all__ += ["solve", "SolveResult", "RankedDesign", "Relaxed", "Neighbour"]

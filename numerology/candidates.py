@@ -10,7 +10,7 @@ Candidates are built in the order the physics allows pruning:
    above, so a spacing outside the window can never pass;
 2. FFT sizes and sample rates for each spacing in the family and window;
 3. cyclic prefixes as whole samples from the shortest that covers the delay;
-4. pilot lattices up to the aliasing limit.
+4. pilot arrangements (``numerology.arrangement``) up to the aliasing limit.
 
 All functions here are pure and vectorised over arrays of candidates.
 """
@@ -21,7 +21,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import link
+from . import arrangement, link
+from .arrangement import SCOPE_CODE
 from .design import DesignArrays
 from .environment import Environment
 from .requirements import Requirements
@@ -75,16 +76,41 @@ def fft_family(req: Requirements) -> np.ndarray:
     return powers[(powers >= low) & (powers <= high)]
 
 
-def pilot_lattices(req: Requirements) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """All pilot lattices in the search space: (freq_spacing, time_spacing, shift) arrays.
+@dataclass(frozen=True)
+class Arrangements:
+    """Pilot arrangements of the search space, one entry per arrangement (arrays).
 
-    Rectangular lattices have shift 0; staggered ones shift by D_f/2, D_f/3 or
-    D_f/4 subcarriers per pilot-bearing symbol where that is a whole number
-    (DVB-T: D_f = 12, shift 3; EN 300 744 sect. 4.5.3).
+    ``slot`` is the slot length an arrangement belongs to (slot and packet
+    scopes), or -1 for stream pilots, which fit any slot. ``time`` is the
+    largest gap between pilot-bearing symbols (the D_t of the lattice that
+    judges the sampling).
+    """
+
+    scope: np.ndarray
+    freq: np.ndarray
+    time: np.ndarray
+    shift: np.ndarray
+    symbols: np.ndarray
+    period: np.ndarray
+    shared: np.ndarray
+    slot: np.ndarray
+
+    @property
+    def size(self) -> int:
+        return int(self.freq.size)
+
+    def take(self, index) -> "Arrangements":
+        return Arrangements(*(getattr(self, k)[index] for k in self.__dataclass_fields__))
+
+
+def _combs(req: Requirements):
+    """(D_f, shift) pairs: rectangular combs (shift 0) and staggered ones.
+
+    Staggered combs move by D_f/2, D_f/3 or D_f/4 subcarriers per pilot-bearing
+    symbol where that is a whole number (DVB-T: D_f = 12, shift 3; EN 300 744
+    sect. 4.5.3; LTE cell reference signals: D_f = 6, shift 3).
     """
     f = np.arange(1, req.search.max_pilot_freq_spacing + 1)
-    # A pilot-bearing symbol in every slot (rule pilots_in_slot) caps the time spacing.
-    t = np.arange(1, min(req.search.max_pilot_time_spacing, max(req.search.symbols_per_slot)) + 1)
     patterns = []
     if "rectangular" in req.search.pilot_patterns:
         patterns.append(np.stack([f, np.zeros_like(f)], axis=1))
@@ -92,12 +118,62 @@ def pilot_lattices(req: Requirements) -> tuple[np.ndarray, np.ndarray, np.ndarra
         for divisor in (2, 3, 4):
             ok = (f % divisor == 0) & (f // divisor > 0) & (f > 1)
             patterns.append(np.stack([f[ok], f[ok] // divisor], axis=1))
-    fs = np.unique(np.concatenate(patterns), axis=0)
-    ff = np.repeat(fs[:, 0], t.size)
-    ss = np.repeat(fs[:, 1], t.size)
-    tt = np.tile(t, fs.shape[0])
-    carries_data = ff * tt > 1  # a pilot on every resource element leaves none for data
-    return ff[carries_data], tt[carries_data], ss[carries_data]
+    combs = np.unique(np.concatenate(patterns), axis=0) if patterns else np.zeros((0, 2), dtype=np.int64)
+    return combs[:, 0], combs[:, 1]
+
+
+def pilot_arrangements(req: Requirements) -> Arrangements:
+    """Every pilot arrangement of the search space (``search.pilot_scopes``).
+
+    * ``stream``: lattices ``i (D_f, 0) + j (s, D_t)`` with D_t up to
+      ``search.max_pilot_time_spacing``, for any slot;
+    * ``slot``: for each slot length (up to 53 symbols), ``m`` pilot-bearing
+      symbols (``search.pilot_symbols_per_slot``) spread evenly over the slot
+      (``arrangement.evenly_spread``), a comb of every D_f-th subcarrier, data
+      on the other subcarriers;
+    * ``packet``: one or two full-band training symbols at the start of each
+      packet (a slot), without data beside them, held over the packet or
+      repeated every half or quarter packet (midambles).
+    """
+    d_f, shift = _combs(req)
+    scopes = req.search.pilot_scopes
+    slots = [int(n) for n in req.search.symbols_per_slot]
+    rows = []  # (scope, D_f, D_t, shift, mask, period, shared, slot) blocks
+    if "stream" in scopes:
+        t = np.arange(1, req.search.max_pilot_time_spacing + 1)
+        ff, tt = np.repeat(d_f, t.size), np.tile(t, d_f.size)
+        ss = np.repeat(shift, t.size)
+        one = np.ones_like(ff)
+        rows.append((SCOPE_CODE["stream"] * one, ff, tt, ss, one, tt, one, -one))
+    if "slot" in scopes:
+        for slot in slots:
+            if slot > arrangement.MAX_PATTERN_BITS:
+                continue
+            for count in req.search.pilot_symbols_per_slot:
+                if count > slot:
+                    continue
+                mask = arrangement.evenly_spread(count, slot)
+                gap = int(arrangement.max_gap(mask, slot))
+                keep = (shift == 0) | (count > 1)  # a staggered comb needs two pilot-bearing symbols
+                ff, ss = d_f[keep], shift[keep]
+                one = np.ones_like(ff)
+                rows.append((SCOPE_CODE["slot"] * one, ff, gap * one, ss, mask * one, slot * one, one, slot * one))
+    if "packet" in scopes:
+        for slot in slots:
+            for count in (1, 2):
+                for period in sorted({slot, slot // 2, slot // 4}):
+                    if period <= count or count >= slot:
+                        continue
+                    mask = arrangement.mask_from_symbols(range(count))
+                    gap = int(arrangement.max_gap(mask, period))
+                    rows.append(tuple(np.array([v]) for v in (SCOPE_CODE["packet"], 1, gap, 0, mask, period, 0, slot)))
+    if not rows:
+        empty = np.zeros(0, dtype=np.int64)
+        return Arrangements(*(empty,) * 8)
+    columns = [np.concatenate([np.asarray(r[i], dtype=np.int64) for r in rows]) for i in range(8)]
+    out = Arrangements(*columns)
+    fraction = arrangement.pilot_fraction(out.symbols, out.period, out.freq, out.shared.astype(bool))
+    return out.take(np.flatnonzero(fraction < 1))  # a pilot on every resource element leaves none for data
 
 
 # --- relaxed designs and the window -----------------------------------------
@@ -112,6 +188,7 @@ def _relaxed_overrides(spacing_hz, environment: Environment, req: Requirements) 
         "N": np.ones_like(df), "N_cp": guard_s * df * (1 + 1e-12),
         "N_u": np.floor(req.radio.occupancy * req.radio.bandwidth_hz / df + 1e-9),
         "D_f": np.full_like(df, np.inf), "D_t": np.full_like(df, np.inf), "s_p": np.zeros_like(df),
+        "rho_pil": np.zeros_like(df),
         "N_slot": np.full_like(df, float(min(req.search.symbols_per_slot))),
         "R_res": np.zeros_like(df), "N_x": np.zeros_like(df), "P_x": np.full_like(df, np.inf),
         "clock_mismatch": lambda rate: np.zeros(np.shape(rate)),  # the clock is matched by the FFT size
@@ -278,6 +355,10 @@ class Grid:
     pilot_t: np.ndarray
     pilot_s: np.ndarray
     slot: np.ndarray
+    scope: np.ndarray
+    symbols: np.ndarray
+    period: np.ndarray
+    shared: np.ndarray
 
     @property
     def size(self) -> int:
@@ -292,7 +373,19 @@ class Grid:
         return DesignArrays(name=names, subcarrier_spacing_hz=self.spacing_hz, fft_size=self.fft_size,
                             cp_samples=self.cp_samples, used_subcarriers=self.used,
                             pilot_freq_spacing=self.pilot_f, pilot_time_spacing=self.pilot_t,
-                            pilot_shift=self.pilot_s, symbols_per_slot=self.slot, source="numerology solve")
+                            pilot_shift=self.pilot_s, symbols_per_slot=self.slot, source="numerology solve",
+                            pilot_scope=self.scope, pilot_symbols=self.symbols, pilot_period=self.period,
+                            pilot_data_shared=self.shared.astype(bool))
+
+    @classmethod
+    def of_numerologies(cls, df, n, cp, used) -> "Grid":
+        """Numerologies with their pilots and slot still open (placeholders)."""
+        one = np.ones_like(n)
+        return cls(df, n, cp, used, one, one, 0 * one, one, 0 * one, one, one, one)
+
+    @classmethod
+    def empty(cls) -> "Grid":
+        return cls(np.zeros(0), *(np.zeros(0, dtype=np.int64) for _ in range(11)))
 
 
 def numerologies(spacings_hz, environment: Environment, req: Requirements):
@@ -339,28 +432,39 @@ def numerologies(spacings_hz, environment: Environment, req: Requirements):
     return df_c[keep], n_c[keep], used_c[keep], cp[keep]
 
 
-def expand(numerology: Grid, lattices, slots, paired: bool = False) -> Grid:
-    """Cross numerologies with pilot lattices and slot lengths (numerology-major order).
+def expand(numerology: Grid, pilots: Arrangements, slots) -> Grid:
+    """Cross numerologies with pilot arrangements and slot lengths (numerology-major order).
 
-    With ``paired`` the lattices belong one-to-one to the numerologies (only slots are crossed).
+    Stream pilots (``slot == -1``) are crossed with every slot length; slot
+    and packet pilots come with their own slot.
     """
-    pf, pt, ps = lattices
-    if paired:
-        i = np.repeat(np.arange(numerology.size), slots.size)
-        k = np.tile(np.arange(slots.size), numerology.size)
-        return Grid(numerology.spacing_hz[i], numerology.fft_size[i], numerology.cp_samples[i], numerology.used[i],
-                    pf[i], pt[i], ps[i], slots[k])
-    a, b, c = numerology.size, pf.size, slots.size
-    i = np.repeat(np.arange(a), b * c)
-    j = np.tile(np.repeat(np.arange(b), c), a)
-    k = np.tile(np.arange(c), a * b)
+    slots = np.asarray(slots, dtype=np.int64)
+    free = pilots.slot < 0
+    # one row per (arrangement, slot): stream arrangements repeated over the slots, the others as they are
+    a_index = np.concatenate([np.repeat(np.flatnonzero(free), slots.size), np.flatnonzero(~free)])
+    a_slot = np.concatenate([np.tile(slots, int(free.sum())), pilots.slot[~free]])
+    i = np.repeat(np.arange(numerology.size), a_index.size)
+    j = np.tile(a_index, numerology.size)
+    k = np.tile(a_slot, numerology.size)
     return Grid(numerology.spacing_hz[i], numerology.fft_size[i], numerology.cp_samples[i], numerology.used[i],
-                pf[j], pt[j], ps[j], slots[k])
+                pilots.freq[j], pilots.time[j], pilots.shift[j], k, pilots.scope[j], pilots.symbols[j],
+                pilots.period[j], pilots.shared[j])
+
+
+def with_slots(grid: Grid, slots) -> Grid:
+    """Give every candidate its slot length: those still open (stream pilots, ``slot < 0``) once per slot."""
+    slots = np.asarray(slots, dtype=np.int64)
+    free = np.flatnonzero(grid.slot < 0)
+    fixed = np.flatnonzero(grid.slot >= 0)
+    index = np.concatenate([np.repeat(free, slots.size), fixed])
+    out = grid.take(index)
+    slot = np.concatenate([np.tile(slots, free.size), grid.slot[fixed]])
+    out = Grid(*(slot if k == "slot" else getattr(out, k) for k in Grid.__dataclass_fields__))
+    order = np.argsort(index, kind="stable")  # back to the input order (numerology-major)
+    return out.take(order)
 
 
 def enumerate_grid(req: Requirements, environment: Environment, spacings_hz) -> Grid:
-    """Every candidate design for the given spacings (numerologies x pilot lattices x slot lengths)."""
+    """Every candidate design for the given spacings (numerologies x pilot arrangements x slot lengths)."""
     df, n, used, cp = numerologies(spacings_hz, environment, req)
-    one = np.ones_like(n)
-    return expand(Grid(df, n, cp, used, one, one, 0 * one, one), pilot_lattices(req),
-                  np.asarray(req.search.symbols_per_slot, dtype=np.int64))
+    return expand(Grid.of_numerologies(df, n, cp, used), pilot_arrangements(req), req.search.symbols_per_slot)

@@ -10,9 +10,16 @@ Conventions
 * All durations follow from sample counts on the sample clock
   ``f_s = fft_size * subcarrier_spacing``: the useful symbol is ``N / f_s``
   (equal to ``1 / df``), the cyclic prefix ``N_cp / f_s``.
-* Pilots sit on the lattice ``i * (D_f, 0) + j * (shift, D_t)`` in
-  (subcarrier, symbol) units, so their density is ``1 / (D_f * D_t)`` of the
-  used resource elements.
+* Pilots follow an *arrangement* (``numerology.arrangement``): a scope
+  (``stream``, ``slot``, ``packet`` or ``differential``: what a receiver may
+  use), the pilot-bearing symbols as a bit mask over a period of symbols,
+  a comb of every D_f-th used subcarrier in each of them whose offset
+  advances by ``shift`` from one pilot-bearing symbol to the next, a power
+  boost, and whether data share the pilot-bearing symbols. Without a mask
+  the pattern is the lattice ``i * (D_f, 0) + j * (shift, D_t)`` (one
+  pilot-bearing symbol every D_t). ``pilot_time_spacing`` is always the
+  largest gap between pilot-bearing symbols, D_t of the lattice that judges
+  the pattern's sampling of the channel.
 * Some systems lengthen the CP of the first symbol of each period (LTE: 16
   extra samples each 0.5 ms slot; NR: 16 kappa per half subframe). That extra
   time is spread over the period in :attr:`_Derived.mean_symbol_s`.
@@ -28,9 +35,13 @@ every physical value carries its unit in a string::
     symbols_per_slot = 14
 
     [pilot]
+    scope = "stream"          # or "slot", "packet", "differential"
     freq_spacing = 6
-    time_spacing = 4
+    symbols = [0, 4]          # pilot-bearing symbols of each period (or: time_spacing = 4)
+    period = 7                # symbols per period of the pattern
     shift = 3
+    boost = "0 dB"            # optional
+    data_shared = true        # optional: data on the other subcarriers of a pilot symbol
 
 References
 ----------
@@ -55,8 +66,9 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
+from . import arrangement
 from .errors import InputError
-from .units import engineering, parse_quantity
+from .units import engineering, parse_db, parse_quantity
 
 #: A given sample rate must equal ``fft_size * subcarrier_spacing`` within this relative error.
 SAMPLE_RATE_RTOL = 1e-9
@@ -71,32 +83,32 @@ MAX_COUNT = 2**53
 DERIVED_JSON_KEYS = ("cp_s", "useful_symbol_s", "symbol_s")
 
 
-def non_pilot_subcarriers(used_subcarriers, pilot_freq_spacing, pilot_time_spacing):
-    """Used subcarriers per symbol left after the pilot lattice, on average.
+def non_pilot_subcarriers(used_subcarriers, pilot_fraction):
+    """Used subcarriers per symbol left after the pilots, on average: ``used * (1 - pilot fraction)``.
 
-    ``used * (1 - 1 / (D_f * D_t))``. It is the one formula shared by
-    :attr:`_Derived.data_subcarriers_per_symbol` and by presets that derive
-    their reserved-carrier count from a published data-carrier count, so that
-    the two agree to the last bit.
+    It is the one formula shared by :attr:`_Derived.data_subcarriers_per_symbol`
+    and by presets that derive their reserved-carrier count from a published
+    data-carrier count, so that the two agree to the last bit.
 
     Parameters
     ----------
     used_subcarriers : int or array_like
         Occupied subcarriers per symbol, pilots included.
-    pilot_freq_spacing, pilot_time_spacing : int or array_like
-        Pilot lattice spacings D_f (subcarriers) and D_t (symbols).
+    pilot_fraction : float or array_like
+        Fraction of the used resource elements the pilots take from data
+        (``numerology.arrangement.pilot_fraction``).
 
     Returns
     -------
     float or numpy.ndarray
-        Subcarriers per symbol not taken by lattice pilots (a count).
+        Subcarriers per symbol not taken by pilots (a count).
 
     Examples
     --------
-    >>> non_pilot_subcarriers(1705, 12, 1)  # DVB-T 2k: 1705 carriers, 1/12 scattered pilots
+    >>> non_pilot_subcarriers(1705, 1 / 12)  # DVB-T 2k: 1705 carriers, 1/12 scattered pilots
     1562.9166666666665
     """
-    return used_subcarriers * (1.0 - 1.0 / (pilot_freq_spacing * pilot_time_spacing))
+    return used_subcarriers * (1.0 - pilot_fraction)
 
 
 class _Derived:
@@ -166,16 +178,14 @@ class _Derived:
 
     @property
     def pilot_density(self):
-        """Fraction of used resource elements on the pilot lattice, 1 / (D_f D_t)."""
-        return self._out(1.0 / (self.pilot_freq_spacing * self.pilot_time_spacing))
+        """Fraction of used resource elements the pilots take from data (see ``arrangement.pilot_fraction``)."""
+        return self._out(arrangement.pilot_fraction(self.pilot_symbols, self.pilot_period, self.pilot_freq_spacing,
+                                                    self.pilot_data_shared))
 
     @property
     def data_subcarriers_per_symbol(self):
         """Data subcarriers per symbol on average: used (1 - pilot density) - reserved."""
-        return self._out(
-            non_pilot_subcarriers(self.used_subcarriers, self.pilot_freq_spacing, self.pilot_time_spacing)
-            - self.reserved_subcarriers
-        )
+        return self._out(non_pilot_subcarriers(self.used_subcarriers, self.pilot_density) - self.reserved_subcarriers)
 
     @property
     def cp_overhead(self):
@@ -210,8 +220,11 @@ _COUNT_FIELDS = (
     "pilot_shift",
     "symbols_per_slot",
     "cp_extra_samples",
+    "pilot_symbols",
+    "pilot_period",
 )
-_FLOAT_FIELDS = ("subcarrier_spacing_hz", "sample_rate_hz", "reserved_subcarriers", "cp_extra_period_s")
+_FLOAT_FIELDS = ("subcarrier_spacing_hz", "sample_rate_hz", "reserved_subcarriers", "cp_extra_period_s",
+                 "pilot_boost_db")
 
 
 @dataclass(frozen=True)
@@ -231,8 +244,10 @@ class Design(_Derived):
     used_subcarriers : int
         Occupied subcarriers including pilots, excluding DC and guard bands.
     pilot_freq_spacing, pilot_time_spacing, pilot_shift : int
-        Pilot lattice ``i (D_f, 0) + j (shift, D_t)`` in (subcarrier, symbol)
-        units; ``0 <= shift < D_f``.
+        Pilot comb spacing D_f (subcarriers), the largest gap D_t between
+        pilot-bearing symbols, and the comb's shift per pilot-bearing symbol
+        (``0 <= shift < D_f``). Without ``pilot_symbols`` they are the lattice
+        ``i (D_f, 0) + j (shift, D_t)`` in (subcarrier, symbol) units.
     symbols_per_slot : int
         Symbols per slot (or frame, or packet: the scheduling unit).
     sample_rate_hz : float, optional
@@ -247,6 +262,19 @@ class Design(_Derived):
         Period of the extra CP, in s (LTE: 0.5 ms).
     source : str, optional
         Where the numbers come from.
+    pilot_scope : str, optional
+        ``stream`` (default), ``slot``, ``packet`` or ``differential``: what a
+        receiver may use (``numerology.arrangement``).
+    pilot_symbols : int, optional
+        Bit mask of the pilot-bearing symbols of each period (0: the lattice,
+        one pilot-bearing symbol every ``pilot_time_spacing``).
+    pilot_period : int, optional
+        Symbols per period of the pattern (0: ``pilot_time_spacing``; for the
+        ``slot`` scope it is the slot).
+    pilot_boost_db : float, optional
+        Pilot power per resource element over the data's, dB.
+    pilot_data_shared : bool, optional
+        Whether data use the other subcarriers of a pilot-bearing symbol.
 
     Raises
     ------
@@ -280,17 +308,31 @@ class Design(_Derived):
     cp_extra_samples: int = 0
     cp_extra_period_s: float = 0
     source: str = ""
+    pilot_scope: str = "stream"
+    pilot_symbols: int = 0
+    pilot_period: int = 0
+    pilot_boost_db: float = 0.0
+    pilot_data_shared: bool = True
 
     def __post_init__(self):
         place = f"design {self.name!r}" if isinstance(self.name, str) else "design"
         for key in ("name", "source"):
             if not isinstance(getattr(self, key), str):
                 raise InputError(f"{place}: {key}", f"expected text, got {getattr(self, key)!r}")
+        if self.pilot_scope not in arrangement.SCOPES:
+            raise InputError(f"{place}: pilot_scope",
+                             f"expected one of {', '.join(arrangement.SCOPES)}, got {self.pilot_scope!r}")
+        if not isinstance(self.pilot_data_shared, (bool, np.bool_)):
+            raise InputError(f"{place}: pilot_data_shared", f"expected true or false, got {self.pilot_data_shared!r}")
+        object.__setattr__(self, "pilot_data_shared", bool(self.pilot_data_shared))
         for key in _COUNT_FIELDS:
             value = getattr(self, key)
             if isinstance(value, bool) or not isinstance(value, numbers.Integral) or abs(value) > MAX_COUNT:
                 raise InputError(f"{place}: {key}", f"expected a whole number below 2**53, got {value!r}")
             object.__setattr__(self, key, int(value))
+        if self.pilot_symbols == 0 and self.pilot_time_spacing >= 1:  # the lattice: one pilot symbol per D_t
+            object.__setattr__(self, "pilot_symbols", 1)
+            object.__setattr__(self, "pilot_period", self.pilot_time_spacing)
         if self.sample_rate_hz is None and _is_real(self.subcarrier_spacing_hz):
             object.__setattr__(self, "sample_rate_hz", self.fft_size * float(self.subcarrier_spacing_hz))
         for key in _FLOAT_FIELDS:
@@ -315,9 +357,13 @@ class Design(_Derived):
         return (
             f"{label}{engineering(self.subcarrier_spacing_hz, 'Hz', 6)} x {self.fft_size}, "
             f"CP {self.cp_samples} ({engineering(self.cp_s, 's', 3)}){extra}, "
-            f"{self.used_subcarriers} used{reserved}, "
-            f"pilots {self.pilot_freq_spacing}x{self.pilot_time_spacing}/{self.pilot_shift}"
+            f"{self.used_subcarriers} used{reserved}, {pilot_label(self)}"
         )
+
+    @property
+    def is_lattice(self) -> bool:
+        """True when the pilots form the lattice ``i (D_f, 0) + j (shift, D_t)`` of a stream."""
+        return self.pilot_scope == "stream" and self.pilot_symbols == 1 and self.pilot_period == self.pilot_time_spacing
 
     def to_json(self) -> dict:
         """The design as a JSON-ready dict of SI values whose keys carry their unit.
@@ -340,9 +386,14 @@ class Design(_Derived):
             "used_subcarriers": self.used_subcarriers,
             "symbols_per_slot": self.symbols_per_slot,
             "pilot": {
+                "scope": self.pilot_scope,
                 "freq_spacing": self.pilot_freq_spacing,
                 "time_spacing": self.pilot_time_spacing,
                 "shift": self.pilot_shift,
+                "symbols": list(arrangement.symbols_of(self.pilot_symbols)),
+                "period": self.pilot_period,
+                "boost_db": self.pilot_boost_db,
+                "data_shared": self.pilot_data_shared,
             },
             "reserved_subcarriers": self.reserved_subcarriers,
             "cp_extra_samples": self.cp_extra_samples,
@@ -351,8 +402,49 @@ class Design(_Derived):
         }
 
 
+def pilot_label(design) -> str:
+    """A short label of a design's pilots, e.g. ``pilots 6x4/3`` (a lattice) or ``slot pilots 2,11/14, comb 2``."""
+    if design.pilot_scope == "differential":
+        return "differential (no pilots)"
+    if design.is_lattice:
+        text = f"pilots {design.pilot_freq_spacing}x{design.pilot_time_spacing}/{design.pilot_shift}"
+    else:
+        symbols = ",".join(str(b) for b in arrangement.symbols_of(design.pilot_symbols))
+        shift = f" shift {design.pilot_shift}" if design.pilot_shift else ""
+        text = f"{design.pilot_scope} pilots {symbols}/{design.pilot_period}, comb {design.pilot_freq_spacing}{shift}"
+    if design.pilot_boost_db:
+        text += f" {design.pilot_boost_db:+.3g} dB"
+    return text
+
+
 def _is_real(value) -> bool:
     return isinstance(value, numbers.Real) and not isinstance(value, bool)
+
+
+def _pattern_problems(v, need, slot_ok) -> bool:
+    """Check the pilot pattern (mask, period, scope) against the time spacing and the slot; True if sound."""
+    mask, period = v["pilot_symbols"], v["pilot_period"]
+    if not need(period >= 1, "pilot_period", f"must be at least 1 symbol, got {period}"):
+        return False
+    if not need(0 < mask < 1 << min(period, arrangement.MAX_PATTERN_BITS), "pilot_symbols",
+                f"expected pilot-bearing symbols within the period: 0 .. {min(period, arrangement.MAX_PATTERN_BITS) - 1}"):
+        return False
+    gap = int(arrangement.max_gap(mask, period))
+    ok = need(v["pilot_time_spacing"] == gap, "pilot_time_spacing",
+              f"must be the largest gap between pilot-bearing symbols of the pattern, {gap}; "
+              f"got {v['pilot_time_spacing']}")
+    if slot_ok and v["pilot_scope"] == "slot":
+        ok &= need(period == v["symbols_per_slot"], "pilot_period",
+                   f"slot pilots repeat with the slot: the period must be symbols_per_slot = {v['symbols_per_slot']}, "
+                   f"got {period}")
+    if slot_ok and v["pilot_scope"] == "packet":
+        ok &= need(period <= v["symbols_per_slot"], "pilot_period",
+                   f"packet training repeats within the packet: at most symbols_per_slot = {v['symbols_per_slot']}, "
+                   f"got {period}")
+    boost = v["pilot_boost_db"]
+    ok &= need(math.isfinite(boost) and -20 <= boost <= 20, "pilot_boost_db",
+               f"expected a pilot power boost between -20 and 20 dB, got {boost!r}")
+    return ok
 
 
 def design_problems(values: Mapping[str, Any]) -> list[tuple[str, str]]:
@@ -394,7 +486,8 @@ def design_problems(values: Mapping[str, Any]) -> list[tuple[str, str]]:
     shift_ok = need(0 <= v["pilot_shift"] < v["pilot_freq_spacing"] or not df_ok, "pilot_shift",
                     f"must be at least 0 and less than the pilot frequency spacing "
                     f"({v['pilot_freq_spacing']}), got {v['pilot_shift']}")
-    need(v["symbols_per_slot"] >= 1, "symbols_per_slot", f"must be at least 1, got {v['symbols_per_slot']}")
+    slot_ok = need(v["symbols_per_slot"] >= 1, "symbols_per_slot", f"must be at least 1, got {v['symbols_per_slot']}")
+    pattern_ok = dt_ok and _pattern_problems(v, need, slot_ok)
     fs = v["sample_rate_hz"]
     fs_ok = need(math.isfinite(fs) and fs > 0, "sample_rate_hz", f"must be a positive frequency, got {fs!r} Hz")
     if fs_ok and spacing_ok and fft_ok:
@@ -408,8 +501,10 @@ def design_problems(values: Mapping[str, Any]) -> list[tuple[str, str]]:
         )
     reserved = v["reserved_subcarriers"]
     if need(math.isfinite(reserved) and reserved >= 0, "reserved_subcarriers",
-            f"must be a number of subcarriers >= 0, got {reserved!r}") and used_ok and df_ok and dt_ok and shift_ok:
-        data = non_pilot_subcarriers(v["used_subcarriers"], v["pilot_freq_spacing"], v["pilot_time_spacing"]) - reserved
+            f"must be a number of subcarriers >= 0, got {reserved!r}") and used_ok and df_ok and pattern_ok and shift_ok:
+        fraction = arrangement.pilot_fraction(v["pilot_symbols"], v["pilot_period"], v["pilot_freq_spacing"],
+                                              v["pilot_data_shared"])
+        data = non_pilot_subcarriers(v["used_subcarriers"], float(fraction)) - reserved
         need(data > 0, "reserved_subcarriers",
              f"pilots and {reserved:g} reserved subcarriers leave no data subcarriers "
              f"out of {v['used_subcarriers']} used")
@@ -463,10 +558,24 @@ class DesignArrays(_Derived):
     cp_extra_samples: Any = 0
     cp_extra_period_s: Any = 0.0
     source: Any = ""
+    pilot_scope: Any = "stream"
+    pilot_symbols: Any = 0
+    pilot_period: Any = 0
+    pilot_boost_db: Any = 0.0
+    pilot_data_shared: Any = True
 
     def __post_init__(self):
         for key in _COUNT_FIELDS:
             object.__setattr__(self, key, np.asarray(getattr(self, key), dtype=np.int64))
+        lattice = self.pilot_symbols == 0  # one pilot-bearing symbol every D_t
+        if np.any(lattice):
+            object.__setattr__(self, "pilot_symbols", np.where(lattice, 1, self.pilot_symbols))
+            object.__setattr__(self, "pilot_period", np.where(lattice, self.pilot_time_spacing, self.pilot_period))
+        object.__setattr__(self, "pilot_data_shared", np.asarray(self.pilot_data_shared, dtype=bool))
+        scope = np.asarray(self.pilot_scope)
+        if scope.dtype.kind in "US":
+            scope = np.vectorize(arrangement.SCOPE_CODE.__getitem__, otypes=[np.int64])(scope)
+        object.__setattr__(self, "pilot_scope", np.asarray(scope, dtype=np.int64))
         if self.sample_rate_hz is None:
             object.__setattr__(self, "sample_rate_hz", self.fft_size * np.asarray(self.subcarrier_spacing_hz, float))
         for key in _FLOAT_FIELDS:
@@ -480,13 +589,15 @@ class DesignArrays(_Derived):
     @property
     def shape(self) -> tuple[int, ...]:
         """Broadcast shape of all numeric fields."""
-        return np.broadcast_shapes(*(getattr(self, key).shape for key in _COUNT_FIELDS + _FLOAT_FIELDS))
+        return np.broadcast_shapes(*(getattr(self, key).shape for key in _COUNT_FIELDS + _FLOAT_FIELDS),
+                                   self.pilot_scope.shape, self.pilot_data_shared.shape)
 
     @classmethod
     def from_designs(cls, designs: Sequence[Design]) -> "DesignArrays":
         """Stack a sequence of :class:`Design` into 1-D arrays, in order."""
         designs = list(designs)
         columns = {f.name: [getattr(d, f.name) for d in designs] for f in fields(Design)}
+        columns["pilot_scope"] = [arrangement.SCOPE_CODE[d.pilot_scope] for d in designs]
         return cls(**columns)
 
     def design(self, index) -> Design:
@@ -496,6 +607,7 @@ class DesignArrays(_Derived):
         for f in fields(Design):
             value = np.broadcast_to(getattr(self, f.name), shape)[index]
             values[f.name] = value.item() if isinstance(value, np.generic) else value
+        values["pilot_scope"] = arrangement.SCOPES[values["pilot_scope"]]
         return Design(**values)
 
 
@@ -507,6 +619,7 @@ def designs_to_arrays(designs: Sequence[Design]) -> DesignArrays:
 # --- reading design files ---------------------------------------------------
 
 _TEXT, _COUNT, _NUMBER, _TABLE = "text", "count", "number", "table"
+_SCOPE, _COUNTS, _FLAG, _DB = "scope", "counts", "flag", "db"
 
 #: Mapping key -> (kind, required). Kinds other than the four above are
 #: dimensions for :func:`numerology.units.parse_quantity`.
@@ -526,9 +639,14 @@ _KEYS = {
     "source": (_TEXT, False),
 }
 _PILOT_KEYS = {
+    "scope": (_SCOPE, False),
     "freq_spacing": (_COUNT, True),
-    "time_spacing": (_COUNT, True),
+    "time_spacing": (_COUNT, False),
+    "symbols": (_COUNTS, False),
+    "period": (_COUNT, False),
     "shift": (_COUNT, False),
+    "boost": (_DB, False),
+    "data_shared": (_FLAG, False),
 }
 _EXAMPLES = {
     "name": '"my design"',
@@ -546,6 +664,11 @@ _EXAMPLES = {
     "freq_spacing": "6",
     "time_spacing": "4",
     "shift": "3",
+    "scope": '"stream"',
+    "symbols": "[0, 4]",
+    "period": "7",
+    "boost": '"0 dB"',
+    "data_shared": "true",
 }
 #: Design field -> key path in a design mapping (``cp_samples`` may come from ``cp``).
 _FIELD_KEYS = {
@@ -563,6 +686,11 @@ _FIELD_KEYS = {
     "cp_extra_samples": "cp_extra_samples",
     "cp_extra_period_s": "cp_extra_period",
     "source": "source",
+    "pilot_scope": "pilot.scope",
+    "pilot_symbols": "pilot.symbols",
+    "pilot_period": "pilot.period",
+    "pilot_boost_db": "pilot.boost",
+    "pilot_data_shared": "pilot.data_shared",
 }
 _SUFFIXES = ("_hz", "_s")
 
@@ -593,6 +721,26 @@ def _read_value(value, kind: str, key: str, place: str, problems: list):
         if _is_real(value):
             return float(value)
         problems.append((key, f"expected a number such as {example}, got {value!r}"))
+    elif kind == _SCOPE:
+        if value in arrangement.SCOPES:
+            return value
+        problems.append((key, f"expected one of {', '.join(repr(s) for s in arrangement.SCOPES)}, got {value!r}"))
+    elif kind == _COUNTS:
+        if (isinstance(value, list) and value and len(value) <= arrangement.MAX_PATTERN_BITS
+                and all(isinstance(v, int) and not isinstance(v, bool) and 0 <= v < arrangement.MAX_PATTERN_BITS
+                        for v in value) and len(set(value)) == len(value)):
+            return value
+        problems.append((key, f"expected a list of distinct symbol indices from 0 to "
+                              f"{arrangement.MAX_PATTERN_BITS - 1} such as {example}, got {value!r}"))
+    elif kind == _FLAG:
+        if isinstance(value, bool):
+            return value
+        problems.append((key, f"expected true or false, got {value!r}"))
+    elif kind == _DB:
+        try:
+            return parse_db(value, f"{place}{key}")
+        except InputError as error:
+            problems.append((key, error.message))
     else:
         try:
             return parse_quantity(value, kind, f"{place}{key}")
@@ -650,6 +798,31 @@ def _cp_from_duration(cp_s: float, sample_rate_hz: float) -> tuple[int | None, s
         f"{engineering(cp_s, 's', 6)} is {samples:.4f} samples at {engineering(sample_rate_hz, 'Hz', 8)}; "
         f"the cyclic prefix must be whole samples: use {options}"
     )
+
+
+def _pattern_from_keys(pilot: Mapping, slot: int) -> dict:
+    """Design fields of the pilot pattern from the keys of a ``[pilot]`` table (see the module docstring).
+
+    ``symbols`` (with ``period``, default the slot) gives the pattern and
+    ``time_spacing`` defaults to its largest gap; ``time_spacing`` alone is a
+    lattice for a stream, and every ``time_spacing``-th symbol of the slot
+    (from symbol 0) for slot and packet pilots.
+    """
+    scope = pilot.get("scope", "stream")
+    if "symbols" in pilot:
+        period = pilot.get("period", slot)
+        mask = arrangement.mask_from_symbols(pilot["symbols"])
+        spacing = pilot.get("time_spacing", int(arrangement.max_gap(mask, period)) if 0 < mask < 1 << period else 1)
+    elif scope in ("slot", "packet") and pilot["time_spacing"] >= 1:
+        spacing = pilot["time_spacing"]
+        period = pilot.get("period", slot)
+        mask = arrangement.mask_from_symbols(range(0, min(period, arrangement.MAX_PATTERN_BITS), spacing))
+    else:
+        spacing = pilot["time_spacing"]
+        period = pilot.get("period", spacing)
+        mask = 1
+    return {"pilot_scope": scope, "pilot_time_spacing": spacing, "pilot_symbols": mask, "pilot_period": period,
+            "pilot_boost_db": pilot.get("boost", 0.0), "pilot_data_shared": pilot.get("data_shared", True)}
 
 
 def design_from_mapping(
@@ -711,7 +884,11 @@ def design_from_mapping(
         else:
             values["cp_samples"] = samples
     pilot = values.get("pilot", {})
+    if "pilot" in values and "time_spacing" not in pilot and "symbols" not in pilot:
+        problems.append(("pilot.time_spacing", f"missing; add time_spacing = {_EXAMPLES['time_spacing']} "
+                                               f"or symbols = {_EXAMPLES['symbols']}"))
     if not problems:
+        pattern = _pattern_from_keys(pilot, values["symbols_per_slot"])
         fields_ = {
             "name": values.get("name", default_name),
             "subcarrier_spacing_hz": values["subcarrier_spacing"],
@@ -719,8 +896,8 @@ def design_from_mapping(
             "cp_samples": values["cp_samples"],
             "used_subcarriers": values["used_subcarriers"],
             "pilot_freq_spacing": pilot["freq_spacing"],
-            "pilot_time_spacing": pilot["time_spacing"],
             "pilot_shift": pilot.get("shift", 0),
+            **pattern,
             "symbols_per_slot": values["symbols_per_slot"],
             "sample_rate_hz": values.get("sample_rate", values["fft_size"] * values["subcarrier_spacing"]),
             "reserved_subcarriers": values.get("reserved_subcarriers", 0.0),

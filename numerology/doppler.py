@@ -27,8 +27,12 @@ Spectrum models (names in :data:`SPECTRA`). ``K`` is the linear Rician factor,
     The ``rician`` spectrum after the receiver has removed the bulk Doppler
     shift: shifted by minus its centroid ``mu = P_los f_D``, so
     ``R = exp(-j 2 pi mu tau) R_rician``. Centroid 0, same spread and same
-    ``|R|`` (hence the same coherence time) as ``rician``. ``K = 0`` gives
+    ``|R|`` as ``rician``; the line of sight now turns at ``f_D / (K + 1)``,
+    so ``Re R`` (hence the coherence time) differs. ``K = 0`` gives
     ``classical``.
+
+K is the whole channel's: line-of-sight power over all scattered power
+(``numerology.environment`` places the line of sight at the first arrival).
 
 References
 ----------
@@ -67,6 +71,7 @@ __all__ = [
     "doppler_centroid_hz",
     "doppler_spread_hz",
     "coherence_time_s",
+    "COHERENCE_DEFINITION",
     "coherence_time_rules_of_thumb",
     "doppler_ici",
     "doppler_ici_small_argument",
@@ -305,39 +310,54 @@ def doppler_spread_hz(max_doppler_hz, spectrum, k_factor=0.0):
     return _result(f_d * np.sqrt((1.0 - p_los) * (p_los + 0.5)))  # K = 0: f_D / sqrt(2)
 
 
+def _crossing_limit_x(spectrum: str, p_los: np.ndarray) -> np.ndarray:
+    """A normalised lag ``x = f_D tau`` by which ``Re R`` has surely fallen below any level in (0, 1).
+
+    classical: the first zero of J0; flat: sinc's first zero (x = 1/2); rician:
+    x = 1/2, where the line of sight's ``cos`` is -1 and ``J0(pi) < 0``;
+    tracked: the line of sight turns at ``f_D / (K + 1)`` after the centroid
+    is removed, so its ``cos`` reaches -1 at ``x = (K + 1) / 2`` (``Re R`` is
+    then below ``-P_los + P_dif``, negative for K > 0; for K = 0 tracked is
+    classical).
+    """
+    if spectrum == "classical":
+        return np.full(p_los.shape, _J0_FIRST_ZERO_X)
+    if spectrum in ("flat", "rician"):
+        return np.full(p_los.shape, 0.5)
+    k_plus_1 = 1.0 / np.maximum(1.0 - p_los, 1e-300)
+    return np.where(p_los > 0, np.maximum(0.5 * k_plus_1, _J0_FIRST_ZERO_X), _J0_FIRST_ZERO_X)
+
+
 def _first_crossing_x(spectrum: str, p_los: np.ndarray, rho: np.ndarray) -> np.ndarray:
-    """First ``x = f_D tau`` with ``|R(x)| = rho``, per (p_los, rho) pair (1-D arrays); inf if none."""
-    p_dif = 1.0 - p_los
-    if spectrum == "flat":
-        x_lim = np.full_like(rho, 0.5)  # sinc(2x) decreases to its first zero at x = 1/2
-    else:
-        # At the zeros of J0, |R| = P_los: with P_los <= rho the level is reached by the first zero.
-        # Otherwise |J0(z)| <= sqrt(2/(pi z)) (checked in the tests) gives
-        # |R| >= P_los - P_dif/(pi sqrt(x)) > rho beyond x = (P_dif / (pi (P_los - rho)))^2.
-        gap = np.where(p_los > rho, p_los - rho, 1.0)
-        bound = np.minimum((p_dif / (np.pi * gap)) ** 2, _SEARCH_CAP_X)
-        x_lim = np.where(p_los > rho, bound, _J0_FIRST_ZERO_X)
+    """First ``x = f_D tau`` with ``Re R(x) = rho``, per (p_los, rho) pair (1-D arrays).
+
+    A scan up to the limit of :func:`_crossing_limit_x` (step 1/512 up to
+    x = 64, then 8192 equal steps to the limit: a strong tracked line of
+    sight turns slowly), then bisection to about 1e-16 relative.
+    """
+    x_lim = _crossing_limit_x(spectrum, p_los)
     lo = np.full_like(rho, np.nan)
     hi = np.full_like(rho, np.nan)
+    fine_top = np.minimum(x_lim, _SEARCH_CAP_X)
     start = 0
     while True:
-        todo = np.isnan(hi) & (x_lim > start * _SEARCH_STEP_X)
+        todo = np.isnan(hi) & (fine_top > start * _SEARCH_STEP_X)
         if not todo.any():
             break
         grid = np.arange(start, start + _SEARCH_BLOCK + 1) * _SEARCH_STEP_X
-        x = np.minimum(grid[None, :], x_lim[todo, None])  # the limit itself is always tested
-        below = np.abs(_autocorrelation_x(x, spectrum, p_los[todo, None])) <= rho[todo, None]
-        hit = below.any(axis=1)
-        first = np.argmax(below, axis=1)  # > 0: |R| > rho at the block start (R(0) = 1 or checked before)
-        rows = np.flatnonzero(todo)[hit]
-        hi[rows] = x[hit, first[hit]]
-        lo[rows] = x[hit, first[hit] - 1]
+        x = np.minimum(grid[None, :], fine_top[todo, None])  # the limit itself is always tested
+        _bracket(x, spectrum, p_los, rho, todo, lo, hi)
         start += _SEARCH_BLOCK
+    coarse = np.isnan(hi) & (x_lim > _SEARCH_CAP_X)
+    if coarse.any():  # beyond x = 64: equal steps to the limit
+        steps = np.linspace(0.0, 1.0, 8193)[None, :]
+        x = _SEARCH_CAP_X + steps * (x_lim[coarse, None] - _SEARCH_CAP_X)
+        _bracket(x, spectrum, p_los, rho, coarse, lo, hi)
     found = ~np.isnan(hi)
     lo_f, hi_f, p_f, r_f = lo[found], hi[found], p_los[found], rho[found]
-    for _ in range(64):  # bracket 1/512 wide -> 2^-73 after 64 halvings
+    for _ in range(80):
         mid = 0.5 * (lo_f + hi_f)
-        below = np.abs(_autocorrelation_x(mid, spectrum, p_f)) <= r_f
+        below = _autocorrelation_x(mid, spectrum, p_f).real <= r_f
         hi_f = np.where(below, mid, hi_f)
         lo_f = np.where(below, lo_f, mid)
     out = np.full_like(rho, np.inf)
@@ -345,19 +365,30 @@ def _first_crossing_x(spectrum: str, p_los: np.ndarray, rho: np.ndarray) -> np.n
     return out
 
 
-def coherence_time_s(max_doppler_hz, spectrum="classical", k_factor=0.0, correlation=0.5):
-    """Coherence time: the first lag where ``|R(tau)|`` falls to ``correlation``.
+def _bracket(x, spectrum, p_los, rho, rows_mask, lo, hi):
+    """Record, for the rows of ``rows_mask``, the first grid interval of ``x`` where ``Re R`` falls to rho."""
+    below = _autocorrelation_x(x, spectrum, p_los[rows_mask, None]).real <= rho[rows_mask, None]
+    hit = below.any(axis=1)
+    first = np.argmax(below, axis=1)  # > 0: Re R > rho at the block start (R(0) = 1 or checked before)
+    rows = np.flatnonzero(rows_mask)[hit]
+    hi[rows] = x[hit, first[hit]]
+    lo[rows] = x[hit, np.maximum(first[hit] - 1, 0)]
 
-    The root is found on ``x = f_D tau`` (it depends only on the spectrum, K and
-    the level): a scan with step 1/512 up to a limit where a crossing is
-    guaranteed (or excluded), then bisection to about 1e-16 in ``x``. Returns
-    ``inf`` where ``|R|`` never falls to the level: ``f_D = 0``, and a strong
-    line of sight (rician/tracked with ``P_los - P_dif >= correlation``, or
-    more generally when ``|R|`` stays above the level; crossings later than
-    64 Doppler periods, ``x > 64``, are not searched and also give ``inf``).
-    Only a dip that goes below the level by less than about ``5e-5 / rho`` in
-    ``|R|`` within one scan step could be missed (curvature bound on ``|R|^2``).
-    ``tracked`` has the same ``|R|`` as ``rician``.
+
+def coherence_time_s(max_doppler_hz, spectrum="classical", k_factor=0.0, correlation=0.5):
+    """Coherence time: the first lag where the real part of ``R(tau)`` falls to ``correlation``.
+
+    ``Re R(tau)`` is what holding a channel value for ``tau`` costs:
+    ``E|h(t + tau) - h(t)|^2 = 2 (1 - Re R(tau))`` (unit power). For the
+    classical and flat spectra R is real and this is the usual definition
+    (``|R| = rho``); with a line of sight it stays continuous in K and finite
+    whenever the channel varies: an untracked line of sight (``rician``)
+    turns at f_D and brings ``Re R`` down within half a Doppler period, and
+    after tracking (``tracked``) it turns at ``f_D / (K + 1)``, so a strong
+    line of sight gives a long coherence time, not an unbounded one. The root
+    depends only on the spectrum, K and the level: a scan, then bisection to
+    about 1e-16 in ``x = f_D tau`` (see ``_first_crossing_x``). ``f_D = 0``
+    gives ``inf``.
 
     Parameters
     ----------
@@ -384,6 +415,8 @@ def coherence_time_s(max_doppler_hz, spectrum="classical", k_factor=0.0, correla
     --------
     >>> round(coherence_time_s(100.0) * 100.0, 4)
     0.2421
+    >>> round(coherence_time_s(100.0, "rician", 1e6) * 100.0, 4)  # a pure line at f_D: cos = 0.5 at 1/6
+    0.1667
     """
     spectrum = _spectrum(spectrum)
     f_d = _doppler(max_doppler_hz)
@@ -399,6 +432,11 @@ def coherence_time_s(max_doppler_hz, spectrum="classical", k_factor=0.0, correla
     with np.errstate(divide="ignore", over="ignore"):  # a denormal f_D gives an infinite coherence time
         t_c = np.where(f_d > 0, x_c / np.where(f_d > 0, f_d, 1.0), np.inf)
     return _result(t_c)
+
+
+#: How the coherence time is defined, in words (``numerology env`` and the design note).
+COHERENCE_DEFINITION = ("first lag where the real part of the Doppler autocorrelation falls to the level "
+                        "(what holding a channel value costs: E|h(t+tau) - h(t)|^2 = 2 (1 - Re R(tau)))")
 
 
 def coherence_time_rules_of_thumb(max_doppler_hz):

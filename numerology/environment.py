@@ -79,6 +79,7 @@ class Environment:
     max_excess_delay_s: float
     coherence_bandwidth_hz: float
     notes: tuple = ()
+    los_fraction: float = 0.0  # line-of-sight share of the channel power, at the first arrival
 
     @property
     def taps(self) -> tuple[np.ndarray, np.ndarray]:
@@ -94,10 +95,12 @@ class Environment:
             "doppler_hz": self.max_doppler_hz,
             "doppler_spectrum": self.doppler_spectrum,
             "k_factor_db": _db(self.k_factor),
+            "line_of_sight_fraction": self.los_fraction,
             "doppler_centroid_hz": self.doppler_centroid_hz,
             "doppler_spread_hz": self.doppler_spread_hz,
             "coherence_correlation": self.coherence_correlation,
             "coherence_time_s": _finite(self.coherence_time_s),
+            "coherence_time_definition": doppler.COHERENCE_DEFINITION,
             "profile": {
                 "name": self.profile_name,
                 "source": self.profile_source,
@@ -150,11 +153,12 @@ class EnvironmentBatch:
     max_excess_delay_s: np.ndarray
     coherence_bandwidth_hz: np.ndarray
     notes: tuple = ()
+    los_fraction: np.ndarray | float = 0.0
 
     #: Attributes that hold one value per site (the taps add their own last axis).
     PER_SITE = ("carrier_hz", "wavelength_m", "speed_mps", "max_doppler_hz", "doppler_centroid_hz",
                 "doppler_spread_hz", "coherence_time_s", "profile_name", "profile_source", "mean_excess_delay_s",
-                "rms_delay_spread_s", "max_excess_delay_s", "coherence_bandwidth_hz")
+                "rms_delay_spread_s", "max_excess_delay_s", "coherence_bandwidth_hz", "los_fraction", "k_factor")
 
     @property
     def shape(self) -> tuple[int, ...]:
@@ -169,7 +173,7 @@ class EnvironmentBatch:
         import dataclasses
 
         shape = (shape,) if isinstance(shape, int) else tuple(shape)
-        values = {key: np.reshape(getattr(self, key), shape) for key in self.PER_SITE}
+        values = {key: np.reshape(np.broadcast_to(getattr(self, key), self.shape), shape) for key in self.PER_SITE}
         taps = self.delays_s.shape[-1]
         values["delays_s"] = self.delays_s.reshape(shape + (taps,))
         values["powers"] = self.powers.reshape(shape + (taps,))
@@ -183,11 +187,11 @@ class EnvironmentBatch:
     def at(self, index) -> Environment:
         """The site at ``index`` as an :class:`Environment` (zero-power padding taps dropped)."""
         keep = self.powers[index] > 0
-        values = {key: getattr(self, key)[index] for key in self.PER_SITE}
+        values = {key: np.broadcast_to(getattr(self, key), self.shape)[index] for key in self.PER_SITE}
         values = {key: (value if isinstance(value, str) else float(value)) for key, value in values.items()}
         return Environment(
             propagation_speed_mps=self.propagation_speed_mps, doppler_spectrum=self.doppler_spectrum,
-            k_factor=self.k_factor, coherence_correlation=self.coherence_correlation,
+            coherence_correlation=self.coherence_correlation,
             delays_s=tuple(float(d) for d in self.delays_s[index][keep]),
             powers=tuple(float(p) for p in self.powers[index][keep]), notes=self.notes_at(index), **values)
 
@@ -241,14 +245,16 @@ def derive_environment(req: Requirements, *, speed_mps: float | None = None,
     else:
         f_d = env.max_doppler_hz
         speed_mps = f_d * c / doppler_carrier_hz
-    k_factor = 0.0 if env.k_factor_db is None else 10 ** (env.k_factor_db / 10)
     spectrum = env.doppler_spectrum
     rho = rules.coherence_correlation
 
-    delays, powers, name, source, more = _taps(req)
+    delays, powers, name, source, more, los_tap_k_db = _taps(req)
     notes.extend(more)
     delays = np.asarray(delays, dtype=float)
     powers = np.asarray(powers, dtype=float) / np.sum(powers)
+    powers, los, name, more = line_of_sight(delays, powers, name, spectrum, env.k_factor_db, los_tap_k_db)
+    notes.extend(more)
+    k_factor = los / (1.0 - los)
     if max_excess_delay_s is not None:
         current = float(delay.max_excess_delay_s(delays, powers, rules.delay_threshold_db))
         if current > 0:
@@ -281,7 +287,58 @@ def derive_environment(req: Requirements, *, speed_mps: float | None = None,
                                  else delay.max_excess_delay_s(delays, powers, rules.delay_threshold_db)),
         coherence_bandwidth_hz=float(delay.coherence_bandwidth_hz(delays, powers, rho)),
         notes=tuple(notes),
+        los_fraction=float(los),
     )
+
+
+def line_of_sight(delays, powers, name, spectrum, k_factor_db, los_tap_k_db):
+    """Place the line of sight: (total tap powers, its share of the power, profile name, notes).
+
+    K is the whole channel's: line-of-sight power over *all* scattered power.
+    A profile whose first tap carries a line of sight (TR 38.901 TDL-D/E:
+    ``los_tap_k_db`` is that tap's own K) gives K from its table; a given
+    ``k_factor`` then rescales that line of sight. Any other profile is the
+    scattered part, and a line of sight of share K/(K+1) is added at its first
+    arrival. The classical and flat spectra have no line of sight.
+    """
+    tap_k = np.nan if los_tap_k_db is None else los_tap_k_db
+    powers, los = line_of_sight_rows(np.asarray(delays, float)[None], np.asarray(powers, float)[None], spectrum,
+                                     k_factor_db, np.array([tap_k]))
+    powers, los = powers[0], float(los[0])
+    if los <= 0:
+        return powers, 0.0, name, []
+    k_db = 10 * math.log10(los / (1 - los))
+    if los_tap_k_db is not None and k_factor_db is None:
+        note = (f"line of sight from the profile's first tap (K = {los_tap_k_db:g} dB on that tap): "
+                f"K = {k_db:.3g} dB over all scattered power")
+        return powers, los, name, [note]
+    note = (f"line of sight at the first arrival with K = {k_db:.3g} dB over all scattered power "
+            f"({100 * los:.3g} % of the power); the profile's taps are the scattered part")
+    return powers, los, f"{name} + line of sight (K = {k_db:.3g} dB)", [note]
+
+
+def line_of_sight_rows(delays, powers, spectrum, k_factor_db, los_tap_k_db):
+    """:func:`line_of_sight` for many profiles: rows of taps (zero-power padding allowed), vectorised.
+
+    ``los_tap_k_db`` holds, per row, the K of a line-of-sight first tap in the
+    profile's own table, or NaN. Returns (total tap powers, line-of-sight share).
+    """
+    powers = np.array(powers, dtype=float)
+    powers /= powers.sum(axis=-1, keepdims=True)
+    rows = np.arange(powers.shape[0])
+    if spectrum not in ("rician", "tracked"):
+        return powers, np.zeros(rows.size)
+    first = np.argmin(np.where(powers > 0, delays, np.inf), axis=-1)
+    k1 = 10 ** (np.nan_to_num(np.asarray(los_tap_k_db, float), nan=-np.inf) / 10)
+    table_los = powers[rows, first] * k1 / (k1 + 1)  # 0 where the profile has no line-of-sight tap
+    if k_factor_db is None:
+        return powers, table_los
+    powers[rows, first] -= table_los  # the scattered part
+    k = 10 ** (k_factor_db / 10)
+    los = k / (k + 1)
+    powers *= (1 - los) / powers.sum(axis=-1, keepdims=True)
+    powers[rows, first] += los
+    return powers, np.full(rows.size, los)
 
 
 @lru_cache(maxsize=16)
@@ -324,25 +381,25 @@ def _taps(req: Requirements):
         if profile.los_k_factor_db is not None and req.environment.doppler_spectrum in ("classical", "flat"):
             notes.append(f"{profile.name} has a line-of-sight first tap (K = {profile.los_k_factor_db:g} dB); "
                          "set doppler_spectrum = \"rician\" or \"tracked\" to model it")
-        return profile.delays_s, profile.powers, profile.name, profile.source, notes
+        return profile.delays_s, profile.powers, profile.name, profile.source, notes, profile.los_k_factor_db
     tau_max = env.max_excess_delay_s
     if tau_max is None:
         if rms == 0:
-            return (0.0,), (1.0,), "single path (no delay spread)", "given", []
+            return (0.0,), (1.0,), "single path (no delay spread)", "given", [], None
         d, p = delay.exponential_profile(rms, floor_db=rules.delay_threshold_db)
         return d, p, f"exponential, rms {rms * 1e9:.4g} ns", "assumed from rms_delay_spread", [
             f"no profile given: an exponential profile with the given rms spread is assumed, "
-            f"truncated {rules.delay_threshold_db:g} dB below the first tap"]
+            f"truncated {rules.delay_threshold_db:g} dB below the first tap"], None
     if tau_max == 0:
-        return (0.0,), (1.0,), "single path (no delay spread)", "given", []
+        return (0.0,), (1.0,), "single path (no delay spread)", "given", [], None
     if rms is None:
         d, p = _two_ray(tau_max, None)
         return d, p, "two equal rays", "assumed from max_excess_delay", [
             "no profile given: two equal-power rays at 0 and the max excess delay are assumed "
-            "(the worst case for a given span)"]
+            "(the worst case for a given span)"], None
     d, p, shape = bounded_profile(tau_max, rms)
     return d, p, shape, "assumed from max_excess_delay and rms_delay_spread", [
-        f"no profile given: {shape} assumed, spanning the max excess delay with the given rms spread"]
+        f"no profile given: {shape} assumed, spanning the max excess delay with the given rms spread"], None
 
 
 #: Taps used to sample an assumed continuous profile.
@@ -433,7 +490,8 @@ def derivations(environment: Environment) -> list[Derivation]:
         Derivation("doppler_spread_hz", "rms Doppler spread", e.doppler_spread_hz, "Hz",
                    f"rms width of the {e.doppler_spectrum} spectrum", _spectrum_source(e.doppler_spectrum)),
         Derivation("coherence_time_s", "coherence time", e.coherence_time_s, "s",
-                   f"|R(T_c)| = {rho:g}, R = Doppler autocorrelation", _spectrum_source(e.doppler_spectrum)),
+                   f"Re R(T_c) = {rho:g}, R = Doppler autocorrelation: {doppler.COHERENCE_DEFINITION}",
+                   _spectrum_source(e.doppler_spectrum)),
         Derivation("mean_excess_delay_s", "mean excess delay", e.mean_excess_delay_s, "s",
                    "sum p_k tau_k / sum p_k", "Rappaport 2nd ed., eq. 5.35"),
         Derivation("rms_delay_spread_s", "rms delay spread", e.rms_delay_spread_s, "s",

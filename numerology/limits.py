@@ -24,7 +24,7 @@ from .requirements import Requirements
 
 GRID_POINTS = 25
 #: Points evaluated at once when narrowing the interval that holds the limit.
-REFINE_POINTS = 40
+REFINE_POINTS = 10
 RTOL = 1e-6
 
 
@@ -61,7 +61,7 @@ def _crossing(key, grid, worse_up):
     watched = [n for n, ok in zip(names, table[:, i] >= 0) if ok]  # rules that still pass at the benign end
     low, high = float(grid[i]), float(grid[i + 1])
     failing = [n for n in watched if margins_on_grid[n][i + 1] < 0]
-    for _ in range(12):
+    for _ in range(40):
         if abs(high - low) <= RTOL * max(abs(high), abs(low), 1e-300):
             break
         inside = np.linspace(low, high, REFINE_POINTS + 2)[1:-1]

@@ -19,8 +19,15 @@ Impairment terms, each relative to the useful signal power:
 * ``estimation``: mean-square error of the pilot-based channel estimate at
   the pilot SINR, for the estimator named in ``rules.estimator``.
 
-They add as independent noise-like powers (common practice for OFDM link
-budgets): SINR_eff = 1 / sum(terms).
+The noise and interference terms add as independent noise-like powers (common
+practice for OFDM link budgets), N + I = sum of the terms; with the
+estimation error E (a fraction of the channel power) the detector sees
+
+    SINR_eff = (1 - E) / (E + N + I)
+
+(the estimate h_hat = h - e with e uncorrelated with h_hat under LMMSE keeps
+1 - E of the channel power as useful signal; common practice). The reported
+estimation term is E / (1 - E), so that 1 / SINR_eff = E/(1-E) + (N + I)/(1 - E).
 
 ``evaluate`` also takes an :class:`~numerology.environment.EnvironmentBatch`
 (one environment per site of a sweep or point of a map) and broadcasts the
@@ -30,10 +37,12 @@ designs against its shape; ``req.radio.snr_db`` may then be a per-site array.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import lru_cache
 
 import numpy as np
 
-from . import delay, doppler, mcs, oscillator, pilots
+from . import arrangement, delay, doppler, estimation, mcs, oscillator, pilots
+from .arrangement import SCOPE_CODE, SCOPES
 from .design import DesignArrays
 from .environment import Environment
 from .grouping import distinct_rows
@@ -159,90 +168,136 @@ def oscillator_terms(req: Requirements, useful_symbol_s, subcarrier_spacing_hz):
 
 
 def estimation_floor(req: Requirements, pilot_sinr):
-    """A lower bound of the estimation error of any pilot lattice in any channel (for screening).
+    """A lower bound of the estimation error of any design in any channel (for screening): zero.
 
-    LMMSE from W noisy pilots: at best every pilot sees the wanted channel
-    itself, giving 1 / (1 + W SINR_p) (W = 16, the 4 x 4 window). Linear
-    interpolation: the noise alone costs sum(w^2) / SINR_p >= 1 / (3 SINR_p)
-    for three weights summing to one.
+    A full-band estimate from many pilots can be arbitrarily good, so the only
+    bound valid for every arrangement is 0; the SINR without estimation error
+    then bounds every design's SINR from above.
     """
-    if req.rules.estimator == "lmmse":
-        return 1.0 / (1.0 + 16.0 * pilot_sinr)
-    return 1.0 / (3.0 * pilot_sinr)
+    return np.zeros(np.shape(pilot_sinr))
+
+
+#: Structures (arrangement x numerology x channel) whose estimation weights are kept within a process.
+_WEIGHTS_CACHE: dict = {}
+_WEIGHTS_CACHE_SIZE = 20_000
 
 
 def estimation_error(designs: DesignArrays, environment: Environment, req: Requirements, pilot_sinr):
-    """Mean-square channel-estimation error of each design's pilot lattice (relative to channel power).
+    """Mean channel-estimation error of each design (a fraction of the channel power).
 
-    With an :class:`~numerology.environment.EnvironmentBatch` (taps on an extra
-    last axis) every site has its own frequency and time correlations. Each
-    distinct case (lattice, numerology, pilot SINR, channel) is solved once,
-    and each distinct correlation is tabulated once: a frequency correlation
-    per (power-delay profile, subcarrier spacing), a time correlation per
-    (maximum Doppler, symbol duration).
+    The receiver uses the pilots of the design's arrangement that its
+    allowance (``rules.estimation_lookahead``, ``rules.estimation_memory``)
+    makes available, with the estimator ``rules.estimator``
+    (``numerology.estimation``). Each distinct structure (arrangement,
+    numerology, channel) is decomposed once; the pilot SINR (times the
+    pilot boost) then enters as one noise level per design.
+
+    With an :class:`~numerology.environment.EnvironmentBatch` every site has
+    its own channel (taps on an extra last axis).
     """
     delays, powers = environment.taps
-    spectrum, k = environment.doppler_spectrum, environment.k_factor
     batch = np.ndim(delays) > 1
+    shape = np.broadcast_shapes(designs.shape, np.shape(pilot_sinr), np.shape(environment.max_doppler_hz))
     if batch:
-        profile, profile_site = distinct_rows(np.concatenate([delays, powers], axis=-1))
-        delays = delays.reshape(-1, delays.shape[-1])[profile_site]  # one row per distinct profile
-        powers = powers.reshape(-1, powers.shape[-1])[profile_site]
+        site_index = np.arange(int(np.prod(environment.shape))).reshape(environment.shape)
     else:
-        profile = 0
-        delays, powers = np.asarray(delays, float)[None, :], np.asarray(powers, float)[None, :]
-    columns = np.broadcast_arrays(designs.pilot_freq_spacing, designs.pilot_time_spacing, designs.pilot_shift,
-                                  designs.subcarrier_spacing_hz, designs.symbol_s, pilot_sinr, profile,
-                                  environment.max_doppler_hz)
-    shape = columns[0].shape
+        site_index = np.zeros(())
+    columns = np.broadcast_arrays(
+        designs.pilot_scope, designs.pilot_freq_spacing, designs.pilot_shift, designs.pilot_symbols,
+        designs.pilot_period, designs.symbols_per_slot, designs.pilot_data_shared, designs.subcarrier_spacing_hz,
+        designs.used_subcarriers, designs.symbol_s, site_index, np.broadcast_to(0.0, shape))
     table = np.ascontiguousarray(np.stack([np.asarray(c, dtype=float).ravel() for c in columns], axis=1))
-    unique, inverse = _unique_rows(table)  # one row per distinct case
-    lattice = unique[:, :3].astype(np.int64)
-    k_max, l_max = pilots.correlation_lags(*lattice.T, estimator=req.rules.estimator)
-    f_keys, f_row = _unique_rows(np.ascontiguousarray(unique[:, [3, 6]]))  # (spacing, profile)
-    site = f_keys[:, 1].astype(np.int64)
-    f_table = _frequency_correlation_rows(np.arange(k_max + 1) * f_keys[:, :1], delays[site], powers[site])
-    t_keys, t_row = _unique_rows(np.ascontiguousarray(unique[:, [4, 7]]))  # (symbol duration, Doppler)
-    t_table = doppler.doppler_autocorrelation(np.arange(l_max + 1) * t_keys[:, :1], t_keys[:, 1:], spectrum, k)
-    mse = pilots.estimation_mse_tabulated(*lattice.T, unique[:, 5], f_table, f_row, t_table, t_row,
-                                          estimator=req.rules.estimator)
-    return np.asarray(mse)[inverse].reshape(shape)
+    unique, inverse = _unique_rows(table)
+    boost = np.broadcast_to(10 ** (np.asarray(designs.pilot_boost_db, float) / 10), shape).ravel()
+    noise = 1.0 / (np.broadcast_to(pilot_sinr, shape).ravel() * boost)
+    scope_of = np.broadcast_to(designs.pilot_scope, shape).ravel()
+    noise = np.where(scope_of == SCOPE_CODE["differential"], 1.0 / np.broadcast_to(pilot_sinr, shape).ravel(), noise)
+    out = np.empty(noise.size)
+    flat_delays = np.reshape(delays, (-1, np.shape(delays)[-1])) if batch else np.asarray(delays, float)[None, :]
+    flat_powers = np.reshape(powers, (-1, np.shape(powers)[-1])) if batch else np.asarray(powers, float)[None, :]
+    doppler_hz = np.broadcast_to(environment.max_doppler_hz, environment.shape if batch else ()).ravel()
+    los_all = np.broadcast_to(environment.los_fraction, environment.shape if batch else ()).ravel()
+    rules = req.rules
+    weights = _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, environment.doppler_spectrum,
+                                 rules)
+    order = np.argsort(inverse, kind="stable")
+    bounds = np.searchsorted(inverse[order], np.arange(unique.shape[0] + 1))
+    for row in range(unique.shape[0]):
+        members = order[bounds[row]:bounds[row + 1]]
+        out[members] = weights[row].mse(noise[members])
+    return out.reshape(shape)
+
+
+def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, spectrum, rules) -> list:
+    """Estimation weights of each distinct structure (a row of ``unique``), from the cache or computed.
+
+    Rows that share everything but the symbol duration and the Doppler (a pattern, a numerology's band, a
+    channel) are computed together.
+    """
+    out = [None] * unique.shape[0]
+    todo: dict = {}
+    for row, key in enumerate(unique):
+        scope, d_f, shift, mask, period, slot, shared, spacing, used, symbol_s, site, _ = key.tolist()
+        site = int(site)
+        keep = flat_powers[site] > 0
+        channel = (tuple(flat_delays[site][keep]), tuple(flat_powers[site][keep]), float(los_all[site]))
+        pattern = (int(scope), int(d_f), int(shift), int(mask), int(period), int(slot), bool(shared))
+        cache_key = (pattern, spacing, int(used), symbol_s, channel, float(doppler_hz[site]), spectrum,
+                     rules.estimator, rules.estimation_lookahead, rules.estimation_memory)
+        found = _WEIGHTS_CACHE.get(cache_key)
+        if found is not None:
+            out[row] = found
+            continue
+        todo.setdefault((pattern, spacing, int(used), channel), []).append((row, symbol_s, float(doppler_hz[site]),
+                                                                           cache_key))
+    for (pattern, spacing, used, channel), rows in todo.items():
+        scope, d_f, shift, mask, period, slot, shared = pattern
+        symbol_s = np.array([r[1] for r in rows])
+        doppler = np.array([r[2] for r in rows])
+        los = channel[2]
+        if SCOPES[scope] == "differential":
+            kinds = np.array([estimation.SCATTERED, estimation.LINE_OF_SIGHT])
+            rho = estimation.time_correlation(kinds, symbol_s, doppler, spectrum, los)
+            r = (1 - los) * rho[:, 0] + los * rho[:, 1]  # the whole channel's autocorrelation at one symbol
+            found = [estimation.SpectralWeights("differential", np.zeros(0), np.zeros(0), 1.0, bias=abs(v) ** 2)
+                     for v in r]
+        else:
+            plan = _schedule(SCOPES[scope], mask, period, shift, d_f, slot, shared, rules.estimation_lookahead,
+                             rules.estimation_memory)
+            found = estimation.spectral_weights(plan, _band(channel, spacing, used), symbol_s, doppler, spectrum,
+                                                los, rules.estimator)
+        if len(_WEIGHTS_CACHE) + len(found) > _WEIGHTS_CACHE_SIZE:
+            _WEIGHTS_CACHE.clear()
+        for (row, _, _, cache_key), weights in zip(rows, found):
+            out[row] = _WEIGHTS_CACHE[cache_key] = weights
+    return out
+
+
+#: Bands (channel x spacing x used subcarriers) kept within a process: see ``estimation.Band``.
+_BANDS: dict = {}
+
+
+def _band(channel, spacing, used) -> estimation.Band:
+    key = (channel, spacing, used)
+    found = _BANDS.get(key)
+    if found is None:
+        if len(_BANDS) >= _WEIGHTS_CACHE_SIZE:
+            _BANDS.clear()
+        delays, powers, los = channel
+        found = _BANDS[key] = estimation.Band(np.asarray(delays), np.asarray(powers), los, spacing, used)
+    return found
+
+
+@lru_cache(maxsize=4096)
+def _schedule(scope, mask, period, shift, d_f, slot, shared, lookahead, memory):
+    return arrangement.schedule(scope, mask, period, shift, d_f, slot, shared, lookahead, memory,
+                                estimation.MAX_PILOT_SYMBOLS)
 
 
 def _unique_rows(table):
     """The distinct rows of a 2-D float table and, per row, the index of its distinct row."""
     index, first = distinct_rows(table)
     return table[first], index
-
-
-def _frequency_correlation_rows(lag_hz, delays_s, powers):
-    """delay.frequency_correlation with one profile per row: lags (n, L), taps (n, K) -> (n, L).
-
-    The pilot estimator asks for whole multiples of a unit lag (``l * df``):
-    then R(l df) = sum_k p_k w_k^l with w_k = exp(-j 2 pi df tau_k), built up
-    by one multiplication per lag (round-off grows as l times the machine
-    epsilon, about 1e-14 at 50 lags). Other lags: cos and sin in row blocks.
-    """
-    lag_hz = np.asarray(lag_hz, dtype=float)
-    p = powers / powers.sum(axis=-1, keepdims=True)
-    n, width = lag_hz.shape
-    unit = lag_hz[:, 1:2] if width > 1 else np.zeros((n, 1))
-    if np.array_equal(lag_hz, np.arange(width) * unit):
-        out = np.empty((width, n), dtype=complex)
-        step = np.exp(-2j * np.pi * (unit * delays_s).T)  # w_k, taps first: (K, n)
-        term = p.T.astype(complex)
-        for lag in range(width):  # a loop over the few lags, vectorised over taps and rows
-            out[lag] = term.sum(axis=0)
-            term *= step
-        return out.T
-    out = np.empty(lag_hz.shape, dtype=complex)
-    block = max(1, (1 << 21) // max(1, width * delays_s.shape[1]))
-    for start in range(0, n, block):
-        rows = slice(start, start + block)
-        phase = (2.0 * np.pi) * lag_hz[rows, :, None] * delays_s[rows, None, :]
-        out.real[rows] = np.einsum("nlk,nk->nl", np.cos(phase), p[rows])  # R = sum_k p_k exp(-j 2 pi f tau_k)
-        out.imag[rows] = -np.einsum("nlk,nk->nl", np.sin(phase), p[rows])
-    return out
 
 
 _MASK_CACHE: dict = {}  # (offsets, levels) -> {useful symbol s: ICI}; the mask integral is costly
@@ -259,6 +314,17 @@ def _mask_ici(offsets, levels, useful_symbol_s):
         values = np.atleast_1d(oscillator.mask_phase_noise_ici(offsets, levels, np.array(missing)))
         known.update(zip(missing, values.tolist()))
     return np.array([known[t] for t in t_u.ravel().tolist()]).reshape(t_u.shape)
+
+
+def _doppler_ici(x, spectrum, k_factor):
+    """doppler.doppler_ici at normalised Doppler x = f_D T_u, once per distinct (x, K) (K may be per site)."""
+    x, k = np.broadcast_arrays(np.asarray(x, dtype=float), np.asarray(k_factor, dtype=float))
+    if k.ndim == 0 or np.all(k == k.flat[0]):
+        k0 = float(k.flat[0]) if k.size else 0.0
+        return _on_distinct(lambda u: doppler.doppler_ici(u, 1.0, spectrum, k0), x)
+    index, first = distinct_rows(np.stack([x.ravel(), k.ravel()], axis=1))
+    values = doppler.doppler_ici(x.ravel()[first], 1.0, spectrum, k.ravel()[first])
+    return np.asarray(values, dtype=float)[index].reshape(x.shape)
 
 
 def _on_distinct(function, x):
@@ -284,6 +350,7 @@ def namespace(designs: DesignArrays, environment: Environment, req: Requirements
         "N_slot": designs.symbols_per_slot.astype(float),
         "R_res": np.asarray(designs.reserved_subcarriers, dtype=float),
         "N_x": np.where(period > 0, designs.cp_extra_samples, 0).astype(float),
+        "rho_pil": np.asarray(designs.pilot_density, dtype=float),
         "P_x": np.where(period > 0, period, np.inf),
         "f_D": environment.max_doppler_hz,
         "tau_max": environment.max_excess_delay_s,
@@ -302,12 +369,23 @@ def namespace(designs: DesignArrays, environment: Environment, req: Requirements
         "R_goal": goals.throughput_bps,
         "L_max": np.inf if goals.max_latency_s is None else goals.max_latency_s,
         # functions of the rule language, bound to this environment
-        "doppler_ici": lambda x: _on_distinct(lambda u: doppler.doppler_ici(u, 1.0, spectrum, k), x),
+        "doppler_ici": lambda x: _doppler_ici(x, spectrum, k),
         "oscillator_ici": lambda df: np.add(*oscillator_terms(req, 1.0 / np.asarray(df, float), df)),
-        "alias_scale": pilots.aliasing_scale,
+        "alias_scale": _alias_scale_for(designs),
         "efficiency": efficiency_function(req),
         "clock_mismatch": clock_mismatch(req),
     }
+
+
+def _alias_scale_for(designs: DesignArrays):
+    """The lattice test, inapplicable (infinite) for differential designs, which interpolate no channel."""
+    differential = np.asarray(designs.pilot_scope) == SCOPE_CODE["differential"]
+
+    def alias_scale(*args):
+        scale = pilots.aliasing_scale(*args)
+        return np.where(differential, np.inf, scale) if differential.any() else scale
+
+    return alias_scale
 
 
 def evaluate(designs: DesignArrays, environment: Environment, req: Requirements, *, estimation: bool = True,
@@ -325,7 +403,7 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
         ``req.radio.snr_db`` may be an array broadcasting with the batch (a
         per-site SNR, as ``numerology.sweep`` passes it).
     estimation : bool
-        False replaces the channel-estimation error by its lower bound
+        False replaces the channel-estimation error by zero
         (``estimation_floor``): every SINR-dependent margin is then an upper
         bound (the solver's screening).
     overrides : dict, optional
@@ -363,12 +441,17 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
         "phase_noise": np.broadcast_to(_over_useful(pn), shape),
         "frequency_offset": np.broadcast_to(_over_useful(cfo), shape),
     }
-    pilot_sinr = 1.0 / sum(terms.values())  # pilots see the same noise and interference as data
+    impairments = sum(terms.values())  # noise and interference over the useful power
+    pilot_sinr = 1.0 / impairments  # pilots see the same noise and interference as data (boost: estimation)
     if estimation:
-        terms["estimation"] = np.broadcast_to(estimation_error(designs, environment, req, pilot_sinr), shape)
+        mse = np.broadcast_to(estimation_error(designs, environment, req, pilot_sinr), shape)
     else:
-        terms["estimation"] = np.broadcast_to(estimation_floor(req, pilot_sinr), shape)
-    sinr_eff = 1.0 / sum(terms.values())
+        mse = np.broadcast_to(estimation_floor(req, pilot_sinr), shape)
+    with np.errstate(divide="ignore"):
+        terms["estimation"] = np.where(mse < 1, mse / (1 - mse), np.inf)
+    # An LMMSE estimate h_hat = h - e with e uncorrelated with h_hat keeps 1 - MSE of the channel power as
+    # useful signal and adds the error as noise (unit channel power).
+    sinr_eff = np.maximum(1.0 - mse, 0.0) / (mse + impairments)
     ns["sinr_eff"] = sinr_eff
     ns = evaluate_derived(ns)  # now the rate, which needs the SINR
     applicable = applicable_rules(req)

@@ -5,19 +5,29 @@ The sample counts are the standards' own integers. What a standard does not
 fix (an FFT size for a given bandwidth, how an irregular pilot pattern maps
 onto a lattice) is an explicit modelling choice, stated beside the preset.
 
-Pilot lattices
---------------
-:class:`~numerology.design.Design` describes pilots as a lattice
-``i (D_f, 0) + j (shift, D_t)``. Real pilot patterns are not always lattices,
-so each preset states two things separately:
+Pilot arrangements
+------------------
+Each preset carries its standard's pilot arrangement
+(``numerology.arrangement``): the scope (what a receiver may use), the
+pilot-bearing symbols and the comb, as the standard places them:
 
-* the lattice used to judge channel sampling (delay and Doppler limits). Where
-  the spacing between pilot-bearing symbols is irregular, ``D_t`` is the mean
-  spacing rounded *up* (the conservative side for Doppler);
-* the true average number of data subcarriers per symbol. The difference
-  between the lattice's pilot count and the true non-data count goes into
-  ``reserved_subcarriers``, computed by :func:`_reserved_for`, so that
-  ``data_subcarriers_per_symbol`` equals the published data count.
+* LTE cell reference signals of antenna port 0 (a stream: cell-wide):
+  symbols 0 and 4 of each 7-symbol slot (0 and 3 of 6 with the extended
+  prefix), every 6th subcarrier, the second symbol shifted by 3;
+* NR DM-RS type 1 (per slot, precoded): front-loaded in symbol 2 with one
+  additional position (symbol 11 of 14; symbol 9 of 12 with the extended
+  prefix), every other subcarrier (one CDM group), no data beside them (two
+  CDM groups without data), 3 dB above the data;
+* 802.11a/p: two long training symbols at the start of each packet, held
+  over the packet (the 4 pilot tones of each data symbol only track phase);
+* DVB-T scattered pilots (a stream): every 12th carrier, moving by 3 each
+  symbol, boosted to 16/9 of the data power;
+* DAB: differential detection, a phase reference symbol per frame.
+
+The pilots' true average overhead (a second antenna port's reference
+signals, continual pilots, signalling carriers, the packet's other preamble
+fields) goes into ``reserved_subcarriers``, computed by :func:`_reserved_for`,
+so that ``data_subcarriers_per_symbol`` equals the published data count.
 
 References
 ----------
@@ -39,8 +49,10 @@ References
 from __future__ import annotations
 
 import difflib
+import math
 from dataclasses import dataclass
 
+from . import arrangement
 from .design import Design, non_pilot_subcarriers
 from .errors import InputError
 
@@ -49,9 +61,11 @@ from .errors import InputError
 #: data symbols (SERVICE 16 bits, tail 6 bits; IEEE 802.11-2016 17.3.5.4).
 WIFI_PACKET_DATA_SYMBOLS = 126
 
-#: 802.11a/g/p preamble (short + long training, 16 us at 20 MHz) plus SIGNAL
-#: (4 us) = 20 us = 5 symbol durations; at 10 MHz 40 us = 5 x 8 us.
-WIFI_PREAMBLE_SYMBOLS = 5
+#: 802.11a/g/p preamble: short training (2 symbol durations), long training (2: the channel estimate),
+#: then SIGNAL (1); 20 us at 20 MHz, 40 us at 10 MHz (IEEE 802.11-2016 17.3.3).
+WIFI_SHORT_TRAINING_SYMBOLS = 2
+WIFI_LONG_TRAINING_SYMBOLS = 2
+WIFI_SIGNAL_SYMBOLS = 1
 
 
 @dataclass(frozen=True)
@@ -79,15 +93,16 @@ class Preset:
         return str(self.design)
 
 
-def _reserved_for(used_subcarriers, pilot_freq_spacing, pilot_time_spacing, data_subcarriers):
+def _reserved_for(used_subcarriers, symbols, period, freq_spacing, data_shared, data_subcarriers):
     """Reserved subcarriers per symbol that make the design carry ``data_subcarriers`` on average.
 
-    ``reserved = used (1 - 1/(D_f D_t)) - data``, through the same function as
-    :attr:`Design.data_subcarriers_per_symbol`; the subtraction there then
-    gives back ``data_subcarriers`` exactly (Sterbenz: the operands are within
-    a factor of two).
+    ``reserved = used (1 - pilot fraction) - data``, through the same
+    function as :attr:`Design.data_subcarriers_per_symbol`; the subtraction
+    there then gives back ``data_subcarriers`` exactly (Sterbenz: the
+    operands are within a factor of two).
     """
-    return non_pilot_subcarriers(used_subcarriers, pilot_freq_spacing, pilot_time_spacing) - data_subcarriers
+    fraction = float(arrangement.pilot_fraction(symbols, period, freq_spacing, data_shared))
+    return non_pilot_subcarriers(used_subcarriers, fraction) - data_subcarriers
 
 
 def _preset(name: str, source: str, description: str, **design) -> Preset:
@@ -98,30 +113,40 @@ def _preset(name: str, source: str, description: str, **design) -> Preset:
 
 
 def _wifi(name: str, sample_rate_hz: float, note: str) -> Preset:
-    packet = WIFI_PACKET_DATA_SYMBOLS + WIFI_PREAMBLE_SYMBOLS  # 131 symbol durations per packet
+    # The packet as the model sees it: long training (the channel estimate), SIGNAL, data; the short training
+    # that precedes it is time without data once per packet (an extra prefix of 2 symbol durations).
+    packet = WIFI_LONG_TRAINING_SYMBOLS + WIFI_SIGNAL_SYMBOLS + WIFI_PACKET_DATA_SYMBOLS  # 129
+    durations = packet + WIFI_SHORT_TRAINING_SYMBOLS  # 131 symbol durations per packet
     used = 52  # 48 data + 4 pilot subcarriers, DC unused
     data = 48 * WIFI_PACKET_DATA_SYMBOLS / packet  # data subcarriers per symbol, packet average
+    training = arrangement.mask_from_symbols(range(WIFI_LONG_TRAINING_SYMBOLS))
     return _preset(
         name,
-        "IEEE Std 802.11-2016 cl. 17, Tables 17-4 and 17-5",
+        "IEEE Std 802.11-2016 cl. 17, Tables 17-4 and 17-5, 17.3.3 (preamble)",
         f"{note} 64-point FFT, GI 16 samples, 52 used subcarriers (48 data + 4 pilots). "
-        "802.11 estimates the channel once per packet from the long training field; the 4 "
-        "continual pilots only track phase. Modelled as a packet of "
-        f"{WIFI_PREAMBLE_SYMBOLS} preamble/SIGNAL symbol durations + {WIFI_PACKET_DATA_SYMBOLS} data "
-        f"symbols ({packet} = symbols_per_slot; a 1500-byte PSDU at 16-QAM 1/2): the lattice is one "
-        f"full-band channel sample per packet (D_f = 1, D_t = {packet}); the rest of the preamble and "
-        "the 4 pilots of each data symbol are reserved_subcarriers, so data_subcarriers_per_symbol is "
-        f"the packet average 48 x {WIFI_PACKET_DATA_SYMBOLS}/{packet}.",
+        "802.11 estimates the channel once per packet from the two long training symbols and holds it; the "
+        "4 pilot tones of each data symbol only track the common phase. Modelled as packets of "
+        f"{WIFI_LONG_TRAINING_SYMBOLS} long training + {WIFI_SIGNAL_SYMBOLS} SIGNAL + {WIFI_PACKET_DATA_SYMBOLS} "
+        f"data symbols (symbols_per_slot = {packet}; a 1500-byte PSDU at 16-QAM 1/2: change the packet length "
+        "in a design file to study others), the short training as an extra prefix of "
+        f"{WIFI_SHORT_TRAINING_SYMBOLS} symbol durations per packet; SIGNAL and the pilot tones are reserved "
+        f"subcarriers, so data_subcarriers_per_symbol is the packet average 48 x {WIFI_PACKET_DATA_SYMBOLS}/{packet}.",
         subcarrier_spacing_hz=sample_rate_hz / 64,
         fft_size=64,
         sample_rate_hz=sample_rate_hz,
         cp_samples=16,
         used_subcarriers=used,
         pilot_freq_spacing=1,
-        pilot_time_spacing=packet,
+        pilot_time_spacing=int(arrangement.max_gap(training, packet)),
         pilot_shift=0,
         symbols_per_slot=packet,
-        reserved_subcarriers=_reserved_for(used, 1, packet, data),
+        reserved_subcarriers=_reserved_for(used, training, packet, 1, False, data),
+        cp_extra_samples=WIFI_SHORT_TRAINING_SYMBOLS * 80,
+        cp_extra_period_s=durations * 80 / sample_rate_hz,
+        pilot_scope="packet",
+        pilot_symbols=training,
+        pilot_period=packet,
+        pilot_data_shared=False,
     )
 
 
@@ -130,35 +155,43 @@ def _wifi(name: str, sample_rate_hz: float, note: str) -> Preset:
 _LTE_SOURCE = "3GPP TS 36.211 Table 6.12-1 and sect. 6.10.1.2; TS 36.104 Table 5.6-1"
 
 
-def _lte(name: str, cp_samples: int, cp_extra_samples: int, symbols_per_slot: int, time_spacing: int) -> Preset:
+def _lte(name: str, cp_samples: int, cp_extra_samples: int, symbols_per_slot: int) -> Preset:
     used = 1200  # 100 resource blocks x 12 at 20 MHz (TS 36.104 Table 5.6-1), DC unused
     # two antenna ports of cell-specific reference signals: 8 REs per resource block (12 subcarriers) per slot
     data = used * (1 - 8 / (12 * symbols_per_slot))
+    second = 4 if symbols_per_slot == 7 else 3  # l = N_symb - 3 (TS 36.211 sect. 6.10.1.2)
+    symbols = arrangement.mask_from_symbols([0, second])
     cp_label = "normal" if cp_extra_samples else "extended"
     return _preset(
         name,
         _LTE_SOURCE,
         f"LTE downlink, 20 MHz, {cp_label} CP: 15 kHz, 2048-point FFT at 30.72 MHz (the FFT size is an "
         f"implementation convention), 1200 used subcarriers, {symbols_per_slot} symbols per 0.5 ms slot. "
-        "Cell reference signals: per port every 6th subcarrier in 2 symbols per slot, staggered by 3. "
-        f"Lattice D_f = 6, shift = 3, D_t = {time_spacing} (the mean spacing of pilot symbols, "
-        f"{symbols_per_slot / 2:g}, rounded up). Overhead counts 2 ports (8 REs per resource block per "
-        "slot); the control region, synchronisation and broadcast channels are not counted.",
+        f"Cell reference signals of antenna port 0, broadcast in every slot: symbols 0 and {second}, every 6th "
+        "subcarrier, the second symbol shifted by 3 (a stream: the receiver may use past pilots and its "
+        "look-ahead). Overhead counts 2 ports (8 REs per resource block per slot: port 1 as reserved); the "
+        "control region, synchronisation and broadcast channels are not counted.",
         subcarrier_spacing_hz=15e3,
         fft_size=2048,
         cp_samples=cp_samples,
         used_subcarriers=used,
         pilot_freq_spacing=6,
-        pilot_time_spacing=time_spacing,
+        pilot_time_spacing=int(arrangement.max_gap(symbols, symbols_per_slot)),
         pilot_shift=3,
         symbols_per_slot=symbols_per_slot,
-        reserved_subcarriers=_reserved_for(used, 6, time_spacing, data),
+        reserved_subcarriers=_reserved_for(used, symbols, symbols_per_slot, 6, True, data),
         cp_extra_samples=cp_extra_samples,
         cp_extra_period_s=0.5e-3 if cp_extra_samples else 0.0,
+        pilot_scope="stream",
+        pilot_symbols=symbols,
+        pilot_period=symbols_per_slot,
     )
 
 
 # --- 5G NR -------------------------------------------------------------------
+
+#: DM-RS power over the data's with two CDM groups without data: 3 dB (3GPP TS 38.214 Table 4.1-1; from memory).
+NR_DMRS_BOOST_DB = 3.0
 
 _NR_SOURCE = (
     "3GPP TS 38.211 sect. 4.2, 5.3.1 and Table 7.4.1.1.2-3 (from memory); "
@@ -173,7 +206,7 @@ def _nr(mu: int, bandwidth: str, n_rb: int, fft_size: int, band_note: str, exten
     symbols = 12 if extended else 14
     cp = (512 if extended else 144) * fft_size // 2048
     extra = 0 if extended else 16 * fft_size * 2**mu // 2048
-    time_spacing = symbols // 2  # two DMRS symbols per slot, evenly spread in the lattice model
+    dmrs = arrangement.mask_from_symbols([2, 9 if extended else 11])  # l0 = 2 plus one additional position
     data = used * (1 - 2 / symbols)  # no data in the DMRS symbols (two CDM groups without data)
     name = f"nr-mu{mu}" + ("-extended" if extended else "")
     return _preset(
@@ -183,22 +216,27 @@ def _nr(mu: int, bandwidth: str, n_rb: int, fft_size: int, band_note: str, exten
         f"{fft_size}-point FFT (an implementation choice), {'extended CP 512' if extended else 'normal CP 144'} "
         f"kappa 2^-mu T_c = {cp} samples"
         + ("" if extended else f", +16 kappa T_c = {extra} samples each 0.5 ms")
-        + f", {symbols} symbols per slot. DMRS assumed type 1 (every 2nd subcarrier per CDM group), "
-        "single-symbol, mapping type A with one additional position: 2 DMRS symbols per slot "
-        "(l = 2 and 11 for normal CP, from memory; the real gaps are 9 and 5 symbols, so the "
-        f"evenly spread lattice D_f = 2, D_t = {time_spacing} is optimistic for Doppler). "
-        "PDCCH, CSI-RS, PT-RS and SSB are not counted.",
+        + f", {symbols} symbols per slot. DM-RS type 1, single-symbol, mapping type A with one additional "
+        f"position: symbols 2 and {9 if extended else 11} of each slot (from memory), usable only inside "
+        "their slot (precoded); the receiver's layer uses one CDM group (every 2nd subcarrier); two CDM groups "
+        "without data, so the DM-RS symbols carry no data and the DM-RS is 3 dB above the data "
+        "(TS 38.214 Table 4.1-1, from memory). PDCCH, CSI-RS, PT-RS and SSB are not counted.",
         subcarrier_spacing_hz=15e3 * 2**mu,
         fft_size=fft_size,
         cp_samples=cp,
         used_subcarriers=used,
         pilot_freq_spacing=2,
-        pilot_time_spacing=time_spacing,
+        pilot_time_spacing=int(arrangement.max_gap(dmrs, symbols)),
         pilot_shift=0,
         symbols_per_slot=symbols,
-        reserved_subcarriers=_reserved_for(used, 2, time_spacing, data),
+        reserved_subcarriers=_reserved_for(used, dmrs, symbols, 2, False, data),
         cp_extra_samples=extra,
         cp_extra_period_s=0.0 if extended else 0.5e-3,
+        pilot_scope="slot",
+        pilot_symbols=dmrs,
+        pilot_period=symbols,
+        pilot_boost_db=NR_DMRS_BOOST_DB,
+        pilot_data_shared=False,
     )
 
 
@@ -206,6 +244,9 @@ def _nr(mu: int, bandwidth: str, n_rb: int, fft_size: int, band_note: str, exten
 
 #: DVB-T elementary period T = 7/64 us in 8 MHz channels (EN 300 744 sect. 4.4).
 DVBT_SAMPLE_RATE_HZ = 64e6 / 7
+
+#: Scattered and continual pilots at amplitude 4/3, power 16/9 of the data (EN 300 744 sect. 4.5.2).
+DVBT_PILOT_BOOST_DB = 10 * math.log10(16 / 9)
 
 #: mode -> (FFT size, carriers K = K_max + 1, data carriers per symbol) (EN 300 744 sect. 4.4).
 _DVBT_MODES = {"8k": (8192, 6817, 6048), "2k": (2048, 1705, 1512)}
@@ -218,8 +259,9 @@ def _dvbt(mode: str, guard_denominator: int) -> Preset:
         "ETSI EN 300 744 sect. 4.4 and 4.5.3",
         f"DVB-T {mode} mode, 8 MHz channel, guard interval 1/{guard_denominator}: elementary period "
         f"7/64 us, {fft_size}-point FFT, {carriers} carriers of which {data} carry data in every symbol, "
-        "68 symbols per frame (symbols_per_slot). Scattered pilots every 12th carrier, shifted by 3 "
-        "each symbol: lattice D_f = 12, D_t = 1, shift = 3. reserved_subcarriers = carriers x 11/12 - "
+        "68 symbols per frame (symbols_per_slot). Scattered pilots (a stream) every 12th carrier, moving "
+        "by 3 each symbol (lattice D_f = 12, D_t = 1, shift = 3), boosted to 16/9 of the data power "
+        "(EN 300 744 sect. 4.5.2). reserved_subcarriers = carriers x 11/12 - "
         f"data = {carriers} x 11/12 - {data} covers the continual pilots and TPS carriers not on the "
         "lattice (and the lattice's rounding of the edge carrier), so the average data count is exact.",
         subcarrier_spacing_hz=DVBT_SAMPLE_RATE_HZ / fft_size,
@@ -231,7 +273,9 @@ def _dvbt(mode: str, guard_denominator: int) -> Preset:
         pilot_time_spacing=1,
         pilot_shift=3,
         symbols_per_slot=68,
-        reserved_subcarriers=_reserved_for(carriers, 12, 1, data),
+        reserved_subcarriers=_reserved_for(carriers, 1, 1, 12, True, data),
+        pilot_scope="stream",
+        pilot_boost_db=DVBT_PILOT_BOOST_DB,
     )
 
 
@@ -258,8 +302,8 @@ def _dab(mode: int) -> Preset:
         f"DAB transmission mode {mode}: {DAB_SAMPLE_RATE_HZ / fft_size / 1e3:g} kHz, {carriers} carriers, "
         f"guard {guard} T, {symbols} symbols per {frame_s * 1e3:g} ms frame after a {null} T null symbol. "
         "The null symbol is modelled as an extra CP once per frame (cp_extra_samples, cp_extra_period_s). "
-        "DAB uses differential QPSK and has no pilots; the phase reference symbol at the start of each "
-        f"frame is the lattice D_f = 1, D_t = {symbols}.",
+        "DAB detects differential QPSK against the previous symbol: no channel estimate (scope "
+        "differential); the phase reference symbol at the start of each frame carries no data.",
         subcarrier_spacing_hz=DAB_SAMPLE_RATE_HZ / fft_size,
         fft_size=fft_size,
         sample_rate_hz=DAB_SAMPLE_RATE_HZ,
@@ -271,6 +315,10 @@ def _dab(mode: int) -> Preset:
         symbols_per_slot=symbols,
         cp_extra_samples=null,
         cp_extra_period_s=frame_s,
+        pilot_scope="differential",
+        pilot_symbols=1,
+        pilot_period=symbols,
+        pilot_data_shared=False,
     )
 
 
@@ -278,8 +326,8 @@ def _declare() -> dict[str, Preset]:
     presets = [
         _wifi("wifi-20", 20e6, "IEEE 802.11a/g, 20 MHz channel: 312.5 kHz, GI 0.8 us."),
         _wifi("wifi-p-10", 10e6, "IEEE 802.11 10 MHz channel (802.11p, vehicular): 156.25 kHz, GI 1.6 us."),
-        _lte("lte-20-normal", cp_samples=144, cp_extra_samples=16, symbols_per_slot=7, time_spacing=4),
-        _lte("lte-20-extended", cp_samples=512, cp_extra_samples=0, symbols_per_slot=6, time_spacing=3),
+        _lte("lte-20-normal", cp_samples=144, cp_extra_samples=16, symbols_per_slot=7),
+        _lte("lte-20-extended", cp_samples=512, cp_extra_samples=0, symbols_per_slot=6),
         _nr(0, "20 MHz", 106, 2048, "TS 38.101-1"),
         _nr(1, "40 MHz", 106, 2048, "TS 38.101-1"),
         _nr(2, "100 MHz", 135, 2048, "TS 38.101-1"),

@@ -33,6 +33,7 @@ ESTIMATORS = ("lmmse", "linear")
 SPACING_FAMILIES = ("scalable", "range", "list")
 FFT_FAMILIES = ("powers_of_two", "smooth")
 PILOT_PATTERNS = ("rectangular", "staggered")
+PILOT_SCOPES = ("slot", "stream", "packet")
 EFFICIENCY_MODELS = ("table", "shannon")
 
 
@@ -143,8 +144,16 @@ SCHEMA: tuple[Key, ...] = (
         source="Rappaport, Wireless Communications 2nd ed., sect. 5.4 (0.5 and 0.9 in use)"),
     Key("rules", "delay_threshold", "db", "taps weaker than this (below the strongest) do not set the max excess delay",
         default=30.0, low=0.0, high=100.0, source="common practice; ITU-R P.1407 thresholds"),
-    Key("rules", "estimator", "choice", "channel estimator assumed for the pilot lattice", default="lmmse",
-        choices=ESTIMATORS),
+    Key("rules", "estimator", "choice", "channel estimator the receiver uses (LMMSE over every usable pilot, or "
+        "least squares with linear interpolation)", default="lmmse", choices=ESTIMATORS),
+    Key("rules", "estimation_lookahead", "integer",
+        "symbols after a data symbol whose pilots the receiver still uses (stream and packet pilots; "
+        "a slot is decoded whole)", default=3, low=0, high=62,
+        source="common practice: broadcast receivers interpolate in time with a delay of about 3 symbols "
+               "(the period of the DVB-T pilot pattern, ETSI EN 300 744 sect. 4.5.3)"),
+    Key("rules", "estimation_memory", "integer",
+        "symbols before a data symbol whose pilots the receiver still uses (stream pilots)", default=7, low=0,
+        high=1000, source="common practice: channel smoothing over about one slot of past pilots"),
     Key("rules", "efficiency_model", "choice", "spectral efficiency from a modulation-and-coding table or a Shannon gap",
         default="table", choices=EFFICIENCY_MODELS),
     Key("rules", "shannon_gap", "db", "gap to capacity for the Shannon-gap model", default=3.0, low=0.0, high=20.0,
@@ -166,8 +175,12 @@ SCHEMA: tuple[Key, ...] = (
         choices=FFT_FAMILIES),
     Key("search", "min_fft_size", "integer", "smallest FFT size", default=64, low=8, high=2**22),
     Key("search", "max_fft_size", "integer", "largest FFT size", default=32768, low=8, high=2**22),
-    Key("search", "pilot_patterns", "choice_list", "pilot lattice shapes to try", default=PILOT_PATTERNS,
-        choices=PILOT_PATTERNS),
+    Key("search", "pilot_scopes", "choice_list", "pilot arrangements to try: per-slot reference signals, "
+        "broadcast (stream) pilots, packet training symbols", default=("slot", "stream"), choices=PILOT_SCOPES),
+    Key("search", "pilot_patterns", "choice_list", "comb shapes to try (staggered: the comb moves between "
+        "pilot-bearing symbols)", default=PILOT_PATTERNS, choices=PILOT_PATTERNS),
+    Key("search", "pilot_symbols_per_slot", "integer_list",
+        "pilot-bearing symbols per slot to try, spread evenly (slot pilots)", default=(1, 2, 3, 4), low=1, high=62),
     Key("search", "max_pilot_freq_spacing", "integer", "largest pilot spacing in subcarriers", default=48, low=1, high=4096),
     Key("search", "max_pilot_time_spacing", "integer", "largest pilot spacing in symbols", default=32, low=1, high=4096),
     Key("search", "symbols_per_slot", "integer_list", "slot lengths in symbols to try", default=(7, 14), low=1,

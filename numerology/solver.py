@@ -34,6 +34,11 @@ DELAY_RULES = ("cp_covers_delay", "flat_fading", "pilot_aliasing")
 #: (rounds double in between).
 FIRST_BATCH = 256
 BATCH = 4096
+#: Objective values this close (relative) count as equal: a bound and the exact value of the same design
+#: may differ in the last bits, as they are computed along different paths.
+KEY_RTOL = 1e-9
+#: Candidates of each open numerology evaluated exactly in the first breadth-first round (doubling after).
+PER_NUMEROLOGY = 1
 #: Pareto designs carried into the result beyond the top N.
 PARETO_SHOWN = 20
 #: Rules whose margins depend on the estimation error (through the SINR).
@@ -97,7 +102,7 @@ FEASIBILITY_CHUNK = 1 << 13
 def _relaxed_pilots(req: Requirements) -> dict:
     """Namespace overrides for a numerology before its pilots and slot are chosen (best case of each)."""
     return {
-        "D_f": np.inf, "D_t": np.inf, "s_p": 0.0,  # no pilot overhead ...
+        "D_f": np.inf, "D_t": np.inf, "s_p": 0.0, "rho_pil": 0.0,  # no pilot overhead ...
         "alias_scale": cand.densest_pilots_alias_scale,
         "N_slot": float(min(req.search.symbols_per_slot)),
     }
@@ -107,11 +112,9 @@ def _cheap_stage(grid: cand.Grid, environment: Environment, req: Requirements, i
     """Every rule with the estimation error left out: exact for most rules, an upper bound for the SINR rules.
 
     ``overrides`` replaces symbols by best-case values (used to screen numerologies before pilots,
-    and lattices before slot lengths); the yes/no rule pilots_in_slot waits for the slot length.
+    and pilot arrangements before slot lengths).
     Returns (passes, objective bounds, rejections per rule).
     """
-    if overrides:
-        ignore = tuple(ignore) + ("pilots_in_slot",)
     evaluation = link.evaluate(grid.designs(), environment, req, estimation=False, overrides=overrides)
     ok = np.ones(grid.size, dtype=bool)
     rejected = {}
@@ -174,8 +177,13 @@ def search(req: Requirements, environment: Environment | None = None, objective:
     records = {k: [] for k in ("index", "key", "robust", "rate", "speed", "delay")}
     evaluated, batch_size = 0, FIRST_BATCH
     pending = order
+    per_numerology = PER_NUMEROLOGY
     while pending.size:
-        batch, pending = pending[:batch_size], pending[batch_size:]
+        if exhaustive or first_feasible_only:
+            batch, pending = pending[:batch_size], pending[batch_size:]
+        else:  # breadth first: the best few of every open numerology, so that each is settled early
+            batch, pending = _breadth_first(pending, numerology, per_numerology, batch_size)
+            per_numerology *= 2
         designs = grid.take(batch).designs()
         evaluation = link.evaluate(designs, environment, req)
         evaluated += batch.size
@@ -193,10 +201,14 @@ def search(req: Requirements, environment: Environment | None = None, objective:
                 break
         batch_size = min(batch_size * 2, BATCH)
         next_bound = bound[objective][pending[0]] if pending.size else -np.inf
-        if np.count_nonzero(best >= next_bound) >= top:
+        reached = best >= next_bound - KEY_RTOL * abs(next_bound)
+        if np.count_nonzero(reached) >= top:
             break  # no unevaluated candidate can change the best `top` numerologies
-        if not exhaustive:
-            settled |= best >= next_bound
+        if not exhaustive and pending.size:
+            # a numerology is settled once its best exact key reaches the best bound it has left
+            left = np.full(best.size, -np.inf)
+            np.maximum.at(left, numerology[pending], bound[objective][pending])
+            settled |= best >= left - KEY_RTOL * np.abs(left)
             pending = pending[~settled[numerology[pending]]]
     found = {k: np.concatenate(v) if v else np.empty(0) for k, v in records.items()}
     stats = SearchStats(family.size, int(len(spacings_hz)), full_size, int(grid.size), evaluated,
@@ -223,6 +235,24 @@ def search(req: Requirements, environment: Environment | None = None, objective:
     return Search(window, ranked, stats, rejected)
 
 
+def _breadth_first(pending, numerology, per_numerology: int, limit: int):
+    """(batch, rest): the first ``per_numerology`` pending candidates of each numerology, at most ``limit``.
+
+    ``pending`` is in decreasing order of bound; the batch and the rest keep that order.
+    """
+    ids = numerology[pending]
+    order = np.argsort(ids, kind="stable")
+    sorted_ids = ids[order]
+    starts = np.flatnonzero(np.r_[True, sorted_ids[1:] != sorted_ids[:-1]])
+    rank_sorted = np.arange(order.size) - np.repeat(starts, np.diff(np.r_[starts, order.size]))
+    rank = np.empty_like(rank_sorted)
+    rank[order] = rank_sorted
+    take = np.flatnonzero(rank < per_numerology)[:limit]
+    rest = np.ones(pending.size, dtype=bool)
+    rest[take] = False
+    return pending[take], pending[rest]
+
+
 def _screen_chunks(req: Requirements, environment: Environment, spacings_hz, ignore, chunk: int = CHUNK):
     """Build the candidates stage by stage; yield, chunk by chunk, those the cheap rules cannot reject.
 
@@ -230,18 +260,18 @@ def _screen_chunks(req: Requirements, environment: Environment, spacings_hz, ign
     the first item carries the numerology stage's rejections too.
     """
     df, n, used, cp = cand.numerologies(spacings_hz, environment, req)
-    pf, pt, ps = cand.pilot_lattices(req)
+    pilots = cand.pilot_arrangements(req)
     slots = np.asarray(req.search.symbols_per_slot, dtype=np.int64)
-    one = np.ones_like(n)
-    numerologies = cand.Grid(df, n, cp, used, one, one, 0 * one, one)
+    numerologies = cand.Grid.of_numerologies(df, n, cp, used)
     rejected = {}
     if numerologies.size:
         ok, _, rejected = _cheap_stage(numerologies, environment, req, ignore, _relaxed_pilots(req))
         numerologies = numerologies.take(np.flatnonzero(ok))
-    # Lattices sorted by cell size D_f D_t: each numerology takes the slice its density bounds allow.
-    order = np.argsort(pf * pt, kind="stable")
-    pf, pt, ps = pf[order], pt[order], ps[order]
-    cell = pf * pt
+    # Arrangements sorted by the cell D_f D_t of their sampling lattice: each numerology takes the slice
+    # its density bounds allow.
+    order = np.argsort(pilots.freq * pilots.time, kind="stable")
+    pilots = pilots.take(order)
+    cell = pilots.freq * pilots.time
     low, high = _cell_bounds(numerologies, environment, req, ignore)
     first = np.searchsorted(cell, low, side="left")
     counts = np.maximum(np.searchsorted(cell, high, side="right") - first, 0)
@@ -249,19 +279,18 @@ def _screen_chunks(req: Requirements, environment: Environment, spacings_hz, ign
     blocks = np.searchsorted(np.cumsum(counts), np.arange(chunk, counts.sum() + chunk, chunk))
     edges = np.unique(np.concatenate([[0], np.minimum(blocks + 1, numerologies.size), [numerologies.size]]))
     for start, end in zip(edges[:-1], edges[1:]):
-        # Lattices first, with the slot left open (pilots_in_slot is checked once slots are crossed in).
+        # Arrangements first, with the slot of stream pilots left open (-1), then slot lengths crossed in.
         rows = np.repeat(np.arange(start, end), counts[start:end])
         if rows.size == 0:
             continue
         offsets = np.arange(rows.size) - np.repeat(np.cumsum(counts[start:end]) - counts[start:end], counts[start:end])
-        lattice = first[rows] + offsets
+        chosen = pilots.take(first[rows] + offsets)
         base = numerologies.take(rows)
-        with_pilots = cand.Grid(base.spacing_hz, base.fft_size, base.cp_samples, base.used, pf[lattice],
-                                pt[lattice], ps[lattice], np.full(rows.size, slots[0]))
+        with_pilots = cand.Grid(base.spacing_hz, base.fft_size, base.cp_samples, base.used, chosen.freq,
+                                chosen.time, chosen.shift, chosen.slot, chosen.scope, chosen.symbols, chosen.period,
+                                chosen.shared)
         ok, _, _ = _cheap_stage(with_pilots, environment, req, ignore, any_slot)
-        survivors = with_pilots.take(np.flatnonzero(ok))
-        candidates = cand.expand(survivors, (survivors.pilot_f, survivors.pilot_t, survivors.pilot_s), slots,
-                                 paired=True)
+        candidates = cand.with_slots(with_pilots.take(np.flatnonzero(ok)), slots)
         ok, bound, rejections = _cheap_stage(candidates, environment, req, ignore)
         for name, count in rejections.items():
             rejected[name] = rejected.get(name, 0) + count
@@ -280,9 +309,7 @@ def _screen(req: Requirements, environment: Environment, spacings_hz, ignore):
         for name, count in rejections.items():
             rejected[name] = rejected.get(name, 0) + count
     if not parts:
-        empty = cand.Grid(*(np.zeros(0, dtype=dtype) for dtype in (float, np.int64, np.int64, np.int64, np.int64,
-                                                                    np.int64, np.int64, np.int64)))
-        return empty, {k: np.zeros(0) for k in OBJECTIVES}, rejected
+        return cand.Grid.empty(), {k: np.zeros(0) for k in OBJECTIVES}, rejected
     grid = cand.Grid(*(np.concatenate([getattr(p, f) for p in parts]) for f in cand.Grid.__dataclass_fields__))
     return grid, {k: np.concatenate(v) for k, v in bounds.items()}, rejected
 
@@ -346,8 +373,9 @@ def _passed(evaluation: link.Evaluation, ignore) -> np.ndarray:
 def _space_size(req: Requirements, environment: Environment, family) -> int:
     """Size of the unpruned candidate space over the whole family."""
     df, *_ = cand.numerologies(family, environment, req)
-    pf, _, _ = cand.pilot_lattices(req)
-    return int(df.size * pf.size * len(req.search.symbols_per_slot))
+    pilots = cand.pilot_arrangements(req)
+    per_numerology = int(np.sum(pilots.slot < 0)) * len(req.search.symbols_per_slot) + int(np.sum(pilots.slot >= 0))
+    return int(df.size * per_numerology)
 
 
 def brute_force(req: Requirements, environment: Environment | None = None, ignore=()) -> tuple[cand.Grid, np.ndarray]:

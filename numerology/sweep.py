@@ -53,7 +53,7 @@ import numpy as np
 
 from . import delay, doppler, link, profiles
 from .design import Design, DesignArrays
-from .environment import WIDEBAND_FRACTION, EnvironmentBatch, derive_environment
+from .environment import WIDEBAND_FRACTION, EnvironmentBatch, derive_environment, line_of_sight_rows
 from .errors import InputError, read_text
 from .output import write_atomic
 from .requirements import SCHEMA, Requirements
@@ -545,7 +545,7 @@ def site_environments(req: Requirements, sites: Sites, notes: bool = True) -> En
         k = 0.0 if env.k_factor_db is None else 10 ** (env.k_factor_db / 10)
         return EnvironmentBatch(empty, c, empty, empty, empty, env.doppler_spectrum, k, empty, empty, rho, empty,
                                 np.zeros((0, 1)), np.zeros((0, 1)), np.zeros(0, dtype=object),
-                                np.zeros(0, dtype=object), empty, empty, empty, empty)
+                                np.zeros(0, dtype=object), empty, empty, empty, empty, los_fraction=empty)
     # Doppler, as derive_environment: a wideband signal is evaluated at its upper band edge.
     carrier = sites.carrier_hz
     fraction = radio.bandwidth_hz / carrier
@@ -554,10 +554,11 @@ def site_environments(req: Requirements, sites: Sites, notes: bool = True) -> En
     speed_or_zero = np.where(has_speed, sites.speed_mps, 0.0)
     f_d = np.where(has_speed, doppler.max_doppler_hz(speed_or_zero, doppler_carrier, c), sites.max_doppler_hz)
     speed = np.where(has_speed, sites.speed_mps, f_d * c / doppler_carrier)
-    k_factor = 0.0 if env.k_factor_db is None else 10 ** (env.k_factor_db / 10)
     spectrum = env.doppler_spectrum
 
     shapes, shape, scale = _site_shapes(req, sites)
+    los = shapes.los[shape]
+    k_factor = los / (1.0 - los)
     delays = shapes.delays_s[shape] * scale[:, None]
     stated = sites.max_excess_delay_s
     max_excess = np.where(np.isnan(stated), shapes.max_excess_delay_s[shape] * scale, stated)
@@ -570,7 +571,7 @@ def site_environments(req: Requirements, sites: Sites, notes: bool = True) -> En
         delays_s=delays, powers=shapes.powers[shape], profile_name=shapes.name[shape],
         profile_source=shapes.source[shape], mean_excess_delay_s=shapes.mean_excess_delay_s[shape] * scale,
         rms_delay_spread_s=shapes.rms_delay_spread_s[shape] * scale, max_excess_delay_s=max_excess,
-        coherence_bandwidth_hz=shapes.coherence_bandwidth_hz[shape] / scale, notes=())
+        coherence_bandwidth_hz=shapes.coherence_bandwidth_hz[shape] / scale, notes=(), los_fraction=los)
     return _with_notes(batch, req, sites, fraction, has_speed, shapes.cause[shape]) if notes else batch
 
 
@@ -595,6 +596,7 @@ class _Shapes:
     rms_delay_spread_s: np.ndarray
     max_excess_delay_s: np.ndarray
     coherence_bandwidth_hz: np.ndarray
+    los: np.ndarray  # line-of-sight share of the power (environment.line_of_sight)
 
 
 def _site_shapes(req: Requirements, sites: Sites):
@@ -620,7 +622,7 @@ def _site_shapes(req: Requirements, sites: Sites):
     both = free & (span > 0) & (rms >= 0)
     shape = np.zeros(n, dtype=np.intp)
     scale = np.ones(n)
-    rows = []  # (delays (m, k), powers (m, k), name(s), source, cause(s), coherence bandwidth (m,))
+    rows = []  # (delays (m, k), powers (m, k), name(s), source, cause(s), coherence bandwidth (m,), LOS tap K)
 
     def add(sites_of, index, factor, *row):
         if not sites_of.any():  # an unused shape would only widen the padded taps of every site
@@ -630,21 +632,22 @@ def _site_shapes(req: Requirements, sites: Sites):
         rows.append(row)
 
     add(kind == _SINGLE, 0, 1.0, np.zeros((1, 1)), np.ones((1, 1)), "single path (no delay spread)", "given",
-        _SINGLE, np.array([np.inf]))
+        _SINGLE, np.array([np.inf]), np.nan)
     d1, p1, bc1 = _unit_profile("exponential", rules.delay_threshold_db, rho)  # delays scale with the rms
     exponential = kind == _EXPONENTIAL
     add(exponential, 0, rms[exponential], d1[None], p1[None], "exponential", "assumed from rms_delay_spread",
-        _EXPONENTIAL, np.array([bc1]))
+        _EXPONENTIAL, np.array([bc1]), np.nan)
     d1, p1, bc1 = _unit_profile("two rays", 0.0, rho)
     two_ray = kind == _TWO_RAY
     add(two_ray, 0, span[two_ray], d1[None], p1[None], "two equal rays", "assumed from max_excess_delay", _TWO_RAY,
-        np.array([bc1]))
+        np.array([bc1]), np.nan)
     if both.any():
         ratios, which = _distinct((rms[both] / span[both]).tolist())
         t, p, flat, bc = _bounded_profiles(np.array(ratios, dtype=float), rho)
         add(both, which, span[both], np.broadcast_to(t, p.shape), p,
             np.where(flat, "flat profile with two equal rays at its ends", "exponential"),
-            "assumed from max_excess_delay and rms_delay_spread", np.where(flat, _BOUNDED_FLAT, _BOUNDED_EXP), bc)
+            "assumed from max_excess_delay and rms_delay_spread", np.where(flat, _BOUNDED_FLAT, _BOUNDED_EXP), bc,
+            np.nan)
     for j, (name, path) in enumerate(labels):
         if not (name or path):
             continue
@@ -657,7 +660,8 @@ def _site_shapes(req: Requirements, sites: Sites):
             factor = np.where(scaled, sigma, 1.0)  # 3GPP TR 38.901 sect. 7.7.3: delays in units of the rms spread
         else:
             factor = np.where(scaled, sigma / profile.rms_delay_spread_s, 1.0)  # as Profile.scaled
-        add(on, 0, factor, d0[None], p0[None], profile.name, profile.source, _PROFILE + 1 + j, np.array([bc0]))
+        add(on, 0, factor, d0[None], p0[None], profile.name, profile.source, _PROFILE + 1 + j, np.array([bc0]),
+            np.nan if profile.los_k_factor_db is None else profile.los_k_factor_db)
 
     width = max(r[0].shape[1] for r in rows)
     count = sum(len(r[5]) for r in rows)
@@ -666,8 +670,9 @@ def _site_shapes(req: Requirements, sites: Sites):
     columns = {key: np.empty(count, dtype=object) for key in ("name", "source")}
     cause = np.empty(count, dtype=np.int64)
     bandwidth = np.empty(count)
+    tap_k = np.empty(count)
     start = 0
-    for d, p, name, source, code, bc in rows:
+    for d, p, name, source, code, bc, k_tap in rows:
         part = slice(start, start + len(bc))
         delays[part, :d.shape[1]] = d
         powers[part, :p.shape[1]] = p
@@ -675,11 +680,20 @@ def _site_shapes(req: Requirements, sites: Sites):
         columns["source"][part] = source
         cause[part] = code
         bandwidth[part] = bc
+        tap_k[part] = k_tap
         start += len(bc)
+    env = req.environment
+    powers, los = line_of_sight_rows(delays, powers, env.doppler_spectrum, env.k_factor_db, tap_k)
+    if np.any(los > 0):  # the line of sight changes the profile: its coherence bandwidth once more
+        bandwidth = np.atleast_1d(delay.coherence_bandwidth_hz(delays, powers, rho))
+        added = (los > 0) & np.isnan(tap_k)
+        k_db = 10 * np.log10(np.where(added, los, 0.5) / (1 - np.where(added, los, 0.5)))
+        columns["name"] = np.array([f"{n} + line of sight (K = {k:.3g} dB)" if a else n
+                                    for n, a, k in zip(columns["name"], added, k_db)], dtype=object)
     shapes = _Shapes(delays, powers, columns["name"], columns["source"], cause,
                      np.atleast_1d(delay.mean_excess_delay_s(delays, powers)),
                      np.atleast_1d(delay.rms_delay_spread_s(delays, powers)),
-                     np.atleast_1d(delay.max_excess_delay_s(delays, powers, rules.delay_threshold_db)), bandwidth)
+                     np.atleast_1d(delay.max_excess_delay_s(delays, powers, rules.delay_threshold_db)), bandwidth, los)
     return shapes, shape, scale
 
 

@@ -33,6 +33,23 @@ def toml_value(value) -> str:
     return json.dumps(value, ensure_ascii=False)  # JSON strings and numbers are valid TOML
 
 
+def design_json_to_mapping(data: dict, derived=("cp_s", "useful_symbol_s", "symbol_s")) -> dict:
+    """A design's JSON as a design file writes it: unit suffixes stripped, the unit put into the value."""
+    mapping = {}
+    for key, value in data.items():
+        if key in derived:
+            continue
+        if key.endswith("_hz"):
+            mapping[key[:-3]] = f"{value!r} Hz"
+        elif key.endswith("_s"):
+            mapping[key[:-2]] = f"{value!r} s"
+        elif key == "pilot":
+            mapping[key] = {k: v for k, v in value.items() if k != "boost_db"} | {"boost": f"{value['boost_db']!r} dB"}
+        else:
+            mapping[key] = value
+    return mapping
+
+
 def toml_key(key: str) -> str:
     """A bare key where TOML allows one, else a quoted key."""
     return key if re.fullmatch(r"[A-Za-z0-9_-]+", key) else json.dumps(key, ensure_ascii=False)

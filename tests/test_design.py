@@ -14,10 +14,12 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from conftest import design_json_to_mapping
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose, assert_array_equal
 
+from numerology import arrangement
 from numerology.design import (
     DERIVED_JSON_KEYS,
     Design,
@@ -123,7 +125,8 @@ def test_to_json_has_exactly_the_documented_keys():
         "symbol_s", "used_subcarriers", "symbols_per_slot", "pilot", "reserved_subcarriers", "cp_extra_samples",
         "cp_extra_period_s", "source",
     ]
-    assert data["pilot"] == {"freq_spacing": 6, "time_spacing": 4, "shift": 3}
+    assert data["pilot"] == {"scope": "stream", "freq_spacing": 6, "time_spacing": 4, "shift": 3, "symbols": [0],
+                             "period": 4, "boost_db": 0.0, "data_shared": True}
     assert data["sample_rate_hz"] == 30.72e6
     assert data["cp_extra_period_s"] == 5e-4
     assert set(DERIVED_JSON_KEYS) <= set(data)
@@ -134,17 +137,30 @@ def test_to_json_has_exactly_the_documented_keys():
 
 def json_to_mapping(data: dict) -> dict:
     """Strip unit suffixes and put the unit into the value, as a design file writes it."""
-    mapping = {}
-    for key, value in data.items():
-        if key in DERIVED_JSON_KEYS:
-            continue
-        if key.endswith("_hz"):
-            mapping[key[:-3]] = f"{value!r} Hz"
-        elif key.endswith("_s"):
-            mapping[key[:-2]] = f"{value!r} s"
-        else:
-            mapping[key] = value
-    return mapping
+    return design_json_to_mapping(data, DERIVED_JSON_KEYS)
+
+
+@st.composite
+def pilot_patterns(draw, freq_spacing, slot):
+    """Pilot arrangement fields: a lattice (stream or differential) or an explicit pattern of any scope."""
+    scope = draw(st.sampled_from(arrangement.SCOPES))
+    if scope in ("stream", "differential") and draw(st.booleans()):
+        time_spacing = draw(st.integers(2 if freq_spacing == 1 else 1, 24))  # density 1 would leave no data
+        return {"pilot_scope": scope, "pilot_time_spacing": time_spacing}
+    if scope == "slot" and slot > arrangement.MAX_PATTERN_BITS:
+        scope = "stream"
+    period = slot if scope == "slot" else draw(st.integers(1, slot if scope == "packet" else 40))
+    bits = min(period, arrangement.MAX_PATTERN_BITS)
+    mask = draw(st.integers(1, (1 << bits) - 1))
+    shared = draw(st.booleans())
+    if arrangement.pilot_fraction(mask, period, freq_spacing, shared) >= 1:
+        mask = 1
+        shared = True
+        if period == 1 and freq_spacing == 1:  # a pilot on every element: keep a second symbol for data
+            scope, period = "stream", 2
+    return {"pilot_scope": scope, "pilot_symbols": mask, "pilot_period": period,
+            "pilot_time_spacing": int(arrangement.max_gap(mask, period)), "pilot_data_shared": shared,
+            "pilot_boost_db": draw(st.floats(-20, 20, allow_nan=False))}
 
 
 @st.composite
@@ -152,9 +168,12 @@ def designs(draw):
     fft_size = draw(st.integers(8, 1 << 16))
     spacing_hz = draw(st.floats(1.0, 1e7, allow_nan=False))
     freq_spacing = draw(st.integers(1, 24))
-    time_spacing = draw(st.integers(2 if freq_spacing == 1 else 1, 24))  # density 1 would leave no data
+    slot = draw(st.integers(1, 200))
+    pattern = draw(pilot_patterns(freq_spacing, slot))
     used = draw(st.integers(1, fft_size - 1))
-    density = 1 / (freq_spacing * time_spacing)
+    density = float(arrangement.pilot_fraction(pattern.get("pilot_symbols", 1),
+                                               pattern.get("pilot_period", pattern["pilot_time_spacing"]),
+                                               freq_spacing, pattern.get("pilot_data_shared", True)))
     reserved = draw(st.floats(0, 0.99 * used * (1 - density), allow_nan=False))
     cp_samples = draw(st.integers(0, fft_size - 1))
     extra = draw(st.integers(0, 256))
@@ -164,10 +183,10 @@ def designs(draw):
         period_s = draw(st.integers(2, 100)) * (fft_size + cp_samples + extra) / fs
     return Design(
         name=draw(st.text(max_size=12)), subcarrier_spacing_hz=spacing_hz, fft_size=fft_size, cp_samples=cp_samples,
-        used_subcarriers=used, pilot_freq_spacing=freq_spacing, pilot_time_spacing=time_spacing,
-        pilot_shift=draw(st.integers(0, freq_spacing - 1)), symbols_per_slot=draw(st.integers(1, 200)),
+        used_subcarriers=used, pilot_freq_spacing=freq_spacing,
+        pilot_shift=draw(st.integers(0, freq_spacing - 1)), symbols_per_slot=slot,
         sample_rate_hz=draw(st.sampled_from([None, fs])), reserved_subcarriers=reserved,
-        cp_extra_samples=extra, cp_extra_period_s=period_s, source=draw(st.text(max_size=12)),
+        cp_extra_samples=extra, cp_extra_period_s=period_s, source=draw(st.text(max_size=12)), **pattern,
     )
 
 

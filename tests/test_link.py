@@ -68,11 +68,18 @@ def test_oscillator_terms_match_small_offset_formulas():
     assert_allclose(pn / (1 + pn), math.pi * 20.0 * LTE.useful_symbol_s / 3, rtol=2e-3)
 
 
-def test_effective_sinr_adds_terms_as_powers():
-    """Common practice for OFDM link budgets: SINR_eff = 1 / sum of terms."""
+def test_effective_sinr_with_the_estimate_power_loss():
+    """SINR_eff = (1 - E) / (E + N + I), E the estimation error (unit channel power).
+
+    Common practice: with an LMMSE estimate h_hat = h - e, e uncorrelated with
+    h_hat, the detector keeps 1 - E of the channel power as signal and sees E
+    as noise; the noise and interference terms add as powers.
+    """
     ev, _ = _eval(_req(), LTE)
-    total = sum(v[0] for v in ev.terms.values())
-    assert_allclose(ev.sinr_eff[0], 1 / total, rtol=1e-12)
+    others = sum(v[0] for k, v in ev.terms.items() if k != "estimation")
+    error = ev.terms["estimation"][0] / (1 + ev.terms["estimation"][0])  # the term is E / (1 - E)
+    assert 0 < error < 0.1
+    assert_allclose(ev.sinr_eff[0], (1 - error) / (error + others), rtol=1e-12)
     assert ev.terms["noise"][0] == pytest.approx(0.01, rel=1e-12)
 
 

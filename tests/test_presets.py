@@ -14,11 +14,16 @@ from numpy.testing import assert_allclose
 
 from numerology.design import Design, designs_to_arrays
 from numerology.errors import InputError
+from conftest import design_json_to_mapping
+
+from numerology import arrangement
 from numerology.presets import (
     DAB_SAMPLE_RATE_HZ,
     PRESETS,
+    WIFI_LONG_TRAINING_SYMBOLS,
     WIFI_PACKET_DATA_SYMBOLS,
-    WIFI_PREAMBLE_SYMBOLS,
+    WIFI_SHORT_TRAINING_SYMBOLS,
+    WIFI_SIGNAL_SYMBOLS,
     Preset,
     get_preset,
 )
@@ -57,16 +62,7 @@ def test_every_preset_survives_the_json_round_trip(name):
     from numerology.design import DERIVED_JSON_KEYS, design_from_mapping
 
     design = PRESETS[name].design
-    mapping = {}
-    for key, value in design.to_json().items():
-        if key in DERIVED_JSON_KEYS:
-            continue
-        suffix = {"_hz": " Hz", "_s": " s"}
-        for end, unit in suffix.items():
-            if key.endswith(end):
-                key, value = key[: -len(end)], f"{value!r}{unit}"
-                break
-        mapping[key] = value
+    mapping = design_json_to_mapping(design.to_json(), DERIVED_JSON_KEYS)
     assert design_from_mapping(mapping, name) == design
 
 
@@ -132,9 +128,53 @@ def test_wifi_packet_matches_txtime(name, preamble_us, symbol_us):
     d = PRESETS[name].design
     assert WIFI_PACKET_DATA_SYMBOLS == math.ceil((16 + 8 * 1500 + 6) / 96)
     txtime_s = (preamble_us + symbol_us * WIFI_PACKET_DATA_SYMBOLS) * microsecond
-    assert d.symbols_per_slot == WIFI_PACKET_DATA_SYMBOLS + WIFI_PREAMBLE_SYMBOLS
-    assert_allclose(d.slot_s, txtime_s, rtol=FLOAT_RTOL)
+    assert d.symbols_per_slot == WIFI_PACKET_DATA_SYMBOLS + WIFI_LONG_TRAINING_SYMBOLS + WIFI_SIGNAL_SYMBOLS
+    assert WIFI_SHORT_TRAINING_SYMBOLS + WIFI_LONG_TRAINING_SYMBOLS + WIFI_SIGNAL_SYMBOLS == preamble_us / symbol_us
+    assert_allclose(d.slot_s, txtime_s, rtol=FLOAT_RTOL)  # the short training is the packet's extra prefix
     assert_allclose(d.data_re_per_second * 4 * (1 / 2), WIFI_PACKET_DATA_SYMBOLS * 96 / txtime_s, rtol=FLOAT_RTOL)
+
+
+# --- pilot arrangements as the standards place them -----------------------------------
+
+
+def _pilots(name):
+    d = PRESETS[name].design
+    return (d.pilot_scope, arrangement.symbols_of(d.pilot_symbols), d.pilot_period, d.pilot_freq_spacing,
+            d.pilot_shift, d.pilot_data_shared)
+
+
+def test_lte_cell_reference_signals_of_port_0():
+    """Symbols 0 and 4 of each 7-symbol slot (0 and 3 of 6, extended CP), every 6th subcarrier, the second
+    shifted by 3; cell-wide, so a stream (3GPP TS 36.211 sect. 6.10.1.2)."""
+    assert _pilots("lte-20-normal") == ("stream", (0, 4), 7, 6, 3, True)
+    assert _pilots("lte-20-extended") == ("stream", (0, 3), 6, 6, 3, True)
+
+
+def test_nr_dmrs_type_1_with_one_additional_position():
+    """Type 1, mapping type A, l0 = 2 plus dmrs-AdditionalPosition pos1 (l = 11 of 14; 9 of 12 with the
+    extended prefix), one CDM group on every other subcarrier, usable only in its slot, no data beside it
+    and 3 dB above the data (3GPP TS 38.211 sect. 7.4.1.1.2 and Table 7.4.1.1.2-3; TS 38.214 Table 4.1-1;
+    from memory)."""
+    for mu in range(5):
+        assert _pilots(f"nr-mu{mu}") == ("slot", (2, 11), 14, 2, 0, False)
+        assert PRESETS[f"nr-mu{mu}"].design.pilot_boost_db == 3.0
+    assert _pilots("nr-mu2-extended") == ("slot", (2, 9), 12, 2, 0, False)
+
+
+def test_wifi_preamble_held_over_the_packet():
+    """Two long training symbols (the channel estimate) at the start of each packet, full band, no data
+    beside them (IEEE 802.11-2016 17.3.3)."""
+    for name in ("wifi-20", "wifi-p-10"):
+        assert _pilots(name) == ("packet", (0, 1), 129, 1, 0, False)
+
+
+def test_dvbt_scattered_pilots_and_dab_differential():
+    """DVB-T: every 12th carrier moving by 3 each symbol, boosted to 16/9 (EN 300 744 sect. 4.5.2-4.5.3).
+    DAB: differential detection, a phase reference symbol per frame (EN 300 401; from memory)."""
+    d = PRESETS["dvbt-8k-g4"].design
+    assert _pilots("dvbt-8k-g4") == ("stream", (0,), 1, 12, 3, True)
+    assert_allclose(10 ** (d.pilot_boost_db / 10), 16 / 9, rtol=1e-12)
+    assert _pilots("dab-mode1")[0] == "differential"
 
 
 # --- LTE ---------------------------------------------------------------------------

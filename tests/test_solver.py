@@ -39,7 +39,7 @@ def _small(**over):
 
 def _feasible_set(grid, mask):
     rows = np.stack([grid.spacing_hz, grid.fft_size, grid.cp_samples, grid.used, grid.pilot_f, grid.pilot_t,
-                     grid.pilot_s, grid.slot], axis=1)[mask]
+                     grid.pilot_s, grid.slot, grid.scope, grid.symbols, grid.period], axis=1)[mask]
     return {tuple(float(x) for x in row) for row in rows}
 
 
@@ -58,7 +58,8 @@ def test_pruned_search_agrees_with_brute_force(over):
     designs = found.ranked.designs
     pruned = {(float(designs.subcarrier_spacing_hz[i]), float(designs.fft_size[i]), float(designs.cp_samples[i]),
                float(designs.used_subcarriers[i]), float(designs.pilot_freq_spacing[i]),
-               float(designs.pilot_time_spacing[i]), float(designs.pilot_shift[i]), float(designs.symbols_per_slot[i]))
+               float(designs.pilot_time_spacing[i]), float(designs.pilot_shift[i]), float(designs.symbols_per_slot[i]),
+               float(designs.pilot_scope[i]), float(designs.pilot_symbols[i]), float(designs.pilot_period[i]))
               for i in range(designs.fft_size.size)}
     assert found.stats.feasible_found == len(brute)
     assert pruned <= brute

@@ -36,7 +36,7 @@ KMH = 1000 / 3600  # m/s
 RTOL = 1e-9  # same computation, round-off only (templates scaled instead of scaled profiles)
 
 #: The harbour example's best design (120 kHz, FFT 256, CP 52, 150 used, pilots 8x14 shift 2, 14 symbols).
-HARBOUR_DESIGN = Design("harbour best", 120e3, 256, 52, 150, 8, 14, 2, 14)
+HARBOUR_DESIGN = Design("harbour best", 120e3, 256, 52, 150, 6, 11, 2, 7)
 #: A small invented deployment (frequency error in Hz, so a site's carrier changes nothing else).
 SMALL = {
     "environment": {"carrier": "2 GHz", "max_speed": "80 km/h", "max_excess_delay": "3 us",

@@ -1,0 +1,587 @@
+"""Channel-estimation error from the pilots a receiver really has.
+
+For one design and one channel, :func:`estimation_mse` gives the mean-square
+error of the receiver's channel estimate, averaged over every data resource
+element of the evaluation span (a slot, a packet, or one period of a broadcast
+pattern; band edges and slot edges included), using exactly the pilots that
+the design's arrangement and the receiver's allowance make available
+(:func:`numerology.arrangement.schedule`).
+
+Model (unit channel power; the wide-sense-stationary uncorrelated-scattering
+tapped delay line of the environment)::
+
+    H(t, k) = sum_c g_c(k) z_c(t),   E z_c(t + tau) z_c(t)^* = rho_c(tau),
+
+with ``k`` the used subcarrier (0 .. N_u - 1, spacing df), the components
+``c`` independent. The scattered taps share one Doppler spectrum; a line of
+sight (``numerology.environment``: at the first arrival, power K/(K+1)) is a
+component of its own with a rotating phase.
+
+Estimators
+----------
+``lmmse``
+    The linear MMSE (Wiener) estimate of H at each data element from *all*
+    usable pilots of the span at once (the whole band, every usable pilot
+    symbol; at most :data:`MAX_PILOT_SYMBOLS` pilot-bearing symbols, the
+    nearest): the ideal 2-D interpolator of Hoeher, Kaiser and Robertson
+    (ICASSP 1997) restricted to what the receiver may use. With pilots
+    ``y = A z + w`` (noise variance s2 per pilot, the inverse pilot SINR),
+    the error covariance of the components at a data symbol is::
+
+        E = Q - S_nU A^H (A S_UU A^H + s2 I)^-1 A S_Un
+          = Q - S_nU D^(1/2) (D^(1/2) S_UU D^(1/2) + s2 I)^-1 D^(1/2) S_Un,
+
+    D = A^H A the block-diagonal Gram matrix of the pilot combs (push-through
+    identity; Kay, Fundamentals of Statistical Signal Processing: Estimation
+    Theory, ch. 12). The error summed over the data subcarriers is
+    ``tr(E G_d)`` with G_d their Gram matrix. With the eigenvalues lambda_j
+    and vectors w_j of ``D^(1/2) S_UU D^(1/2)``, and
+    ``beta_j = b_j^H G_d b_j``, ``b_j = S_nU D^(1/2) w_j``::
+
+        sum over data REs of |H - Hhat|^2 = N_d - sum_j beta_j / (lambda_j + s2),
+
+    so one eigen-decomposition per distinct pilot set serves every pilot SINR
+    (the candidates of a search differ mostly in it). Everything has the size
+    of (pilot symbols) x (components), never of the band: a full-band
+    estimate over 1272 subcarriers costs as little as over 12.
+``linear``
+    A practical receiver: least-squares values at the pilots, linear
+    interpolation across frequency inside each pilot-bearing symbol (the
+    nearest pilot held beyond the band's outermost pilots), then linear
+    interpolation in time between the nearest usable pilot-bearing symbols
+    before and after the data symbol, or the nearest one held when only one
+    side is usable; pilot symbols counted at the same time (a packet's
+    training block) are averaged first. Its error is evaluated exactly at
+    every data element.
+``differential`` scope
+    No estimate: the previous symbol is the reference. Its penalty is that
+    of a one-symbol-old, noisy reference used with the best scaling,
+    ``1 - |R(T_s)|^2 / (1 + s2)`` (R the channel's autocorrelation, s2 the
+    reference symbol's noise and interference): noise counts about twice,
+    and decorrelation sets a floor ``|R|^2 / (1 - |R|^2)`` (Proakis, Digital
+    Communications, DPSK in Rayleigh fading; from memory).
+
+Components
+----------
+The scattered taps are replaced by the eigenmodes of their covariance over
+the used band (a Karhunen-Loeve basis, :func:`components`); the weakest
+modes, together less than :data:`MODE_ENERGY_TOL` of the energy, are dropped
+and their energy counted as estimation error (so the error is never
+understated). Closely
+spaced taps that the band cannot resolve collapse to a few modes.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.special as sp
+
+from . import arrangement
+
+#: Pilot-bearing symbols that enter the estimate of one data symbol, at most (the nearest usable ones).
+MAX_PILOT_SYMBOLS = 4
+#: The weakest band eigenmodes of the scattered taps are dropped while their energy together stays below
+#: this fraction of the channel power (-60 dB); it is counted as estimation error, never lost.
+MODE_ENERGY_TOL = 1e-6
+#: Comb Gram couplings below this fraction (of the geometric mean of the two diagonal entries) are
+#: dropped: the components then fall apart into independent clusters (``Band.clusters``).
+COUPLING = 0.02
+#: Component kinds: scattered (the Doppler spectrum's diffuse part) and line of sight.
+SCATTERED, LINE_OF_SIGHT = 0, 1
+
+
+@dataclass(frozen=True)
+class Components:
+    """The channel over the used band as independent unit-power components.
+
+    ``response(k)`` of component c at subcarrier k is ``sum_m E[m, c] exp(-j 2 pi k df tau_m)``
+    over the taps m; ``kind`` says which time correlation each component follows.
+    """
+
+    delays_s: np.ndarray  # (M,) tap delays
+    basis: np.ndarray  # (M, C) complex: tap amplitudes of each unit component
+    kind: np.ndarray  # (C,) SCATTERED or LINE_OF_SIGHT
+
+
+def gram(delays_a, delays_b, spacing_hz, start, step, count):
+    """Gram matrix of two tap sets over a comb of subcarriers.
+
+    ``G[a, b] = sum_{i < count} exp(j 2 pi (start + i step) df (tau_a - tau_b))``,
+    in closed form (a geometric series, the Dirichlet kernel).
+
+    Parameters
+    ----------
+    delays_a, delays_b : ndarray (A,), (B,)
+        Tap delays in s.
+    spacing_hz : float
+        Subcarrier spacing df in Hz.
+    start, step, count : int
+        The comb: subcarriers start, start + step, ... (count of them).
+
+    Returns
+    -------
+    ndarray (A, B) of complex
+
+    Examples
+    --------
+    Two taps 0.5 us apart over 600 subcarriers at 15 kHz: the phase turns by
+    2 pi 0.0075 per subcarrier, 4.5 turns over the band, so
+    ``|G[0, 1]| = |sin(4.5 pi) / sin(0.0075 pi)| = 42.45``:
+
+    >>> g = gram(np.array([0.0, 0.5e-6]), np.array([0.0, 0.5e-6]), 15e3, 0, 1, 600)
+    >>> float(g[0, 0].real), round(float(abs(g[0, 1])), 2)
+    (600.0, 42.45)
+    """
+    x = 2.0 * np.pi * spacing_hz * (np.asarray(delays_a, float)[:, None] - np.asarray(delays_b, float)[None, :])
+    half = 0.5 * x * step
+    s = np.sin(half)
+    small = np.abs(s) < 1e-12
+    ratio = np.where(small, count * np.cos(count * half) / np.where(small, np.cos(half), 1.0),
+                     np.sin(count * half) / np.where(small, 1.0, s))
+    return np.exp(1j * (x * start + half * (count - 1))) * ratio
+
+
+def comb_count(used: int, offset: int, step: int) -> int:
+    """Subcarriers offset, offset + step, ... below ``used``."""
+    return max(0, (used - offset + step - 1) // step)
+
+
+def components(delays_s, powers, los_fraction, spacing_hz, used) -> tuple[Components, float]:
+    """Unit-power components of a channel over ``used`` subcarriers, and the energy dropped.
+
+    The line of sight (power ``los_fraction``, at the earliest tap) is one
+    component; the scattered part (``powers`` less the line of sight) is
+    replaced by its eigenmodes over the used band: with P the scattered tap
+    powers and G the band's Gram matrix, the modes are ``P^(1/2) v_m`` for the
+    eigenvectors v_m of ``P^(1/2) G P^(1/2)``. Modes below
+    :data:`MODE_ENERGY_TOL` of the channel power together are dropped; the
+    returned energy (a fraction of the channel power) is what they held.
+    """
+    delays = np.asarray(delays_s, dtype=float)
+    p = np.asarray(powers, dtype=float)
+    p = p / p.sum()
+    first = int(np.argmin(delays))
+    scattered = p.copy()
+    scattered[first] = max(scattered[first] - los_fraction, 0.0)
+    root = np.sqrt(scattered)
+    g_band = gram(delays, delays, spacing_hz, 0, 1, used) / used
+    gamma, v = np.linalg.eigh(root[:, None] * g_band * root[None, :])  # ascending
+    gamma = np.clip(gamma, 0.0, None)
+    keep = np.cumsum(gamma) > MODE_ENERGY_TOL
+    dropped = float(np.sum(gamma[~keep]))
+    basis = root[:, None] * v[:, keep]
+    kind = np.full(basis.shape[1], SCATTERED)
+    if los_fraction > 0:
+        los = np.zeros((delays.size, 1))
+        los[first, 0] = np.sqrt(los_fraction)
+        basis = np.concatenate([los, basis], axis=1)
+        kind = np.concatenate([[LINE_OF_SIGHT], kind])
+    return Components(delays, basis.astype(complex), kind), dropped
+
+
+def time_correlation(kind, lag_s, max_doppler_hz, spectrum, los_fraction):
+    """Autocorrelation of each component kind at the given lags: array (..., C).
+
+    Scattered components follow the diffuse spectrum (Clarke/Jakes ``J0`` for
+    ``classical``, ``rician`` and ``tracked``; ``sinc`` for ``flat``); the line
+    of sight is a line at f_D (``rician``). ``tracked`` removes the mean
+    Doppler shift ``K/(K+1) f_D`` from every component (``numerology.doppler``).
+    ``max_doppler_hz`` broadcasts with ``lag_s``.
+    """
+    x = (np.asarray(max_doppler_hz, dtype=float) * np.asarray(lag_s, dtype=float))[..., None]
+    if spectrum == "flat":
+        scattered = np.sinc(2.0 * x) + 0j
+    else:
+        scattered = sp.j0(2.0 * np.pi * x) + 0j
+    los = np.exp(2j * np.pi * x)
+    if spectrum == "tracked":
+        turn = np.exp(-2j * np.pi * los_fraction * x)  # the receiver removes the centroid P_los f_D
+        scattered, los = scattered * turn, los * turn
+    return np.where(np.asarray(kind) == LINE_OF_SIGHT, los, scattered)
+
+
+@dataclass(frozen=True)
+class SpectralWeights:
+    """What an estimation error needs beyond the pilot SINR (see the module docstring).
+
+    ``1 - sum_j beta_j / (lambda_j + s2) / data`` for ``lmmse``; the linear
+    estimator's error is ``bias + s2 * gain``; differential detection's
+    ``1 - bias / (1 + s2)``.
+    """
+
+    kind: str  # "lmmse", "linear" or "differential"
+    lam: np.ndarray
+    beta: np.ndarray
+    data: float  # data resource elements in the span
+    bias: float = 0.0  # linear: error without noise (fraction); differential: |R(T_s)|^2
+    gain: float = 0.0  # linear: noise gain
+
+    def mse(self, noise_to_pilot):
+        """Mean estimation error at the given noise-to-pilot power ratios (array)."""
+        s2 = np.asarray(noise_to_pilot, dtype=float)
+        if self.kind == "differential":
+            return 1.0 - self.bias / (1.0 + s2)
+        if self.kind == "linear":
+            return self.bias + s2 * self.gain
+        if self.data <= 0:
+            return np.zeros(s2.shape)
+        flat = s2.reshape(-1, 1)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            explained = np.sum(np.where(self.beta > 0, self.beta / (self.lam + flat), 0.0), axis=1)
+        return np.clip(1.0 - explained.reshape(s2.shape) / self.data, 0.0, 1.0)
+
+
+@dataclass(frozen=True)
+class SeparableWeights:
+    """Estimation error of a pattern whose pilot symbols share one comb, with a line of sight.
+
+    The scattered components separate into a time and a frequency
+    eigenproblem; the line of sight (one random amplitude turning at a known
+    rate) enters exactly through a rank-one correction: with the scattered
+    part's LMMSE given the line of sight, the error of each data element is
+    the scattered error plus ``|g|^2 / (1 + q)``, ``q`` the line of sight's
+    SNR after the scattered part is accounted for and ``g`` what of it the
+    scattered estimator cannot tell apart (the law of total variance of
+    jointly Gaussian variables; Sherman-Morrison). Arrays are per target
+    group ``t`` (pilot-set shape), time eigen-index ``i`` and frequency
+    eigen-index ``j``.
+    """
+
+    scattered: SpectralWeights  # the scattered part, s2-free (lam = l m, beta = a z)
+    l: np.ndarray  # (T, u) time eigenvalues of each target's pilot set
+    u_los: np.ndarray  # (T, u) U^H phi: the line of sight's time phasors in the time eigenbasis
+    kappa: np.ndarray  # (T, u) conj(U^H rho) * U^H phi
+    m: np.ndarray  # (J,) frequency eigenvalues of the scattered comb Gram
+    v_los: np.ndarray  # (J,) V^H G_sL
+    basis: np.ndarray  # (C_s, J) V
+    schur: float  # u-free Schur complement of the line of sight's comb energy (not in the scattered span)
+    g_data: np.ndarray  # (T, C, C) data Gram matrices (line of sight first)
+    count: np.ndarray  # (T,) pilot symbols of each target
+    data: float
+
+    def mse(self, noise_to_pilot):
+        s2 = np.asarray(noise_to_pilot, dtype=float)
+        flat = s2.reshape(-1, 1, 1, 1)  # (n, T, u, J)
+        base = self.scattered.mse(s2).reshape(-1)
+        denominator = self.l[None, :, :, None] * self.m[None, None, None, :] + flat  # (n, T, u, J)
+        live = self.m > 0
+        # q: the line of sight's SNR with the scattered part accounted for (positive terms only)
+        weight = np.abs(self.u_los) ** 2  # (T, u)
+        has_time = self.l > 0
+        v2 = np.abs(self.v_los) ** 2
+        in_span = np.where(live, v2 / np.where(live, self.m, 1.0), 0.0)  # (J,)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            q = (np.sum(np.where(has_time[None, :, :, None], weight[None, :, :, None] * in_span / denominator, 0.0),
+                        axis=(2, 3))
+                 + (self.count * self.schur + np.sum(np.where(has_time, 0.0, weight), axis=1) * in_span.sum())[None, :]
+                 / s2.reshape(-1, 1))
+        # g: the line of sight less what the scattered estimator attributes to the scattered part
+        y = np.sum(self.kappa[None, :, :, None] / denominator, axis=2)  # (n, T, J)
+        v = np.einsum("cj,ntj->ntc", self.basis, self.v_los * np.where(live, y, 0.0))  # (n, T, C_s)
+        g_ll = self.g_data[:, 0, 0].real
+        g_sl = self.g_data[:, 1:, 0]
+        g_ss = self.g_data[:, 1:, 1:]
+        energy = (g_ll[None] - 2 * np.einsum("ntc,tc->nt", np.conj(v), g_sl).real
+                  + np.einsum("ntc,tcd,ntd->nt", np.conj(v), g_ss, v).real)
+        # the scattered part's error counted the line of sight's energy as unexplained: replace it by its error
+        los_error = np.sum(np.maximum(energy, 0.0) / (1.0 + q) - g_ll[None], axis=1) / self.data
+        return np.clip(base + los_error, 0.0, 1.0).reshape(s2.shape)
+
+
+class Band:
+    """A channel over the used band of one numerology: its components and the Gram matrices of its pilot combs.
+
+    Many designs share a band (same channel, spacing and used subcarriers)
+    and differ in pilots, cyclic prefix and slot; the components and each
+    comb's Gram matrix and its square root are worked out once per band.
+    """
+
+    def __init__(self, delays_s, powers, los_fraction, spacing_hz, used):
+        self.spacing_hz, self.used = float(spacing_hz), int(used)
+        self.components, self.dropped = components(delays_s, powers, los_fraction, spacing_hz, used)
+        self._gram, self._root, self._eigen, self._clusters = {}, {}, {}, {}
+
+    def comb_gram(self, step, offset):
+        """Gram matrix of the components over the comb (step, offset); offset -1: the whole band."""
+        key = (step, offset)
+        if key not in self._gram:
+            c = self.components
+            if offset < 0:
+                g = gram(c.delays_s, c.delays_s, self.spacing_hz, 0, 1, self.used)
+            else:
+                g = gram(c.delays_s, c.delays_s, self.spacing_hz, offset, step, comb_count(self.used, offset, step))
+            self._gram[key] = c.basis.conj().T @ g @ c.basis
+        return self._gram[key]
+
+    def comb_eigen(self, step, offset, subset):
+        """Eigenvalues and vectors of the comb Gram matrix restricted to a subset of the components."""
+        key = (step, offset, subset.tobytes())
+        if key not in self._eigen:
+            g = self.comb_gram(step, offset)[np.ix_(subset, subset)]
+            self._eigen[key] = np.linalg.eigh(0.5 * (g + g.conj().T))
+        return self._eigen[key]
+
+    def clusters(self, step, offsets):
+        """Components the combs couple, grouped: a list of (k, c) index arrays, k clusters of c components.
+
+        Two components are coupled when, on some comb, their Gram entry exceeds
+        :data:`COUPLING` of the geometric mean of their own entries; clusters
+        are the connected groups. In the band's eigenmode basis the combs couple
+        modes only through pilot aliasing, so resolvable channels fall apart
+        into small clusters; dropping the weak couplings changes the error only
+        in second order (the data's Gram matrix is diagonal in that basis).
+        """
+        key = (step, tuple(offsets))
+        if key not in self._clusters:
+            size = self.components.basis.shape[1]
+            linked = np.eye(size, dtype=bool)
+            for offset in (-1, *offsets):  # the whole band too: the data's Gram must not couple clusters either
+                g = self.comb_gram(step, offset)
+                diag = np.sqrt(np.clip(np.diag(g).real, 1e-300, None))
+                linked |= np.abs(g) > COUPLING * diag[:, None] * diag[None, :]
+            label = np.arange(size)
+            for _ in range(size):  # label propagation to the smallest index in each connected group
+                new = np.min(np.where(linked, label[None, :], size), axis=1)
+                if np.array_equal(new, label):
+                    break
+                label = new
+            groups: dict = {}
+            for index, lab in enumerate(label):
+                groups.setdefault(int(lab), []).append(index)
+            by_size: dict = {}
+            for members in groups.values():
+                by_size.setdefault(len(members), []).append(members)
+            self._clusters[key] = [np.array(rows) for _, rows in sorted(by_size.items())]
+        return self._clusters[key]
+
+    def comb_root(self, step, offset):
+        """The Hermitian square root of :meth:`comb_gram`."""
+        key = (step, offset)
+        if key not in self._root:
+            value, vector = np.linalg.eigh(self.comb_gram(step, offset))
+            self._root[key] = (vector * np.sqrt(np.clip(value, 0.0, None))) @ vector.conj().T
+        return self._root[key]
+
+
+def data_count(used: int, freq_spacing: int, target: arrangement.Target) -> int:
+    """Data resource elements of one target symbol: the used subcarriers less its own pilots."""
+    return used - (comb_count(used, target.data_offset, freq_spacing) if target.data_offset >= 0 else 0)
+
+
+def spectral_weights(schedule: arrangement.Schedule, band: Band, symbol_s, max_doppler_hz, spectrum: str,
+                     los_fraction: float, estimator: str = "lmmse") -> list[SpectralWeights]:
+    """The s2-free part of the estimation error of designs sharing a pattern and a band (module docstring).
+
+    Parameters
+    ----------
+    schedule : arrangement.Schedule
+        Data symbols of the span and their usable pilots.
+    band : Band
+        The channel over the designs' used subcarriers.
+    symbol_s, max_doppler_hz : array (n,)
+        Symbol duration T_s (cyclic prefix included, s) and maximum Doppler (Hz) of each design.
+    spectrum, los_fraction
+        The time variation (see :func:`time_correlation`).
+    estimator : {"lmmse", "linear"}
+
+    Returns
+    -------
+    list of SpectralWeights
+        One per design, in order.
+    """
+    symbol_s = np.atleast_1d(np.asarray(symbol_s, dtype=float))
+    doppler = np.broadcast_to(np.asarray(max_doppler_hz, dtype=float), symbol_s.shape)
+    if estimator == "linear":
+        return [_linear_weights(schedule, band, t, f, spectrum, los_fraction) for t, f in zip(symbol_s, doppler)]
+    offsets = {o for t in schedule.targets for o in t.pilot_offsets}
+    if len(offsets) <= 1:
+        return _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction,
+                                  offsets.pop() if offsets else 0)
+    comps = band.components
+    d_f, used, n = schedule.freq_spacing, band.used, symbol_s.size
+    n_comp = comps.basis.shape[1]
+    total = float(sum(data_count(used, d_f, t) for t in schedule.targets))
+    groups: dict = {}  # (pilot-set shape, offsets, data offset) -> targets
+    for target in schedule.targets:
+        if target.pilot_lags and n_comp:
+            lags = target.pilot_lags
+            groups.setdefault((tuple(l - lags[0] for l in lags), target.pilot_offsets, target.data_offset),
+                              []).append(target)
+    reach = max((max(abs(l) for l in t.pilot_lags) for t in schedule.targets if t.pilot_lags), default=0)
+    lags_all = np.arange(-2 * reach, 2 * reach + 1)
+    lag_table = time_correlation(comps.kind, lags_all[None, :] * symbol_s[:, None], doppler[:, None], spectrum,
+                                 los_fraction)  # (n, 4 reach + 1, C): row l + 2 reach
+    clusters = band.clusters(d_f, sorted(offsets))
+    g_all = band.comb_gram(d_f, -1)
+    lams, betas = [], []
+    for (shape, pilot_offsets, data_offset), targets in groups.items():
+        shape_lags = np.asarray(shape)
+        u = shape_lags.size
+        rho = lag_table[:, (shape_lags[:, None] - shape_lags[None, :]) + 2 * reach]  # (n, u, u, C)
+        lags = np.array([t.pilot_lags for t in targets])  # (T, u)
+        cross = lag_table[:, lags + 2 * reach]  # (n, T, u, C)
+        g_data = g_all - (band.comb_gram(d_f, data_offset) if data_offset >= 0 else 0.0)
+        for members in clusters:  # (k, c): k clusters of c components each
+            k, c = members.shape
+            grams = np.stack([band.comb_gram(d_f, o) for o in pilot_offsets])  # (u, C, C)
+            sub = grams[:, members[:, :, None], members[:, None, :]]  # (u, k, c, c)
+            value, vector = np.linalg.eigh(sub)
+            halves = (vector * np.sqrt(np.clip(value, 0.0, None))[..., None, :]) @ np.conj(np.swapaxes(vector, -1, -2))
+            r = rho[..., members]  # (n, u, u, k, c)
+            # block (i, j) of D^(1/2) S D^(1/2) per cluster: H_i diag(rho_ij) H_j
+            blocks = ((halves[None, :, None] * r[..., None, :]) @ halves[None, None, :])  # (n, u, u, k, c, c)
+            m = blocks.transpose(0, 3, 1, 4, 2, 5).reshape(n, k, u * c, u * c)
+            lam, w = np.linalg.eigh(0.5 * (m + np.conj(np.swapaxes(m, -1, -2))))  # (n, k, uc), (n, k, uc, uc)
+            x = halves[None, None] * cross[..., members][..., None, :]  # (n, T, u, k, c, c)
+            x = x.transpose(0, 1, 3, 2, 4, 5).reshape(n, len(targets), k, u * c, c)
+            b = np.conj(np.swapaxes(w, -1, -2))[:, None] @ x  # (n, T, k, uc, c): rows w_j^H D^(1/2) S_Un
+            g_sub = g_data[members[:, :, None], members[:, None, :]]  # (k, c, c)
+            beta = np.sum((b @ g_sub) * np.conj(b), axis=-1).real  # (n, T, k, uc)
+            betas.append(beta.reshape(n, -1))
+            lams.append(np.broadcast_to(lam[:, None], beta.shape).reshape(n, -1))
+    lam = np.concatenate(lams, axis=1) if lams else np.zeros((n, 0))
+    beta = np.concatenate(betas, axis=1) if betas else np.zeros((n, 0))
+    return [SpectralWeights("lmmse", lam[i], beta[i], total) for i in range(n)]
+
+
+def _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, offset):
+    """Weights when every pilot symbol has the same comb (:class:`SeparableWeights`, or plain without LOS)."""
+    comps = band.components
+    d_f, used, n = schedule.freq_spacing, band.used, symbol_s.size
+    los = comps.kind == LINE_OF_SIGHT
+    scattered = ~los
+    total = float(sum(data_count(used, d_f, t) for t in schedule.targets))
+    g_comb = band.comb_gram(d_f, offset)
+    m, vectors = band.comb_eigen(d_f, offset, scattered)  # scattered comb Gram = V diag(m) V^H
+    tol = 1e-12 * max(m.max(), 1e-300) if m.size else 0.0
+    m = np.where(m > tol, m, 0.0)
+    g_all = band.comb_gram(d_f, -1)
+    targets = [t for t in schedule.targets]
+    reach = max((max(abs(l) for l in t.pilot_lags) for t in targets if t.pilot_lags), default=0)
+    lags_all = np.arange(-2 * reach, 2 * reach + 1)
+    kinds = np.array([SCATTERED, LINE_OF_SIGHT])
+    table = time_correlation(kinds, lags_all[None, :] * symbol_s[:, None], doppler[:, None], spectrum,
+                             los_fraction)  # (n, 4 reach + 1, 2)
+    # the frequency part of each target's data: z_j = m_j (V^H G_d V)_jj over the scattered components
+    z_of, g_data_of = {}, {}
+    for target in targets:
+        if target.data_offset not in z_of:
+            g_d = g_all - (band.comb_gram(d_f, target.data_offset) if target.data_offset >= 0 else 0.0)
+            g_data_of[target.data_offset] = g_d
+            z_of[target.data_offset] = m * np.einsum("cj,cd,dj->j", np.conj(vectors), g_d[np.ix_(scattered, scattered)],
+                                                     vectors).real
+    results = []
+    has_los = bool(los.any())
+    if has_los:
+        v_los = vectors.conj().T @ g_comb[np.ix_(scattered, los)][:, 0]
+        live = m > 0
+        schur = max(float(g_comb[np.ix_(los, los)][0, 0].real - np.sum(np.abs(v_los[live]) ** 2 / m[live])), 0.0)
+        order = np.concatenate([np.flatnonzero(los), np.flatnonzero(scattered)])
+    for k in range(n):
+        lam, beta, ls, ul, kap, gd, cnt = [], [], [], [], [], [], []
+        eigen_cache = {}
+        for target in targets:
+            z = z_of[target.data_offset]
+            if not target.pilot_lags or not m.size:
+                if has_los:
+                    u_pad = 1
+                    ls.append(np.zeros(u_pad)), ul.append(np.zeros(u_pad, complex)), kap.append(np.zeros(u_pad, complex))
+                    gd.append(g_data_of[target.data_offset][np.ix_(order, order)]), cnt.append(0)
+                continue
+            lags = np.asarray(target.pilot_lags)
+            key = tuple(lags - lags[0])
+            if key not in eigen_cache:
+                r_s = table[k, (lags[:, None] - lags[None, :]) + 2 * reach, 0]
+                eigen_cache[key] = np.linalg.eigh(0.5 * (r_s + r_s.conj().T))
+            l_t, u_t = eigen_cache[key]
+            l_t = np.where(l_t > 1e-12 * max(l_t.max(), 1e-300), l_t, 0.0)
+            rho = table[k, lags + 2 * reach, 0]  # E h(t_i) h(n)^*
+            a = np.abs(u_t.conj().T @ rho) ** 2
+            lam.append(np.outer(l_t, m).ravel())
+            beta.append(np.outer(a, z).ravel())
+            if has_los:
+                phi = table[k, lags + 2 * reach, 1]  # the line of sight at the pilots, relative to the target
+                u_phi = u_t.conj().T @ phi
+                ls.append(l_t)
+                ul.append(u_phi)
+                kap.append(np.conj(u_t.conj().T @ rho) * u_phi)
+                gd.append(g_data_of[target.data_offset][np.ix_(order, order)])
+                cnt.append(lags.size)
+        base = SpectralWeights("lmmse", np.concatenate(lam) if lam else np.zeros(0),
+                               np.concatenate(beta) if beta else np.zeros(0), total)
+        if not has_los:
+            results.append(base)
+            continue
+        width = max(x.size for x in ls)
+        pad = lambda rows, fill=0.0: np.array([np.pad(r, (0, width - r.size), constant_values=fill) for r in rows])
+        results.append(SeparableWeights(base, pad(ls), pad(ul), pad(kap), m, v_los, vectors, schur, np.array(gd),
+                                        np.array(cnt, dtype=float), total))
+    return results
+
+
+def _linear_weights(schedule, band, symbol_s, max_doppler_hz, spectrum, los_fraction):
+    """Error of least squares + linear interpolation (frequency, then time), split into bias and noise gain."""
+    comps, dropped, spacing_hz, used = band.components, band.dropped, band.spacing_hz, band.used
+    d_f = schedule.freq_spacing
+    k_all = np.arange(used)
+    response = np.exp(-2j * np.pi * spacing_hz * k_all[:, None] * comps.delays_s[None, :]) @ comps.basis  # (N_u, C)
+    interpolated = {}
+
+    def frequency_interpolation(offset):
+        """(interpolated responses (N_u, C), noise gain per subcarrier (N_u,)) from the comb at ``offset``."""
+        if offset not in interpolated:
+            pilots = np.arange(offset, used, d_f)
+            position = np.clip((k_all - offset) / d_f, 0.0, pilots.size - 1.0)
+            low = np.minimum(np.floor(position).astype(int), pilots.size - 1)
+            high = np.minimum(low + 1, pilots.size - 1)
+            frac = position - low
+            values = (1 - frac)[:, None] * response[pilots[low]] + frac[:, None] * response[pilots[high]]
+            noise = (1 - frac) ** 2 + frac**2  # frac is 0 where the nearest pilot is held
+            interpolated[offset] = (values, noise)
+        return interpolated[offset]
+
+    bias_sum, gain_sum, total = 0.0, 0.0, 0.0
+    for target in schedule.targets:
+        data = np.ones(used, dtype=bool)
+        if target.data_offset >= 0:
+            data[target.data_offset::d_f] = False
+        total += data.sum()
+        lags = np.asarray(target.pilot_lags)
+        if lags.size == 0:
+            bias_sum += data.sum()
+            continue
+        before = np.flatnonzero(lags <= 0)
+        after = np.flatnonzero(lags > 0)
+        picks = []
+        if before.size:
+            picks.append(int(before[-1]))
+        if after.size and (not before.size or lags[before[-1]] < 0):
+            picks.append(int(after[0]))
+        if len(picks) == 2:
+            a, b = lags[picks[0]], lags[picks[1]]
+            alphas = [b / (b - a), -a / (b - a)]  # linear in time between the two
+        else:
+            alphas = [1.0]
+        times = np.array([lags[i] for i in picks], dtype=float)
+        values = [frequency_interpolation(target.pilot_offsets[i]) for i in picks]
+        # symbols counted at the same time with the same comb (a training block) are averaged: less noise
+        repeats = [sum(1 for l, o in zip(target.pilot_lags, target.pilot_offsets)
+                       if l == lags[i] and o == target.pilot_offsets[i]) for i in picks]
+        values = [(v, gain / r) for (v, gain), r in zip(values, repeats)]
+        rho0 = time_correlation(comps.kind, times * symbol_s, max_doppler_hz, spectrum, los_fraction)  # (n, C)
+        rho = time_correlation(comps.kind, (times[:, None] - times[None, :]) * symbol_s, max_doppler_hz, spectrum,
+                               los_fraction)  # (n, n, C)
+        err = np.sum(np.abs(response) ** 2, axis=1)
+        for s, (v_s, _) in enumerate(values):
+            err -= 2.0 * alphas[s] * np.real(np.sum(response.conj() * v_s * rho0[s][None, :], axis=1))
+            for t, (v_t, _) in enumerate(values):
+                err += alphas[s] * alphas[t] * np.real(np.sum(v_s * v_t.conj() * rho[s, t][None, :], axis=1))
+        noise = sum(alphas[s] ** 2 * values[s][1] for s in range(len(picks)))
+        bias_sum += float(np.sum(err[data]))
+        gain_sum += float(np.sum(noise[data]))
+    if total <= 0:
+        return SpectralWeights("linear", np.zeros(0), np.zeros(0), 0.0)
+    return SpectralWeights("linear", np.zeros(0), np.zeros(0), float(total), bias=bias_sum / total + dropped,
+                           gain=gain_sum / total)
