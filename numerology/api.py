@@ -30,16 +30,30 @@ def load(path) -> Requirements:
     return load_requirements(path)
 
 
-def design_from(design=None, preset: str | None = None, path: str | None = None) -> Design:
-    """A design given as an object, a preset name or a design file."""
-    if isinstance(design, Design):
-        return design
-    if preset is not None:
-        from .presets import get_preset
+def design_from(design=None, preset: str | None = None, path: str | None = None,
+                bandwidth_hz: float | None = None) -> Design:
+    """A design given as an object, a preset name or a design file.
 
-        return get_preset(preset, place="--preset").design
+    A preset is taken for the channel bandwidth ``bandwidth_hz`` where its
+    standard defines one (``presets.preset_for``).
+    """
+    return resolve_design(design, preset, path, bandwidth_hz)[0]
+
+
+def resolve_design(design=None, preset: str | None = None, path: str | None = None,
+                   bandwidth_hz: float | None = None) -> tuple[Design, tuple]:
+    """:func:`design_from` and the notes on how a preset was chosen for the bandwidth."""
+    if isinstance(design, Design):
+        return design, ()
+    if preset is not None:
+        from .presets import get_preset, preset_for
+
+        if bandwidth_hz is None:
+            return get_preset(preset, place="--preset").design, ()
+        chosen, note = preset_for(preset, bandwidth_hz, place="--preset")
+        return chosen.design, (note,) if note else ()
     if path is not None:
-        return load_design(path)
+        return load_design(path), ()
     raise InputError("design", "expected a design, a preset name or a design file")
 
 
@@ -58,9 +72,31 @@ class RuleResult:
     def passed(self) -> bool:
         return self.margin >= 0
 
+    @property
+    def comparison(self) -> str:
+        """``"<="`` when the design's value must stay at most the limit, ``">="`` at least."""
+        from .rules import BY_NAME
+
+        return BY_NAME[self.name].comparison
+
+    @property
+    def value(self) -> float:
+        """The design's own quantity (the echo interference, the prefix, the throughput, ...)."""
+        from .rules import BY_NAME
+
+        return BY_NAME[self.name].value_and_limit(self.capacity, self.demand)[0]
+
+    @property
+    def limit(self) -> float:
+        """What the value is held to (the budget, the delay to cover, the goal, ...)."""
+        from .rules import BY_NAME
+
+        return BY_NAME[self.name].value_and_limit(self.capacity, self.demand)[1]
+
     def to_json(self) -> dict:
         return {"name": self.name, "margin": _finite(self.margin), "passed": self.passed,
-                "convention": self.convention, "capacity": _finite(self.capacity), "demand": _finite(self.demand),
+                "convention": self.convention, "value": _finite(self.value), "comparison": self.comparison,
+                "limit": _finite(self.limit), "capacity": _finite(self.capacity), "demand": _finite(self.demand),
                 "statement": self.statement, "source": self.source}
 
 
@@ -81,6 +117,10 @@ class CheckResult:
     net_throughput_bps: float
     overhead: float
     limits: dict  # name -> Limit
+    notes: tuple = ()  # how the design was chosen (a preset's bandwidth), beside the environment's notes
+    modulation: str = ""  # the modulation and coding the SINR supports
+    step_margin_db: float = math.inf  # SINR above that entry's threshold (inf for the Shannon-gap model)
+    goal_margin_db: float | None = None  # SINR above what the throughput goal needs (None without a goal)
 
     @property
     def passed(self) -> bool:
@@ -108,7 +148,11 @@ class CheckResult:
             "spectral_efficiency": self.efficiency,
             "net_throughput_bps": self.net_throughput_bps,
             "overhead": self.overhead,
+            "modulation": self.modulation,
+            "step_margin_db": _finite(self.step_margin_db),
+            "goal_margin_db": _finite(self.goal_margin_db),
             "limits": {k: v.to_json() for k, v in self.limits.items()},
+            "notes": list(self.notes),
         }
 
 
@@ -116,6 +160,17 @@ def _show_margin(rule: RuleResult) -> str:
     if rule.convention == "db":
         return db(rule.margin)
     return f"{100 * rule.margin:+.1f} %"
+
+
+def modulation_at(req: Requirements, sinr_eff_db: float) -> str:
+    """The name of the modulation and coding an effective SINR supports ("" below the table)."""
+    if req.rules.efficiency_model == "shannon":
+        return f"Shannon capacity less a {req.rules.shannon_gap_db:g} dB gap"
+    from . import mcs
+
+    table = link.mcs_table(req)
+    index = int(mcs.selected_entry_index(sinr_eff_db, table))
+    return table[index].name if index >= 0 else ""
 
 
 def results_from_evaluation(evaluation: link.Evaluation, index) -> tuple:
@@ -143,7 +198,7 @@ def check(req: Requirements, design=None, *, preset: str | None = None, design_f
     with_limits : bool
         Compute the stretch limits (the slow part).
     """
-    chosen = design_from(design, preset, design_file)
+    chosen, notes = resolve_design(design, preset, design_file, req.radio.bandwidth_hz)
     environment = derive_environment(req, speed_mps=speed_mps, max_excess_delay_s=max_excess_delay_s)
     arrays = DesignArrays.from_designs([chosen])
     evaluation = link.evaluate(arrays, environment, req)
@@ -156,7 +211,9 @@ def check(req: Requirements, design=None, *, preset: str | None = None, design_f
         design=chosen, environment=environment, rules=results_from_evaluation(evaluation, 0),
         sinr_terms={k: float(np.ravel(v)[0]) for k, v in evaluation.terms.items()},
         effective_sinr_db=float(evaluation.sinr_eff_db[0]), efficiency=float(evaluation.efficiency[0]),
-        net_throughput_bps=float(evaluation.rate_bps[0]), overhead=float(evaluation.overhead[0]), limits=limits)
+        net_throughput_bps=float(evaluation.rate_bps[0]), overhead=float(evaluation.overhead[0]), limits=limits,
+        notes=notes, modulation=modulation_at(req, float(evaluation.sinr_eff_db[0])),
+        step_margin_db=float(np.ravel(evaluation.step_margin_db)[0]), goal_margin_db=_goal_margin(evaluation, 0))
 
 
 __all__ = ["load", "check", "CheckResult", "RuleResult", "Limit", "design_from"]
@@ -168,6 +225,7 @@ __all__ = ["load", "check", "CheckResult", "RuleResult", "Limit", "design_from"]
 RELAX_STEPS = {
     "rules.max_doppler_ici": ("add_db", 3.0),
     "rules.max_oscillator_ici": ("add_db", 3.0),
+    "rules.max_echo_interference": ("add_db", 3.0),
     "rules.quasi_static_factor": ("scale", 0.8),
     "rules.flat_fading_factor": ("scale", 0.8),
     "rules.pilot_oversampling": ("scale", 0.8),
@@ -270,13 +328,18 @@ class SolveResult:
         return body
 
 
-def _check_from(evaluation, designs: DesignArrays, index: int, environment, limits=None) -> CheckResult:
+def _check_from(evaluation, designs: DesignArrays, index: int, environment, req, limits=None) -> CheckResult:
     return CheckResult(
         design=designs.design(index), environment=environment, rules=results_from_evaluation(evaluation, index),
         sinr_terms={k: float(np.ravel(v)[index]) for k, v in evaluation.terms.items()},
         effective_sinr_db=float(evaluation.sinr_eff_db[index]), efficiency=float(evaluation.efficiency[index]),
         net_throughput_bps=float(evaluation.rate_bps[index]), overhead=float(evaluation.overhead[index]),
-        limits=limits or {})
+        limits=limits or {}, modulation=modulation_at(req, float(evaluation.sinr_eff_db[index])),
+        step_margin_db=float(np.ravel(evaluation.step_margin_db)[index]), goal_margin_db=_goal_margin(evaluation, index))
+
+
+def _goal_margin(evaluation, index):
+    return None if evaluation.goal_margin_db is None else float(np.ravel(evaluation.goal_margin_db)[index])
 
 
 def solve(req: Requirements, *, objective: str | None = None, top: int = 5, explain: bool = True,
@@ -314,7 +377,7 @@ def solve(req: Requirements, *, objective: str | None = None, top: int = 5, expl
         limits = None
         if with_limits and ranked.position[i] == 0:
             limits = stretch_limits(DesignArrays.from_designs([ranked.designs.design(i)]), req, environment)
-        check_result = _check_from(ranked.evaluation, ranked.designs, i, environment, limits)
+        check_result = _check_from(ranked.evaluation, ranked.designs, i, environment, req, limits)
         leader = ranked.position[i] < top
         rank = int(ranked.position[i]) + 1 if leader else None
         import dataclasses
@@ -355,11 +418,13 @@ def _what_relaxing_buys(req, environment, objective, best: CheckResult, best_key
         new = min(new, 1.0)
     if key == "rules.pilot_oversampling":
         new = max(new, 1.0)
-    if key in ("rules.max_doppler_ici", "rules.max_oscillator_ici"):
+    if key in ("rules.max_doppler_ici", "rules.max_oscillator_ici", "rules.max_echo_interference"):
         new = min(new, 0.0)
     relaxed_req = req.replace(key, new)
     found = solver.search(relaxed_req, derive_environment(relaxed_req), objective=objective, top=1, pareto=False)
     after = float(found.ranked.keys[0]) if found.feasible else None
+    if after is not None and abs(after - best_key) <= float(solver.tie_tolerance(objective, best_key)):
+        return None  # it would buy nothing visible: not worth a line
     return Relaxed(key, float(current), float(new), objective, best_key, after)
 
 

@@ -182,9 +182,9 @@ def pilot_arrangements(req: Requirements) -> Arrangements:
 def _relaxed_overrides(spacing_hz, environment: Environment, req: Requirements) -> dict:
     """Best-case symbols of a relaxed design at each spacing (see module docstring)."""
     df = np.asarray(spacing_hz, dtype=float)
-    guard_s = environment.max_excess_delay_s + link.cp_allowance_s(req)
+    guard_s = link.minimal_guard_s(environment, req, 1.0 / df)
     return {
-        # continuous CP just covering the delay (the factor keeps rounding from failing cp_covers_delay)
+        # the shortest continuous CP the guard rule accepts (the factor keeps rounding from failing it)
         "N": np.ones_like(df), "N_cp": guard_s * df * (1 + 1e-12),
         "N_u": np.floor(req.radio.occupancy * req.radio.bandwidth_hz / df + 1e-9),
         "D_f": np.full_like(df, np.inf), "D_t": np.full_like(df, np.inf), "s_p": np.zeros_like(df),
@@ -395,7 +395,8 @@ def numerologies(spacings_hz, environment: Environment, req: Requirements):
     bandwidth without oversampling it more than ``MAX_OVERSAMPLING`` times
     (and, with a base clock, whose rate derives from it); used subcarriers
     fill the usable bandwidth; CP lengths are whole samples from the
-    shortest that covers delay plus allowance, times ``CP_FACTORS``.
+    shortest the guard rule accepts (``link.minimal_guard_s``), times
+    ``CP_FACTORS``, and the one covering the whole delay plus allowance.
     """
     df = np.asarray(spacings_hz, dtype=float)[:, None]
     n = fft_family(req)[None, :]
@@ -410,12 +411,15 @@ def numerologies(spacings_hz, environment: Environment, req: Requirements):
     ok &= n <= 2 * smallest
     i, j = np.nonzero(ok)
     df_c, n_c, used_c = df[i, 0], n[0, j], np.broadcast_to(used, ok.shape)[i, j]
-    guard_s = environment.max_excess_delay_s + link.cp_allowance_s(req)
+    guard_s = link.minimal_guard_s(environment, req, 1.0 / df_c)
     cp_min = np.ceil(guard_s * n_c * df_c - 1e-9).astype(np.int64)
     factors = np.asarray(CP_FACTORS)[None, :]
     cps = np.maximum(np.ceil(cp_min[:, None] * factors - 1e-9).astype(np.int64), cp_min[:, None])
+    # and the prefix that covers the whole max excess delay, the strict rule's choice
+    covering = np.ceil((environment.max_excess_delay_s + link.cp_allowance_s(req)) * n_c * df_c - 1e-9)
+    cps = np.concatenate([cps, np.maximum(covering.astype(np.int64), cp_min)[:, None]], axis=1)
     cps = np.where(cps < n_c[:, None], cps, -1)
-    rows = np.repeat(np.arange(df_c.size), len(CP_FACTORS))
+    rows = np.repeat(np.arange(df_c.size), cps.shape[1])
     cp_flat = cps.ravel()
     keep = cp_flat >= 0
     # The same CP may come from two factors when cp_min is small: keep each once.

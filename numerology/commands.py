@@ -62,16 +62,20 @@ def profiles(args) -> int:
 
 
 def presets(args) -> int:
-    from .presets import PRESETS
+    from .presets import FAMILIES, PINNED, PRESETS
 
+    # families (following the requirement's bandwidth) first, then the names that pin one bandwidth
+    listing = [(name, PRESETS[name], sorted(FAMILIES[name])) for name in FAMILIES]
+    listing += [(name, PRESETS[name], [PRESETS[name].channel_bandwidth_hz]) for name in PINNED]
     if args.json:
         _emit(render_json.document("numerology.presets", {"presets": [
-            {"name": p.name, "source": p.source, "description": p.description, "design": p.design.to_json()}
-            for p in PRESETS.values()]}))
+            {"name": name, "family": p.family, "source": p.source, "description": p.description,
+             "channel_bandwidths_hz": list(bandwidths), "design": p.design.to_json()}
+            for name, p, bandwidths in listing]}))
         return EXIT_OK
     from . import render_terminal
 
-    render_terminal.presets(render_terminal.console(), PRESETS)
+    render_terminal.presets(render_terminal.console(), listing)
     return EXIT_OK
 
 
@@ -96,9 +100,8 @@ def check(args) -> int:
 
     req = api.load(args.requirements)
     speed, delay = _what_if(args)
-    design = api.design_from(preset=args.preset, path=args.design)
     outputs = _check_outputs(args, req)
-    result = api.check(req, design, speed_mps=speed, max_excess_delay_s=delay)
+    result = api.check(req, preset=args.preset, design_file=args.design, speed_mps=speed, max_excess_delay_s=delay)
     if args.json:
         _emit(render_json.document("numerology.check", {"requirements": req.path, **result.to_json()}))
     else:
@@ -157,7 +160,7 @@ def _chosen_design(args, req):
     if getattr(args, "best", False):
         result = api.solve(req, explain=False, with_limits=False, top=1)
         return result.designs[0].check.design if result.feasible else None
-    return api.design_from(preset=args.preset, path=args.design)
+    return api.design_from(preset=args.preset, path=args.design, bandwidth_hz=req.radio.bandwidth_hz)
 
 
 def verify(args) -> int:

@@ -224,7 +224,7 @@ _COUNT_FIELDS = (
     "pilot_period",
 )
 _FLOAT_FIELDS = ("subcarrier_spacing_hz", "sample_rate_hz", "reserved_subcarriers", "cp_extra_period_s",
-                 "pilot_boost_db")
+                 "pilot_boost_db", "channel_bandwidth_hz")
 
 
 @dataclass(frozen=True)
@@ -275,6 +275,9 @@ class Design(_Derived):
         Pilot power per resource element over the data's, dB.
     pilot_data_shared : bool, optional
         Whether data use the other subcarriers of a pilot-bearing symbol.
+    channel_bandwidth_hz : float, optional
+        The channel a standard defines the design for, in Hz (0: none; the
+        requirement's occupancy then applies to the occupied bandwidth).
 
     Raises
     ------
@@ -313,6 +316,7 @@ class Design(_Derived):
     pilot_period: int = 0
     pilot_boost_db: float = 0.0
     pilot_data_shared: bool = True
+    channel_bandwidth_hz: float = 0.0
 
     def __post_init__(self):
         place = f"design {self.name!r}" if isinstance(self.name, str) else "design"
@@ -398,6 +402,7 @@ class Design(_Derived):
             "reserved_subcarriers": self.reserved_subcarriers,
             "cp_extra_samples": self.cp_extra_samples,
             "cp_extra_period_s": self.cp_extra_period_s,
+            "channel_bandwidth_hz": self.channel_bandwidth_hz,
             "source": self.source,
         }
 
@@ -441,6 +446,9 @@ def _pattern_problems(v, need, slot_ok) -> bool:
         ok &= need(period <= v["symbols_per_slot"], "pilot_period",
                    f"packet training repeats within the packet: at most symbols_per_slot = {v['symbols_per_slot']}, "
                    f"got {period}")
+    channel = v["channel_bandwidth_hz"]
+    ok &= need(math.isfinite(channel) and channel >= 0, "channel_bandwidth_hz",
+               f"expected a channel bandwidth >= 0 Hz (0: none), got {channel!r}")
     boost = v["pilot_boost_db"]
     ok &= need(math.isfinite(boost) and -20 <= boost <= 20, "pilot_boost_db",
                f"expected a pilot power boost between -20 and 20 dB, got {boost!r}")
@@ -563,6 +571,7 @@ class DesignArrays(_Derived):
     pilot_period: Any = 0
     pilot_boost_db: Any = 0.0
     pilot_data_shared: Any = True
+    channel_bandwidth_hz: Any = 0.0
 
     def __post_init__(self):
         for key in _COUNT_FIELDS:
@@ -636,6 +645,7 @@ _KEYS = {
     "reserved_subcarriers": (_NUMBER, False),
     "cp_extra_samples": (_COUNT, False),
     "cp_extra_period": ("time", False),
+    "channel_bandwidth": ("frequency", False),
     "source": (_TEXT, False),
 }
 _PILOT_KEYS = {
@@ -660,6 +670,7 @@ _EXAMPLES = {
     "reserved_subcarriers": "4",
     "cp_extra_samples": "16",
     "cp_extra_period": '"0.5 ms"',
+    "channel_bandwidth": '"20 MHz"',
     "source": '"where the numbers come from"',
     "freq_spacing": "6",
     "time_spacing": "4",
@@ -685,6 +696,7 @@ _FIELD_KEYS = {
     "reserved_subcarriers": "reserved_subcarriers",
     "cp_extra_samples": "cp_extra_samples",
     "cp_extra_period_s": "cp_extra_period",
+    "channel_bandwidth_hz": "channel_bandwidth",
     "source": "source",
     "pilot_scope": "pilot.scope",
     "pilot_symbols": "pilot.symbols",
@@ -903,6 +915,7 @@ def design_from_mapping(
             "reserved_subcarriers": values.get("reserved_subcarriers", 0.0),
             "cp_extra_samples": values.get("cp_extra_samples", 0),
             "cp_extra_period_s": values.get("cp_extra_period", 0.0),
+            "channel_bandwidth_hz": values.get("channel_bandwidth", 0.0),
             "source": values.get("source", ""),
         }
         key_of = dict(_FIELD_KEYS, cp_samples=cp_key)

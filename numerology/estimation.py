@@ -79,6 +79,7 @@ import numpy as np
 import scipy.special as sp
 
 from . import arrangement
+from .oscillator import phase_autocorrelation
 
 #: Pilot-bearing symbols that enter the estimate of one data symbol, at most (the nearest usable ones).
 MAX_PILOT_SYMBOLS = 4
@@ -181,16 +182,21 @@ def components(delays_s, powers, los_fraction, spacing_hz, used) -> tuple[Compon
     return Components(delays, basis.astype(complex), kind), dropped
 
 
-def time_correlation(kind, lag_s, max_doppler_hz, spectrum, los_fraction):
+def time_correlation(kind, lag_s, max_doppler_hz, spectrum, los_fraction, oscillator=None):
     """Autocorrelation of each component kind at the given lags: array (..., C).
 
     Scattered components follow the diffuse spectrum (Clarke/Jakes ``J0`` for
     ``classical``, ``rician`` and ``tracked``; ``sinc`` for ``flat``); the line
     of sight is a line at f_D (``rician``). ``tracked`` removes the mean
     Doppler shift ``K/(K+1) f_D`` from every component (``numerology.doppler``).
-    ``max_doppler_hz`` broadcasts with ``lag_s``.
+    ``max_doppler_hz`` broadcasts with ``lag_s``. ``oscillator`` (linewidth Hz,
+    residual offset Hz, mask or None; the first two broadcast with ``lag_s``)
+    multiplies every component by the phase's autocorrelation
+    (``oscillator.phase_autocorrelation``): the receiver estimates the radio
+    channel times the oscillator's phase, common to all components.
     """
-    x = (np.asarray(max_doppler_hz, dtype=float) * np.asarray(lag_s, dtype=float))[..., None]
+    lag = np.asarray(lag_s, dtype=float)
+    x = (np.asarray(max_doppler_hz, dtype=float) * lag)[..., None]
     if spectrum == "flat":
         scattered = np.sinc(2.0 * x) + 0j
     else:
@@ -199,7 +205,25 @@ def time_correlation(kind, lag_s, max_doppler_hz, spectrum, los_fraction):
     if spectrum == "tracked":
         turn = np.exp(-2j * np.pi * los_fraction * x)  # the receiver removes the centroid P_los f_D
         scattered, los = scattered * turn, los * turn
-    return np.where(np.asarray(kind) == LINE_OF_SIGHT, los, scattered)
+    out = np.where(np.asarray(kind) == LINE_OF_SIGHT, los, scattered)
+    if oscillator is not None and has_phase_variation(oscillator):
+        linewidth, offset, mask = oscillator
+        out = out * phase_autocorrelation(lag, linewidth, offset, mask)[..., None]
+    return out
+
+
+def has_phase_variation(oscillator) -> bool:
+    """Whether an oscillator (linewidth, offset, mask) moves the phase at all."""
+    linewidth, offset, mask = oscillator
+    return bool(np.any(np.asarray(linewidth) != 0) or np.any(np.asarray(offset) != 0) or mask is not None)
+
+
+def _random_phase(oscillator) -> bool:
+    """Whether the oscillator's phase wanders randomly (phase noise), which no rank-one line of sight can follow."""
+    if oscillator is None:
+        return False
+    linewidth, _, mask = oscillator
+    return bool(np.any(np.asarray(linewidth) != 0) or mask is not None)
 
 
 @dataclass(frozen=True)
@@ -371,7 +395,7 @@ def data_count(used: int, freq_spacing: int, target: arrangement.Target) -> int:
 
 
 def spectral_weights(schedule: arrangement.Schedule, band: Band, symbol_s, max_doppler_hz, spectrum: str,
-                     los_fraction: float, estimator: str = "lmmse") -> list[SpectralWeights]:
+                     los_fraction: float, estimator: str = "lmmse", oscillator=None) -> list[SpectralWeights]:
     """The s2-free part of the estimation error of designs sharing a pattern and a band (module docstring).
 
     Parameters
@@ -385,6 +409,8 @@ def spectral_weights(schedule: arrangement.Schedule, band: Band, symbol_s, max_d
     spectrum, los_fraction
         The time variation (see :func:`time_correlation`).
     estimator : {"lmmse", "linear"}
+    oscillator : (linewidth Hz, offset Hz, mask), optional
+        The oscillator's phase variation, common to the designs (see :func:`time_correlation`).
 
     Returns
     -------
@@ -394,11 +420,13 @@ def spectral_weights(schedule: arrangement.Schedule, band: Band, symbol_s, max_d
     symbol_s = np.atleast_1d(np.asarray(symbol_s, dtype=float))
     doppler = np.broadcast_to(np.asarray(max_doppler_hz, dtype=float), symbol_s.shape)
     if estimator == "linear":
-        return [_linear_weights(schedule, band, t, f, spectrum, los_fraction) for t, f in zip(symbol_s, doppler)]
+        return [_linear_weights(schedule, band, t, f, spectrum, los_fraction, oscillator)
+                for t, f in zip(symbol_s, doppler)]
     offsets = {o for t in schedule.targets for o in t.pilot_offsets}
-    if len(offsets) <= 1:
+    los_follows = not (band.components.kind == LINE_OF_SIGHT).any() or not _random_phase(oscillator)
+    if len(offsets) <= 1 and los_follows:  # a rank-one line of sight, or none: the separable path is exact
         return _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction,
-                                  offsets.pop() if offsets else 0)
+                                  offsets.pop() if offsets else 0, oscillator)
     comps = band.components
     d_f, used, n = schedule.freq_spacing, band.used, symbol_s.size
     n_comp = comps.basis.shape[1]
@@ -412,7 +440,7 @@ def spectral_weights(schedule: arrangement.Schedule, band: Band, symbol_s, max_d
     reach = max((max(abs(l) for l in t.pilot_lags) for t in schedule.targets if t.pilot_lags), default=0)
     lags_all = np.arange(-2 * reach, 2 * reach + 1)
     lag_table = time_correlation(comps.kind, lags_all[None, :] * symbol_s[:, None], doppler[:, None], spectrum,
-                                 los_fraction)  # (n, 4 reach + 1, C): row l + 2 reach
+                                 los_fraction, oscillator)  # (n, 4 reach + 1, C): row l + 2 reach
     clusters = band.clusters(d_f, sorted(offsets))
     g_all = band.comb_gram(d_f, -1)
     lams, betas = [], []
@@ -446,7 +474,7 @@ def spectral_weights(schedule: arrangement.Schedule, band: Band, symbol_s, max_d
     return [SpectralWeights("lmmse", lam[i], beta[i], total) for i in range(n)]
 
 
-def _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, offset):
+def _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, offset, oscillator=None):
     """Weights when every pilot symbol has the same comb (:class:`SeparableWeights`, or plain without LOS)."""
     comps = band.components
     d_f, used, n = schedule.freq_spacing, band.used, symbol_s.size
@@ -463,7 +491,7 @@ def _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction
     lags_all = np.arange(-2 * reach, 2 * reach + 1)
     kinds = np.array([SCATTERED, LINE_OF_SIGHT])
     table = time_correlation(kinds, lags_all[None, :] * symbol_s[:, None], doppler[:, None], spectrum,
-                             los_fraction)  # (n, 4 reach + 1, 2)
+                             los_fraction, oscillator)  # (n, 4 reach + 1, 2)
     # the frequency part of each target's data: z_j = m_j (V^H G_d V)_jj over the scattered components
     z_of, g_data_of = {}, {}
     for target in targets:
@@ -521,7 +549,7 @@ def _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction
     return results
 
 
-def _linear_weights(schedule, band, symbol_s, max_doppler_hz, spectrum, los_fraction):
+def _linear_weights(schedule, band, symbol_s, max_doppler_hz, spectrum, los_fraction, oscillator=None):
     """Error of least squares + linear interpolation (frequency, then time), split into bias and noise gain."""
     comps, dropped, spacing_hz, used = band.components, band.dropped, band.spacing_hz, band.used
     d_f = schedule.freq_spacing
@@ -570,9 +598,10 @@ def _linear_weights(schedule, band, symbol_s, max_doppler_hz, spectrum, los_frac
         repeats = [sum(1 for l, o in zip(target.pilot_lags, target.pilot_offsets)
                        if l == lags[i] and o == target.pilot_offsets[i]) for i in picks]
         values = [(v, gain / r) for (v, gain), r in zip(values, repeats)]
-        rho0 = time_correlation(comps.kind, times * symbol_s, max_doppler_hz, spectrum, los_fraction)  # (n, C)
+        rho0 = time_correlation(comps.kind, times * symbol_s, max_doppler_hz, spectrum, los_fraction,
+                                oscillator)  # (n, C)
         rho = time_correlation(comps.kind, (times[:, None] - times[None, :]) * symbol_s, max_doppler_hz, spectrum,
-                               los_fraction)  # (n, n, C)
+                               los_fraction, oscillator)  # (n, n, C)
         err = np.sum(np.abs(response) ** 2, axis=1)
         for s, (v_s, _) in enumerate(values):
             err -= 2.0 * alphas[s] * np.real(np.sum(response.conj() * v_s * rho0[s][None, :], axis=1))

@@ -67,10 +67,12 @@ class Evaluation:
     margin: dict = field(default_factory=dict)  # rule name -> margin array (rule's convention)
     normalised: dict = field(repr=False, default_factory=dict)  # rule name -> capacity/demand - 1
     slot_s: np.ndarray = field(repr=False, default=None)  # mean slot duration
+    step_margin_db: np.ndarray = field(repr=False, default=None)  # SINR above the threshold of the MCS in use
+    goal_margin_db: np.ndarray = field(repr=False, default=None)  # SINR above what the throughput goal needs
 
     @property
     def sinr_eff_db(self):
-        return 10 * np.log10(self.sinr_eff)
+        return _sinr_db(self.sinr_eff)
 
     @property
     def passed(self) -> np.ndarray:
@@ -83,6 +85,18 @@ class Evaluation:
     @property
     def worst_normalised(self) -> np.ndarray:
         return np.min(np.stack([self.normalised[r.name] for r in self.rules]), axis=0)
+
+    @property
+    def robustness(self) -> np.ndarray:
+        """The worst normalised margin of the rules and of the SINR above what the throughput goal needs.
+
+        The SINR margin of the throughput goal, 10^(m/10) - 1 for m dB, counts: a rate margin of 49 % can
+        sit 0.2 dB above the modulation step the goal depends on. The ranking by robustness uses this.
+        """
+        worst = self.worst_normalised
+        if self.goal_margin_db is None:
+            return worst
+        return np.minimum(worst, 10 ** (np.asarray(self.goal_margin_db) / 10) - 1.0)
 
     @property
     def binding(self) -> np.ndarray:
@@ -103,7 +117,40 @@ def applicable_rules(req: Requirements) -> tuple[Rule, ...]:
         skip.add("overhead")
     if req.rules.efficiency_model == "shannon":
         skip.add("link_closes")
+    skip.add("cp_covers_delay" if req.rules.guard_rule == "energy" else "guard_interval")
     return tuple(rule for rule in RULES if rule.name not in skip)
+
+
+def guard_echo(delays_s, powers, cp_s, useful_symbol_s, allowance_s):
+    """Echo interference over useful power with the prefix less the allowance (the guard rule's demand)."""
+    useful, interference = delay.echo_interference(delays_s, powers, np.maximum(cp_s - allowance_s, 0.0),
+                                                   useful_symbol_s)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(useful > 0, interference / useful, np.inf)
+
+
+def minimal_guard_s(environment: Environment, req: Requirements, useful_symbol_s):
+    """The shortest cyclic prefix (s) the guard rule accepts, for each useful symbol duration.
+
+    Coverage: the max excess delay plus the allowance. Energy: the allowance
+    plus the shortest guard whose echo interference meets the budget (the
+    interference only falls as the guard grows: bisection, 60 halvings of
+    [0, last tap]).
+    """
+    t_u = np.asarray(useful_symbol_s, dtype=float)
+    allowance = cp_allowance_s(req)
+    if req.rules.guard_rule == "coverage":
+        return np.broadcast_to(environment.max_excess_delay_s + allowance, t_u.shape).astype(float)
+    delays, powers = environment.taps
+    budget = 10 ** (req.rules.max_echo_interference_db / 10)
+    lo = np.zeros(t_u.shape)
+    hi = np.full(t_u.shape, float(np.max(delays)) if np.size(delays) else 0.0)
+    for _ in range(60):
+        mid = 0.5 * (lo + hi)
+        ok = guard_echo(delays, powers, mid, t_u, 0.0) <= budget
+        hi = np.where(ok, mid, hi)
+        lo = np.where(ok, lo, mid)
+    return hi + allowance
 
 
 def cp_allowance_s(req: Requirements) -> float:
@@ -119,13 +166,48 @@ def mcs_table(req: Requirements):
     return mcs.DEFAULT_TABLE
 
 
+def _sinr_db(sinr):
+    """10 log10 of a linear SINR; a zero SINR (a link lost entirely) is -inf dB, without a warning."""
+    with np.errstate(divide="ignore"):
+        return 10 * np.log10(sinr)
+
+
 def efficiency_function(req: Requirements):
     """Bits per data resource element as a function of the linear SINR."""
     if req.rules.efficiency_model == "shannon":
         gap_db = req.rules.shannon_gap_db
-        return lambda sinr: mcs.shannon_gap_efficiency(10 * np.log10(sinr), gap_db)
+        return lambda sinr: mcs.shannon_gap_efficiency(_sinr_db(sinr), gap_db)
     table = mcs_table(req)
-    return lambda sinr: mcs.spectral_efficiency(10 * np.log10(sinr), table)
+    return lambda sinr: mcs.spectral_efficiency(_sinr_db(sinr), table)
+
+
+def step_margin_db(req: Requirements, sinr):
+    """SINR above the threshold of the modulation and coding in use, dB (inf for the Shannon-gap model)."""
+    if req.rules.efficiency_model == "shannon":
+        return np.full(np.shape(sinr), np.inf)
+    return np.asarray(mcs.step_margin_db(_sinr_db(sinr), mcs_table(req)), dtype=float)
+
+
+def goal_margin_db(req: Requirements, sinr, ns):
+    """SINR above the least the throughput goal needs with these resources, dB (None without a goal).
+
+    The goal needs ``R_goal T_m / (N_u (1 - pilot_frac))`` bits per data
+    element; the table's lowest entry giving that (or the Shannon-gap SINR)
+    sets the SINR it needs. A design that cannot meet it at any SINR gets -inf.
+    """
+    if not req.goals.throughput_bps > 0:
+        return None
+    with np.errstate(divide="ignore", invalid="ignore"):
+        needed = req.goals.throughput_bps * ns["T_m"] / (ns["N_u"] * (1 - ns["pilot_frac"]))
+    sinr_db = _sinr_db(sinr)
+    if req.rules.efficiency_model == "shannon":
+        gap = 10 ** (req.rules.shannon_gap_db / 10)
+        with np.errstate(over="ignore"):
+            required = 10 * np.log10(gap * (2.0 ** np.asarray(needed, float) - 1.0))
+        required = np.where(needed <= mcs.DEFAULT_MAX_EFFICIENCY, required, np.inf)
+    else:
+        required = mcs.required_sinr_for_db(np.broadcast_to(needed, np.shape(sinr_db)), mcs_table(req))
+    return np.asarray(sinr_db - required, dtype=float)
 
 
 def minimum_sinr(req: Requirements) -> float:
@@ -202,10 +284,12 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
         site_index = np.arange(int(np.prod(environment.shape))).reshape(environment.shape)
     else:
         site_index = np.zeros(())
+    radio = req.radio
     columns = np.broadcast_arrays(
         designs.pilot_scope, designs.pilot_freq_spacing, designs.pilot_shift, designs.pilot_symbols,
         designs.pilot_period, designs.symbols_per_slot, designs.pilot_data_shared, designs.subcarrier_spacing_hz,
-        designs.used_subcarriers, designs.symbol_s, site_index, np.broadcast_to(0.0, shape))
+        designs.used_subcarriers, designs.symbol_s, site_index, np.broadcast_to(0.0, shape),
+        radio.oscillator_linewidth_hz, radio.frequency_error_hz)
     table = np.ascontiguousarray(np.stack([np.asarray(c, dtype=float).ravel() for c in columns], axis=1))
     unique, inverse = _unique_rows(table)
     boost = np.broadcast_to(10 ** (np.asarray(designs.pilot_boost_db, float) / 10), shape).ravel()
@@ -218,8 +302,9 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
     doppler_hz = np.broadcast_to(environment.max_doppler_hz, environment.shape if batch else ()).ravel()
     los_all = np.broadcast_to(environment.los_fraction, environment.shape if batch else ()).ravel()
     rules = req.rules
+    mask = None if radio.phase_noise is None else (tuple(radio.phase_noise[0]), tuple(radio.phase_noise[1]))
     weights = _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, environment.doppler_spectrum,
-                                 rules)
+                                 rules, mask)
     order = np.argsort(inverse, kind="stable")
     bounds = np.searchsorted(inverse[order], np.arange(unique.shape[0] + 1))
     for row in range(unique.shape[0]):
@@ -228,36 +313,38 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
     return out.reshape(shape)
 
 
-def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, spectrum, rules) -> list:
+def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, spectrum, rules, phase_mask) -> list:
     """Estimation weights of each distinct structure (a row of ``unique``), from the cache or computed.
 
     Rows that share everything but the symbol duration and the Doppler (a pattern, a numerology's band, a
-    channel) are computed together.
+    channel, an oscillator) are computed together.
     """
     out = [None] * unique.shape[0]
     todo: dict = {}
     for row, key in enumerate(unique):
-        scope, d_f, shift, mask, period, slot, shared, spacing, used, symbol_s, site, _ = key.tolist()
+        scope, d_f, shift, mask, period, slot, shared, spacing, used, symbol_s, site, _, linewidth, offset = \
+            key.tolist()
         site = int(site)
         keep = flat_powers[site] > 0
         channel = (tuple(flat_delays[site][keep]), tuple(flat_powers[site][keep]), float(los_all[site]))
         pattern = (int(scope), int(d_f), int(shift), int(mask), int(period), int(slot), bool(shared))
-        cache_key = (pattern, spacing, int(used), symbol_s, channel, float(doppler_hz[site]), spectrum,
+        oscillator = (linewidth, offset, phase_mask)
+        cache_key = (pattern, spacing, int(used), symbol_s, channel, float(doppler_hz[site]), spectrum, oscillator,
                      rules.estimator, rules.estimation_lookahead, rules.estimation_memory)
         found = _WEIGHTS_CACHE.get(cache_key)
         if found is not None:
             out[row] = found
             continue
-        todo.setdefault((pattern, spacing, int(used), channel), []).append((row, symbol_s, float(doppler_hz[site]),
-                                                                           cache_key))
-    for (pattern, spacing, used, channel), rows in todo.items():
+        todo.setdefault((pattern, spacing, int(used), channel, oscillator), []).append(
+            (row, symbol_s, float(doppler_hz[site]), cache_key))
+    for (pattern, spacing, used, channel, oscillator), rows in todo.items():
         scope, d_f, shift, mask, period, slot, shared = pattern
         symbol_s = np.array([r[1] for r in rows])
         doppler = np.array([r[2] for r in rows])
         los = channel[2]
         if SCOPES[scope] == "differential":
             kinds = np.array([estimation.SCATTERED, estimation.LINE_OF_SIGHT])
-            rho = estimation.time_correlation(kinds, symbol_s, doppler, spectrum, los)
+            rho = estimation.time_correlation(kinds, symbol_s, doppler, spectrum, los, oscillator)
             r = (1 - los) * rho[:, 0] + los * rho[:, 1]  # the whole channel's autocorrelation at one symbol
             found = [estimation.SpectralWeights("differential", np.zeros(0), np.zeros(0), 1.0, bias=abs(v) ** 2)
                      for v in r]
@@ -265,7 +352,7 @@ def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, sp
             plan = _schedule(SCOPES[scope], mask, period, shift, d_f, slot, shared, rules.estimation_lookahead,
                              rules.estimation_memory)
             found = estimation.spectral_weights(plan, _band(channel, spacing, used), symbol_s, doppler, spectrum,
-                                                los, rules.estimator)
+                                                los, rules.estimator, oscillator)
         if len(_WEIGHTS_CACHE) + len(found) > _WEIGHTS_CACHE_SIZE:
             _WEIGHTS_CACHE.clear()
         for (row, _, _, cache_key), weights in zip(rows, found):
@@ -355,10 +442,13 @@ def namespace(designs: DesignArrays, environment: Environment, req: Requirements
         "f_D": environment.max_doppler_hz,
         "tau_max": environment.max_excess_delay_s,
         "T_allow": cp_allowance_s(req),
+        "echo_max": 10 ** (rules.max_echo_interference_db / 10),
         "T_c": environment.coherence_time_s,
         "B_c": environment.coherence_bandwidth_hz,
         "B": radio.bandwidth_hz,
         "occ": radio.occupancy,
+        "W_occ": np.where(designs.channel_bandwidth_hz > 0, designs.channel_bandwidth_hz * radio.occupancy,
+                          designs.used_subcarriers * np.asarray(designs.subcarrier_spacing_hz, dtype=float)),
         "sinr_min": minimum_sinr(req),
         "F_qs": rules.quasi_static_factor,
         "F_ff": rules.flat_fading_factor,
@@ -427,6 +517,8 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
     ns = evaluate_derived({**ns, "sinr_eff": np.nan})  # time and overhead quantities first
     delays, powers = environment.taps
     useful, interference = delay.echo_interference(delays, powers, ns["T_cp"], ns["T_u"])
+    if "echo_guard" not in ns and req.rules.guard_rule == "energy":
+        ns["echo_guard"] = guard_echo(delays, powers, ns["T_cp"], ns["T_u"], ns["T_allow"])
     pn, cfo = oscillator_terms(req, ns["T_u"], ns["df"])
     ns["oscillator_ici"] = lambda _df: pn + cfo  # the rule sees the same spacings: computed once
     # An environment batch and a per-site SNR (arrays) broadcast against the designs.
@@ -466,7 +558,12 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
     return Evaluation(terms=terms, sinr_eff=sinr_eff, efficiency=np.asarray(efficiency, float),
                       rate_bps=np.broadcast_to(ns["rate"], shape), overhead=np.broadcast_to(ns["overhead"], shape),
                       rules=applicable, capacity=capacity, demand=demand, margin=margin, normalised=normalised,
-                      slot_s=np.broadcast_to(ns["T_slot"], shape))
+                      slot_s=np.broadcast_to(ns["T_slot"], shape), step_margin_db=step_margin_db(req, sinr_eff),
+                      goal_margin_db=_shaped(goal_margin_db(req, sinr_eff, ns), shape))
+
+
+def _shaped(values, shape):
+    return None if values is None else np.broadcast_to(values, shape)
 
 
 def _over_useful(ici):

@@ -220,6 +220,40 @@ def spectral_efficiency(sinr_db, table: tuple[McsEntry, ...] = DEFAULT_TABLE):
     return float(result) if result.ndim == 0 else result
 
 
+def step_margin_db(sinr_db, table: tuple[McsEntry, ...] = DEFAULT_TABLE):
+    """SINR above the threshold of the entry in use (dB): how far the rate is from dropping a step.
+
+    Below the lowest threshold it is the (negative) distance to that threshold.
+
+    Examples
+    --------
+    >>> round(float(step_margin_db(18.59)), 2)  # 64-QAM 3/4 needs 18.35 dB with the default gap
+    0.24
+    """
+    thresholds_db, _, _ = _ladder(tuple(table))
+    required = np.array([entry.required_sinr_db for entry in table])
+    sinr = np.asarray(sinr_db, dtype=float)
+    index = np.asarray(selected_entry_index(sinr, table))
+    margin = np.where(index >= 0, sinr - required[np.clip(index, 0, None)], sinr - thresholds_db[0])
+    return float(margin) if margin.ndim == 0 else margin
+
+
+def required_sinr_for_db(efficiency, table: tuple[McsEntry, ...] = DEFAULT_TABLE):
+    """The lowest SINR (dB) at which the table gives at least ``efficiency`` bits per element (inf if none).
+
+    Examples
+    --------
+    >>> round(float(required_sinr_for_db(4.2)), 2)  # 64-QAM 3/4 (4.5 b) is the first entry with 4.2 b or more
+    18.35
+    """
+    thresholds = np.array([entry.required_sinr_db for entry in table])
+    efficiencies = np.array([entry.efficiency for entry in table])
+    wanted = np.asarray(efficiency, dtype=float)
+    enough = efficiencies[None, :] >= wanted.reshape(-1, 1)
+    result = np.min(np.where(enough, thresholds[None, :], np.inf), axis=1).reshape(wanted.shape)
+    return float(result) if result.ndim == 0 else result
+
+
 def shannon_gap_efficiency(sinr_db, gap_db: float = SHANNON_GAP_DB, max_efficiency: float = DEFAULT_MAX_EFFICIENCY):
     """Capacity with an SNR gap, capped: min(log2(1 + sinr / gap), max_efficiency).
 

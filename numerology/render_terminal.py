@@ -84,15 +84,19 @@ def profiles(con: Console, catalogue) -> None:
     con.print("Normalised profiles (x rms) are scaled by environment.rms_delay_spread.")
 
 
-def presets(con: Console, presets) -> None:
-    table = _table("Published numerologies (use with --preset NAME)", "name", ">spacing", ">FFT", ">CP", ">used",
-                   ">pilots (f x t / shift)", "~source")
-    for preset in presets.values():
+def presets(con: Console, listing) -> None:
+    """The families (one row each, at their default bandwidth) with the channel bandwidths they define."""
+    from .design import pilot_label
+
+    table = _table("Published numerologies (use with --preset NAME; a family follows the requirement's bandwidth)",
+                   "name", "~channels (MHz)", ">spacing", ">CP", "~pilots")
+    for name, preset, bandwidths in listing:
         d = preset.design
-        table.add_row(preset.name, engineering(d.subcarrier_spacing_hz, "Hz"), str(d.fft_size),
-                      f"{d.cp_samples} ({engineering(d.cp_s, 's')})", str(d.used_subcarriers),
-                      f"{d.pilot_freq_spacing} x {d.pilot_time_spacing} / {d.pilot_shift}", preset.source)
+        table.add_row(name, " ".join(f"{b / 1e6:g}" for b in bandwidths),
+                      engineering(d.subcarrier_spacing_hz, "Hz"), engineering(d.cp_s, "s", 3), pilot_label(d))
     con.print(table)
+    con.print("Spacing, CP and pilots at the first channel listed for pinned names, else the family's usual one; "
+              "sources and modelling choices: numerology presets --json")
 
 
 TERM_LABELS = {
@@ -131,23 +135,31 @@ def show_margin(rule) -> str:
 
 
 def _quantity(rule_name: str, value: float) -> str:
-    """Capacity/demand of a rule in its natural unit."""
+    """A rule's value or limit in its natural unit."""
     unit = {"cp_covers_delay": "s", "quasi_static": "s", "flat_fading": "Hz", "fits_channel": "Hz",
             "throughput": "bit/s", "latency": "s"}.get(rule_name)
+    if math.isinf(value):
+        return "unbounded" if value > 0 else "-inf"
     if unit:
         return engineering(value, unit)
-    if rule_name in ("doppler_ici", "oscillator_ici", "link_closes"):
+    if rule_name in ("doppler_ici", "oscillator_ici", "link_closes", "guard_interval"):
         return db(10 * math.log10(value)) if value > 0 else "-inf dB"
     return f"{value:.4g}"
 
 
+#: How the comparison of a rule's value with its limit is printed.
+COMPARISON_SIGNS = {"<=": "\u2264", ">=": "\u2265"}
+
+
 def rules_table(rules, title="Rules") -> Table:
+    """PASS/FAIL, the rule, the design's value, the limit it is held to (with the comparison), the margin."""
     binding = min(rules, key=lambda r: r.normalised)
-    table = _table(title, "", "rule", ">needs", ">has", ">margin")
+    table = _table(title, "", "rule", ">value", ">limit", ">margin")
     for r in rules:
         mark = Text("PASS", style="green") if r.passed else Text("FAIL", style="bold red")
         name = Text(r.name + ("  <- binding" if r is binding else ""), style="bold" if r is binding else "")
-        table.add_row(mark, name, _quantity(r.name, r.demand), _quantity(r.name, r.capacity), show_margin(r))
+        limit = f"{COMPARISON_SIGNS[r.comparison]} {_quantity(r.name, r.limit)}"
+        table.add_row(mark, name, _quantity(r.name, r.value), limit, show_margin(r))
     return table
 
 
@@ -174,6 +186,18 @@ def limits_table(limits) -> Table:
     return table
 
 
+def modulation_text(result) -> str:
+    """ " (64-QAM 3/4, SINR 0.24 dB above its threshold; the goal holds to 2.1 dB less)" for a check result."""
+    if not result.modulation:
+        return ""
+    parts = [result.modulation]
+    if not math.isinf(result.step_margin_db):
+        parts.append(f"SINR {result.step_margin_db:.2f} dB above its threshold")
+    if result.goal_margin_db is not None and math.isfinite(result.goal_margin_db):
+        parts.append(f"the throughput goal holds to {result.goal_margin_db:.2f} dB less SINR")
+    return " (" + "; ".join(parts) + ")"
+
+
 def check(con: Console, result, req) -> None:
     d = result.design
     verdict = Text("PASSES", style="bold green") if result.passed else Text("FAILS", style="bold red")
@@ -188,10 +212,11 @@ def check(con: Console, result, req) -> None:
     con.print(rules_table(result.rules))
     con.print(sinr_table(result))
     con.print(f"Net throughput {engineering(result.net_throughput_bps, 'bit/s')} at "
-              f"{result.efficiency:.3g} bit per data resource element; overhead {100 * result.overhead:.1f} %")
+              f"{result.efficiency:.3g} bit per data resource element{modulation_text(result)}; "
+              f"overhead {100 * result.overhead:.1f} %")
     if result.limits:
         con.print(limits_table(result.limits))
-    for note in env.notes:
+    for note in (*result.notes, *env.notes):
         con.print(Text(f"note: {note}", style="yellow"))
     con.print(Text(CAUTION, style="dim"))
 

@@ -46,10 +46,13 @@ SYMBOLS = {
     "f_D": "maximum Doppler (Hz)",
     "tau_max": "max excess delay (s)",
     "T_allow": "cyclic-prefix allowance for timing and filters (s)",
+    "echo_guard": "echo interference beyond the prefix less the allowance, over the useful power (linear)",
+    "echo_max": "largest echo interference beyond the prefix (linear)",
     "T_c": "coherence time (s)",
     "B_c": "coherence bandwidth (Hz)",
     "B": "channel bandwidth (Hz)",
     "occ": "usable fraction of the bandwidth",
+    "W_occ": "bandwidth the design claims (Hz): occupied subcarriers, or a standard design's channel times occ",
     "sinr_eff": "effective SINR from the link model (linear)",
     "sinr_min": "SINR needed by the most robust modulation and coding (linear)",
     # settings and goals
@@ -98,6 +101,7 @@ class Rule:
     source: str
     setting: str = ""  # the requirement key that sets its threshold, if any
     gate: bool = False  # a yes/no rule: its margin says pass or fail, not how much headroom
+    reads: str = "demand"  # which side is the design's value: "demand" (at most the limit) or "capacity" (at least)
 
     def margin(self, capacity, demand):
         """The margin by this rule's convention (>= 0 passes)."""
@@ -110,12 +114,28 @@ class Rule:
     def unit(self) -> str:
         return {"ratio": "", "db": "dB"}[self.convention]
 
+    @property
+    def comparison(self) -> str:
+        """How the design's value must compare with the limit: ``"<="`` (an upper limit) or ``">="``."""
+        return "<=" if self.reads == "demand" else ">="
+
+    def value_and_limit(self, capacity, demand):
+        """(the design's value, the limit it is held to), read the right way round for this rule."""
+        return (demand, capacity) if self.reads == "demand" else (capacity, demand)
+
 
 RULES: tuple[Rule, ...] = (
-    Rule("cp_covers_delay", "The cyclic prefix covers the max excess delay plus the timing and filter allowance.",
+    Rule("guard_interval", "Echoes beyond the cyclic prefix (less the timing and filter allowance) stay below the "
+         "interference budget.",
+         "echo_max", "echo_guard", "db",
+         "EBU TR 024 sect. 2.4 (weight of echoes beyond the guard interval); common practice: guards are sized "
+         "by interference, as LTE's normal prefix is specified against ETU (3GPP TS 36.101 Annex B)",
+         "rules.max_echo_interference"),
+    Rule("cp_covers_delay", "The cyclic prefix covers the max excess delay plus the timing and filter allowance "
+         "(the strict guard rule: rules.guard_rule = \"coverage\").",
          "T_cp", "tau_max + T_allow", "ratio",
          "common practice; guard-interval sizing as in ETSI EN 300 744 sect. 4.4 and 3GPP TS 36.211 sect. 6.12",
-         "rules.cp_allowance"),
+         "rules.guard_rule", reads="capacity"),
     Rule("doppler_ici", "Doppler inter-carrier interference stays below its limit.",
          "ici_max", "doppler_ici(f_D*T_u)", "db",
          "Russell & Stueber, IEEE VTC 1995 (classical spectrum); exact integral of the spectrum's autocorrelation",
@@ -132,18 +152,22 @@ RULES: tuple[Rule, ...] = (
          "rules.max_oscillator_ici"),
     Rule("pilot_aliasing", "The pilot lattice samples the channel's delay-Doppler support without aliasing, with margin.",
          "alias_scale(D_f, D_t, s_p, df, T_s, tau_max, f_D)", "rho_p", "ratio",
-         "Hoeher, Kaiser & Robertson, ICASSP 1997 (2-D sampling of the channel)", "rules.pilot_oversampling"),
-    Rule("fits_channel", "The occupied subcarriers fit in the usable bandwidth.",
-         "occ*B", "N_u*df", "ratio", "definition", "radio.occupancy", gate=True),
+         "Hoeher, Kaiser & Robertson, ICASSP 1997 (2-D sampling of the channel)", "rules.pilot_oversampling",
+         reads="capacity"),
+    Rule("fits_channel", "The design fits the licensed channel: a standard's channel as a whole, other designs' "
+         "occupied subcarriers within the usable fraction.",
+         "occ*B", "W_occ", "ratio", "definition; a standard design keeps its own occupancy (its channel)",
+         "radio.occupancy", gate=True),
     Rule("sample_clock", "The sample rate derives from the base clock by an integer ratio.",
          "1", "1 + clock_mismatch(N*df)", "ratio", "common practice (hardware rate plans)", "radio.sample_clock",
          gate=True),
     Rule("link_closes", "The effective SINR supports the most robust modulation and coding.",
-         "sinr_eff", "sinr_min", "db", "modulation-and-coding table (numerology.mcs)", "rules.efficiency_model"),
+         "sinr_eff", "sinr_min", "db", "modulation-and-coding table (numerology.mcs)", "rules.efficiency_model",
+         reads="capacity"),
     Rule("overhead", "Cyclic prefix and pilots stay within the overhead goal.",
          "ovh_max", "overhead", "ratio", "goal", "goals.max_overhead"),
     Rule("throughput", "The net throughput meets the goal.",
-         "rate", "R_goal", "ratio", "goal", "goals.throughput"),
+         "rate", "R_goal", "ratio", "goal", "goals.throughput", reads="capacity"),
     Rule("latency", "The slot is no longer than the latency goal.",
          "L_max", "T_slot", "ratio", "goal", "goals.max_latency"),
 )

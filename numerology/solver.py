@@ -29,7 +29,7 @@ from .requirements import Requirements
 OBJECTIVES = ("throughput", "robustness", "overhead", "latency")
 #: Rules a faster channel stresses, and rules a longer echo stresses (for the Pareto axes).
 SPEED_RULES = ("doppler_ici", "quasi_static", "pilot_aliasing")
-DELAY_RULES = ("cp_covers_delay", "flat_fading", "pilot_aliasing")
+DELAY_RULES = ("guard_interval", "cp_covers_delay", "flat_fading", "pilot_aliasing")
 #: Candidates evaluated exactly in the first round of the branch and bound, and at most per round
 #: (rounds double in between).
 FIRST_BATCH = 256
@@ -86,7 +86,7 @@ def objective_key(objective: str, evaluation: link.Evaluation, designs: DesignAr
     if objective == "throughput":
         return np.asarray(evaluation.rate_bps, dtype=float)
     if objective == "robustness":
-        return np.asarray(evaluation.worst_normalised, dtype=float)
+        return np.asarray(evaluation.robustness, dtype=float)
     if objective == "overhead":
         return -np.asarray(evaluation.overhead, dtype=float)
     if objective == "latency":
@@ -126,6 +126,8 @@ def _cheap_stage(grid: cand.Grid, environment: Environment, req: Requirements, i
         rejected[rule.name] = int(np.count_nonzero(fail & ok))
         ok &= ~fail
         normalised.append(evaluation.normalised[rule.name])
+    if evaluation.goal_margin_db is not None:  # the SINR margin of the throughput goal: monotone in the SINR
+        normalised.append(10 ** (np.asarray(evaluation.goal_margin_db) / 10) - 1.0)
     bound = {
         "throughput": evaluation.rate_bps,
         "robustness": np.min(np.stack(normalised), axis=0) if normalised else np.zeros(ok.shape),
@@ -192,7 +194,7 @@ def search(req: Requirements, environment: Environment | None = None, objective:
             idx = np.flatnonzero(passed)
             keys = objective_key(objective, evaluation, designs)[idx]
             for name, values in (("index", batch[idx]), ("key", keys),
-                                 ("robust", evaluation.worst_normalised[idx]), ("rate", evaluation.rate_bps[idx]),
+                                 ("robust", evaluation.robustness[idx]), ("rate", evaluation.rate_bps[idx]),
                                  ("speed", axis_margins(evaluation, SPEED_RULES)[idx]),
                                  ("delay", axis_margins(evaluation, DELAY_RULES)[idx])):
                 records[name].append(np.asarray(values))
@@ -215,8 +217,12 @@ def search(req: Requirements, environment: Environment | None = None, objective:
                         int(found["index"].size), top)
     if not found["index"].size:
         return Search(window, None, stats, rejected)
-    # Best first; ties broken by robustness, then by enumeration order (deterministic).
-    rank = np.lexsort((found["index"], -found["robust"], -found["key"]))
+    # Best first; objective values within the tie tolerance count as equal, and then the smaller FFT, the
+    # lower sample rate and the larger worst margin win (enumeration order last: deterministic).
+    chosen_index = found["index"].astype(np.int64)
+    tier = tie_tiers(objective, found["key"])
+    rate_hz = grid.fft_size[chosen_index] * grid.spacing_hz[chosen_index]
+    rank = np.lexsort((found["index"], -found["robust"], rate_hz, grid.fft_size[chosen_index], tier))
     if pareto:
         on_front = pareto_mask(found["rate"], found["speed"], found["delay"])[rank]
     else:
@@ -233,6 +239,32 @@ def search(req: Requirements, environment: Environment | None = None, objective:
     evaluation = link.evaluate(designs, environment, req)
     ranked = Ranked(designs, evaluation, found["key"][rank][show], on_front[show], position[show])
     return Search(window, ranked, stats, rejected)
+
+
+#: Objective values closer than this count as equal in the ranking: relative for throughput and latency,
+#: absolute for the robustness margin and the overhead fraction (both already fractions).
+TIE_TOLERANCE = {"throughput": ("relative", 0.005), "latency": ("relative", 0.005),
+                 "robustness": ("absolute", 0.005), "overhead": ("absolute", 0.001)}
+
+
+def tie_tolerance(objective: str, key):
+    """How far below ``key`` another value still ties with it (see :data:`TIE_TOLERANCE`)."""
+    kind, amount = TIE_TOLERANCE[objective]
+    key = np.asarray(key, dtype=float)
+    return amount * np.abs(np.where(np.isfinite(key), key, 0.0)) if kind == "relative" else np.full(key.shape, amount)
+
+
+def tie_tiers(objective: str, keys) -> np.ndarray:
+    """Tier of each key, best first: a tier holds the keys within the tolerance of its best one."""
+    keys = np.asarray(keys, dtype=float)
+    order = np.argsort(-keys, kind="stable")
+    tiers = np.empty(keys.size, dtype=np.int64)
+    tier, top = -1, np.inf
+    for position in order:  # found designs: a few hundred at most
+        if not keys[position] >= top - float(tie_tolerance(objective, top)) or tier < 0:
+            tier, top = tier + 1, keys[position]
+        tiers[position] = tier
+    return tiers
 
 
 def _breadth_first(pending, numerology, per_numerology: int, limit: int):

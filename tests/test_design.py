@@ -123,7 +123,7 @@ def test_to_json_has_exactly_the_documented_keys():
     assert list(data) == [
         "name", "subcarrier_spacing_hz", "fft_size", "sample_rate_hz", "cp_samples", "cp_s", "useful_symbol_s",
         "symbol_s", "used_subcarriers", "symbols_per_slot", "pilot", "reserved_subcarriers", "cp_extra_samples",
-        "cp_extra_period_s", "source",
+        "cp_extra_period_s", "channel_bandwidth_hz", "source",
     ]
     assert data["pilot"] == {"scope": "stream", "freq_spacing": 6, "time_spacing": 4, "shift": 3, "symbols": [0],
                              "period": 4, "boost_db": 0.0, "data_shared": True}

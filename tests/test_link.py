@@ -154,7 +154,7 @@ def test_longer_cp_never_lowers_the_echo_margin(cp1, cp2):
     a, _ = _eval(req, dataclasses.replace(LTE, cp_samples=short))
     b, _ = _eval(req, dataclasses.replace(LTE, cp_samples=long_))
     assert b.terms["echo"][0] <= a.terms["echo"][0] + 1e-15
-    assert b.margin["cp_covers_delay"][0] >= a.margin["cp_covers_delay"][0]
+    assert b.margin["guard_interval"][0] >= a.margin["guard_interval"][0]
 
 
 def test_vectorised_equals_one_by_one():

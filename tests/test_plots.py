@@ -24,11 +24,12 @@ SMALL_GRID = (12, 10)  # enough to draw; the limits are refined by bisection, no
 
 #: Invented requirement: two equal rays 1 us apart (the map's delay axis is the max excess delay);
 #: the quasi-static rule is relaxed and the Doppler ICI limit raised so that the pilot lattice sets
-#: the speed limit.
+#: the speed limit; the strict guard rule (coverage) and a pilot oversampling of 2 give closed forms.
 REQ = {
     "environment": {"carrier": "2 GHz", "max_speed": "100 km/h", "max_excess_delay": "1 us"},
     "radio": {"bandwidth": "10 MHz", "snr": "25 dB"},
-    "rules": {"quasi_static_factor": 1.0, "max_doppler_ici": "-20 dB"},
+    "rules": {"quasi_static_factor": 1.0, "max_doppler_ici": "-20 dB", "guard_rule": "coverage",
+              "pilot_oversampling": 2.0},
 }
 #: Rectangular pilot lattice (shift 0): every 4th subcarrier, every 7th symbol.
 RECT = Design("rect", 15e3, 1024, 72, 600, 4, 7, 0, 14)
@@ -41,7 +42,7 @@ def req():
 
 def test_speed_edge_of_a_rectangular_lattice_is_the_sampling_limit(req):
     """A rectangular lattice aliases in Doppler when f_D > 1 / (2 rho D_t T_s) (Hoeher, Kaiser & Robertson,
-    ICASSP 1997; PHYSICS.md sect. 7), rho the pilot oversampling (2 by default). The map's speed edge at
+    ICASSP 1997), rho the pilot oversampling (2 here). The map's speed edge at
     the required delay is that f_D times the wavelength, drawn by pilot_aliasing, and agrees with the
     stretch limit of numerology.limits (Brent's method to 1e-6 relative, hence rtol 2e-6)."""
     rho = req.rules.pilot_oversampling
@@ -63,6 +64,19 @@ def test_delay_edge_is_the_cyclic_prefix_less_the_allowance(req):
     assert_allclose(delay[0], 72 / 15.36e6 - 4 / 10e6, rtol=1e-8)
     stretch = stretch_limits(DesignArrays.from_designs([RECT]), req, derive_environment(req))["max_excess_delay_s"]
     assert_allclose(delay[0], stretch.value, rtol=2e-6)
+
+
+def test_delay_edge_by_energy_is_where_the_echo_meets_its_budget(req):
+    """Two equal rays, the second d beyond the prefix less the allowance: its weight beyond the guard is
+    2u - u^2 with u = d / T_u (EBU TR 024 sect. 2.4), so I/U = x / (2 - x) with x = 2u - u^2; at the budget b
+    x = 2b / (1 + b) and u = 1 - sqrt(1 - x) (calc). The edge is T_cp - T_allow + u T_u."""
+    energy = requirements_from_mapping({**REQ, "rules": {**REQ["rules"], "guard_rule": "energy"}})
+    b = 10 ** (energy.rules.max_echo_interference_db / 10)
+    x = 2 * b / (1 + b)
+    edge = 72 / 15.36e6 - 4 / 10e6 + (1 - math.sqrt(1 - x)) * RECT.useful_symbol_s
+    delay, rule = plots.delay_limits(energy, RECT, [100 * KMH], np.linspace(1e-7, 12e-6, 41))
+    assert rule[0] == "guard_interval"
+    assert_allclose(delay[0], edge, rtol=1e-8)
 
 
 def test_operating_map_region_and_boundary_rules(req):

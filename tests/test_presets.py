@@ -39,7 +39,7 @@ def test_presets_are_declared_with_names_and_sources():
     assert len(PRESETS) >= 20
     for name, preset in PRESETS.items():
         assert isinstance(preset, Preset)
-        assert re.fullmatch(r"[a-z0-9-]+", name), name  # typeable: no slashes, spaces or capitals
+        assert re.fullmatch(r"[a-z0-9.-]+", name), name  # typeable: no slashes, spaces or capitals
         assert preset.name == preset.design.name == name
         assert preset.source and preset.design.source == preset.source
         assert preset.description
@@ -52,7 +52,7 @@ def test_get_preset_suggests_close_names():
         get_preset("lte-20-normal"[:-2] + "l")
     with pytest.raises(InputError, match=r"--preset: unknown preset 'dvbt-8k-1/4'; did you mean 'dvbt-8k-g4'"):
         get_preset("dvbt-8k-1/4", place="--preset")
-    with pytest.raises(InputError, match="known presets: wifi-20, "):
+    with pytest.raises(InputError, match="known presets: wifi, lte-normal, "):
         get_preset("zzzz")
 
 

@@ -86,7 +86,7 @@ def test_window_edges_match_closed_forms():
         "radio": {"bandwidth": "5 MHz", "snr": "20 dB"},
         "goals": {"max_overhead": 0.99},
         "rules": {"max_doppler_ici": "-10 dB", "cp_allowance": "1 us", "quasi_static_factor": 5.0,
-                  "flat_fading_factor": 2.0},
+                  "flat_fading_factor": 2.0, "guard_rule": "coverage"},
     })
     env = derive_environment(req)
     window = candidates.spacing_window(env, req)
@@ -111,10 +111,16 @@ def test_faster_vehicle_never_widens_the_window():
         assert lo2 >= lo1 * (1 - 1e-9) and hi2 <= hi1 * (1 + 1e-9)
 
 
-def test_longer_echo_never_shortens_the_minimum_cp():
+@pytest.mark.parametrize("guard", ["coverage", "energy"])
+def test_longer_echo_never_shortens_the_minimum_cp(guard):
+    """The strict rule covers the max excess delay; the energy rule, for two equal rays (whose echo beyond a
+    given prefix only grows with their distance), also never accepts a shorter prefix for a longer echo."""
     shortest = []
     for delay in ("0.5 us", "1 us", "2 us", "3 us"):
-        req = _small(environment__max_excess_delay=delay, environment__rms_delay_spread="0.2 us")
+        req = _small(environment__max_excess_delay=delay, rules__guard_rule=guard,
+                     environment__rms_delay_spread="0.2 us")
+        if guard == "energy":
+            req = req.replace("environment.rms_delay_spread", None)  # two equal rays at 0 and the delay
         env = derive_environment(req)
         grid, passed = solver.brute_force(req, env)
         cp_s = grid.cp_samples / (grid.fft_size * grid.spacing_hz)
