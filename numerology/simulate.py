@@ -151,9 +151,14 @@ DIFFERENTIAL_SYMBOLS = 8
 BATCH_BYTES = 48 * 2**20
 #: Frames in a batch, at most.
 MAX_BATCH_FRAMES = 64
+#: Smallest noise-plus-interference the receiver assumes on a pilot (keeps a noiseless static channel's
+#: normal equations regular; far below any error that is measured).
+NOISE_FLOOR = 1e-13
 #: The figures measured, in report order.
 FIGURES = ("interference", "estimation", "sinr_eff")
-ESTIMATORS = ("lmmse", "linear")
+#: Receivers: the two of ``rules.estimator``, and ``perfect`` (the true channel as received: checks of the
+#: channel and the noise alone).
+ESTIMATORS = ("lmmse", "linear", "perfect")
 
 
 def _db(x: float) -> float:
@@ -571,7 +576,7 @@ class _Plan:
         for target in self.targets:
             groups = target.groups
             g = len(groups)
-            if g == 0 or self.estimator == "linear":
+            if g == 0 or self.estimator != "lmmse":
                 self.weights.append(None)
                 continue
             k = np.zeros((g * c, g * c), dtype=complex)
@@ -582,7 +587,7 @@ class _Plan:
                 rows = slice(i * c, (i + 1) * c)
                 kn[:, rows] = np.diag(cov((target.symbol,), gi.symbols))
                 b[rows, rows] = self.grams[gi.offset]
-                s[rows] = self.disturbance / (self.boost * len(gi.symbols))
+                s[rows] = max(self.disturbance, NOISE_FLOOR) / (self.boost * len(gi.symbols))
                 for j, gj in enumerate(groups):
                     k[rows, j * c:(j + 1) * c] = np.diag(cov(gi.symbols, gj.symbols))
             self.weights.append(np.linalg.solve((b @ k + np.diag(s)).T, kn.T))  # W^T: (g C, C)
@@ -740,6 +745,8 @@ def _batch(plan: _Plan, rng: np.random.Generator, frames: int) -> dict:
         data = is_data[n]
         if plan.scope == "differential":
             estimate = plan.differential_scale * (y[:, n - 1] / np.where(x[:, n - 1] == 0, 1.0, x[:, n - 1]))
+        elif plan.estimator == "perfect":
+            estimate = h_rx[:, n].copy()
         elif not target.groups:
             estimate = np.zeros((frames, used), dtype=complex)
         elif plan.estimator == "linear":
@@ -748,7 +755,7 @@ def _batch(plan: _Plan, rng: np.random.Generator, frames: int) -> dict:
             z = np.concatenate([np.mean([observation(s, g.offset) for s in g.symbols], axis=0)
                                 @ plan.ramps[:, plan._comb(g.offset)].T.conj() for g in target.groups], axis=1)
             estimate = (z @ plan.weights[index]) @ plan.ramps
-        if target.data_offset >= 0 and plan.scope != "differential":  # common phase from the symbol's own pilots
+        if target.data_offset >= 0 and plan.scope != "differential" and plan.estimator != "perfect":  # common phase from the symbol's own pilots
             comb = plan._comb(target.data_offset)
             c = np.sum(observation(n, target.data_offset) * np.conj(estimate[:, comb]), axis=1)
             estimate *= np.where(np.abs(c) > 0, c / np.where(np.abs(c) > 0, np.abs(c), 1.0), 1.0)[:, None]

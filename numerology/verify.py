@@ -138,7 +138,7 @@ class TermCheck:
         room = abs(self.tolerance_db - abs(diff))
         if room < 1e-3:
             return None  # on the edge of the tolerance: no run length decides it
-        return int(math.ceil(self.frames * (half / room) ** 2))
+        return int(math.ceil(self.frames * (half / room) ** 2 - 1e-9))
 
     def to_json(self) -> dict:
         """JSON-ready dict; dB values are None where the ratio is 0 or infinite."""
