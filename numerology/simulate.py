@@ -456,10 +456,31 @@ class _Plan:
         self.current = window[None, :] >= (ch.delays[:, None] - self.ncp)
         self.current[~self.isi] = True
         self.current_mean = (self.current.astype(float) @ self.legendre.T) / self.n  # (C, Q+1)
+        # window averages with the oscillator: the taps in the guard share one set of weights P_q / N, each late
+        # echo has its own (its current-symbol samples only)
+        self.window_group = np.cumsum(self.isi) * self.isi  # 0: in the guard; k: the k-th late echo
+        masks = [np.ones(self.n)] + [self.current[c].astype(float) for c in np.flatnonzero(self.isi)]
+        self.window_weights = np.concatenate([(mask * self.legendre).T for mask in masks], axis=1) / self.n
         self.pre = int(max(0, math.ceil((float(ch.delays.max(initial=0.0)) - self.ncp) / (self.n + self.ncp))))
 
         self._layout(lookahead, memory)
         self.total = self.pre + self.symbols
+        read = {t.symbol for t in self.targets} | {s for t in self.targets for g in t.groups for s in g.symbols}
+        if self.scope == "differential":
+            read |= {t.symbol - 1 for t in self.targets}
+        self.read = np.array(sorted(read))
+        self.row = {int(symbol): i for i, symbol in enumerate(self.read)}
+        self.is_pilot = np.zeros((self.total, self.used), dtype=bool)
+        self.is_data = np.ones((self.total, self.used), dtype=bool)
+        for symbol, offset in enumerate(self.offsets):
+            if offset >= 0:
+                comb = self._comb(int(offset))
+                self.is_pilot[symbol, comb] = True
+                self.is_data[symbol, comb] = False
+                if not self.shared[symbol]:
+                    self.is_data[symbol] = False
+        self.matched = {int(o): np.ascontiguousarray(self.ramps[:, self._comb(int(o))].T.conj())
+                        for o in set(self.offsets.tolist()) if o >= 0}
         # what the receiver takes as the noise plus interference on each pilot: its own sums
         fraction = self.current.mean(axis=1)
         leak = _leakage(ch, self.n, self.fs)
@@ -476,7 +497,7 @@ class _Plan:
                                                                                     linewidth_hz)[:, None]
             total = rho @ self.useful_powers
             self.differential_scale = complex(total[1] / (total[0].real + self.disturbance))
-        per_frame = self.total * self.n * 16 * (6 + self.order + int(self.isi.sum()))
+        per_frame = (self.total + self.read.size * (6 + self.order + int(self.isi.sum()))) * self.n * 16
         self.batch = int(np.clip(BATCH_BYTES // max(per_frame, 1), 1, MAX_BATCH_FRAMES))
 
     # layout ---------------------------------------------------------------------------------
@@ -649,83 +670,84 @@ def _to_bins(plan: _Plan, values: np.ndarray) -> np.ndarray:
     return full
 
 
-def _wiener_phasor(plan: _Plan, rng: np.random.Generator, frames: int) -> np.ndarray:
-    """``exp(j theta)`` over the receive windows (F, S, N): the frequency offset and Wiener phase noise."""
-    n, ncp, fs, symbols = plan.n, plan.ncp, plan.fs, plan.total
-    t = (np.arange(symbols)[:, None] * (n + ncp) + ncp + np.arange(n)[None, :]) / fs
-    phase = np.broadcast_to(2.0 * np.pi * plan.frequency_offset_hz * t, (frames, symbols, n)).copy()
-    if plan.linewidth_hz > 0:
-        steps = rng.standard_normal((frames, symbols, n)) * math.sqrt(2.0 * np.pi * plan.linewidth_hz / fs)
-        steps[:, :, 0] *= math.sqrt(ncp + 1.0)  # the gap across the cyclic prefix
-        steps[:, 0, 0] = 0.0
-        phase += np.cumsum(steps.reshape(frames, -1), axis=1).reshape(phase.shape)
-    return np.exp(1j * phase)
+def _oscillator_phasor(plan: _Plan, rng: np.random.Generator, frames: int) -> np.ndarray:
+    """``exp(j theta)`` over the receive windows of the symbols read (F, R, N): frequency offset and Wiener noise.
+
+    The Wiener phase advances over every sample, those between the windows
+    read included (their increments are summed into one, of the gap's variance).
+    """
+    n, ncp, fs, read = plan.n, plan.ncp, plan.fs, plan.read
+    rotation = np.exp(2j * np.pi * plan.frequency_offset_hz * ((read * (n + ncp) + ncp) / fs))[:, None] \
+        * np.exp(2j * np.pi * plan.frequency_offset_hz * np.arange(n) / fs)[None, :]  # (R, N)
+    if not plan.linewidth_hz > 0:
+        return np.broadcast_to(rotation, (frames,) + rotation.shape)
+    steps = rng.standard_normal((frames, read.size, n)) * math.sqrt(2.0 * np.pi * plan.linewidth_hz / fs)
+    gaps = np.diff(read, prepend=read[0] - 1) * (n + ncp) - n + 1  # samples from the last one read, to this window
+    steps[:, :, 0] *= np.sqrt(gaps)
+    steps[:, 0, 0] = 0.0
+    phase = np.cumsum(steps.reshape(frames, -1), axis=1).reshape(steps.shape)
+    return np.exp(1j * phase) * rotation
 
 
 def _batch(plan: _Plan, rng: np.random.Generator, frames: int) -> dict:
-    """Per-frame sums of one batch of frames (see the module docstring for the figures)."""
-    total, used = plan.total, plan.used
+    """Per-frame sums of one batch of frames (see the module docstring for the figures).
+
+    Every symbol of the frame is sent; only those the receiver reads
+    (``plan.read``: the data symbols measured and the pilot-bearing symbols
+    they use) are received, on axis 1 of the received arrays.
+    """
+    total, used, read = plan.total, plan.used, plan.read
     order = plan.qam_order
     data_index = rng.integers(0, order, size=(frames, total, used))
-    x = _qam(data_index, order)
     pilot_index = rng.integers(0, 4, size=(frames, total, used))
-    pilots = _qam(pilot_index, 4) * math.sqrt(plan.boost)
-    is_pilot = np.zeros((total, used), dtype=bool)
-    is_data = np.ones((total, used), dtype=bool)
-    for s in range(total):
-        o = int(plan.offsets[s])
-        if o >= 0:
-            comb = plan._comb(o)
-            is_pilot[s, comb] = True
-            if not plan.shared[s]:
-                is_data[s] = False
-            else:
-                is_data[s, comb] = False
-    x = np.where(is_pilot, pilots, np.where(is_data, x, 0.0))
+    x = np.where(plan.is_pilot, _qam(pilot_index, 4) * math.sqrt(plan.boost),
+                 np.where(plan.is_data, _qam(data_index, order), 0.0))
     beta = _gains(plan, rng, frames)  # (F, C, S, Q+1)
 
     inside = ~plan.isi
-    beta_inside = beta[:, inside]
-    static_gain = np.einsum("fcs,cu->fsu", beta_inside[..., 0], plan.ramps[inside])  # order 0, taps in the guard
-    y_static = static_gain * x
+    # (F, R, C, Q+1): the components on the last axes, so that products with the ramps are BLAS matrix products
+    gains = beta[:, :, read].transpose(0, 2, 1, 3)
+    x_read = x[:, read]
+    y_static = (np.ascontiguousarray(gains[:, :, inside, 0]) @ plan.ramps[inside]) * x_read  # order 0, in the guard
     varying = None
     if plan.order > 0 and inside.any():
         for q in range(1, plan.order + 1):
-            part = _ifft(_to_bins(plan, np.einsum("fcs,cu->fsu", beta_inside[..., q], plan.ramps[inside]) * x))
+            part = _ifft(_to_bins(plan, (np.ascontiguousarray(gains[:, :, inside, q]) @ plan.ramps[inside]) * x_read))
             part *= plan.legendre[q]
             varying = part if varying is None else varying + part
     if plan.isi.any():
-        spectrum = _to_bins(plan, x)
-        window = np.arange(plan.n)
+        spectrum = _to_bins(plan, x[:, np.unique(np.concatenate([read, read - 1]))])
+        position = {int(symbol): i for i, symbol in enumerate(np.unique(np.concatenate([read, read - 1])))}
+        now = np.array([position[int(symbol)] for symbol in read])
+        before = np.array([position[int(symbol) - 1] for symbol in read])
+        late = (np.arange(plan.n) + plan.ncp) % plan.n
         for c in np.flatnonzero(plan.isi):
             ramp = np.zeros(plan.n, dtype=complex)
             ramp[plan.bins] = plan.ramps[c]
-            wave = _ifft(spectrum * ramp)  # every sent symbol, delayed by tau_c (periodic)
-            previous = np.concatenate([np.zeros_like(wave[:, :1]), wave[:, :-1]], axis=1)
-            part = np.where(plan.current[c], wave, previous[..., (window + plan.ncp) % plan.n])
-            part *= np.einsum("fsq,qn->fsn", beta[:, c], plan.legendre)
+            wave = _ifft(spectrum * ramp)  # the sent symbols, delayed by tau_c (periodic)
+            part = np.where(plan.current[c], wave[:, now], wave[:, before][..., late])
+            part *= np.ascontiguousarray(gains[:, :, c]) @ plan.legendre
             varying = part if varying is None else varying + part
-    rows = slice(plan.pre, total)
     y_channel = y_static.copy()
     if varying is not None:
         y_channel += _fft(varying.copy())[..., plan.bins]
     # the true channel: each component's window average over the samples of the current symbol
-    mean_gain = np.einsum("fcsq,cq->fsc", beta, plan.current_mean)
-    h_true = mean_gain @ plan.ramps
+    h_true = np.einsum("fscq,cq->fsc", gains, plan.current_mean) @ plan.ramps
     if plan.oscillator:
-        phasor = _wiener_phasor(plan, rng, frames)
+        phasor = _oscillator_phasor(plan, rng, frames)
         time = _ifft(_to_bins(plan, y_static))
         if varying is not None:
             time += varying
         time *= phasor
         y = _fft(time)[..., plan.bins]
-        osc_mean = np.einsum("fsn,cn,qn->fscq", phasor, plan.current.astype(float), plan.legendre) / plan.n
-        h_rx = np.einsum("fcsq,fscq->fsc", beta, osc_mean) @ plan.ramps
+        means = (phasor @ plan.window_weights).reshape(frames, read.size, -1, plan.order + 1)  # (F, R, groups, Q+1)
+        h_rx = np.einsum("fscq,fscq->fsc", gains, means[:, :, plan.window_group]) @ plan.ramps
     else:
         y = y_channel.copy()
         h_rx = h_true
+    x = x_read
     if plan.noise_var > 0:
-        noise = rng.standard_normal((frames, total, used, 2)).view(complex)[..., 0]
+        noise = rng.standard_normal((frames, read.size, used, 2)).view(complex)[..., 0]
         y += noise * math.sqrt(plan.noise_var / 2.0)
 
     sums = {key: np.zeros(frames) for key in ("interference", "useful_true", "estimation", "channel", "error",
@@ -737,14 +759,16 @@ def _batch(plan: _Plan, rng: np.random.Generator, frames: int) -> dict:
         key = (symbol, offset)
         if key not in tilde:
             comb = plan._comb(offset)
-            tilde[key] = y[:, symbol, comb] / x[:, symbol, comb]
+            row = plan.row[symbol]
+            tilde[key] = y[:, row, comb] / x[:, row, comb]
         return tilde[key]
 
     for index, target in enumerate(plan.targets):
-        n = target.symbol
-        data = is_data[n]
+        data = plan.is_data[target.symbol]
+        n = plan.row[target.symbol]
         if plan.scope == "differential":
-            estimate = plan.differential_scale * (y[:, n - 1] / np.where(x[:, n - 1] == 0, 1.0, x[:, n - 1]))
+            previous = plan.row[target.symbol - 1]
+            estimate = plan.differential_scale * (y[:, previous] / np.where(x[:, previous] == 0, 1.0, x[:, previous]))
         elif plan.estimator == "perfect":
             estimate = h_rx[:, n].copy()
         elif not target.groups:
@@ -752,12 +776,12 @@ def _batch(plan: _Plan, rng: np.random.Generator, frames: int) -> dict:
         elif plan.estimator == "linear":
             estimate = _linear_estimate(plan, target, observation)
         else:
-            z = np.concatenate([np.mean([observation(s, g.offset) for s in g.symbols], axis=0)
-                                @ plan.ramps[:, plan._comb(g.offset)].T.conj() for g in target.groups], axis=1)
+            z = np.concatenate([_group_mean([observation(s, g.offset) for s in g.symbols]) @ plan.matched[g.offset]
+                                for g in target.groups], axis=1)
             estimate = (z @ plan.weights[index]) @ plan.ramps
         if target.data_offset >= 0 and plan.scope != "differential" and plan.estimator != "perfect":  # common phase from the symbol's own pilots
             comb = plan._comb(target.data_offset)
-            c = np.sum(observation(n, target.data_offset) * np.conj(estimate[:, comb]), axis=1)
+            c = np.sum(observation(target.symbol, target.data_offset) * np.conj(estimate[:, comb]), axis=1)
             estimate *= np.where(np.abs(c) > 0, c / np.where(np.abs(c) > 0, np.abs(c), 1.0), 1.0)[:, None]
         xd, yd = x[:, n, data], y[:, n, data]
         hd, hr, ed = h_true[:, n, data], h_rx[:, n, data], estimate[:, data]
@@ -773,12 +797,18 @@ def _batch(plan: _Plan, rng: np.random.Generator, frames: int) -> dict:
         sums["kept"] += _energy(ed * xd)
         if order == 4:
             equalised = yd * np.conj(ed)
-            sent = data_index[:, n, data]
+            sent = data_index[:, target.symbol, data]
             sums["bit_errors"] += np.sum((equalised.real > 0) != (sent % 2 == 1), axis=1) \
                 + np.sum((equalised.imag > 0) != (sent // 2 == 1), axis=1)
             sums["bits"] += 2 * int(data.sum())
-    del rows
     return {"sums": sums, "per_symbol": per_symbol}
+
+
+def _group_mean(observations):
+    """The average of a training block's observations (one symbol: itself, no copy)."""
+    if len(observations) == 1:
+        return observations[0]
+    return sum(observations[1:], observations[0]) / len(observations)
 
 
 def _energy(values: np.ndarray) -> np.ndarray:
@@ -792,7 +822,7 @@ def _linear_estimate(plan: _Plan, target: _Target, observation) -> np.ndarray:
     times = []
     for group in target.groups:
         comb = plan._comb(group.offset)
-        ls = np.mean([observation(s, group.offset) for s in group.symbols], axis=0)  # (F, P)
+        ls = _group_mean([observation(s, group.offset) for s in group.symbols])  # (F, P)
         grid = position[comb]
         if comb.size == 1:
             values.append(np.repeat(ls, plan.used, axis=1))

@@ -39,7 +39,8 @@ figure disagrees, else ``inconclusive`` if a figure or the rate margin is
 undecided, else ``agree``.
 
 Run length: without a given number of frames, batches are simulated until
-every figure and the margin are decided, up to a budget of received samples
+the overall verdict is decided (a figure disagrees, or every figure and the
+margin are decided), up to a budget of received samples
 (:data:`SAMPLE_BUDGET`); the batches and the stopping rule are deterministic,
 so the same seed gives the same run.
 
@@ -73,7 +74,7 @@ AGREE, DISAGREE, INCONCLUSIVE = "agree", "disagree", "inconclusive"
 #: Received samples (frames x symbols x FFT size) a default run may spend at most ...
 SAMPLE_BUDGET = 2**23
 #: ... and frames it runs at least, and at most.
-MIN_FRAMES = 24
+MIN_FRAMES = 16
 MAX_FRAMES = 4000
 
 
@@ -367,8 +368,9 @@ def verify(req, design: Design, *, seed=0, frames=None, speed_mps=None, max_exce
             simulation.run(least, _scaled(progress, most))
             while simulation.frames < most:
                 checks, rate = judge(simulation.result())
-                if all(c.verdict != INCONCLUSIVE for c in checks) and (rate is None or rate.resolved):
-                    break
+                verdicts = {c.verdict for c in checks}
+                if DISAGREE in verdicts or (INCONCLUSIVE not in verdicts and (rate is None or rate.resolved)):
+                    break  # the overall verdict is decided
                 simulation.run(min(simulation.batch_frames, most - simulation.frames), _scaled(progress, most))
     except KeyboardInterrupt:
         interrupted = True
