@@ -213,10 +213,11 @@ class Verification:
 
     @property
     def verdict(self) -> str:
+        """The overall verdict from what was measured (an interrupted run too: its exit status says so)."""
         verdicts = [check.verdict for check in self.checks]
         if DISAGREE in verdicts:
             return DISAGREE
-        if INCONCLUSIVE in verdicts or (self.rate is not None and not self.rate.resolved) or self.interrupted:
+        if INCONCLUSIVE in verdicts or (self.rate is not None and not self.rate.resolved):
             return INCONCLUSIVE
         return AGREE
 

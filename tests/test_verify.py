@@ -237,7 +237,6 @@ def test_ctrl_c_keeps_what_was_measured(monkeypatch, capsys):
     req = load_requirements(HARBOUR)
     result = verify(req, get_preset("nr-mu1").design, frames=200, progress=interrupt)
     assert result.interrupted and result.simulation.frames == calls[1]
-    assert result.verdict != AGREE
 
     from numerology import verify as module
 
