@@ -2,7 +2,9 @@
 
 Exit status: 0 = answer found (every rule passes), 1 = valid input but the
 request is infeasible or a rule fails (an answer, with a diagnosis),
-2 = bad input or usage (one line on stderr, nothing written).
+2 = bad input or usage (one line on stderr, nothing written); ``verify`` also
+exits 1 when model and simulation disagree, 3 when the run is inconclusive,
+130 when interrupted (Ctrl-C: the report shows what was measured).
 """
 
 from __future__ import annotations
@@ -13,7 +15,12 @@ from typing import Sequence
 
 from .errors import InputError
 
-EXIT_OK, EXIT_FAILS, EXIT_BAD_INPUT = 0, 1, 2
+EXIT_OK, EXIT_FAILS, EXIT_BAD_INPUT, EXIT_INCONCLUSIVE, EXIT_INTERRUPTED = 0, 1, 2, 3, 130
+
+VERIFY_EPILOG = ("exit status: 0 = model and simulation agree and every rule passes; 1 = they disagree, or the design "
+                 "fails a rule (the report names it); 2 = bad input; 3 = inconclusive (the run was too short to "
+                 "decide: the report says how many frames would); 130 = interrupted by Ctrl-C (what was measured "
+                 "is reported)")
 
 
 class _Parser(argparse.ArgumentParser):
@@ -53,11 +60,15 @@ def _parser() -> argparse.ArgumentParser:
                      help="ranking objective (default: goals.objective)")
     _output_options(sol)
 
-    ver = sub.add_parser("verify", help="confirm a design's analytic budget by simulating the OFDM link")
+    ver = sub.add_parser("verify", help="confirm a design's analytic budget by simulating the OFDM link",
+                         epilog=VERIFY_EPILOG)
     ver.add_argument("requirements", metavar="REQ.toml")
     _design_options(ver, best=True)
+    ver.add_argument("--speed", metavar="QTY", help="what-if: override the max speed, e.g. \"250 km/h\"")
+    ver.add_argument("--delay", metavar="QTY", help="what-if: override the max excess delay, e.g. \"8 us\"")
     ver.add_argument("--seed", type=int, default=0, metavar="N", help="random seed (default 0); same seed, same JSON")
-    ver.add_argument("--frames", type=int, metavar="N", help="frames to simulate (default: enough for the tolerance)")
+    ver.add_argument("--frames", type=int, metavar="N",
+                     help="frames to simulate (default: until every figure is decided, within a sample budget)")
     ver.add_argument("--json", action="store_true", help="machine-readable output on stdout")
     ver.add_argument("--markdown", metavar="FILE", help="write a design note with the verification to FILE")
 
@@ -110,4 +121,4 @@ def main(argv: Sequence[str] | None = None) -> int:
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         print("numerology: interrupted", file=sys.stderr)
-        return 130
+        return EXIT_INTERRUPTED

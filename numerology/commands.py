@@ -5,7 +5,7 @@ from __future__ import annotations
 import sys
 
 from . import render_json
-from .cli import EXIT_FAILS, EXIT_OK
+from .cli import EXIT_FAILS, EXIT_INCONCLUSIVE, EXIT_INTERRUPTED, EXIT_OK
 
 
 def _emit(text: str) -> None:
@@ -168,8 +168,9 @@ def verify(args) -> int:
     from .errors import InputError
 
     req = api.load(args.requirements)
-    if args.frames is not None and not 1 <= args.frames <= 100_000:
-        raise InputError("--frames", f"expected a whole number from 1 to 100000, got {args.frames}")
+    speed, delay = _what_if(args)
+    if args.frames is not None and not 2 <= args.frames <= 100_000:
+        raise InputError("--frames", f"expected a whole number from 2 to 100000, got {args.frames}")
     if not 0 <= args.seed < 2**63:
         raise InputError("--seed", f"expected a whole number from 0 to 2^63 - 1, got {args.seed}")
     outputs = _check_outputs(args, req)
@@ -180,22 +181,36 @@ def verify(args) -> int:
         return EXIT_FAILS
     from .verify import verify as run_verify
 
+    def run(progress):
+        return run_verify(req, design, seed=args.seed, frames=args.frames, speed_mps=speed, max_excess_delay_s=delay,
+                          progress=progress)
+
     if args.json:
-        verification = run_verify(req, design, seed=args.seed, frames=args.frames)
-        _emit(render_json.document("numerology.verify", {"requirements": req.path, **verification.to_json(),
-                                                         "design": design.to_json(), "seed": args.seed}))
+        verification = run(None)
+        _emit(render_json.document("numerology.verify", {"requirements": req.path, **verification.to_json()}))
     else:
         from . import render_terminal
 
         con = render_terminal.console()
-        verification = render_terminal.with_progress(
-            con, lambda progress: run_verify(req, design, seed=args.seed, frames=args.frames, progress=progress))
-        render_terminal.verification(con, design, verification)
-    if outputs["markdown"]:
+        verification = render_terminal.with_progress(con, run)
+        render_terminal.verification(con, verification)
+    if outputs["markdown"] and not verification.interrupted:
         from .note import write_note
 
-        write_note(outputs["markdown"], req, check=api.check(req, design), verification=verification)
-    return EXIT_OK if verification.agree else EXIT_FAILS
+        write_note(outputs["markdown"], req, check=api.check(req, design, speed_mps=speed, max_excess_delay_s=delay),
+                   verification=verification)
+    return verify_status(verification)
+
+
+def verify_status(verification) -> int:
+    """Exit status of a verification (see ``cli.VERIFY_EPILOG``)."""
+    if verification.interrupted:
+        return EXIT_INTERRUPTED
+    if verification.verdict == "disagree" or not verification.rules_passed:
+        return EXIT_FAILS
+    if verification.verdict == "inconclusive":
+        return EXIT_INCONCLUSIVE
+    return EXIT_OK
 
 
 def sweep(args) -> int:

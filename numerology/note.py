@@ -221,10 +221,21 @@ def _design_sections(check, rule_latex, derived_latex) -> list[str]:
 
 def _verification_lines(verification) -> list[str]:
     data = verification.to_json()
-    lines = [f"Monte-Carlo link simulation, agreement: **{'yes' if data.get('agree') else 'no'}**.", ""]
-    measured, predicted = data.get("measured", {}), data.get("predicted", {})
-    rows = [(k, f"{measured.get(k)}", f"{predicted.get(k)}") for k in measured]
-    lines += _md_table(("quantity", "measured", "predicted"), rows) + [""]
+    lines = [f"Monte-Carlo link simulation ({data['frames']} frames, seed {data['seed']}), an independent receiver: "
+             f"model and simulation **{data['verdict']}**.", ""]
+    rows = []
+    for name, figure in data["figures"].items():
+        def show(v):
+            return "n/a" if v is None else f"{v:.2f} dB"
+
+        rows.append((name, show(figure["measured_db"]), f"{show(figure['ci_low_db'])} .. {show(figure['ci_high_db'])}",
+                     show(figure["predicted_db"]), f"{figure['tolerance_db']:g} dB", figure["verdict"]))
+    lines += _md_table(("figure", "measured", "interval", "predicted", "tolerance", "verdict"), rows) + [""]
+    rate = data["rate"]
+    if rate is not None:
+        state = "holds" if rate["holds"] else ("falls short" if rate["resolved"] else "is not resolved by the run")
+        lines += [f"Rate {rate['name']} needs {rate['required_sinr_db']:.2f} dB; the measured SINR margin is "
+                  f"{rate['margin_db']:+.2f} dB: the rate {state}.", ""]
     for note in data.get("notes", []):
         lines.append(f"- {note}")
     lines.append("")

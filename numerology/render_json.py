@@ -14,6 +14,8 @@ import math
 import numpy as np
 
 SCHEMA_VERSION = "1.0"
+#: Documents whose keys changed meaning since 1.0 (see the README's JSON section).
+SCHEMA_VERSIONS = {"numerology.verify": "2.0"}
 
 
 def _clean(obj):
@@ -35,5 +37,5 @@ def _clean(obj):
 
 def document(schema: str, body: dict) -> str:
     """Serialise one output document with its schema header."""
-    payload = {"schema": schema, "schema_version": SCHEMA_VERSION, **body}
+    payload = {"schema": schema, "schema_version": SCHEMA_VERSIONS.get(schema, SCHEMA_VERSION), **body}
     return json.dumps(_clean(payload), indent=2, allow_nan=False) + "\n"

@@ -336,11 +336,17 @@ def solve(con: Console, result) -> None:
 
 
 def with_progress(con: Console, run):
-    """Run ``run(progress)`` under a rich progress bar; ``progress(done, total)`` advances it."""
+    """Run ``run(progress)`` under a rich progress bar; ``progress(done, total)`` advances it.
+
+    The bar is shown only on a terminal (a piped report stays clean).
+    """
+    if not con.is_terminal:
+        return run(None)
     from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
 
-    with Progress(TextColumn("simulating frames"), BarColumn(), TextColumn("{task.completed}/{task.total}"),
-                  TimeRemainingColumn(), console=con, transient=True) as bar:
+    with Progress(TextColumn("simulating frames (Ctrl-C keeps what is measured)"), BarColumn(),
+                  TextColumn("{task.completed}/{task.total}"), TimeRemainingColumn(), console=con,
+                  transient=True) as bar:
         task = bar.add_task("frames", total=None)
 
         def progress(done, total):
@@ -349,28 +355,70 @@ def with_progress(con: Console, run):
         return run(progress)
 
 
-def verification(con: Console, design, result) -> None:
-    data = result.to_json()
-    verdict = (Text("model and simulation agree", style="bold green") if result.agree
-               else Text("model and simulation DISAGREE", style="bold red"))
-    con.print(Text.assemble("Verification of ", (design.name, "bold"), ": ", verdict))
+_VERDICT_STYLE = {"agree": "bold green", "disagree": "bold red", "inconclusive": "bold yellow"}
+_FIGURE_LABEL = {"interference": "Doppler + echo interference", "estimation": "channel-estimation error",
+                 "sinr_eff": "effective SINR"}
+
+
+def _interval(low, high) -> str:
+    """A confidence interval of power ratios in dB, the unit once."""
+    def one(value):
+        return "0" if value == 0 else ("inf" if not math.isfinite(value) else f"{10 * math.log10(value):+.2f}")
+
+    return f"{one(low)} .. {one(high)} dB"
+
+
+def verification(con: Console, result) -> None:
+    """The verification for people: the verdict, each figure against its prediction, the rate margin, the rules."""
+    design, sim = result.design, result.simulation
+    verdict = result.verdict
+    con.print(Text.assemble("Verification of ", (design.name, "bold"), ": model and simulation ",
+                            (verdict.upper(), _VERDICT_STYLE[verdict])))
     con.print(design_line(design))
-    table = _table(f"Measured ({data['frames']} frames, {data['resource_elements']:,} resource elements, "
-                   f"seed {data['seed']}) against predicted", "figure", ">measured", ">confidence interval",
-                   ">predicted", ">difference", ">tolerance", "")
-    labels = {"interference": "Doppler + echo interference (perfect channel knowledge)",
-              "estimation": "channel-estimation MSE", "sinr_eff": "effective SINR"}
+    if result.what_if:
+        parts = []
+        if "speed_mps" in result.what_if:
+            parts.append(f"speed {speed_kmh(result.what_if['speed_mps'])}")
+        if "max_excess_delay_s" in result.what_if:
+            parts.append(f"max excess delay {engineering(result.what_if['max_excess_delay_s'], 's')}")
+        con.print("What-if: " + ", ".join(parts))
+    level = f"{100 * sim.confidence:g} %"
+    table = _table(f"Measured ({sim.frames} frames, {sim.frames * sim.data_per_frame:,} data resource elements, "
+                   f"seed {result.seed}) against predicted", "figure", ">measured", f">{level} interval",
+                   ">predicted", ">difference", ">tolerance", "verdict")
     for check in result.checks:
         low, high = check.ci
         diff = check.difference_db
-        table.add_row(labels.get(check.name, check.name), _db_or_na(check.measured),
-                      f"{_db_or_na(low)} .. {_db_or_na(high)}", _db_or_na(check.predicted),
-                      f"{diff:+.2f} dB" if diff is not None else "n/a",
-                      f"{check.tolerance_db:.1f} dB", Text("ok", style="green") if check.agree
-                      else Text("off", style="bold red"))
+        table.add_row(_FIGURE_LABEL.get(check.name, check.name), _db_or_na(check.measured),
+                      _interval(low, high), _db_or_na(check.predicted),
+                      f"{diff:+.2f} dB" if diff is not None else "n/a", f"{check.tolerance_db:.1f} dB",
+                      Text(check.verdict, style=_VERDICT_STYLE[check.verdict]))
     con.print(table)
+    rate = result.rate
+    if rate is not None:
+        low, high = (db(v, 2) if v is not None else "unbounded" for v in rate.ci_db)
+        outcome = ("resolved: the rate holds in the simulation" if rate.holds else
+                   "resolved: the simulation falls short of it" if rate.resolved else
+                   "NOT resolved by this run: the interval straddles the threshold")
+        con.print(Text.assemble("Rate ", (rate.name, "bold"), f" needs {db(rate.required_sinr_db, 2)}; measured SINR "
+                                f"{db(rate.measured_db, 2)} ({low} .. {high}), margin {db(rate.margin_db, 2)}: ",
+                                (outcome, "green" if rate.holds else "yellow" if not rate.resolved else "red")))
+    if result.rules_passed:
+        con.print(Text("Rules: every rule passes.", style="green"))
+    else:
+        failing = ", ".join(f"{name} ({db(margin) if convention == 'db' else f'{100 * margin:+.1f} %'})"
+                            for name, margin, convention in result.failing_rules)
+        con.print(Text.assemble(("Rules: the design FAILS ", "bold red"), failing))
+    if result.interrupted:
+        con.print(Text(f"Interrupted after {sim.frames} frames: the figures are what was measured until then.",
+                       style="bold yellow"))
+    if verdict == "inconclusive":
+        needed = result.frames_needed
+        advice = (f"run about {needed:,} frames (--frames {needed})" if needed is not None
+                  else "a prediction sits on the edge of its tolerance: no run length decides it")
+        con.print(Text(f"Inconclusive: the run is too short to decide; {advice}.", style="yellow"))
     for note in result.notes:
-        con.print(Text(f"note: {note}", style="yellow"))
+        con.print(Text(f"note: {note}", style="dim"))
 
 
 def _db_or_na(value) -> str:

@@ -1,64 +1,82 @@
-"""Check the analytic link model against the Monte-Carlo simulator, term by term.
+"""Check the analytic link model against the Monte-Carlo simulation, with a verdict that can go either way.
 
 :func:`verify` evaluates one design with :func:`numerology.link.evaluate`
-(the prediction) and with :func:`numerology.simulate.simulate_link` (the
-measurement) under the same requirement set, and compares three figures:
+(the prediction) and simulates it with :class:`numerology.simulate.LinkSimulation`
+(the measurement, by a receiver written independently of the model) under the
+same requirement set, and compares three figures:
 
 ``interference``
-    Doppler + echo interference with perfect channel knowledge, predicted as
-    the ``doppler`` plus ``echo`` terms. Tolerance 0.5 dB: both are exact
-    results for the simulated channel (Russell & Stuber's ICI integral, the
-    EBU echo weighting), so only Monte-Carlo error and small, stated effects
-    (band edges, the ICI normalisation below) separate them.
+    Doppler + echo interference with the true channel, predicted as the
+    ``doppler`` plus ``echo`` terms. Tolerance 0.5 dB: both are exact results
+    for the simulated channel (the classical Doppler ICI integral of Russell
+    & Stuber, Proc. IEEE VTC 1995; the echo weighting of EBU TR 024 sect. 2.4).
 ``estimation``
-    Normalised channel-estimation MSE of the pilot lattice with the model's
-    estimator and weights. Tolerance 1 dB: the model treats the interference
-    on pilots as white noise and the lattice as unbounded.
+    Channel-estimation error over channel power, predicted as the model's
+    error ``E`` (its ``estimation`` term is ``E / (1 - E)``). Tolerance 1 dB.
 ``sinr_eff``
-    Effective SINR after one-tap equalisation, predicted as
-    ``1 / sum(terms)``; the channel-weighted EVM is ``1/sqrt(SINR)`` and is
-    reported beside it. Tolerance 1 dB: the model adds the impairments as
-    independent noise powers (common practice), which holds to first order.
+    Effective SINR after one-tap equalisation, predicted as the model's
+    ``(1 - E) / (E + N + I)``. Tolerance 1 dB: the model adds the impairments
+    as independent noise powers (common practice).
 
-A figure *agrees* when the measured and predicted values differ by at most
-the tolerance in dB, or when the prediction lies inside the measured
-confidence interval (so that a run too short to resolve the tolerance is
-not reported as a disagreement; a note then says the run is inconclusive).
-A predicted value of exactly 0 (no echo beyond the guard and no Doppler)
-agrees when the measurement is below :data:`ZERO_FLOOR`.
+Verdict of a figure, from its confidence interval (level
+:data:`numerology.simulate.CONFIDENCE`) against the prediction +- tolerance:
 
-Known differences are reported in ``notes`` rather than hidden: phase-noise
-masks are not simulated; the extra cyclic prefix of some symbols is not
-simulated. (The model's interference terms, like the measurement, are
-relative to the useful power.)
+* ``agree``: the whole interval lies within the tolerance of the prediction;
+* ``disagree``: the whole interval lies outside it;
+* ``inconclusive``: the interval reaches across an edge of the tolerance
+  band: the run was too short, and :attr:`TermCheck.frames_needed` says about
+  how many frames would decide it (the interval narrows as 1/sqrt(frames)).
 
-References
-----------
-M. Russell, G. L. Stuber, Proc. IEEE VTC 1995 (Doppler ICI); EBU TR 024
-sect. 2.4 (echoes beyond the guard interval); P. Hoeher, S. Kaiser,
-P. Robertson, Proc. IEEE ICASSP 1997 (pilot-aided estimation).
+A prediction of exactly 0 (no echo beyond the guard and no Doppler) agrees
+when the interval stays below :data:`ZERO_FLOOR` and disagrees when it lies
+above it.
+
+Decision relevance: the measured effective SINR is compared with the
+threshold of the modulation and coding the model chooses for the design
+(``numerology.mcs``); the margin is *resolved* when the whole interval lies
+on one side of the threshold. The overall verdict is ``disagree`` if any
+figure disagrees, else ``inconclusive`` if a figure or the rate margin is
+undecided, else ``agree``.
+
+Run length: without a given number of frames, batches are simulated until
+the overall verdict is decided (a figure disagrees, or every figure and the
+margin are decided), up to a budget of received samples
+(:data:`SAMPLE_BUDGET`); the batches and the stopping rule are deterministic,
+so the same seed gives the same run.
+
+Known differences are stated in ``notes``: phase-noise masks are not
+simulated; the extra cyclic prefix of some symbols is not simulated; reserved
+subcarriers (e.g. 802.11's four phase-tracking pilot tones) carry data; in a
+symbol without pilots the receiver has no common-phase estimate of its own,
+whereas the model's oscillator terms assume the common phase is removed.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
-from . import link
+from . import link, mcs
 from .design import Design, DesignArrays
 from .environment import derive_environment
 from .errors import InputError
-from .simulate import SimulationResult, simulate_link
+from .simulate import CONFIDENCE, LinkSimulation, SimulationResult
 
-__all__ = ["TermCheck", "Verification", "verify", "TOLERANCE_DB"]
+__all__ = ["TermCheck", "RateCheck", "Verification", "verify", "TOLERANCE_DB", "AGREE", "DISAGREE", "INCONCLUSIVE"]
 
 #: Agreement tolerance per figure, dB (see the module docstring for the reasons).
 TOLERANCE_DB = {"interference": 0.5, "estimation": 1.0, "sinr_eff": 1.0}
-
-#: A measured power ratio below this counts as zero (numerical round-off of the simulator).
+#: A measured power ratio below this counts as zero (round-off of the simulator).
 ZERO_FLOOR = 1e-12
+AGREE, DISAGREE, INCONCLUSIVE = "agree", "disagree", "inconclusive"
+#: Received samples (frames x symbols x FFT size) a default run may spend at most ...
+SAMPLE_BUDGET = 2**23
+#: ... and frames it runs at least, and at most.
+MIN_FRAMES = 16
+MAX_FRAMES = 4000
+
 
 def _db(x: float):
     """dB of a power ratio; None for 0 (JSON has no -inf) and for inf."""
@@ -67,20 +85,10 @@ def _db(x: float):
 
 @dataclass(frozen=True)
 class TermCheck:
-    """One figure: measured (with its confidence interval) against predicted.
+    """One figure: measured (with its confidence interval) against predicted, and the verdict.
 
-    Attributes
-    ----------
-    name : str
-        ``interference``, ``estimation`` or ``sinr_eff``.
-    measured : float
-        Measured linear power ratio.
-    ci : tuple of float
-        Confidence interval (low, high) of ``measured``.
-    predicted : float
-        Analytic model's linear power ratio.
-    tolerance_db : float
-        Largest difference that counts as agreement, dB.
+    ``measured``, ``ci`` and ``predicted`` are linear power ratios;
+    ``frames`` is the run length behind the interval.
     """
 
     name: str
@@ -88,6 +96,7 @@ class TermCheck:
     ci: tuple
     predicted: float
     tolerance_db: float
+    frames: int = 0
 
     @property
     def difference_db(self):
@@ -95,24 +104,42 @@ class TermCheck:
         m, p = _db(self.measured), _db(self.predicted)
         return None if m is None or p is None else m - p
 
-    @property
-    def within_ci(self) -> bool:
-        """True when the prediction lies inside the measured confidence interval."""
-        return self.ci[0] <= self.predicted <= self.ci[1]
+    def _edges_db(self):
+        """The interval's edges relative to the prediction, dB (-inf, inf where it reaches 0 or no bound)."""
+        p = 10.0 * math.log10(self.predicted)
+        low = 10.0 * math.log10(self.ci[0]) - p if self.ci[0] > 0 else -math.inf
+        high = 10.0 * math.log10(self.ci[1]) - p if math.isfinite(self.ci[1]) and self.ci[1] > 0 else math.inf
+        return low, high
 
     @property
-    def agree(self) -> bool:
-        """Within the tolerance, or inside the confidence interval, or both zero."""
+    def verdict(self) -> str:
+        """``agree``, ``disagree`` or ``inconclusive`` (module docstring)."""
         if self.predicted == 0:
-            return self.measured <= ZERO_FLOOR
-        diff = self.difference_db
-        return self.within_ci or (diff is not None and abs(diff) <= self.tolerance_db)
+            if self.ci[1] <= ZERO_FLOOR:
+                return AGREE
+            return DISAGREE if self.ci[0] > ZERO_FLOOR else INCONCLUSIVE
+        low, high = self._edges_db()
+        tol = self.tolerance_db
+        if -tol <= low and high <= tol:
+            return AGREE
+        if high < -tol or low > tol:
+            return DISAGREE
+        return INCONCLUSIVE
 
     @property
-    def ci_half_width_db(self):
-        """Half the width of the confidence interval in dB (None if it reaches 0)."""
-        low, high = _db(self.ci[0]), _db(self.ci[1])
-        return None if low is None or high is None else 0.5 * (high - low)
+    def frames_needed(self):
+        """About how many frames would decide an inconclusive figure (None when decided or unknown)."""
+        if self.verdict != INCONCLUSIVE or self.predicted == 0 or self.frames < 2:
+            return None
+        low, high = self._edges_db()
+        diff = self.difference_db
+        if not (math.isfinite(low) and math.isfinite(high)) or diff is None:
+            return None
+        half = 0.5 * (high - low)
+        room = abs(self.tolerance_db - abs(diff))
+        if room < 1e-3:
+            return None  # on the edge of the tolerance: no run length decides it
+        return int(math.ceil(self.frames * (half / room) ** 2 - 1e-9))
 
     def to_json(self) -> dict:
         """JSON-ready dict; dB values are None where the ratio is 0 or infinite."""
@@ -123,8 +150,8 @@ class TermCheck:
             "predicted_db": _db(self.predicted),
             "difference_db": self.difference_db,
             "tolerance_db": self.tolerance_db,
-            "within_ci": self.within_ci,
-            "agree": self.agree,
+            "verdict": self.verdict,
+            "frames_needed": self.frames_needed,
         }
 
     def __str__(self) -> str:
@@ -134,161 +161,259 @@ class TermCheck:
 
         diff = self.difference_db
         diff_text = "" if diff is None else f", difference {diff:+.2f} dB"
-        verdict = "agrees" if self.agree else "DISAGREES"
         return (f"{self.name}: measured {show(self.measured)} [{show(self.ci[0])}, {show(self.ci[1])}], "
-                f"predicted {show(self.predicted)}{diff_text} (tolerance {self.tolerance_db:g} dB): {verdict}")
+                f"predicted {show(self.predicted)}{diff_text} (tolerance {self.tolerance_db:g} dB): {self.verdict}")
+
+
+@dataclass(frozen=True)
+class RateCheck:
+    """The measured effective SINR against the threshold of the modulation and coding the model chooses."""
+
+    name: str  # the entry's name
+    required_sinr_db: float
+    measured_db: float
+    ci_db: tuple  # (low, high), dB; None for an unbounded edge
+
+    @property
+    def margin_db(self) -> float:
+        """Measured SINR minus the threshold, dB."""
+        return self.measured_db - self.required_sinr_db
+
+    @property
+    def resolved(self) -> bool:
+        """True when the whole interval lies on one side of the threshold."""
+        low, high = self.ci_db
+        return (low is not None and low > self.required_sinr_db) or (high is not None and high < self.required_sinr_db)
+
+    @property
+    def holds(self) -> bool:
+        """True when the whole interval lies above the threshold (the rate works in the simulation)."""
+        return self.ci_db[0] is not None and self.ci_db[0] > self.required_sinr_db
+
+    def to_json(self) -> dict:
+        return {"name": self.name, "required_sinr_db": self.required_sinr_db, "measured_sinr_db": self.measured_db,
+                "ci_low_db": self.ci_db[0], "ci_high_db": self.ci_db[1], "margin_db": self.margin_db,
+                "resolved": self.resolved, "holds": self.holds}
 
 
 @dataclass(frozen=True)
 class Verification:
-    """Result of :func:`verify`.
+    """Result of :func:`verify`: the figures, the rate margin, the rules, the verdict and notes."""
 
-    Attributes
-    ----------
-    design_name : str
-    checks : tuple of TermCheck
-        ``interference``, ``estimation`` and ``sinr_eff``, in that order.
-    predicted_terms : dict
-        The analytic model's terms (linear power ratios) as ``link.evaluate`` gives them.
-    simulation : SimulationResult
-        The full measurement.
-    notes : tuple of str
-        Known reasons for differences, and what was not simulated.
-    """
-
-    design_name: str
-    checks: tuple
-    predicted_terms: dict
+    design: Design
+    checks: tuple  # TermCheck: interference, estimation, sinr_eff
+    rate: RateCheck | None
+    predicted_terms: dict  # the model's terms (linear ratios to the useful power)
     simulation: SimulationResult
-    notes: tuple
+    failing_rules: tuple  # (name, margin, convention) of every rule the design fails
+    interrupted: bool
+    seed: int
+    what_if: dict = field(default_factory=dict)
+    notes: tuple = ()
+
+    @property
+    def verdict(self) -> str:
+        """The overall verdict from what was measured (an interrupted run too: its exit status says so)."""
+        verdicts = [check.verdict for check in self.checks]
+        if DISAGREE in verdicts:
+            return DISAGREE
+        if INCONCLUSIVE in verdicts or (self.rate is not None and not self.rate.resolved):
+            return INCONCLUSIVE
+        return AGREE
 
     @property
     def agree(self) -> bool:
-        """True when every figure agrees."""
-        return all(check.agree for check in self.checks)
+        return self.verdict == AGREE
+
+    @property
+    def rules_passed(self) -> bool:
+        return not self.failing_rules
+
+    @property
+    def frames_needed(self):
+        """About how many frames would decide every undecided figure (None when decided or unknown)."""
+        needs = [check.frames_needed for check in self.checks if check.verdict == INCONCLUSIVE]
+        if self.rate is not None and not self.rate.resolved:
+            sinr = self.check("sinr_eff")
+            low, high = self.rate.ci_db
+            if low is not None and high is not None and abs(self.rate.margin_db) > 1e-3:
+                needs.append(int(math.ceil(sinr.frames * (0.5 * (high - low) / abs(self.rate.margin_db)) ** 2)))
+            else:
+                needs.append(None)
+        if not needs or any(n is None for n in needs):
+            return None
+        return max(needs)
 
     def check(self, name: str) -> TermCheck:
-        """The :class:`TermCheck` of one figure by name."""
         for item in self.checks:
             if item.name == name:
                 return item
         raise KeyError(name)
 
     def to_json(self) -> dict:
-        """JSON-ready dict: measured and predicted values in dB, agreement, per-term details, notes."""
         sim = self.simulation
-        sinr = self.check("sinr_eff")
-        measured = {
-            "interference_db": _db(sim.interference),
-            "estimation_mse_db": _db(sim.estimation_mse),
-            "sinr_eff_db": _db(sim.sinr_eff),
-            "evm_db": _db(sim.evm ** 2),
-        }
-        predicted = {
-            "interference_db": _db(self.check("interference").predicted),
-            "estimation_mse_db": _db(self.check("estimation").predicted),
-            "sinr_eff_db": _db(sinr.predicted),
-            "evm_db": _db(1.0 / sinr.predicted),
-            "terms_db": {f"{name}_db": _db(value) for name, value in self.predicted_terms.items()},
-        }
         return {
-            "design": self.design_name,
-            "measured": measured,
-            "predicted": predicted,
-            "agree": self.agree,
-            "tolerance_db": {check.name: check.tolerance_db for check in self.checks},
-            "terms": {check.name: check.to_json() for check in self.checks},
-            "confidence": sim.confidence,
+            "design": self.design.to_json(),
+            "seed": self.seed,
+            "what_if": dict(self.what_if),
+            "verdict": self.verdict,
+            "interrupted": self.interrupted,
             "frames": sim.frames,
-            "resource_elements": sim.frames * sim.measured_per_frame,
-            "seed": sim.seed,
+            "frames_needed": self.frames_needed,
+            "data_resource_elements": sim.frames * sim.data_per_frame,
+            "confidence": sim.confidence,
+            "figures": {check.name: check.to_json() for check in self.checks},
+            "rate": None if self.rate is None else self.rate.to_json(),
+            "rules_passed": self.rules_passed,
+            "failing_rules": [{"name": name, "margin": margin if math.isfinite(margin) else None,
+                               "convention": convention} for name, margin, convention in self.failing_rules],
+            "predicted_terms_db": {f"{name}_db": _db(value) for name, value in self.predicted_terms.items()},
+            "bit_error_ratio": sim.bit_error_ratio,
+            "estimator": sim.estimator,
             "notes": list(self.notes),
         }
 
     def __str__(self) -> str:
-        verdict = "model and simulation agree" if self.agree else "model and simulation DISAGREE"
-        return f"{self.design_name}: {verdict} ({self.simulation.frames} frames)"
+        rules = "" if self.rules_passed else f"; fails {', '.join(r[0] for r in self.failing_rules)}"
+        return f"{self.design.name}: model and simulation {self.verdict} ({self.simulation.frames} frames){rules}"
 
 
-def verify(req, design: Design, *, seed=0, frames=None, progress=None) -> Verification:
-    """Compare the analytic link model with a Monte-Carlo simulation for one design.
+def _default_frames(simulation: LinkSimulation) -> tuple[int, int]:
+    """(frames at least, frames at most) of a run whose length is not given."""
+    plan = simulation.plan
+    samples = plan.total * (plan.n + plan.ncp)
+    most = int(np.clip(SAMPLE_BUDGET // max(samples, 1), MIN_FRAMES, MAX_FRAMES))
+    least = min(most, max(MIN_FRAMES, 2 * plan.batch))
+    return least, most
+
+
+def verify(req, design: Design, *, seed=0, frames=None, speed_mps=None, max_excess_delay_s=None, progress=None,
+           qam_order=4) -> Verification:
+    """Compare the analytic link model with a Monte-Carlo simulation of one design.
 
     Parameters
     ----------
     req : Requirements
-        A loaded requirement set (environment, SNR, oscillator, estimator).
+        A loaded requirement set (environment, SNR, oscillator, estimator, receiver allowance).
     design : Design
-        The numerology to check.
     seed : int, optional
-        Seed of the simulation.
     frames : int, optional
-        Frames to simulate (default: chosen by :func:`~numerology.simulate.simulate_link`
-        from the frame size, 48 to 256).
+        Frames to simulate; default: until every figure is decided, within :data:`SAMPLE_BUDGET`.
+    speed_mps, max_excess_delay_s : float, optional
+        What-ifs, as ``numerology check --speed/--delay``.
     progress : callable, optional
-        ``progress(done, total)`` after each block of frames.
+        ``progress(done, total)`` after each batch of frames.
+    qam_order : int, optional
+        Square QAM order of the simulated data.
 
     Returns
     -------
     Verification
+        With ``interrupted`` set when a KeyboardInterrupt stopped the run
+        (what was measured until then is kept).
 
     Raises
     ------
     InputError
-        If the design is not a :class:`Design` or the simulation cannot run
-        (see :func:`numerology.simulate.simulate_link`).
-
-    References
-    ----------
-    See the module docstring.
+        If the design is not a :class:`Design` or the simulation cannot run.
     """
     if not isinstance(design, Design):
         raise InputError("design", f"expected a numerology.design.Design, got {type(design).__name__}")
-    environment = derive_environment(req)
+    environment = derive_environment(req, speed_mps=speed_mps, max_excess_delay_s=max_excess_delay_s)
     evaluation = link.evaluate(DesignArrays.from_designs([design]), environment, req)
     terms = {name: float(np.ravel(value)[0]) for name, value in evaluation.terms.items()}
-    radio = req.radio
+    failing = tuple((rule.name, float(np.ravel(evaluation.margin[rule.name])[0]), rule.convention)
+                    for rule in evaluation.rules if float(np.ravel(evaluation.margin[rule.name])[0]) < 0)
+    radio, rules = req.radio, req.rules
     notes = []
-    linewidth_hz = radio.oscillator_linewidth_hz or 0.0
-    counted = dict(terms)
+    t_est = terms["estimation"]
+    mse = t_est / (1.0 + t_est) if math.isfinite(t_est) else 1.0
+    others = {name: value for name, value in terms.items() if name != "estimation"}
     if radio.phase_noise is not None:
-        counted.pop("phase_noise")
+        others.pop("phase_noise")
         notes.append("a phase-noise mask is not simulated (only Wiener phase noise is): the simulation runs "
-                     "without phase noise and the predicted SINR below leaves the phase_noise term "
-                     f"({_db(terms['phase_noise']) or float('-inf'):.1f} dB) out; the estimator's pilot SINR still "
-                     "differs slightly from the model's")
-    simulation = simulate_link(design, environment, radio.snr_db, frequency_offset_hz=radio.frequency_error_hz or 0.0,
-                               linewidth_hz=linewidth_hz, estimator=req.rules.estimator,
-                               frames=frames, seed=seed, progress=progress)
-    checks = (
-        TermCheck("interference", simulation.interference, simulation.interference_ci,
-                  terms["echo"] + terms["doppler"], TOLERANCE_DB["interference"]),
-        TermCheck("estimation", simulation.estimation_mse, simulation.estimation_mse_ci, terms["estimation"],
-                  TOLERANCE_DB["estimation"]),
-        TermCheck("sinr_eff", simulation.sinr_eff, simulation.sinr_eff_ci, 1.0 / sum(counted.values()),
-                  TOLERANCE_DB["sinr_eff"]),
-    )
+                     "without phase noise and the predicted SINR leaves the phase_noise term "
+                     f"({_db(terms['phase_noise']) or float('-inf'):.1f} dB) out")
+    sinr_predicted = max(1.0 - mse, 0.0) / (mse + sum(others.values()))
+    simulation = LinkSimulation(design, environment, radio.snr_db, frequency_offset_hz=radio.frequency_error_hz or 0.0,
+                                linewidth_hz=radio.oscillator_linewidth_hz or 0.0, estimator=rules.estimator,
+                                lookahead=rules.estimation_lookahead, memory=rules.estimation_memory,
+                                qam_order=qam_order, seed=seed)
+    table = None if rules.efficiency_model == "shannon" else link.mcs_table(req)
+    predicted = {"interference": terms["echo"] + terms["doppler"], "estimation": mse, "sinr_eff": sinr_predicted}
+
+    def judge(result):
+        checks = (
+            TermCheck("interference", result.interference, result.interference_ci, predicted["interference"],
+                      TOLERANCE_DB["interference"], result.frames),
+            TermCheck("estimation", result.estimation_mse, result.estimation_mse_ci, predicted["estimation"],
+                      TOLERANCE_DB["estimation"], result.frames),
+            TermCheck("sinr_eff", result.sinr_eff, result.sinr_eff_ci, predicted["sinr_eff"], TOLERANCE_DB["sinr_eff"],
+                      result.frames),
+        )
+        rate = None
+        if table is not None:
+            index = mcs.selected_entry_index(10 * math.log10(sinr_predicted) if sinr_predicted > 0 else -math.inf,
+                                             table)
+            entry = table[index] if index >= 0 else min(table, key=lambda e: e.required_sinr_db)
+            rate = RateCheck(entry.name, entry.required_sinr_db, _db(result.sinr_eff) or -math.inf,
+                             (_db(result.sinr_eff_ci[0]), _db(result.sinr_eff_ci[1])))
+        return checks, rate
+
+    interrupted = False
+    try:
+        if frames is not None:
+            simulation.run(max(int(frames), 2), progress)
+        else:
+            least, most = _default_frames(simulation)
+            simulation.run(least, _scaled(progress, most))
+            while simulation.frames < most:
+                checks, rate = judge(simulation.result())
+                verdicts = {c.verdict for c in checks}
+                if DISAGREE in verdicts or (INCONCLUSIVE not in verdicts and (rate is None or rate.resolved)):
+                    break  # the overall verdict is decided
+                simulation.run(min(simulation.batch_frames, most - simulation.frames), _scaled(progress, most))
+    except KeyboardInterrupt:
+        interrupted = True
+        if simulation.frames < 2:
+            raise
+    result = simulation.result()
+    checks, rate = judge(result)
+    notes += _notes(design, terms, simulation, req)
+    what_if = {}
+    if speed_mps is not None:
+        what_if["speed_mps"] = float(speed_mps)
+    if max_excess_delay_s is not None:
+        what_if["max_excess_delay_s"] = float(max_excess_delay_s)
+    return Verification(design=design, checks=checks, rate=rate, predicted_terms=terms, simulation=result,
+                        failing_rules=failing, interrupted=interrupted, seed=seed, what_if=what_if,
+                        notes=tuple(notes))
+
+
+def _scaled(progress, most):
+    """A progress callback that reports against the run's frame budget."""
+    if progress is None:
+        return None
+    return lambda done, _total: progress(done, most)
+
+
+def _notes(design, terms, simulation, req) -> list[str]:
+    notes = []
+    plan = simulation.plan
     if design.cp_extra_samples and design.cp_extra_period_s:
         notes.append(f"the extra cyclic prefix ({design.cp_extra_samples} samples once per "
                      f"{design.cp_extra_period_s * 1e3:g} ms) is not simulated: every symbol has the ordinary prefix, "
                      "as in the model's echo term")
     if design.reserved_subcarriers:
-        notes.append("reserved subcarriers are simulated as data (they do not change the measured ratios)")
-    if terms["phase_noise"] > 0 or terms["frequency_offset"] > 0:
-        notes.append("the receiver corrects the common phase of each symbol ideally, as the model's oscillator "
-                     "terms assume (a pilot-based estimate would add its own error)")
-    for check in checks:
-        half = check.ci_half_width_db
-        if check.predicted > 0 and (half is None or half > check.tolerance_db):
-            shown = "unbounded" if half is None else f"+-{half:.2f} dB"
-            notes.append(f"{check.name}: the Monte-Carlo interval ({shown}) is wider than the tolerance; the "
-                         "comparison is inconclusive, simulate more frames")
-        if check.predicted == 0:
-            notes.append(f"{check.name}: predicted 0 (every tap within the guard and no Doppler); the measurement "
-                         f"{check.measured:.3g} is compared with the round-off floor {ZERO_FLOOR:g}")
-    total = sum(counted.values())
-    small = [name for name in ("echo", "doppler") if 0 < terms[name] < 0.01 * total]
-    if small:
-        notes.append(f"{' and '.join(small)} below 1 % of the total impairment: checked through the perfect-CSI "
-                     "interference only (no effect on the SINR comparison)")
-    return Verification(design_name=design.name, checks=checks, predicted_terms=terms, simulation=simulation,
-                        notes=tuple(notes))
+        notes.append("reserved subcarriers carry data in the simulation (802.11's four phase-tracking pilot tones "
+                     "included: the receiver does not track the common phase on them)")
+    if plan.oscillator and any(t.data_offset < 0 for t in plan.targets) and design.pilot_scope != "differential":
+        notes.append("data symbols without pilots have no common-phase estimate of their own: the oscillator's "
+                     "phase drift since the nearest pilots counts as estimation error (the receiver's LMMSE knows "
+                     "the drift's statistics); the model's oscillator terms assume the common phase removed")
+    notes.append("receiver: " + {
+        "lmmse": "LMMSE over the usable pilots, tap domain, with the simulated channel's second-order statistics",
+        "linear": "least squares at the pilots, linear interpolation in frequency and then in time",
+    }[simulation.estimator] + ("" if design.pilot_scope != "differential"
+                               else "; differential: the previous symbol as reference, with its Wiener scaling"))
+    return notes
