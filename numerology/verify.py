@@ -410,7 +410,8 @@ def _notes(design, terms, simulation, req) -> list[str]:
     if plan.oscillator and any(t.data_offset < 0 for t in plan.targets) and design.pilot_scope != "differential":
         notes.append("data symbols without pilots have no common-phase estimate of their own: the oscillator's "
                      "phase drift since the nearest pilots counts as estimation error (the receiver's LMMSE knows "
-                     "the drift's statistics); the model's oscillator terms assume the common phase removed")
+                     "the drift's statistics; the model counts it through the phase's autocorrelation at the "
+                     "symbol centres, the simulation through the window-averaged phase)")
     notes.append("receiver: " + {
         "lmmse": "LMMSE over the usable pilots, tap domain, with the simulated channel's second-order statistics",
         "linear": "least squares at the pilots, linear interpolation in frequency and then in time",

@@ -121,17 +121,19 @@ def test_shipped_examples_agree_without_the_oscillator(example, preset):
     assert any("extra cyclic prefix" in note for note in result.notes)
 
 
-def test_phase_noise_between_pilot_symbols_is_a_model_gap():
+def test_phase_noise_between_pilot_symbols_is_counted():
     """harbour_crane's 100 Hz Wiener linewidth with NR slot pilots (symbols 2 and 11 only): the receiver has
     no common-phase estimate in the other symbols, the phase wanders between the pilots (a Brownian bridge of
-    variance about 2 pi beta T / 4 = 0.05 rad^2 over the 321 us between them: -13 dB), while the model assumes
-    the common phase removed: estimation disagrees, by far, and the note says why."""
+    variance about 2 pi beta T / 4 = 0.05 rad^2 over the 321 us between them: -13 dB; Wiener phase noise,
+    common practice). The simulation found this gap in an earlier model (which assumed the common phase
+    removed and predicted -41 dB); the model now carries the phase's autocorrelation exp(-pi beta |tau|) in
+    the estimate's statistics. The two now meet to about 1 dB, the model on the pessimistic side (a difference
+    not yet pinned down: recorded here rather than hidden by a wider tolerance elsewhere)."""
     req = load_requirements(HARBOUR).replace("radio.frequency_error", 0.0)
     result = verify(req, get_preset("nr-mu1").design)
     check = result.check("estimation")
-    assert check.verdict == DISAGREE
     assert -18 < 10 * math.log10(check.measured) < -12
-    assert result.verdict == DISAGREE
+    assert 0.0 <= 10 * math.log10(check.predicted / check.measured) < 1.5
     assert any("common-phase estimate" in note for note in result.notes)
 
 
