@@ -53,6 +53,8 @@ def _crossing(key, grid, worse_up):
     """
     margins_on_grid = yield np.asarray(grid, dtype=float)
     names = [n for n, v in margins_on_grid.items() if not np.all(np.asarray(v) == np.asarray(v)[0])]
+    if not names:  # no rule varies along this stress (e.g. the Shannon model without a throughput goal)
+        return Limit(key, math.inf if worse_up else -math.inf, None, float(grid[-1]))
     table = np.array([margins_on_grid[n] for n in names], dtype=float).reshape(len(names), -1)
     crossing = (table[:, :-1] >= 0) & (table[:, 1:] < 0)
     if not crossing.any():

@@ -142,7 +142,7 @@ SCHEMA: tuple[Key, ...] = (
         default=0.5, low=0.0, high=1.0, low_open=True,
         source="Rappaport, Wireless Communications 2nd ed., sect. 5.4 (0.5 and 0.9 in use)"),
     Key("rules", "delay_threshold", "db", "taps weaker than this (below the strongest) do not set the max excess delay",
-        default=30.0, low=0.0, high=100.0, source="common practice; ITU-R P.1407 thresholds"),
+        default=30.0, low=1.0, high=100.0, source="common practice; ITU-R P.1407 thresholds"),
     Key("rules", "estimator", "choice", "channel estimator assumed for the pilot lattice", default="lmmse",
         choices=ESTIMATORS),
     Key("rules", "efficiency_model", "choice", "spectral efficiency from a modulation-and-coding table or a Shannon gap",
