@@ -80,14 +80,15 @@ def _what_if(args):
 
     speed = parse_quantity(args.speed, "speed", "--speed") if args.speed else None
     delay = parse_quantity(args.delay, "time", "--delay") if args.delay else None
+    from .errors import InputError
+    from .units import show_si
+
     if speed is not None and not 0 <= speed <= 2e4:
-        from .errors import InputError
-
-        raise InputError("--speed", f"expected a speed between 0 and 20 km/s, got {args.speed!r}")
+        raise InputError("--speed", f"expected a speed between 0 and 20 km/s, got {args.speed!r} "
+                                    f"(read as {show_si(speed, 'speed')})")
     if delay is not None and not 0 <= delay <= 1:
-        from .errors import InputError
-
-        raise InputError("--delay", f"expected a delay between 0 and 1 s, got {args.delay!r}")
+        raise InputError("--delay", f"expected a delay between 0 and 1 s, got {args.delay!r} "
+                                    f"(read as {show_si(delay, 'time')})")
     return speed, delay
 
 

@@ -23,7 +23,7 @@ from pathlib import Path
 from typing import Any
 
 from .errors import InputError, read_text
-from .units import parse_db, parse_either, parse_quantity
+from .units import BARE_NUMBER_RULE, UnitSpellingError, parse_db, parse_either, parse_quantity, show_si
 
 SUFFIX = {"frequency": "_hz", "time": "_s", "speed": "_mps", "length": "_m", "bitrate": "_bps", "db": "_db", "ratio": ""}
 
@@ -230,7 +230,9 @@ def _check_range(key: Key, value: float, place: str, text) -> float:
     low_ok = value > key.low if key.low_open else value >= key.low
     if not (low_ok and value <= key.high):  # written so that NaN fails too
         lo = "above" if key.low_open else "at least"
-        raise InputError(place, f"{text!r} is out of range: expected {lo} {_show(key, key.low)} and at most {_show(key, key.high)}")
+        read = f" (read as {show_si(value, key.dimension)})" if isinstance(text, str) and key.kind != "db" else ""
+        raise InputError(place, f"{text!r}{read} is out of range: expected {lo} {_show(key, key.low)} and at most "
+                                f"{_show(key, key.high)}")
     return value
 
 
@@ -304,14 +306,25 @@ def _parse_value(key: Key, raw, place: str, base_dir: Path):
 def _parse_offset(raw, place):
     """A frequency ("40 Hz") or a ratio of the carrier ("0.1 ppm"); returned as ("hz"|"ratio", value)."""
     kind, value = "ratio", math.nan
+    expected = "expected a non-negative frequency error such as \"40 Hz\" or \"0.1 ppm\""
     if isinstance(raw, str):
+        try:
+            float(raw)
+        except ValueError:
+            pass
+        else:
+            raise InputError(place, f"{expected}, got the bare number {raw!r}; {BARE_NUMBER_RULE}")
         try:
             dimension, value = parse_either(raw, ("frequency", "ratio"), place)
             kind = "hz" if dimension == "frequency" else "ratio"
+        except UnitSpellingError:
+            raise  # its advice on what to write is more useful than the generic line
         except InputError:
             pass
+    elif isinstance(raw, (int, float)) and not isinstance(raw, bool):
+        raise InputError(place, f"{expected}, got the bare number {raw!r}; {BARE_NUMBER_RULE}")
     if not (value >= 0) or math.isinf(value) or (kind == "ratio" and value > 1e-3):
-        raise InputError(place, f"expected a non-negative frequency error such as \"40 Hz\" or \"0.1 ppm\", got {raw!r}")
+        raise InputError(place, f"{expected}, got {raw!r}")
     return (kind, value)
 
 

@@ -151,7 +151,7 @@ BAD_FILES = [
      "radio.phase_noise[0]", "pair"),
     ("mask offset not a frequency", changed(("radio.phase_noise", [["1 ms", "-80 dBc/Hz"], ["1 MHz", "-120 dBc/Hz"]])),
      "radio.phase_noise[0]", "expected a frequency"),
-    ("mask level not dB", changed(("radio.phase_noise", [["1 kHz", "-80"], ["1 MHz", "-120 dBc/Hz"]])),
+    ("mask level not dB", changed(("radio.phase_noise", [["1 kHz", "-80 dBm"], ["1 MHz", "-120 dBc/Hz"]])),
      "radio.phase_noise[0]", "dB"),
     ("mask level positive", changed(("radio.phase_noise", [["1 kHz", "-80 dBc/Hz"], ["1 MHz", "10 dBc/Hz"]])),
      "radio.phase_noise[1]", "between -250 and 0"),
