@@ -101,9 +101,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         from . import commands
 
         status = getattr(commands, args.command)(args)
-        from .units import save_cache
+        from .quantity_cache import save
 
-        save_cache()  # quantity strings pint read in this run: later runs skip importing pint
+        save()  # quantity strings pint read in this run: later runs skip importing pint
         return status
     except InputError as exc:
         print("numerology: " + " ".join(str(exc).splitlines()), file=sys.stderr)  # always one line

@@ -10,20 +10,18 @@ for our purposes and pint's offset-unit algebra only gets in the way.
 
 Importing pint costs about a fifth of a second, a large part of a short run.
 The SI values pint gave for the quantity strings of earlier runs are therefore
-kept in a small cache file (see :func:`cache_path`), valid for one version of
-this package and one installation of pint; a run whose strings are all known
-never imports pint. Only strings pint read successfully are kept, and the
-command line saves the cache only after a run that did not fail on bad input.
+kept in an advisory cache (:mod:`numerology.quantity_cache`: one file per
+installation, every entry checked before use); a run whose strings are all
+known never imports pint.
 """
 
 from __future__ import annotations
 
-import json
 import math
-import os
 import re
 from functools import lru_cache
 
+from . import quantity_cache
 from .errors import InputError
 
 #: Expected dimension name -> (pint dimensionality string, SI unit for pint).
@@ -191,11 +189,10 @@ def parse_quantity(text, dimension: str, place: str) -> float:
     else:
         text = _screened(text, dimension, place)
         cache_key = f"{dimension}|{text.strip()}"
-        value = _known().get(cache_key)
+        value = quantity_cache.lookup(cache_key)
         if value is None:
-            value = _pint_value(text, dimension, place)
-            if math.isfinite(value):
-                _LEARNED[cache_key] = value
+            value = pint_value(text, dimension, place)
+            quantity_cache.learn(cache_key, value)
     if not math.isfinite(value):
         raise InputError(place, f"expected a finite {dimension}, got {text!r}")
     return value
@@ -210,7 +207,7 @@ def parse_either(text: str, dimensions: tuple, place: str) -> tuple[str, float]:
     """
     stripped = str(text).strip()
     for dimension in dimensions:
-        if f"{dimension}|{stripped}" in _known():
+        if quantity_cache.lookup(f"{dimension}|{stripped}") is not None:
             return dimension, parse_quantity(text, dimension, place)
     error = None
     for dimension in dimensions:
@@ -221,8 +218,11 @@ def parse_either(text: str, dimensions: tuple, place: str) -> tuple[str, float]:
     raise error
 
 
-def _pint_value(text: str, dimension: str, place: str) -> float:
-    """The SI value of a quantity string, read by pint, with the dimension checked."""
+def pint_value(text: str, dimension: str, place: str) -> float:
+    """The SI value of a quantity string read by pint (no cache), with the dimension checked.
+
+    ``text`` has passed :func:`_screened`; :func:`parse_quantity` is the function to call.
+    """
     dims, si_unit = DIMENSIONS[dimension]
     example = EXAMPLES[dimension]
     ureg = registry()
@@ -271,83 +271,6 @@ def show_si(value: float, dimension: str) -> str:
         return f"{float(f'{value * 3.6:.5g}'):.12g} km/h"  # 64374 km/h rather than 6.4374e+04
     unit = {"frequency": "Hz", "time": "s", "length": "m", "bitrate": "bit/s"}.get(dimension)
     return engineering(value, unit) if unit else f"{value:.6g}"
-
-
-# --- the cache of values pint gave in earlier runs -----------------------------------
-
-#: Most entries kept; past it the cache starts again from this run's strings.
-CACHE_ENTRIES = 4096
-
-
-def cache_path():
-    """The cache file: ``$NUMEROLOGY_CACHE_DIR`` (empty: no cache), else ``$XDG_CACHE_HOME`` or ``~/.cache``."""
-    from pathlib import Path
-
-    folder = os.environ.get("NUMEROLOGY_CACHE_DIR")
-    if folder == "":
-        return None
-    if folder is None:
-        base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
-        folder = os.path.join(base, "numerology")
-    return Path(folder) / "quantities.json"
-
-
-def _fingerprint() -> str:
-    """This package's version and the installed pint (its location, size and time), without importing pint."""
-    from importlib.util import find_spec
-
-    from . import __version__
-
-    try:
-        spec = find_spec("pint")
-        stat = os.stat(spec.origin)
-        pint_id = f"{spec.origin}:{stat.st_size}:{stat.st_mtime_ns}"
-    except (AttributeError, TypeError, ValueError, OSError):
-        pint_id = "unknown"
-    return f"numerology {__version__}; pint {pint_id}"
-
-
-@lru_cache(maxsize=1)
-def _known() -> dict:
-    """Values from the cache file (empty when there is none, or it is unreadable or from another installation)."""
-    path = cache_path()
-    if path is None:
-        return {}
-    try:
-        data = json.loads(path.read_text(encoding="utf-8"))
-        values = data["values"] if data.get("fingerprint") == _fingerprint() else {}
-        return {str(k): float(v) for k, v in values.items() if isinstance(v, (int, float))}
-    except (OSError, ValueError, TypeError, AttributeError, KeyError):
-        return {}
-
-
-#: Values pint gave in this process, not yet in the cache file.
-_LEARNED: dict = {}
-
-
-def save_cache() -> None:
-    """Add this run's new values to the cache file (atomically; any failure only means no cache)."""
-    import tempfile
-
-    path = cache_path()
-    if path is None or not _LEARNED:
-        return
-    values = {**_known(), **_LEARNED}
-    if len(values) > CACHE_ENTRIES:
-        values = dict(_LEARNED)
-    temporary = None
-    try:
-        path.parent.mkdir(parents=True, exist_ok=True)
-        handle, temporary = tempfile.mkstemp(dir=path.parent, prefix=".quantities-", suffix=".tmp")
-        with os.fdopen(handle, "w", encoding="utf-8") as stream:
-            json.dump({"fingerprint": _fingerprint(), "values": values}, stream, sort_keys=True)
-        os.replace(temporary, path)
-    except OSError:
-        if temporary is not None and os.path.exists(temporary):
-            os.unlink(temporary)
-        return
-    _known.cache_clear()
-    _LEARNED.clear()
 
 
 EXAMPLES = {

@@ -150,3 +150,160 @@ def test_the_bare_number_rule_is_in_the_readme():
 
     readme = (EXAMPLES.parent / "README.md").read_text(encoding="utf-8")
     assert BARE_NUMBER_RULE[0].upper() + BARE_NUMBER_RULE[1:] in readme
+
+
+# --- 3. the quantity cache is advisory -----------------------------------------------------------------
+
+
+@pytest.fixture
+def cache(tmp_path, monkeypatch):
+    """A private cache folder; yields this installation's cache file (not yet written)."""
+    from numerology import quantity_cache
+
+    monkeypatch.setenv("NUMEROLOGY_CACHE_DIR", str(tmp_path / "cache"))
+    quantity_cache.forget()
+    yield quantity_cache.cache_path()
+    quantity_cache.forget()
+
+
+def _write_entries(path, entries):
+    import json
+
+    from numerology import quantity_cache
+
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_text(json.dumps({"installation": quantity_cache.installation(), "entries": entries}),
+                    encoding="utf-8")
+    quantity_cache.forget()
+
+
+def _solve_json(capsys, req):
+    status, out, err = run(capsys, "solve", req, "--json", "--top", "1")
+    assert err == ""
+    return status, out
+
+
+@pytest.mark.parametrize("stored", [
+    "edited value", True, 0, 0.0, float("nan"), "33.3", [83.3, "frequency"], "wrong dimension",
+])
+def test_a_tampered_cache_entry_never_changes_the_answer(capsys, cache, stored):
+    """Editing the SI value of "300 km/h" changed the chosen design with exit 0; now any entry that fails
+    its checks (type, finite, dimension, tag) is read by pint again and the answer stays the same."""
+    import json
+
+    from numerology import quantity_cache
+
+    clean = _solve_json(capsys, RAIL)
+    quantity_cache.save()
+    entries = json.loads(cache.read_text(encoding="utf-8"))["entries"]
+    key = "speed|300 km/h"
+    assert key in entries
+    if stored == "edited value":
+        entries[key][0] = 120.0
+    elif stored == "wrong dimension":
+        entries[key][1] = "frequency"
+    else:
+        entries[key] = stored if not isinstance(stored, float) or stored == stored else [stored, "speed", "x"]
+    cache.write_text(json.dumps({**json.loads(cache.read_text(encoding="utf-8")), "entries": entries},
+                                allow_nan=True), encoding="utf-8")
+    quantity_cache.forget()
+    assert _solve_json(capsys, RAIL) == clean
+
+
+def test_a_forged_entry_is_dropped_by_the_sample_check(cache):
+    """An entry with a valid tag but a wrong value (someone recomputed the tag) is caught when a run that
+    imported pint anyway re-reads a sample of the file before adding its own entries."""
+    from numerology import quantity_cache, units
+
+    _write_entries(cache, {"speed|300 km/h": quantity_cache.entry("speed|300 km/h", 1.0)})
+    units.parse_quantity("7 km/h", "speed", "x")  # a new string: pint is used and the run saves
+    quantity_cache.save()
+    assert quantity_cache.lookup("speed|300 km/h") is None
+    assert quantity_cache.lookup("speed|7 km/h") == units.parse_quantity("7 km/h", "speed", "x")
+
+
+def _alarm(seconds):
+    """Fail instead of hanging: an in-process guard (SIGALRM)."""
+    import contextlib
+    import signal
+
+    @contextlib.contextmanager
+    def guard():
+        def expire(*_):
+            raise TimeoutError(f"took longer than {seconds} s")
+
+        previous = signal.signal(signal.SIGALRM, expire)
+        signal.alarm(seconds)
+        try:
+            yield
+        finally:
+            signal.alarm(0)
+            signal.signal(signal.SIGALRM, previous)
+
+    return guard()
+
+
+@pytest.mark.parametrize("kind", ["fifo", "endless device", "folder", "deeply nested", "huge", "not an object"])
+def test_a_cache_file_that_is_not_a_small_json_file_means_no_cache(capsys, cache, kind):
+    import os
+
+    cache.parent.mkdir(parents=True, exist_ok=True)
+    if kind == "fifo":
+        os.mkfifo(cache)
+    elif kind == "endless device":
+        cache.symlink_to("/dev/zero")
+    elif kind == "folder":
+        cache.mkdir()
+    elif kind == "deeply nested":
+        cache.write_text("[" * 100_000 + "]" * 100_000, encoding="utf-8")
+    elif kind == "huge":  # a sparse file of 1 GiB: only its size is looked at
+        with open(cache, "wb") as handle:
+            handle.truncate(1 << 30)
+    else:
+        cache.write_text("[1, 2, 3]", encoding="utf-8")
+    with _alarm(60):
+        status, out, err = run(capsys, "env", RAIL, "--json")
+    assert status == 0 and err == "" and out
+
+
+def test_concurrent_runs_keep_each_others_entries(cache):
+    """Eight processes each learn their own string and save at the same time: no entry is lost."""
+    import os
+    import subprocess
+    import sys
+
+    from numerology import quantity_cache
+
+    code = ("import sys; from numerology import units, quantity_cache; "
+            "units.parse_quantity(sys.argv[1], 'speed', 'x'); quantity_cache.save()")
+    env = {**os.environ, "NUMEROLOGY_CACHE_DIR": str(cache.parent)}
+    runs = [subprocess.Popen([sys.executable, "-c", code, f"{i + 1} km/h"], env=env) for i in range(8)]
+    assert [r.wait(timeout=120) for r in runs] == [0] * 8
+    quantity_cache.forget()
+    for i in range(8):
+        assert quantity_cache.lookup(f"speed|{i + 1} km/h") is not None, i
+
+
+def test_two_installations_keep_separate_files(cache, monkeypatch):
+    from numerology import quantity_cache, units
+
+    units.parse_quantity("11 km/h", "speed", "x")
+    quantity_cache.save()
+    monkeypatch.setattr(quantity_cache, "installation", lambda: "another installation")
+    other = quantity_cache.cache_path()
+    assert other != cache and other.parent == cache.parent
+    assert quantity_cache.lookup("speed|11 km/h") is None  # the other installation does not read ours
+    units.parse_quantity("12 km/h", "speed", "x")
+    quantity_cache.save()
+    assert cache.exists() and other.exists()
+
+
+def test_the_cache_is_capped_keeping_the_newest(cache, monkeypatch):
+    from numerology import quantity_cache, units
+
+    monkeypatch.setattr(quantity_cache, "MAX_ENTRIES", 3)
+    for i in range(5):
+        units.parse_quantity(f"{i + 1} km/h", "speed", "x")
+        quantity_cache.save()
+    kept = [i + 1 for i in range(5) if quantity_cache.lookup(f"speed|{i + 1} km/h") is not None]
+    assert kept == [3, 4, 5]
