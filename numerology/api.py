@@ -296,9 +296,10 @@ def solve(req: Requirements, *, objective: str | None = None, top: int = 5, expl
     with_limits : bool
         Stretch limits of the best design.
     """
-    from . import solver
+    from . import budget, solver
 
     objective = objective or req.goals.objective
+    budget.check_search(req)  # before any work: a search beyond the budget says what to narrow
     environment = derive_environment(req)
     found = solver.search(req, environment, objective=objective, top=top)
     if not found.feasible:

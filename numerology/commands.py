@@ -179,7 +179,15 @@ def verify(args) -> int:
     from .verify import verify as run_verify
 
     if args.json:
-        verification = run_verify(req, design, seed=args.seed, frames=args.frames)
+        if sys.stderr.isatty():  # a long run shows its progress on the terminal, not in the JSON
+            from rich.console import Console
+
+            from . import render_terminal
+
+            verification = render_terminal.with_progress(Console(stderr=True), lambda progress: run_verify(
+                req, design, seed=args.seed, frames=args.frames, progress=progress))
+        else:
+            verification = run_verify(req, design, seed=args.seed, frames=args.frames)
         _emit(render_json.document("numerology.verify", {"requirements": req.path, **verification.to_json(),
                                                          "design": design.to_json(), "seed": args.seed}))
     else:
@@ -207,7 +215,9 @@ def sweep(args) -> int:
         from .errors import InputError
 
         raise InputError("--out", f"refusing to overwrite the sites file {args.sites!r}")
-    sites = load_sites(args.sites, req)
+    from .budget import sites_that_fit
+
+    sites = load_sites(args.sites, req, sites_that_fit(with_json=args.json))
     design = _chosen_design(args, req)
     if design is None:
         print("numerology: --best: the request is infeasible, so there is no design to sweep "

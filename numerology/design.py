@@ -762,4 +762,4 @@ def load_design(path) -> Design:
     from .requirements import read_toml
 
     path = Path(path)
-    return design_from_mapping(read_toml(path, "a TOML design file"), str(path), default_name=path.stem)
+    return design_from_mapping(read_toml(path, "a TOML design file", "design"), str(path), default_name=path.stem)

@@ -26,7 +26,7 @@ class InputError(ValueError):
         super().__init__(f"{place}: {message}" if place else message)
 
 
-def read_text(path, expected: str) -> str:
+def read_text(path, expected: str, kind: str | None = None) -> str:
     """The text of a user's file; any failure to read it becomes one :class:`InputError` line.
 
     Parameters
@@ -34,16 +34,25 @@ def read_text(path, expected: str) -> str:
     path : str or os.PathLike
     expected : str
         What the file should be, for the message, e.g. ``"a TOML file"``.
+    kind : str, optional
+        A key of :data:`numerology.budget.MAX_FILE_BYTES`: at most that many bytes are read (a pipe
+        or a device is read up to the limit, never to exhaustion).
     """
     from pathlib import Path
 
+    from . import budget
+
     path = Path(path)
+    limit = budget.MAX_FILE_BYTES[kind] if kind else None
     try:
-        data = path.read_bytes()
+        with open(path, "rb") as handle:
+            data = handle.read() if limit is None else handle.read(limit + 1)
     except IsADirectoryError:
         raise InputError(str(path), f"is a folder; expected {expected}") from None
     except (OSError, ValueError) as exc:  # ValueError: a NUL byte in the name
         raise InputError(str(path), f"cannot be read ({getattr(exc, 'strerror', None) or exc})") from None
+    if limit is not None:
+        budget.check_file_size(kind, len(data), str(path))
     try:
         return data.decode("utf-8-sig")
     except UnicodeDecodeError:

@@ -106,7 +106,7 @@ def cp_allowance_s(req: Requirements) -> float:
 
 def mcs_table(req: Requirements):
     if req.rules.mcs_table is not None:
-        return mcs.load_mcs_table(req.rules.mcs_table)
+        return req.attached(req.rules.mcs_table, mcs.load_mcs_table)  # read once, when req was loaded
     return mcs.DEFAULT_TABLE
 
 

@@ -22,7 +22,7 @@ from pathlib import Path
 
 import numpy as np
 
-from . import delay
+from . import budget, delay
 from .errors import InputError, read_text
 
 __all__ = ["Profile", "CATALOGUE", "get_profile", "load_profile_csv"]
@@ -309,11 +309,12 @@ def load_profile_csv(path) -> Profile:
     from .units import parse_quantity
 
     path = Path(path)
-    text = read_text(path, "a CSV file of taps (delay, power in dB)")
+    text = read_text(path, "a CSV file of taps (delay, power in dB)", "profile")
     factor = None
     rows = []  # (delay_s, power_db, line)
     seen = {}
     lines = text.splitlines()
+    budget.check_rows("profile", sum(1 for x in lines if x.strip() and not x.lstrip().startswith("#")) - 1, str(path))
     for number, raw in enumerate(lines, start=1):
         line = raw.strip()
         place = f"{path}:{number}"

@@ -15,6 +15,7 @@ is ``environment``'s job.
 
 from __future__ import annotations
 
+import dataclasses
 import difflib
 import math
 import tomllib
@@ -22,6 +23,7 @@ from dataclasses import dataclass, field, make_dataclass
 from pathlib import Path
 from typing import Any
 
+from . import budget
 from .errors import InputError, read_text
 from .units import BARE_NUMBER_RULE, UnitSpellingError, parse_db, parse_either, parse_quantity, show_si
 
@@ -208,11 +210,21 @@ class Requirements:
     search: Any
     path: str = "<memory>"
     given: tuple = ()  # the dotted keys the user wrote, as (key, text) pairs, for echoing back
+    files: tuple = ()  # (path, content) of the files the requirement names, each read once when it is loaded
+
+    def attached(self, path: str, read):
+        """The content of a file the requirement names (read when the requirement was loaded).
+
+        Every part of a run sees the same content, however long the run and whatever happens to the
+        file meanwhile; a path not read at load time (a what-if's) is read now with ``read(path)``.
+        """
+        for known, content in self.files:
+            if known == path:
+                return content
+        return read(path)
 
     def replace(self, dotted_key: str, value) -> "Requirements":
         """A copy with one key set to an SI value (used for what-ifs and relaxations)."""
-        import dataclasses
-
         declared = key(dotted_key)
         table = dataclasses.replace(getattr(self, declared.section), **{declared.field: value})
         return dataclasses.replace(self, **{declared.section: table})
@@ -249,6 +261,7 @@ def _show(key: Key, si: float) -> str:
 
 def _parse_value(key: Key, raw, place: str, base_dir: Path):
     kind = key.kind
+    budget.check_list(key.path, raw, place)
     if kind == "quantity":
         return _check_range(key, parse_quantity(raw, key.dimension, place), place, raw)
     if kind == "db":
@@ -288,8 +301,11 @@ def _parse_value(key: Key, raw, place: str, base_dir: Path):
         try:
             path = (base_dir / raw).resolve()
             found = path.is_file()
-        except (OSError, ValueError):  # a name too long for the system, or with a NUL byte
-            raise InputError(place, f"expected a usable file name, got {raw!r}") from None
+        except RuntimeError:  # Python < 3.13 reports a loop of symbolic links so
+            raise InputError(place, f"{raw!r} is a loop of symbolic links") from None
+        except (OSError, ValueError) as exc:  # a name too long for the system, with a NUL byte, a link loop
+            raise InputError(place, f"expected a usable file name, got {raw!r} "
+                                    f"({getattr(exc, 'strerror', None) or exc})") from None
         if not found:
             raise InputError(place, f"file {raw!r} not found (looked in {path.parent})")
         return str(path)
@@ -360,13 +376,16 @@ def _did_you_mean(word: str, options) -> str:
     return f" (did you mean {close[0]!r}?)" if close else ""
 
 
-def read_toml(path: str | Path, expected: str = "a TOML file") -> dict:
-    """Read a TOML file; any failure becomes one :class:`InputError` line (``expected`` names the kind of file)."""
-    text = read_text(path, expected)
+def read_toml(path: str | Path, expected: str = "a TOML file", kind: str = "requirements") -> dict:
+    """Read a TOML file; any failure becomes one :class:`InputError` line (``expected`` names the kind of file,
+    ``kind`` its size budget in :data:`numerology.budget.MAX_FILE_BYTES`)."""
+    text = read_text(path, expected, kind)
     try:
         return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise InputError(str(path), f"is not valid TOML ({exc})") from None
+    except RecursionError:  # tables or arrays nested hundreds deep
+        raise InputError(str(path), "is not valid TOML for numerology (nested too deeply)") from None
 
 
 def load_requirements(path: str | Path) -> Requirements:
@@ -422,7 +441,20 @@ def requirements_from_mapping(data: dict, where: str = "<memory>", base_dir: Pat
         tables[section] = _CLASSES[section](**values)
     req = Requirements(**tables, path=where, given=tuple(given))
     _check_consistency(req, where)
-    return req
+    return dataclasses.replace(req, files=_named_files(req))
+
+
+def _named_files(req: Requirements) -> tuple:
+    """The profile and the MCS table a requirement names, read once (and checked now, before any work)."""
+    from .mcs import load_mcs_table
+    from .profiles import load_profile_csv
+
+    files = []
+    if req.environment.profile_file is not None:
+        files.append((req.environment.profile_file, load_profile_csv(req.environment.profile_file)))
+    if req.rules.mcs_table is not None:
+        files.append((req.rules.mcs_table, load_mcs_table(req.rules.mcs_table)))
+    return tuple(files)
 
 
 def _printable(name: str) -> str:

@@ -51,7 +51,7 @@ from pathlib import Path
 
 import numpy as np
 
-from . import delay, doppler, link, profiles
+from . import budget, delay, doppler, link, profiles
 from .design import Design, DesignArrays
 from .environment import WIDEBAND_FRACTION, EnvironmentBatch, derive_environment
 from .errors import InputError, read_text
@@ -139,7 +139,7 @@ class Sites:
         return f"{self.size} sites from {self.path}{problems}"
 
 
-def load_sites(path, req: Requirements) -> Sites:
+def load_sites(path, req: Requirements, max_sites: int | None = None) -> Sites:
     """Read a sites file (see the module docstring).
 
     Parameters
@@ -148,6 +148,9 @@ def load_sites(path, req: Requirements) -> Sites:
         The CSV file. It is only read.
     req : Requirements
         The requirement set whose values fill the columns and cells not given.
+    max_sites : int, optional
+        Most sites accepted (default :func:`numerology.budget.sites_that_fit`); a larger file is
+        refused before its rows are read.
 
     Returns
     -------
@@ -168,6 +171,7 @@ def load_sites(path, req: Requirements) -> Sites:
     columns = _parse_header(header, f"{where}: line {numbers[0]}")
     if len(texts) == 1:
         raise InputError(where, "has a header but no sites")
+    budget.check_sites(len(texts) - 1, where, budget.sites_that_fit() if max_sites is None else max_sites)
     lines = numbers[1:]
     width = len(columns)
     flat, counts = _split_rows(texts[1:], lines, where)
@@ -234,7 +238,7 @@ def sites_from_values(req: Requirements, *, names=None, max_speed_mps=None, max_
 
 def _content_lines(path: Path):
     """Line numbers (int array) and texts of the lines that are neither blank nor comments."""
-    text = read_text(path, "a CSV file of sites")
+    text = read_text(path, "a CSV file of sites", "sites")
     lines = text.splitlines()
     # Most lines start with a value: only those starting with a blank, '#' or nothing need a closer look.
     heads = np.array(list(map(_FIRST_CHARACTER, lines)), dtype=str)
@@ -649,8 +653,8 @@ def _site_shapes(req: Requirements, sites: Sites):
         if not (name or path):
             continue
         on = label == j
-        stamp = Path(path).stat().st_mtime_ns if path else 0
-        profile, d0, p0, bc0 = _template(name, path, stamp, rho)
+        profile, d0, p0, bc0 = _template(profiles.get_profile(name) if name else
+                                         req.attached(path, profiles.load_profile_csv), rho)
         sigma = rms[on]
         scaled = ~np.isnan(sigma)
         if profile.normalised:
@@ -695,9 +699,8 @@ def _unit_profile(shape: str, floor_db: float, rho: float):
 
 
 @lru_cache(maxsize=64)
-def _template(name: str, path: str, stamp: int, rho: float):
-    """A profile's taps (powers summing to 1) and coherence bandwidth, once per profile (and file version)."""
-    profile = profiles.get_profile(name) if name else profiles.load_profile_csv(path)
+def _template(profile: profiles.Profile, rho: float):
+    """A profile's taps (powers summing to 1) and coherence bandwidth, once per profile."""
     d0 = np.asarray(profile.delays_s, dtype=float)
     p0 = np.asarray(profile.powers, dtype=float)
     p0 = p0 / np.sum(p0)

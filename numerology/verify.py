@@ -46,7 +46,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import link
+from . import budget, link
 from .design import Design, DesignArrays
 from .environment import derive_environment
 from .errors import InputError
@@ -244,6 +244,7 @@ def verify(req, design: Design, *, seed=0, frames=None, progress=None) -> Verifi
     if not isinstance(design, Design):
         raise InputError("design", f"expected a numerology.design.Design, got {type(design).__name__}")
     environment = derive_environment(req)
+    budget.check_simulation(design, environment, frames)  # before any work: what would fit, if it would not
     evaluation = link.evaluate(DesignArrays.from_designs([design]), environment, req)
     terms = {name: float(np.ravel(value)[0]) for name, value in evaluation.terms.items()}
     radio = req.radio

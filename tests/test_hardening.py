@@ -307,3 +307,139 @@ def test_the_cache_is_capped_keeping_the_newest(cache, monkeypatch):
         quantity_cache.save()
     kept = [i + 1 for i in range(5) if quantity_cache.lookup(f"speed|{i + 1} km/h") is not None]
     assert kept == [3, 4, 5]
+
+
+# --- 5. work bounds: estimated before the work, with advice on what to narrow ----------------------------
+
+
+def _search_table(path, lines):
+    path.write_text(RAIL.read_text(encoding="utf-8") + "\n[search]\n" + "\n".join(lines) + "\n", encoding="utf-8")
+    return path
+
+
+def test_a_search_beyond_the_candidate_budget_says_what_to_narrow(capsys, tmp_path):
+    """spacing_steps = 100000 took 143 s and 5.9 GB, then crashed."""
+    req = _search_table(tmp_path / "r.toml", ['spacing_family = "range"', 'spacing_min = "1 kHz"',
+                                              'spacing_max = "500 kHz"', "spacing_steps = 100000"])
+    with _alarm(30):
+        assert_one_line_error(*run(capsys, "solve", req), "candidate designs", "budget",
+                              "lower search.spacing_steps from 100000 to at most")
+
+
+def test_the_advice_fits_the_budget(capsys, tmp_path):
+    """Following the advice gives a search the budget accepts."""
+    import re
+
+    from numerology import api, budget
+
+    req = _search_table(tmp_path / "r.toml", ['spacing_family = "range"', 'spacing_min = "1 kHz"',
+                                              'spacing_max = "500 kHz"', "spacing_steps = 100000"])
+    status, _, err = run(capsys, "solve", req)
+    fit = int(re.search(r"to at most (\d+)", err).group(1))
+    req = _search_table(tmp_path / "r.toml", ['spacing_family = "range"', 'spacing_min = "1 kHz"',
+                                              'spacing_max = "500 kHz"', f"spacing_steps = {fit}"])
+    assert budget.check_search(api.load(req)).candidates <= budget.MAX_CANDIDATES
+
+
+@pytest.mark.parametrize("key, count", [("spacings", 10_000), ("symbols_per_slot", 10_000)])
+def test_long_lists_are_refused_before_their_entries_are_read(capsys, tmp_path, key, count):
+    items = [f'"{i + 1} kHz"' for i in range(count)] if key == "spacings" else [str(i % 100 + 1) for i in range(count)]
+    lines = ['spacing_family = "list"'] if key == "spacings" else []
+    req = _search_table(tmp_path / "r.toml", lines + [f"{key} = [{', '.join(items)}]"])
+    with _alarm(30):
+        assert_one_line_error(*run(capsys, "solve", req), f"search.{key}", f"has {count} entries; at most")
+
+
+def test_pilot_lattices_beyond_the_budget(capsys, tmp_path):
+    req = _search_table(tmp_path / "r.toml", ["max_pilot_freq_spacing = 4096", "max_pilot_time_spacing = 64",
+                                              "symbols_per_slot = [64, 32]", "spacing_exponents = [-8, 8]"])
+    assert_one_line_error(*run(capsys, "solve", req), "lower search.max_pilot_freq_spacing from 4096")
+
+
+def test_a_profile_of_100000_taps_is_refused(capsys, tmp_path):
+    taps = tmp_path / "taps.csv"
+    taps.write_text("delay [ns],power [dB]\n" + "".join(f"{i},{-i / 1000:.3f}\n" for i in range(100_000)),
+                    encoding="utf-8")
+    req = edited(HARBOUR, tmp_path / "r.toml", environment={"profile_file": str(taps)})
+    with _alarm(30):
+        assert_one_line_error(*run(capsys, "verify", req, "--preset", "nr-mu1"), "has 100000 taps; at most 4096")
+
+
+def _mcs_table(path, rows):
+    path.write_text("name,bits_per_symbol,code_rate,required_sinr [dB]\n"
+                    + "".join(f"m{i},{i % 8 + 1},1/2,{i * 0.01:.2f}\n" for i in range(rows)), encoding="utf-8")
+    return path
+
+
+def test_an_mcs_table_of_3000_rows_is_refused(capsys, tmp_path):
+    table = _mcs_table(tmp_path / "mcs.csv", 3000)
+    req = edited(RAIL, tmp_path / "r.toml", rules={"mcs_table": str(table)})
+    assert_one_line_error(*run(capsys, "solve", req), "has 3000 entries; at most 256")
+
+
+def test_each_input_file_is_read_once_per_run(capsys, tmp_path, monkeypatch):
+    """The MCS table was read from disk 116 times per solve; now once, when the requirement is loaded."""
+    from numerology import mcs, profiles
+
+    table = _mcs_table(tmp_path / "mcs.csv", 256)
+    req = edited(HARBOUR, tmp_path / "r.toml", rules={"mcs_table": str(table)})
+    reads = []
+    for module in (mcs, profiles):
+        original = module.read_text
+        monkeypatch.setattr(module, "read_text", lambda path, *a, _o=original: (reads.append(str(path)), _o(path, *a))[1])
+    status, _, err = run(capsys, "solve", req, "--json")
+    assert status in (0, 1) and err == ""
+    assert sorted(reads) == sorted([str(table), str(EXAMPLES / "harbour_crane_taps.csv")])
+
+
+def test_a_file_edited_during_a_run_does_not_change_it(tmp_path):
+    """Everything after loading sees the content read at load time."""
+    from numerology import api
+
+    table = _mcs_table(tmp_path / "mcs.csv", 20)
+    req = api.load(edited(RAIL, tmp_path / "r.toml", rules={"mcs_table": str(table)}))
+    before = api.solve(req, top=1, explain=False, with_limits=False).to_json()
+    table.write_text("name,bits_per_symbol,code_rate,required_sinr [dB]\nonly,1,1/2,40\n", encoding="utf-8")
+    assert api.solve(req, top=1, explain=False, with_limits=False).to_json() == before
+
+
+def test_verify_frames_beyond_the_budget(capsys):
+    """verify --frames 100000 ran 14 minutes."""
+    with _alarm(30):
+        assert_one_line_error(*run(capsys, "verify", HARBOUR, "--preset", "nr-mu1", "--frames", "100000", "--json"),
+                              "--frames", "beyond the budget", "or fewer")
+
+
+def test_verify_under_json_shows_progress_on_a_terminal(capsys, monkeypatch):
+    """A long verify --json showed no progress; on a terminal it now draws a transient bar on stderr."""
+    import sys
+
+    from numerology import render_terminal
+
+    shown = []
+    original = render_terminal.with_progress
+    monkeypatch.setattr(sys.stderr, "isatty", lambda: True)
+    monkeypatch.setattr(render_terminal, "with_progress", lambda con, job: (shown.append(con.stderr), original(con, job))[1])
+    status, out, _ = run(capsys, "verify", HARBOUR, "--preset", "nr-mu1", "--frames", "4", "--json")
+    assert status in (0, 1) and out.startswith("{")
+    assert shown == [True]
+
+
+def test_a_sweep_beyond_the_site_budget(capsys, monkeypatch):
+    from numerology import budget
+
+    monkeypatch.setattr(budget, "MAX_SITES", 5)
+    assert_one_line_error(*run(capsys, "sweep", HARBOUR, "--sites", EXAMPLES / "harbour_sites.csv", "--preset",
+                               "nr-mu1"), "has 13 sites; one sweep takes at most 5", "split the file into 3 parts")
+
+
+def test_the_simulation_memory_estimate_refuses_huge_ffts(tmp_path):
+    from numerology import api, budget
+    from numerology.design import Design
+    from numerology.errors import InputError
+    from numerology.verify import verify
+
+    huge = Design("huge", 15e3, 2**24, 1024, 2**23, 4, 4, 0, 14)
+    with pytest.raises(InputError, match="beyond the budget"):
+        verify(api.load(RAIL), huge)
+    assert budget.MAX_TAPS == 4096 and budget.MAX_MCS_ROWS == 256
