@@ -2,7 +2,11 @@
 
 Exit status: 0 = answer found (every rule passes), 1 = valid input but the
 request is infeasible or a rule fails (an answer, with a diagnosis),
-2 = bad input or usage (one line on stderr, nothing written).
+2 = bad input or usage (one line on stderr, nothing written). Never 1 for
+anything else: 130 = interrupted, 141 = stdout closed before the output was
+written (as a shell reports a process ended by SIGPIPE), 70 = an internal
+error (one line asking for a report; ``NUMEROLOGY_DEBUG=1`` shows the
+traceback).
 """
 
 from __future__ import annotations
@@ -14,6 +18,7 @@ from typing import Sequence
 from .errors import InputError
 
 EXIT_OK, EXIT_FAILS, EXIT_BAD_INPUT = 0, 1, 2
+EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_CLOSED_PIPE = 70, 130, 141
 
 
 class _Parser(argparse.ArgumentParser):
@@ -110,4 +115,28 @@ def main(argv: Sequence[str] | None = None) -> int:
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         print("numerology: interrupted", file=sys.stderr)
-        return 130
+        return EXIT_INTERRUPTED
+    except BrokenPipeError:
+        _silence_stdout()  # the reader has gone (numerology ... | head): nothing more to say to it
+        return EXIT_CLOSED_PIPE
+    except Exception as exc:  # a bug: one line, never a traceback with exit 1 ("the answer is no")
+        import os
+
+        if os.environ.get("NUMEROLOGY_DEBUG"):
+            raise
+        what = " ".join(str(exc).split())[:200]
+        print(f"numerology: internal error ({type(exc).__name__}: {what}); please report it with the command "
+              "and its input files (NUMEROLOGY_DEBUG=1 shows the traceback)", file=sys.stderr)
+        return EXIT_INTERNAL
+
+
+def _silence_stdout() -> None:
+    """Point stdout at the null device, so that the interpreter's last flush finds no closed pipe."""
+    import os
+
+    try:
+        sys.stdout = open(os.devnull, "w")  # noqa: SIM115 - lives until the process ends
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, 1)
+    except (OSError, ValueError):
+        pass

@@ -97,38 +97,56 @@ def check(args) -> int:
 
     req = api.load(args.requirements)
     speed, delay = _what_if(args)
+    planned = _planned_outputs(args, req)
     design = api.design_from(preset=args.preset, path=args.design)
-    outputs = _check_outputs(args, req)
     result = api.check(req, design, speed_mps=speed, max_excess_delay_s=delay)
+    _write_files(planned, req, check=result)
     if args.json:
         _emit(render_json.document("numerology.check", {"requirements": req.path, **result.to_json()}))
     else:
         from . import render_terminal
 
         render_terminal.check(render_terminal.console(), result, req)
-    _write_outputs(outputs, req, check=result)
     return EXIT_OK if result.passed else EXIT_FAILS
 
 
-def _check_outputs(args, req):
-    """Validate output paths before any work, so bad options write nothing."""
-    from .output import output_path
+def _planned_outputs(args, req) -> dict:
+    """Every output option checked before any work (see ``output.output_path``), and the modules it needs.
 
-    return {
-        "markdown": output_path(getattr(args, "markdown", None), "--markdown", (".md", ".markdown"), req),
-        "plot": output_path(getattr(args, "plot", None), "--plot", (".png", ".svg"), req),
-    }
+    Returns ``{option: path}``; the inputs protected from every output are the requirement file, the
+    files it names, and the design and sites files.
+    """
+    from .output import optional_module, output_path
+
+    inputs = [getattr(args, "design", None), getattr(args, "sites", None)]
+    planned = {}
+    if getattr(args, "plot", None) is not None:
+        optional_module("matplotlib", "--plot", "plot")
+    for option, suffixes in (("markdown", (".md", ".markdown")), ("plot", (".png", ".svg")), ("out", (".csv",))):
+        if getattr(args, option, None) is not None:
+            planned[option] = output_path(getattr(args, option), f"--{option}", suffixes, req, inputs)
+    if "out" in planned:
+        from .sweep import metadata_path
+
+        planned["out metadata"] = output_path(metadata_path(planned["out"]), "--out", (".json",), req, inputs)
+    return planned
 
 
-def _write_outputs(outputs, req, check=None, solution=None):
-    if outputs["markdown"]:
-        from .note import write_note
+def _write_files(planned: dict, req, check=None, solution=None, verification=None) -> None:
+    """Render every planned file in memory, then write them all together (nothing is written if one fails)."""
+    from .output import write_all
 
-        write_note(outputs["markdown"], req, check=check, solution=solution)
-    if outputs["plot"]:
-        from .plots import write_plot
+    files = {}
+    if "markdown" in planned:
+        from .note import render_note
 
-        write_plot(outputs["plot"], req, check=check, solution=solution)
+        files[planned["markdown"]] = render_note(req, check, solution, verification).encode("utf-8")
+    if "plot" in planned:
+        from .plots import plot_bytes
+
+        files[planned["plot"]] = plot_bytes(req, planned["plot"].suffix.lower().lstrip("."), check, solution)
+    if files:
+        write_all(files)
 
 
 def solve(args) -> int:
@@ -139,15 +157,15 @@ def solve(args) -> int:
         from .errors import InputError
 
         raise InputError("--top", f"expected a whole number from 1 to 100, got {args.top}")
-    outputs = _check_outputs(args, req)
+    planned = _planned_outputs(args, req)
     result = api.solve(req, objective=args.objective, top=args.top)
+    _write_files(planned, req, solution=result)
     if args.json:
         _emit(render_json.document("numerology.solve", {"requirements": req.path, **result.to_json()}))
     else:
         from . import render_terminal
 
         render_terminal.solve(render_terminal.console(), result)
-    _write_outputs(outputs, req, solution=result)
     return EXIT_OK if result.feasible else EXIT_FAILS
 
 
@@ -170,7 +188,7 @@ def verify(args) -> int:
         raise InputError("--frames", f"expected a whole number from 1 to 100000, got {args.frames}")
     if not 0 <= args.seed < 2**63:
         raise InputError("--seed", f"expected a whole number from 0 to 2^63 - 1, got {args.seed}")
-    outputs = _check_outputs(args, req)
+    planned = _planned_outputs(args, req)
     design = _chosen_design(args, req)
     if design is None:
         print("numerology: --best: the request is infeasible, so there is no design to verify "
@@ -178,45 +196,39 @@ def verify(args) -> int:
         return EXIT_FAILS
     from .verify import verify as run_verify
 
+    def simulate(progress=None):
+        return run_verify(req, design, seed=args.seed, frames=args.frames, progress=progress)
+
+    if args.json and not sys.stderr.isatty():
+        verification = simulate()
+    else:  # a long run shows its progress on a terminal (on stderr under --json), never in the JSON
+        from . import render_terminal
+
+        con = _stderr_console() if args.json else render_terminal.console()
+        verification = render_terminal.with_progress(con, simulate)
+    if planned:
+        _write_files(planned, req, check=api.check(req, design), verification=verification)
     if args.json:
-        if sys.stderr.isatty():  # a long run shows its progress on the terminal, not in the JSON
-            from rich.console import Console
-
-            from . import render_terminal
-
-            verification = render_terminal.with_progress(Console(stderr=True), lambda progress: run_verify(
-                req, design, seed=args.seed, frames=args.frames, progress=progress))
-        else:
-            verification = run_verify(req, design, seed=args.seed, frames=args.frames)
         _emit(render_json.document("numerology.verify", {"requirements": req.path, **verification.to_json(),
                                                          "design": design.to_json(), "seed": args.seed}))
     else:
-        from . import render_terminal
-
-        con = render_terminal.console()
-        verification = render_terminal.with_progress(
-            con, lambda progress: run_verify(req, design, seed=args.seed, frames=args.frames, progress=progress))
         render_terminal.verification(con, design, verification)
-    if outputs["markdown"]:
-        from .note import write_note
-
-        write_note(outputs["markdown"], req, check=api.check(req, design), verification=verification)
     return EXIT_OK if verification.agree else EXIT_FAILS
+
+
+def _stderr_console():
+    from rich.console import Console
+
+    return Console(stderr=True)
 
 
 def sweep(args) -> int:
     from . import api
-    from .output import output_path
+    from .budget import sites_that_fit
     from .sweep import load_sites, sweep as run_sweep, write_sweep_csv
 
     req = api.load(args.requirements)
-    out = output_path(args.out, "--out", (".csv",), req)
-    if out is not None and out.resolve() == __import__("pathlib").Path(args.sites).resolve():
-        from .errors import InputError
-
-        raise InputError("--out", f"refusing to overwrite the sites file {args.sites!r}")
-    from .budget import sites_that_fit
-
+    planned = _planned_outputs(args, req)
     sites = load_sites(args.sites, req, sites_that_fit(with_json=args.json))
     design = _chosen_design(args, req)
     if design is None:
@@ -224,15 +236,15 @@ def sweep(args) -> int:
               "(run numerology solve for the diagnosis)", file=sys.stderr)
         return EXIT_FAILS
     result = run_sweep(req, design, sites)
-    if out is not None:
-        write_sweep_csv(out, result)
+    if "out" in planned:
+        write_sweep_csv(planned["out"], result, args.sites)  # and its metadata, checked as planned["out metadata"]
     if args.json:
         _emit(render_json.document("numerology.sweep", {"requirements": req.path, "sites_file": args.sites,
                                                         "design": design.to_json(), **result.to_json()}))
     else:
         from . import render_terminal
 
-        render_terminal.sweep(render_terminal.console(), design, result, out)
+        render_terminal.sweep(render_terminal.console(), design, result, args.out)
     for line, message in getattr(sites, "problems", ()):
         print(f"numerology: {args.sites}:{line}: {message}", file=sys.stderr)
     summary = result.summary()

@@ -36,7 +36,7 @@ from .design import Design, DesignArrays
 from .environment import derive_environment
 from .errors import InputError
 from .rules import BY_NAME
-from .output import output_path, write_atomic
+from .output import optional_module, output_path, write_atomic
 from .requirements import Requirements
 from .units import engineering
 from .sweep import site_environments, sites_from_values
@@ -404,12 +404,13 @@ def write_plot(path, req: Requirements, check=None, solution=None, *, grid=DEFAU
         Without matplotlib (``--plot``: install the ``plot`` extra), or for a
         bad path.
     """
-    try:
-        import matplotlib
-    except ImportError:
-        raise InputError("--plot", "needs matplotlib: pip install 'numerology[plot]'") from None
-    del matplotlib
+    optional_module("matplotlib", "--plot", "plot")
     target = output_path(str(path), "--plot", (".png", ".svg"), req)
+    write_atomic(target, plot_bytes(req, target.suffix.lower().lstrip("."), check, solution, grid=grid))
+
+
+def plot_bytes(req: Requirements, fmt: str, check=None, solution=None, *, grid=DEFAULT_GRID) -> bytes:
+    """The picture of :func:`write_plot` as the bytes of a ``png`` or ``svg`` file (matplotlib needed)."""
     design = None
     if check is not None:
         design = check.design
@@ -430,8 +431,7 @@ def write_plot(path, req: Requirements, check=None, solution=None, *, grid=DEFAU
     if low <= high:  # zoom on the window: a factor 8 beyond its extremes, within the searched range
         spacings = np.geomspace(max(low / 8, family[0] / 4), min(high * 8, family[-1] * 4), 4 * grid[1])
         smap = spacing_map(req, speeds, spacings)
-    data = _render(req, environment, design, omap, smap, family, target.suffix.lower().lstrip("."))
-    write_atomic(target, data)
+    return _render(req, environment, design, omap, smap, family, fmt)
 
 
 def _delay_unit(value_s):

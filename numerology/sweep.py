@@ -55,7 +55,6 @@ from . import budget, delay, doppler, link, profiles
 from .design import Design, DesignArrays
 from .environment import WIDEBAND_FRACTION, EnvironmentBatch, derive_environment
 from .errors import InputError, read_text
-from .output import write_atomic
 from .requirements import SCHEMA, Requirements
 from .units import parse_either, parse_quantity
 
@@ -269,6 +268,10 @@ def _split_rows(texts: list, lines, where: str):
         ends = np.append(np.flatnonzero(raw == ord("\n")), raw.size)  # a multi-byte character
         commas_before = np.searchsorted(np.flatnonzero(raw == ord(",")), ends)
         return flat, np.diff(commas_before, prepend=0) + 1
+    odd = [i for i, text in enumerate(texts) if text.count('"') % 2]
+    if odd:  # a quoted cell that goes on to the next line: rows would no longer be lines
+        raise InputError(f"{where}: line {lines[odd[0]]}", "a line break inside quotes is not supported in a sites "
+                                                           "file; keep each site on one line")
     reader = csv.reader(texts)
     try:
         rows = list(reader)
@@ -937,26 +940,63 @@ def sweep(req: Requirements, design: Design, sites: Sites) -> SweepResult:
         requirements_path=req.path)
 
 
-def write_sweep_csv(path, result: SweepResult) -> None:
-    """Write the sweep as CSV, atomically (validate the path first with ``output.output_path``).
+def write_sweep_csv(path, result: SweepResult, sites_file: str | None = None) -> None:
+    """Write the sweep as CSV and its metadata beside it as ``FILE.csv.json``, together and atomically.
 
-    Columns: site, pass (yes/no), binding_rule, net_throughput [Mbit/s],
-    effective_sinr [dB], one margin column per rule (``[%]`` for ratio
-    margins, ``[dB]`` for dB margins), coherence_time [ms],
-    coherence_bandwidth [MHz]. Rows that could not be evaluated are listed
-    first as ``#`` comment lines with their line and problem.
+    Validate the path first with ``output.output_path`` (a command does so before any work).
+    The CSV (:func:`sweep_csv`) is plain: one header row, then one row per evaluated site, readable by
+    any CSV reader without options; what does not fit in rows (the rows of the sites file that were not
+    evaluated, notes, the design, the summary) is in the metadata document (:func:`sweep_csv_metadata`).
+    """
+    from .output import write_all
+    from .render_json import document
+
+    path = Path(path)
+    meta = document("numerology.sweep_csv", sweep_csv_metadata(result, path.name, sites_file))
+    write_all({path: sweep_csv(result).encode("utf-8"), metadata_path(path): meta.encode("utf-8")})
+
+
+def metadata_path(path) -> Path:
+    """The metadata file of a sweep CSV: ``FILE.csv.json`` beside ``FILE.csv``."""
+    path = Path(path)
+    return path.with_name(path.name + ".json")
+
+
+#: First characters that make a spreadsheet evaluate a cell as a formula (OWASP, "CSV Injection").
+_FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+
+
+def spreadsheet_safe(text: str) -> str:
+    """A text cell that spreadsheets show as text: a leading ``'`` before a formula's first character.
+
+    Common practice (OWASP, "CSV Injection"): a site named ``=HYPERLINK(...)`` must not become a formula.
+    Numbers written by numerology are not text cells and are left alone.
+    """
+    return "'" + text if text.startswith(_FORMULA_STARTS) else text
+
+
+def _csv_columns(result: SweepResult) -> list:
+    """(header, unit or None) of each CSV column."""
+    return [("site", None), ("pass", None), ("binding_rule", None), ("net_throughput [Mbit/s]", "Mbit/s"),
+            ("effective_sinr [dB]", "dB"),
+            *[(f"{rule.name} margin [{'dB' if rule.convention == 'db' else '%'}]",
+               "dB" if rule.convention == "db" else "%") for rule in result.rules],
+            ("coherence_time [ms]", "ms"), ("coherence_bandwidth [MHz]", "MHz")]
+
+
+def sweep_csv(result: SweepResult) -> str:
+    """The per-site results as CSV text.
+
+    Columns: site, pass (yes/no), binding_rule, net_throughput [Mbit/s], effective_sinr [dB], one
+    margin column per rule (``[%]`` for ratio margins, ``[dB]`` for dB margins), coherence_time [ms],
+    coherence_bandwidth [MHz]. Site names that a spreadsheet would evaluate are escaped
+    (:func:`spreadsheet_safe`).
     """
     buffer = io.StringIO()
-    for line, message in result.sites.problems:
-        buffer.write(f"# line {line} not evaluated: {message}\n")
-    for note in result.sites.notes:
-        buffer.write(f"# note: {note}\n")
     writer = csv.writer(buffer, lineterminator="\n")
-    margin_headers = [f"{rule.name} margin [{'dB' if rule.convention == 'db' else '%'}]" for rule in result.rules]
-    writer.writerow(["site", "pass", "binding_rule", "net_throughput [Mbit/s]", "effective_sinr [dB]",
-                     *margin_headers, "coherence_time [ms]", "coherence_bandwidth [MHz]"])
+    writer.writerow([header for header, _ in _csv_columns(result)])
     columns = [
-        result.sites.names.tolist(),
+        [spreadsheet_safe(name) for name in map(str, result.sites.names.tolist())],
         np.where(result.passed, "yes", "no").tolist(),
         result.binding_rule.tolist(),
         _formatted(result.net_throughput_bps / 1e6),
@@ -967,7 +1007,21 @@ def write_sweep_csv(path, result: SweepResult) -> None:
         _formatted(result.environment.coherence_bandwidth_hz / 1e6),
     ]
     writer.writerows(zip(*columns))
-    write_atomic(Path(path), buffer.getvalue().encode("utf-8"))
+    return buffer.getvalue()
+
+
+def sweep_csv_metadata(result: SweepResult, csv_name: str, sites_file: str | None = None) -> dict:
+    """What goes with a sweep CSV: its columns and units, the design, the summary, rows not evaluated, notes."""
+    return {
+        "csv": csv_name,
+        "requirements": result.requirements_path,
+        "sites_file": sites_file if sites_file is not None else result.sites.path,
+        "design": result.design.to_json(),
+        "columns": [{"name": header, "unit": unit} for header, unit in _csv_columns(result)],
+        "summary": result.summary().to_json(),
+        "problems": [{"line": line, "message": message} for line, message in result.sites.problems],
+        "notes": list(result.sites.notes),
+    }
 
 
 def _formatted(values) -> list:

@@ -443,3 +443,224 @@ def test_the_simulation_memory_estimate_refuses_huge_ffts(tmp_path):
     with pytest.raises(InputError, match="beyond the budget"):
         verify(api.load(RAIL), huge)
     assert budget.MAX_TAPS == 4096 and budget.MAX_MCS_ROWS == 256
+
+
+# --- 1. input files protected from every output option, by identity ------------------------------------
+
+
+def _design_copy(path):
+    path.write_text((EXAMPLES / "designs" / "urban-small-cell-30khz.toml").read_text(encoding="utf-8"),
+                    encoding="utf-8")
+    return path
+
+
+def _sites_copy(path):
+    path.write_text((EXAMPLES / "harbour_sites.csv").read_text(encoding="utf-8"), encoding="utf-8")
+    return path
+
+
+@pytest.mark.parametrize("case", ["check markdown", "check plot", "verify markdown", "sweep out", "sweep out sites",
+                                  "hard link", "symbolic link", "profile", "mcs table", "sweep metadata"])
+def test_no_output_option_overwrites_an_input(capsys, tmp_path, case):
+    """A valid design file named d.md was replaced by a note; the same for --plot, verify and sweep."""
+    import os
+
+    design = _design_copy(tmp_path / ("d.svg" if "plot" in case else "d.csv" if "sweep" in case else "d.md"))
+    req = HARBOUR
+    if case == "check markdown":
+        argv, victim = ["check", req, "--design", design, "--markdown", design], design
+    elif case == "check plot":
+        argv, victim = ["check", req, "--design", design, "--plot", design], design
+    elif case == "verify markdown":
+        argv, victim = ["verify", req, "--design", design, "--frames", "2", "--markdown", design], design
+    elif case == "sweep out":
+        argv, victim = ["sweep", req, "--sites", EXAMPLES / "harbour_sites.csv", "--design", design,
+                        "--out", design], design
+    elif case == "sweep out sites":
+        sites = _sites_copy(tmp_path / "s.csv")
+        argv, victim = ["sweep", req, "--sites", sites, "--preset", "nr-mu1", "--out", sites], sites
+    elif case == "sweep metadata":  # FILE.csv.json is written too: it is protected as well
+        design = _design_copy(tmp_path / "o.csv.json")
+        argv, victim = ["sweep", req, "--sites", EXAMPLES / "harbour_sites.csv", "--design", design,
+                        "--out", tmp_path / "o.csv"], design
+    elif case in ("hard link", "symbolic link"):
+        other = tmp_path / "other-name.md"
+        (os.link if case == "hard link" else os.symlink)(design, other)
+        argv, victim = ["check", req, "--design", design, "--markdown", other], design
+    else:
+        copy = tmp_path / ("t.md" if case == "profile" else "m.md")
+        if case == "profile":
+            copy.write_text((EXAMPLES / "harbour_crane_taps.csv").read_text(encoding="utf-8"), encoding="utf-8")
+            req = edited(HARBOUR, tmp_path / "r.toml", environment={"profile_file": str(copy)})
+        else:
+            copy.write_text("name,bits_per_symbol,code_rate,required_sinr [dB]\nQPSK 1/2,2,1/2,5\n", encoding="utf-8")
+            req = edited(HARBOUR, tmp_path / "r.toml", rules={"mcs_table": str(copy)})
+        argv, victim = ["check", req, "--preset", "nr-mu1", "--markdown", copy], copy
+    before = victim.read_bytes()
+    files_before = sorted(p.name for p in tmp_path.iterdir())
+    assert_one_line_error(*run(capsys, *argv), "refusing to overwrite the input file")
+    assert victim.read_bytes() == before
+    assert sorted(p.name for p in tmp_path.iterdir()) == files_before
+
+
+# --- 6. unwritable outputs, loops, deep nesting, quoted newlines ----------------------------------------------
+
+
+@pytest.mark.parametrize("case", ["proc", "too long a name", "missing folder", "loop", "folder", "device", "nul"])
+def test_bad_output_paths_fail_before_any_work(capsys, tmp_path, monkeypatch, case):
+    """Such paths failed with a traceback and exit 1 after all the work; now exit 2 before it."""
+    import os
+
+    from numerology import api
+
+    calls = []
+    original = api.check
+    monkeypatch.setattr(api, "check", lambda *a, **k: (calls.append(1), original(*a, **k))[1])
+    if case == "proc":
+        target = "/proc/x.md"
+    elif case == "too long a name":
+        target = str(tmp_path / ("a" * 300 + ".md"))
+    elif case == "missing folder":
+        target = str(tmp_path / "no" / "x.md")
+    elif case == "loop":
+        os.symlink(tmp_path / "b.md", tmp_path / "a.md")
+        os.symlink(tmp_path / "a.md", tmp_path / "b.md")
+        target = str(tmp_path / "a.md")
+    elif case == "folder":
+        (tmp_path / "x.md").mkdir()
+        target = str(tmp_path / "x.md")
+    elif case == "device":
+        os.symlink("/dev/null", tmp_path / "x.md")
+        target = str(tmp_path / "x.md")
+    else:
+        target = "x\0.md"
+    status, out, err = run(capsys, "check", HARBOUR, "--preset", "nr-mu1", "--markdown", target)
+    assert_one_line_error(status, out, err, "--markdown")
+    assert calls == []  # refused before the work
+
+
+def test_a_name_of_250_characters_is_written(capsys, tmp_path):
+    """The temporary file's name was the target's name plus a prefix and suffix: too long for the system."""
+    target = tmp_path / ("a" * 250 + ".md")
+    status, out, err = run(capsys, "check", HARBOUR, "--preset", "nr-mu1", "--markdown", target)
+    assert status in (0, 1) and err == ""
+    assert target.read_text(encoding="utf-8").startswith("# Design note")
+    assert [p.name for p in tmp_path.iterdir()] == [target.name]
+
+
+def test_an_unwritable_folder_fails_before_any_work(capsys, tmp_path, monkeypatch):
+    """An immutable or read-only folder (simulated: creating a file there fails, as chattr +i makes it)."""
+    import tempfile
+
+    from numerology import output
+
+    def refuse(*args, **kwargs):
+        raise PermissionError(1, "Operation not permitted")
+
+    monkeypatch.setattr(output.tempfile, "mkstemp", refuse)
+    assert_one_line_error(*run(capsys, "check", HARBOUR, "--preset", "nr-mu1", "--markdown", tmp_path / "n.md"),
+                          "--markdown", "cannot write in folder", "Operation not permitted")
+    assert list(tmp_path.iterdir()) == []
+    del tempfile
+
+
+def test_symlink_loops_as_inputs(capsys, tmp_path):
+    import os
+
+    os.symlink(tmp_path / "b.toml", tmp_path / "a.toml")
+    os.symlink(tmp_path / "a.toml", tmp_path / "b.toml")
+    assert_one_line_error(*run(capsys, "env", tmp_path / "a.toml"), "a.toml")
+    req = edited(HARBOUR, tmp_path / "r.toml", environment={"profile_file": str(tmp_path / "a.toml")})
+    assert_one_line_error(*run(capsys, "env", req), "environment.profile_file")
+    assert_one_line_error(*run(capsys, "check", HARBOUR, "--design", tmp_path / "a.toml"), "a.toml")
+
+
+def test_toml_nested_900_deep(capsys, tmp_path):
+    path = tmp_path / "deep.toml"
+    path.write_text("[environment]\nx = " + "[" * 900 + "]" * 900 + "\n", encoding="utf-8")
+    assert_one_line_error(*run(capsys, "env", path), "nested too deeply")
+    design = tmp_path / "deep-design.toml"
+    design.write_text("x = " + "{a = " * 900 + "1" + "}" * 900 + "\n", encoding="utf-8")
+    assert_one_line_error(*run(capsys, "check", HARBOUR, "--design", design), "deep-design.toml")
+
+
+def test_a_quoted_newline_in_a_sites_file(capsys, tmp_path):
+    sites = tmp_path / "s.csv"
+    sites.write_text('site,snr [dB]\n"a\nb",20\nc,21\n', encoding="utf-8")
+    assert_one_line_error(*run(capsys, "sweep", HARBOUR, "--sites", sites, "--preset", "nr-mu1"),
+                          "line 2", "line break inside quotes")
+
+
+# --- 7. no partial write on bad input ----------------------------------------------------------------------
+
+
+def test_without_matplotlib_nothing_is_written(capsys, tmp_path, monkeypatch):
+    """--markdown n.md --plot p.png wrote the note, then exited 2 for the plot."""
+    import sys
+
+    monkeypatch.setitem(sys.modules, "matplotlib", None)  # import matplotlib now raises ImportError
+    status, out, err = run(capsys, "check", HARBOUR, "--preset", "nr-mu1", "--markdown", tmp_path / "n.md",
+                           "--plot", tmp_path / "p.png")
+    assert_one_line_error(status, out, err, "--plot", "needs matplotlib")
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_a_failure_while_writing_leaves_no_output(tmp_path, monkeypatch):
+    """All outputs go to temporary files first: if the last one fails, none is renamed into place."""
+    import os
+
+    from numerology import output
+
+    real_replace = os.replace
+    monkeypatch.setattr(output.os, "replace", lambda a, b: (_ for _ in ()).throw(OSError(28, "No space left")))
+    with pytest.raises(OSError):
+        output.write_all({tmp_path / "a.md": b"a", tmp_path / "b.png": b"b"})
+    monkeypatch.setattr(output.os, "replace", real_replace)
+    assert list(tmp_path.iterdir()) == []
+
+
+# --- 9. spreadsheet formulas in CSV output, a closed stdout pipe --------------------------------------------
+
+
+def test_csv_cells_that_spreadsheets_would_evaluate_are_escaped(capsys, tmp_path):
+    import csv
+
+    sites = tmp_path / "s.csv"
+    sites.write_text('site,snr [dB]\n"=HYPERLINK(""http://x"",""y"")",20\n+cmd,20\n-2+3,20\n@SUM(A1),20\nplain,20\n',
+                     encoding="utf-8")
+    out = tmp_path / "o.csv"
+    status, _, err = run(capsys, "sweep", HARBOUR, "--sites", sites, "--preset", "nr-mu1", "--out", out)
+    assert status in (0, 1) and err == ""
+    rows = list(csv.reader(out.read_text(encoding="utf-8").splitlines()))
+    assert [r[0] for r in rows[1:]] == ["'=HYPERLINK(\"http://x\",\"y\")", "'+cmd", "'-2+3", "'@SUM(A1)", "plain"]
+    assert all(not cell.startswith(("=", "+", "@")) for row in rows[1:] for cell in row)
+
+
+def test_the_sweep_csv_is_read_by_standard_readers_without_options(capsys, tmp_path):
+    """Issue 14: the CSV began with a comment line that CSV readers take for data; now the metadata is beside it."""
+    import csv
+    import json
+
+    out = tmp_path / "o.csv"
+    status, _, _ = run(capsys, "sweep", HARBOUR, "--sites", EXAMPLES / "harbour_sites.csv", "--best", "--out", out)
+    assert status in (0, 1)
+    with open(out, newline="", encoding="utf-8") as handle:
+        rows = list(csv.DictReader(handle))
+    assert len(rows) == 13 and rows[0]["site"].startswith("quay crane")
+    meta = json.loads((tmp_path / "o.csv.json").read_text(encoding="utf-8"))
+    assert meta["csv"] == "o.csv" and meta["summary"]["sites"] == 13
+
+
+def test_a_closed_stdout_pipe_is_not_exit_1(tmp_path):
+    """'numerology presets --json | head -c 1' exited 1 silently; now 141, as a shell reports SIGPIPE."""
+    import os
+    import subprocess
+    import sys
+
+    reader, writer = os.pipe()
+    os.close(reader)  # nobody reads: the first write fails with EPIPE
+    done = subprocess.run([sys.executable, "-m", "numerology", "profiles", "--json"], stdout=writer,
+                          stderr=subprocess.PIPE, text=True, timeout=120)
+    os.close(writer)
+    assert done.returncode == 141
+    assert done.stderr == ""
