@@ -26,6 +26,16 @@ class InputError(ValueError):
         super().__init__(f"{place}: {message}" if place else message)
 
 
+def file_path(path, place: str = "path"):
+    """``path`` as a :class:`pathlib.Path`, or an :class:`InputError` if it is not a file name at all."""
+    import os
+    from pathlib import Path
+
+    if isinstance(path, bool) or not isinstance(path, (str, os.PathLike)) or not str(path).strip():
+        raise InputError(place, f"expected a file name, got {path!r}")
+    return Path(path)
+
+
 def read_text(path, expected: str, kind: str | None = None) -> str:
     """The text of a user's file; any failure to read it becomes one :class:`InputError` line.
 
@@ -38,11 +48,9 @@ def read_text(path, expected: str, kind: str | None = None) -> str:
         A key of :data:`numerology.budget.MAX_FILE_BYTES`: at most that many bytes are read (a pipe
         or a device is read up to the limit, never to exhaustion).
     """
-    from pathlib import Path
-
     from . import budget
 
-    path = Path(path)
+    path = file_path(path)
     limit = budget.MAX_FILE_BYTES[kind] if kind else None
     try:
         with open(path, "rb") as handle:

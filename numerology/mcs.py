@@ -40,12 +40,11 @@ import math
 from dataclasses import dataclass
 from fractions import Fraction
 from functools import lru_cache
-from pathlib import Path
 
 import numpy as np
 
 from . import budget
-from .errors import InputError, read_text
+from .errors import InputError, file_path, read_text
 from .units import parse_db
 
 #: Gap to AWGN capacity assumed for the default table, in dB (common practice, see module docstring).
@@ -306,7 +305,7 @@ def load_mcs_table(path) -> tuple[McsEntry, ...]:
         Naming the file and line for an unreadable file, a wrong header, a bad
         row, a duplicate name, or an empty table.
     """
-    path = Path(path)
+    path = file_path(path)
     place = str(path)
     text = read_text(path, "a CSV file of modulation-and-coding entries", "mcs")
     budget.check_rows("mcs", sum(1 for x in text.splitlines() if x.strip() and not x.lstrip().startswith("#")) - 1,

@@ -404,8 +404,14 @@ def write_plot(path, req: Requirements, check=None, solution=None, *, grid=DEFAU
         Without matplotlib (``--plot``: install the ``plot`` extra), or for a
         bad path.
     """
+    from .requirements import checked
+
+    req = checked(req)
+    if not (isinstance(grid, tuple) and len(grid) == 2
+            and all(isinstance(n, int) and not isinstance(n, bool) and 2 <= n <= 1000 for n in grid)):
+        raise InputError("grid", f"expected (points across, points up), each from 2 to 1000, got {grid!r}")
     optional_module("matplotlib", "--plot", "plot")
-    target = output_path(str(path), "--plot", (".png", ".svg"), req)
+    target = output_path(path, "--plot", (".png", ".svg"), req)
     write_atomic(target, plot_bytes(req, target.suffix.lower().lstrip("."), check, solution, grid=grid))
 
 

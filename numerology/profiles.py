@@ -18,7 +18,6 @@ import difflib
 import math
 import re
 from dataclasses import dataclass, replace
-from pathlib import Path
 
 import numpy as np
 
@@ -306,9 +305,10 @@ def load_profile_csv(path) -> Profile:
         missing header, a row that is not two finite numbers, a negative or
         absurd delay, a power outside -200..+60 dB, duplicate delays, no taps.
     """
+    from .errors import file_path
     from .units import parse_quantity
 
-    path = Path(path)
+    path = file_path(path)
     text = read_text(path, "a CSV file of taps (delay, power in dB)", "profile")
     factor = None
     rows = []  # (delay_s, power_db, line)

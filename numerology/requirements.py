@@ -18,13 +18,15 @@ from __future__ import annotations
 import dataclasses
 import difflib
 import math
+import numbers
+import os
 import tomllib
 from dataclasses import dataclass, field, make_dataclass
 from pathlib import Path
 from typing import Any
 
 from . import budget
-from .errors import InputError, read_text
+from .errors import InputError, file_path, read_text
 from .units import BARE_NUMBER_RULE, UnitSpellingError, parse_db, parse_either, parse_quantity, show_si
 
 SUFFIX = {"frequency": "_hz", "time": "_s", "speed": "_mps", "length": "_m", "bitrate": "_bps", "db": "_db", "ratio": ""}
@@ -182,8 +184,13 @@ _BY_SECTION = {s: {k.name: k for k in SCHEMA if k.section == s} for s in SECTION
 
 def key(dotted_key: str) -> Key:
     """The declaration of a requirement key such as ``"goals.max_latency"``."""
-    section, name = dotted_key.split(".")
-    return _BY_SECTION[section][name]
+    section, _, name = str(dotted_key).partition(".")
+    declared = _BY_SECTION.get(section, {}).get(name)
+    if declared is None:
+        known = [k.path for k in SCHEMA]
+        raise InputError("key", f"unknown requirement key {dotted_key!r}{_did_you_mean(dotted_key, known)}; "
+                                "expected a dotted key such as 'goals.max_latency'")
+    return declared
 
 
 def _section_class(section: str):
@@ -406,15 +413,27 @@ def load_requirements(path: str | Path) -> Requirements:
     InputError
         For any problem, naming the file and the key path.
     """
-    path = Path(path)
+    path = file_path(path)
     return requirements_from_mapping(read_toml(path), str(path), path.parent)
 
 
 def requirements_from_mapping(data: dict, where: str = "<memory>", base_dir: Path | str = ".") -> Requirements:
-    """Check a parsed TOML mapping and convert it to :class:`Requirements`."""
+    """Check a parsed TOML mapping and convert it to :class:`Requirements`.
+
+    Raises
+    ------
+    InputError
+        For anything that is not a mapping of the five tables with valid keys and values.
+    """
+    where = str(where)
+    if not isinstance(data, dict):
+        raise InputError(where, f"expected a mapping of tables such as {{'environment': {{...}}}}, "
+                                f"got {type(data).__name__}")
+    if not isinstance(base_dir, (str, os.PathLike)):
+        raise InputError("base_dir", f"expected a folder name, got {base_dir!r}")
     base_dir = Path(base_dir)
     for section in data:
-        if section not in SECTIONS:
+        if not isinstance(section, str) or section not in SECTIONS:
             raise InputError(f"{where}: [{_printable(section)}]",
                              f"unknown table{_did_you_mean(section, SECTIONS)}; expected one of: {', '.join(SECTIONS)}")
         if not isinstance(data[section], dict):
@@ -457,9 +476,10 @@ def _named_files(req: Requirements) -> tuple:
     return tuple(files)
 
 
-def _printable(name: str) -> str:
-    """A key name as written, or quoted with escapes if it holds a line break or other control character."""
-    return name if name.isprintable() else repr(name)
+def _printable(name) -> str:
+    """A key name as written, or quoted with escapes if it holds a line break or other control character
+    (or is not text at all: a mapping built in Python may have any keys)."""
+    return name if isinstance(name, str) and name.isprintable() else repr(name)
 
 
 def _echo(raw) -> str:
@@ -511,6 +531,60 @@ def _check_consistency(req: Requirements, where: str) -> None:
             raise InputError(f"{where}: search.spacing_exponents", f"expected [lowest, highest] such as [-4, 6], got {list(exps)}")
     if not search.min_fft_size <= search.max_fft_size:
         raise InputError(f"{where}: search.min_fft_size", "must not exceed max_fft_size")
+
+
+def checked(req) -> Requirements:
+    """``req`` itself if it is a :class:`Requirements` whose every value lies in its declared range.
+
+    For the edge of the API: values set with :meth:`Requirements.replace` (a zero bandwidth, a
+    negative speed, text where a number belongs) are refused as the file reader would refuse them.
+
+    Raises
+    ------
+    InputError
+        Naming the key and what was expected.
+    """
+    if not isinstance(req, Requirements):
+        raise InputError("requirements", f"expected the Requirements that numerology.api.load returns, "
+                                         f"got {type(req).__name__}")
+    for declared in SCHEMA:
+        value = getattr(getattr(req, declared.section), declared.field)
+        if value is not None:
+            _check_si(declared, value, f"{req.path}: {declared.path}")
+    _check_consistency(req, req.path)
+    return req
+
+
+def _check_si(declared: Key, value, place: str) -> None:
+    """One loaded (SI) value against its declaration."""
+    def real(x):
+        if isinstance(x, bool) or not isinstance(x, numbers.Real):
+            raise InputError(place, f"expected a number in SI units, got {x!r}")
+        return _check_range(declared, float(x), place, x)
+
+    kind = declared.kind
+    if kind in ("quantity", "db", "number", "offset"):
+        real(value)
+    elif kind == "integer":
+        if not isinstance(value, numbers.Integral) or isinstance(value, bool):
+            raise InputError(place, f"expected a whole number, got {value!r}")
+        real(value)
+    elif kind in ("integer_list", "quantity_list", "choice_list"):
+        if not isinstance(value, (tuple, list)) or not value:
+            raise InputError(place, f"expected a non-empty tuple, got {value!r}")
+        for item in value:
+            _check_si(Key(declared.section, declared.name, kind.removesuffix("_list"), "", declared.dimension,
+                          None, declared.low, declared.high, declared.low_open, declared.choices), item, place)
+    elif kind == "choice":
+        if value not in (declared.choices or _profile_names()):
+            raise InputError(place, f"unknown value {value!r}; expected one of: "
+                                    f"{', '.join(declared.choices or _profile_names())}")
+    elif kind == "path":
+        if not isinstance(value, str):
+            raise InputError(place, f"expected a file name, got {value!r}")
+    elif kind == "mask":
+        if not (isinstance(value, tuple) and len(value) == 2 and len(value[0]) == len(value[1]) >= 2):
+            raise InputError(place, f"expected (offsets in Hz, levels in dBc/Hz), got {value!r}")
 
 
 def _offset_to_hz(parsed, carrier_hz, place) -> float:

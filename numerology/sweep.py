@@ -162,7 +162,13 @@ def load_sites(path, req: Requirements, max_sites: int | None = None) -> Sites:
         If the file cannot be read, has no header or no rows, or its header
         is malformed (unknown column, missing or wrong unit, repeated column).
     """
-    where = str(path)
+    from .errors import file_path
+    from .requirements import checked
+
+    req = checked(req)
+    where = str(file_path(path))
+    if max_sites is not None and (isinstance(max_sites, bool) or not isinstance(max_sites, int) or max_sites < 1):
+        raise InputError("max_sites", f"expected a whole number of at least 1, got {max_sites!r}")
     numbers, texts = _content_lines(Path(path))
     if not texts:
         raise InputError(where, f"has no header; expected a first row such as {_HEADER_EXAMPLE!r}")
@@ -205,7 +211,16 @@ def sites_from_values(req: Requirements, *, names=None, max_speed_mps=None, max_
     """
     values = {"max_speed": max_speed_mps, "max_doppler": max_doppler_hz, "max_excess_delay": max_excess_delay_s,
               "rms_delay_spread": rms_delay_spread_s, "carrier": carrier_hz, "snr": snr_db}
-    arrays = {k: np.asarray(v, dtype=float) for k, v in values.items() if v is not None}
+    if not isinstance(req, Requirements):
+        raise InputError("requirements", f"expected the Requirements that numerology.api.load returns, "
+                                         f"got {type(req).__name__}")
+    arrays = {}
+    for name, value in values.items():
+        if value is not None:
+            try:
+                arrays[name] = np.asarray(value, dtype=float)
+            except (TypeError, ValueError):
+                raise InputError(name, f"expected numbers in SI units, got {value!r}") from None
     if profile is not None:
         arrays["profile"] = np.asarray(profile, dtype=object)
     if names is not None:
@@ -907,11 +922,24 @@ def sweep(req: Requirements, design: Design, sites: Sites) -> SweepResult:
         throughput, effective SINR; the site environments (coherence time and
         bandwidth, notes).
 
+    Raises
+    ------
+    InputError
+        For a bad argument (requirements with a value out of range, a design that is not a
+        :class:`Design`, sites that are not :class:`Sites`).
+
     Notes
     -----
     One call of ``link.evaluate`` with the design against the batch of site
     environments; the per-site SNR is passed as an array in ``radio.snr``.
     """
+    from .requirements import checked
+
+    req = checked(req)
+    if not isinstance(design, Design):
+        raise InputError("design", f"expected a numerology.design.Design, got {type(design).__name__}")
+    if not isinstance(sites, Sites):
+        raise InputError("sites", f"expected Sites from load_sites or sites_from_values, got {type(sites).__name__}")
     environment = site_environments(req, sites)
     rules = link.applicable_rules(req)
     n = sites.size

@@ -664,3 +664,97 @@ def test_a_closed_stdout_pipe_is_not_exit_1(tmp_path):
     os.close(writer)
     assert done.returncode == 141
     assert done.stderr == ""
+
+
+# --- 8. the Python API raises its documented InputError for every bad argument -------------------------
+
+
+def _bad_api_calls():
+    """(label, call) pairs: each call gives a public function one bad argument."""
+    import math
+
+    from numerology import api, design, mcs, plots, presets, profiles, requirements, simulate, sweep, units
+    from numerology.verify import verify
+
+    req = api.load(RAIL)
+    nr = presets.get_preset("nr-mu1").design
+    sites = sweep.sites_from_values(req, max_speed_mps=[10.0])
+    env = api.check(req, nr, with_limits=False).environment
+    return [
+        ("solve top 0", lambda: api.solve(req, top=0)),
+        ("solve top bool", lambda: api.solve(req, top=True)),
+        ("solve top text", lambda: api.solve(req, top="3")),
+        ("solve objective bogus", lambda: api.solve(req, objective="bogus")),
+        ("solve explain text", lambda: api.solve(req, explain="no")),
+        ("solve None requirements", lambda: api.solve(None)),
+        ("solve a dict", lambda: api.solve({"environment": {}})),
+        ("check zero bandwidth", lambda: api.check(req.replace("radio.bandwidth", 0.0), nr)),
+        ("check negative speed key", lambda: api.check(req.replace("environment.max_speed", -3.0), nr)),
+        ("check text in a key", lambda: api.check(req.replace("radio.snr", "18 dB"), nr)),
+        ("check NaN carrier", lambda: api.check(req.replace("environment.carrier", math.nan), nr)),
+        ("check None requirements", lambda: api.check(None, nr)),
+        ("check no design", lambda: api.check(req)),
+        ("check design not a Design", lambda: api.check(req, 3)),
+        ("check preset not text", lambda: api.check(req, preset=3)),
+        ("check unknown preset", lambda: api.check(req, preset="nr-mu9")),
+        ("check speed text", lambda: api.check(req, nr, speed_mps="5")),
+        ("check speed negative", lambda: api.check(req, nr, speed_mps=-5)),
+        ("check delay NaN", lambda: api.check(req, nr, max_excess_delay_s=math.nan)),
+        ("check with_limits text", lambda: api.check(req, nr, with_limits="yes")),
+        ("load None", lambda: api.load(None)),
+        ("load a number", lambda: api.load(3)),
+        ("load empty name", lambda: api.load("")),
+        ("design_from a number", lambda: api.design_from(3)),
+        ("design file a number", lambda: design.load_design(3)),
+        ("design mapping not a mapping", lambda: design.design_from_mapping([1], "x")),
+        ("replace unknown key", lambda: req.replace("radio.bandwdth", 1.0)),
+        ("value unknown key", lambda: req.value("nonsense")),
+        ("mapping with a number as table name", lambda: requirements.requirements_from_mapping({1: {}})),
+        ("mapping with a number as key", lambda: requirements.requirements_from_mapping({"environment": {1: 2}})),
+        ("mapping not a mapping", lambda: requirements.requirements_from_mapping([1])),
+        ("mapping None", lambda: requirements.requirements_from_mapping(None)),
+        ("mapping base_dir a number", lambda: requirements.requirements_from_mapping({}, base_dir=3)),
+        ("parse_quantity unknown dimension", lambda: units.parse_quantity("1 Hz", "colour", "x")),
+        ("parse_quantity dimension None", lambda: units.parse_quantity("1 Hz", None, "x")),
+        ("parse_db None", lambda: units.parse_db(None, "x")),
+        ("parse_either unknown dimension", lambda: units.parse_either("1 Hz", ("colour",), "x")),
+        ("mcs table a number", lambda: mcs.load_mcs_table(3)),
+        ("profile file None", lambda: profiles.load_profile_csv(None)),
+        ("preset a number", lambda: presets.get_preset(3)),
+        ("verify None requirements", lambda: verify(None, nr)),
+        ("verify design a string", lambda: verify(req, "nr-mu1")),
+        ("verify frames 1", lambda: verify(req, nr, frames=1)),
+        ("verify frames text", lambda: verify(req, nr, frames="8")),
+        ("verify seed negative", lambda: verify(req, nr, seed=-1)),
+        ("verify progress not callable", lambda: verify(req, nr, frames=2, progress=3)),
+        ("sweep None requirements", lambda: sweep.sweep(None, nr, sites)),
+        ("sweep design None", lambda: sweep.sweep(req, None, sites)),
+        ("sweep sites a list", lambda: sweep.sweep(req, nr, [1, 2])),
+        ("load_sites path None", lambda: sweep.load_sites(None, req)),
+        ("load_sites max_sites 0", lambda: sweep.load_sites(EXAMPLES / "harbour_sites.csv", req, max_sites=0)),
+        ("sites_from_values text", lambda: sweep.sites_from_values(req, max_speed_mps=["fast"])),
+        ("sites_from_values None requirements", lambda: sweep.sites_from_values(None, max_speed_mps=[1.0])),
+        ("write_plot None requirements", lambda: plots.write_plot("x.png", None)),
+        ("write_plot bad grid", lambda: plots.write_plot("x.png", req, grid=(0, 3))),
+        ("simulate_link snr text", lambda: simulate.simulate_link(nr, env, "high")),
+    ]
+
+
+def test_every_bad_api_call_raises_input_error():
+    """Each public function with a bad argument raises InputError (documented), one line, nothing else:
+    solve(top=0) reported a feasible request as infeasible, objective="bogus" raised KeyError, a zero
+    bandwidth divided by zero, None requirements raised AttributeError."""
+    from numerology.errors import InputError
+
+    failures = []
+    for label, call in _bad_api_calls():
+        try:
+            call()
+        except InputError as error:
+            if "\n" in str(error):
+                failures.append(f"{label}: a message of several lines")
+        except Exception as error:  # noqa: BLE001 - the point of the test
+            failures.append(f"{label}: {type(error).__name__}: {error}")
+        else:
+            failures.append(f"{label}: no error")
+    assert failures == []
