@@ -130,12 +130,23 @@ class CheckResult:
         return (f"{self.design.name}: {verdict}; binding {b.name} (margin {_show_margin(b)}); "
                 f"SINR {self.effective_sinr_db:.1f} dB; {engineering(self.net_throughput_bps, 'bit/s')}")
 
+    @property
+    def constraints(self) -> tuple:
+        """Deprecated name of :attr:`rules` (the JSON key ``constraints`` is likewise an alias of ``rules``)."""
+        import warnings
+
+        warnings.warn("CheckResult.constraints is deprecated; use CheckResult.rules", DeprecationWarning,
+                      stacklevel=2)
+        return self.rules
+
     def to_json(self) -> dict:
+        rules = [r.to_json() for r in self.rules]
         return {
             "design": self.design.to_json(),
             "passed": self.passed,
             "binding_rule": self.binding_rule.name,
-            "constraints": [r.to_json() for r in self.rules],
+            "rules": rules,
+            "constraints": rules,  # deprecated alias of "rules" (schema 2.x), to be removed in 3.0
             "sinr_terms_db": {k: _finite(10 * math.log10(v)) if v > 0 else None for k, v in self.sinr_terms.items()},
             "effective_sinr_db": self.effective_sinr_db,
             "spectral_efficiency": self.efficiency,

@@ -42,13 +42,15 @@ def profiles(args) -> int:
     from .profiles import CATALOGUE
 
     if args.json:
+        # A normalised profile's delays are in units of its rms spread, and its keys say so (_rms, not _s).
+        unit = {True: "rms", False: "s"}
         body = {"profiles": [{
             "name": p.name,
             "source": p.source,
             "normalised": p.normalised,
-            "delays_s": list(p.delays_s),
+            f"delays_{unit[p.normalised]}": list(p.delays_s),
             "powers_db": list(p.powers_db),
-            "rms_delay_spread_s": p.rms_delay_spread_s,
+            f"rms_delay_spread_{unit[p.normalised]}": p.rms_delay_spread_s,
             "stated_rms_delay_spread_s": p.stated_rms_delay_spread_s,
             "los_k_factor_db": p.los_k_factor_db,
             "note": p.note,

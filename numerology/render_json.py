@@ -13,7 +13,10 @@ import math
 
 import numpy as np
 
-SCHEMA_VERSION = "1.0"
+#: 2.0: check and solve name their rule list "rules" ("constraints" stays as a deprecated alias until 3.0);
+#: normalised profiles give "delays_rms" and "rms_delay_spread_rms" (in units of the rms spread) instead of
+#: "delays_s" and "rms_delay_spread_s"; sweep --out writes its metadata as numerology.sweep_csv.
+SCHEMA_VERSION = "2.0"
 
 
 def _clean(obj):

@@ -758,3 +758,35 @@ def test_every_bad_api_call_raises_input_error():
         else:
             failures.append(f"{label}: no error")
     assert failures == []
+
+
+# --- issue 14: consistent names ------------------------------------------------------------------------------
+
+
+def test_rules_is_the_one_name_and_constraints_a_deprecated_alias(capsys):
+    import json
+
+    from numerology import api
+
+    status, out, _ = run(capsys, "check", HARBOUR, "--preset", "nr-mu1", "--json")
+    body = json.loads(out)
+    assert body["schema_version"] == "2.0"
+    assert body["rules"] == body["constraints"]  # the alias carries the same list until schema 3.0
+    result = api.check(api.load(HARBOUR), preset="nr-mu1", with_limits=False)
+    assert [r["name"] for r in body["rules"]] == [r.name for r in result.rules]
+    with pytest.warns(DeprecationWarning, match="use CheckResult.rules"):
+        assert result.constraints == result.rules
+
+
+def test_normalised_profiles_have_truthful_unit_suffixes(capsys):
+    import json
+
+    status, out, _ = run(capsys, "profiles", "--json")
+    profiles = {p["name"]: p for p in json.loads(out)["profiles"]}
+    tdl = profiles["TDL-A"]
+    assert tdl["normalised"] is True
+    assert "delays_s" not in tdl and "rms_delay_spread_s" not in tdl
+    assert tdl["delays_rms"][:2] == [0.0, 0.3819]  # 3GPP TR 38.901 Table 7.7.2-1, normalised delays
+    assert abs(tdl["rms_delay_spread_rms"] - 1.0) < 1e-3
+    eva = profiles["EVA"]
+    assert eva["normalised"] is False and "delays_s" in eva and "delays_rms" not in eva
