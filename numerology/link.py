@@ -114,9 +114,15 @@ def efficiency_function(req: Requirements):
     """Bits per data resource element as a function of the linear SINR."""
     if req.rules.efficiency_model == "shannon":
         gap_db = req.rules.shannon_gap_db
-        return lambda sinr: mcs.shannon_gap_efficiency(10 * np.log10(sinr), gap_db)
+        return lambda sinr: mcs.shannon_gap_efficiency(_sinr_db(sinr), gap_db)
     table = mcs_table(req)
-    return lambda sinr: mcs.spectral_efficiency(10 * np.log10(sinr), table)
+    return lambda sinr: mcs.spectral_efficiency(_sinr_db(sinr), table)
+
+
+def _sinr_db(sinr):
+    """10 log10(SINR); an SINR of 0 (a design far outside its window, as on a plot's edge) is -inf dB."""
+    with np.errstate(divide="ignore"):
+        return 10 * np.log10(sinr)
 
 
 def minimum_sinr(req: Requirements) -> float:
