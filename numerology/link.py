@@ -61,7 +61,7 @@ class Evaluation:
 
     @property
     def sinr_eff_db(self):
-        return 10 * np.log10(self.sinr_eff)
+        return _sinr_db(self.sinr_eff)
 
     @property
     def passed(self) -> np.ndarray:
@@ -162,6 +162,10 @@ def oscillator_terms(req: Requirements, useful_symbol_s, subcarrier_spacing_hz):
     # a closed form: cheap, and the offset may be an array (one per site of a sweep)
     cfo = np.asarray(oscillator.cfo_ici(radio.frequency_error_hz, subcarrier_spacing_hz), dtype=float)
     return np.asarray(pn, dtype=float), np.asarray(cfo, dtype=float)
+
+
+#: Lowest pilot SINR the estimators are given (-120 dB: an error of 1 to 1e-11).
+PILOT_SINR_FLOOR = 1e-12
 
 
 def estimation_floor(req: Requirements, pilot_sinr):
@@ -370,6 +374,9 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
         "frequency_offset": np.broadcast_to(_over_useful(cfo), shape),
     }
     pilot_sinr = 1.0 / sum(terms.values())  # pilots see the same noise and interference as data
+    # An interference of the whole signal (ICI -> 1: an infinite term) leaves the pilots an SINR of 0, where the
+    # estimate knows nothing (error 1, its limit); the floor keeps the estimators' arithmetic finite.
+    pilot_sinr = np.maximum(pilot_sinr, PILOT_SINR_FLOOR)
     if estimation:
         terms["estimation"] = np.broadcast_to(estimation_error(designs, environment, req, pilot_sinr), shape)
     else:
