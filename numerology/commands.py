@@ -186,8 +186,8 @@ def verify(args) -> int:
     from .errors import InputError
 
     req = api.load(args.requirements)
-    if args.frames is not None and not 1 <= args.frames <= 100_000:
-        raise InputError("--frames", f"expected a whole number from 1 to 100000, got {args.frames}")
+    if args.frames is not None and not 2 <= args.frames <= 100_000:
+        raise InputError("--frames", f"expected a whole number from 2 to 100000, got {args.frames}")
     if not 0 <= args.seed < 2**63:
         raise InputError("--seed", f"expected a whole number from 0 to 2^63 - 1, got {args.seed}")
     planned = _planned_outputs(args, req)

@@ -54,6 +54,13 @@ def read_text(path, expected: str, kind: str | None = None) -> str:
     limit = budget.MAX_FILE_BYTES[kind] if kind else None
     try:
         with open(path, "rb") as handle:
+            if limit is not None:  # a regular file too large is refused before it is read
+                import os
+                import stat
+
+                status = os.fstat(handle.fileno())
+                if stat.S_ISREG(status.st_mode):
+                    budget.check_file_size(kind, status.st_size, str(path))
             data = handle.read() if limit is None else handle.read(limit + 1)
     except IsADirectoryError:
         raise InputError(str(path), f"is a folder; expected {expected}") from None

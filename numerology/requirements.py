@@ -61,6 +61,7 @@ class Key:
     low_open: bool = False
     choices: tuple = ()
     source: str = ""
+    high_open: bool = False
 
     @property
     def field(self) -> str:
@@ -143,7 +144,7 @@ SCHEMA: tuple[Key, ...] = (
         default=5.0, low=0.01, high=1000.0,
         source="common practice (factors of 5 to 10 are in use): the channel is nearly static over a symbol"),
     Key("rules", "coherence_correlation", "number", "correlation level that defines coherence time and bandwidth",
-        default=0.5, low=0.0, high=1.0, low_open=True,
+        default=0.5, low=0.0, high=1.0, low_open=True, high_open=True,
         source="Rappaport, Wireless Communications 2nd ed., sect. 5.4 (0.5 and 0.9 in use)"),
     Key("rules", "delay_threshold", "db", "taps weaker than this (below the strongest) do not set the max excess delay",
         default=30.0, low=1.0, high=100.0, source="common practice; ITU-R P.1407 thresholds"),
@@ -247,10 +248,12 @@ class Requirements:
 
 def _check_range(key: Key, value: float, place: str, text) -> float:
     low_ok = value > key.low if key.low_open else value >= key.low
-    if not (low_ok and value <= key.high):  # written so that NaN fails too
+    high_ok = value < key.high if key.high_open else value <= key.high
+    if not (low_ok and high_ok):  # written so that NaN fails too
         lo = "above" if key.low_open else "at least"
+        hi = "below" if key.high_open else "at most"
         read = f" (read as {show_si(value, key.dimension)})" if isinstance(text, str) and key.kind != "db" else ""
-        raise InputError(place, f"{text!r}{read} is out of range: expected {lo} {_show(key, key.low)} and at most "
+        raise InputError(place, f"{text!r}{read} is out of range: expected {lo} {_show(key, key.low)} and {hi} "
                                 f"{_show(key, key.high)}")
     return value
 
@@ -574,7 +577,8 @@ def _check_si(declared: Key, value, place: str) -> None:
             raise InputError(place, f"expected a non-empty tuple, got {value!r}")
         for item in value:
             _check_si(Key(declared.section, declared.name, kind.removesuffix("_list"), "", declared.dimension,
-                          None, declared.low, declared.high, declared.low_open, declared.choices), item, place)
+                          None, declared.low, declared.high, declared.low_open, declared.choices,
+                          high_open=declared.high_open), item, place)
     elif kind == "choice":
         if value not in (declared.choices or _profile_names()):
             raise InputError(place, f"unknown value {value!r}; expected one of: "

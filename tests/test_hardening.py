@@ -4,11 +4,9 @@ README: exit 0, 1 or 2, one line on stderr for 2, nothing written on bad input, 
 
 from __future__ import annotations
 
-import tomllib
-
 import pytest
 
-from conftest import EXAMPLES, toml_text
+from conftest import EXAMPLES, alarm, requirement_data, toml_text
 from numerology.cli import main
 
 HARBOUR = EXAMPLES / "harbour_crane.toml"
@@ -32,18 +30,8 @@ def assert_one_line_error(status, out, err, *words):
 
 def edited(path, target, **tables):
     """A copy of a requirement file with some keys replaced (None removes a key)."""
-    data = tomllib.loads(path.read_text(encoding="utf-8"))
-    for section, name in (("environment", "profile_file"), ("rules", "mcs_table")):
-        if name in data.get(section, {}):  # files named by the original stay found from the copy
-            data[section][name] = str(path.parent / data[section][name])
-    for section, values in tables.items():
-        table = data.setdefault(section, {})
-        for key, value in values.items():
-            if value is None:
-                table.pop(key, None)
-            else:
-                table[key] = value
-    target.write_text(toml_text(data), encoding="utf-8")
+    edits = [((section, key), value) for section, values in tables.items() for key, value in values.items()]
+    target.write_text(toml_text(requirement_data(path, edits)), encoding="utf-8")
     return target
 
 
@@ -222,27 +210,6 @@ def test_a_forged_entry_is_dropped_by_the_sample_check(cache):
     assert quantity_cache.lookup("speed|7 km/h") == units.parse_quantity("7 km/h", "speed", "x")
 
 
-def _alarm(seconds):
-    """Fail instead of hanging: an in-process guard (SIGALRM)."""
-    import contextlib
-    import signal
-
-    @contextlib.contextmanager
-    def guard():
-        def expire(*_):
-            raise TimeoutError(f"took longer than {seconds} s")
-
-        previous = signal.signal(signal.SIGALRM, expire)
-        signal.alarm(seconds)
-        try:
-            yield
-        finally:
-            signal.alarm(0)
-            signal.signal(signal.SIGALRM, previous)
-
-    return guard()
-
-
 @pytest.mark.parametrize("kind", ["fifo", "endless device", "folder", "deeply nested", "huge", "not an object"])
 def test_a_cache_file_that_is_not_a_small_json_file_means_no_cache(capsys, cache, kind):
     import os
@@ -261,7 +228,7 @@ def test_a_cache_file_that_is_not_a_small_json_file_means_no_cache(capsys, cache
             handle.truncate(1 << 30)
     else:
         cache.write_text("[1, 2, 3]", encoding="utf-8")
-    with _alarm(60):
+    with alarm(60):
         status, out, err = run(capsys, "env", RAIL, "--json")
     assert status == 0 and err == "" and out
 
@@ -321,7 +288,7 @@ def test_a_search_beyond_the_candidate_budget_says_what_to_narrow(capsys, tmp_pa
     """spacing_steps = 100000 took 143 s and 5.9 GB, then crashed."""
     req = _search_table(tmp_path / "r.toml", ['spacing_family = "range"', 'spacing_min = "1 kHz"',
                                               'spacing_max = "500 kHz"', "spacing_steps = 100000"])
-    with _alarm(30):
+    with alarm(30):
         assert_one_line_error(*run(capsys, "solve", req), "candidate designs", "budget",
                               "lower search.spacing_steps from 100000 to at most")
 
@@ -346,7 +313,7 @@ def test_long_lists_are_refused_before_their_entries_are_read(capsys, tmp_path, 
     items = [f'"{i + 1} kHz"' for i in range(count)] if key == "spacings" else [str(i % 100 + 1) for i in range(count)]
     lines = ['spacing_family = "list"'] if key == "spacings" else []
     req = _search_table(tmp_path / "r.toml", lines + [f"{key} = [{', '.join(items)}]"])
-    with _alarm(30):
+    with alarm(30):
         assert_one_line_error(*run(capsys, "solve", req), f"search.{key}", f"has {count} entries; at most")
 
 
@@ -361,7 +328,7 @@ def test_a_profile_of_100000_taps_is_refused(capsys, tmp_path):
     taps.write_text("delay [ns],power [dB]\n" + "".join(f"{i},{-i / 1000:.3f}\n" for i in range(100_000)),
                     encoding="utf-8")
     req = edited(HARBOUR, tmp_path / "r.toml", environment={"profile_file": str(taps)})
-    with _alarm(30):
+    with alarm(30):
         assert_one_line_error(*run(capsys, "verify", req, "--preset", "nr-mu1"), "has 100000 taps; at most 4096")
 
 
@@ -405,7 +372,7 @@ def test_a_file_edited_during_a_run_does_not_change_it(tmp_path):
 
 def test_verify_frames_beyond_the_budget(capsys):
     """verify --frames 100000 ran 14 minutes."""
-    with _alarm(30):
+    with alarm(30):
         assert_one_line_error(*run(capsys, "verify", HARBOUR, "--preset", "nr-mu1", "--frames", "100000", "--json"),
                               "--frames", "beyond the budget", "or fewer")
 
@@ -803,3 +770,40 @@ def test_solve_plot_on_the_broadcast_example_is_quiet(capsys, tmp_path):
     status, _, err = run(capsys, "solve", EXAMPLES / "broadcast_sfn.toml", "--plot", tmp_path / "sfn.png")
     assert status == 0 and err == ""
     assert (tmp_path / "sfn.png").read_bytes().startswith(b"\x89PNG")
+
+
+# --- 9. warnings on extreme but accepted values ----------------------------------------------------------------
+
+
+def _range_ends():
+    """(dotted key, value) at both ends of every numeric key's declared range (just inside an open end)."""
+    import math
+
+    from numerology.requirements import SCHEMA
+
+    si = {"frequency": "Hz", "time": "s", "speed": "m/s", "bitrate": "bit/s"}
+    cases = []
+    for key in SCHEMA:
+        if key.section == "search" or key.kind not in ("quantity", "db", "number"):
+            continue
+        for end, is_open, step in ((key.low, key.low_open, 1), (key.high, key.high_open, -1)):
+            if not math.isfinite(end):
+                continue
+            value = (end + step * max(abs(end), 1.0) * 1e-6) if is_open else end
+            cases.append((key.path, f"{value!r} {si[key.dimension]}" if key.kind == "quantity" else value))
+    return cases
+
+
+@pytest.mark.parametrize("dotted, value", _range_ends(), ids=lambda v: str(v))
+def test_every_key_at_the_ends_of_its_range(capsys, tmp_path, dotted, value):
+    """An accepted value at the edge of its range gives an answer or one located line, never a warning (they
+    are errors in this run), a traceback or an internal error: a Doppler of 10 MHz crashed the stretch limits,
+    a coherence correlation of exactly 1 failed deep inside with no file or key named."""
+    section, name = dotted.split(".")
+    removed = {"max_doppler": {"max_speed": None}, "max_excess_delay": {"profile": None}}.get(name, {})
+    req = edited(RAIL, tmp_path / "r.toml", **{section: {name: value, **(removed if section == "environment" else {})}})
+    status, out, err = run(capsys, "check", req, "--preset", "nr-mu1")
+    if status == 2:
+        assert_one_line_error(status, out, err, str(req))
+    else:
+        assert status in (0, 1) and err == ""

@@ -12,7 +12,7 @@ import os
 import tomllib
 
 import pytest
-from conftest import EXAMPLES, toml_text
+from conftest import EXAMPLES, apply_edits, toml_text
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
@@ -35,17 +35,8 @@ SI_UNIT = {"frequency": "Hz", "time": "s", "speed": "m/s", "length": "m", "bitra
 def changed(*edits):
     """BASE with edits applied: ("section.key", value) sets, ("section.key", None) removes."""
     data = {section: dict(table) for section, table in BASE.items()}
-    for dotted, value in edits:
-        if "." not in dotted:
-            data[dotted] = value
-            continue
-        section, name = dotted.split(".")
-        table = data.setdefault(section, {})
-        if value is None:
-            table.pop(name, None)
-        else:
-            table[name] = value
-    return data
+    data.update({dotted: value for dotted, value in edits if "." not in dotted})
+    return apply_edits(data, [(tuple(dotted.split(".")), value) for dotted, value in edits if "." in dotted])
 
 
 def assert_one_located_line(error, path, dotted):
