@@ -58,7 +58,7 @@ MAX_SITES = 1_000_000
 MAX_LIST_ITEMS = {"search.spacings": 4096, "search.symbols_per_slot": 64, "search.spacing_exponents": 2,
                   "search.pilot_patterns": 8, "radio.phase_noise": 256}
 #: Size of each kind of input file, bytes.
-MAX_FILE_BYTES = {"requirements": 1 << 20, "design": 1 << 20, "profile": 4 << 20, "mcs": 1 << 20,
+MAX_FILE_BYTES = {"requirements": 4 << 20, "design": 1 << 20, "profile": 4 << 20, "mcs": 1 << 20,
                   "sites": 256 << 20}
 
 #: Peak memory of the cheap screening stage per candidate, bytes (measured: 550 B with numpy 2.4).
