@@ -807,3 +807,15 @@ def test_every_key_at_the_ends_of_its_range(capsys, tmp_path, dotted, value):
         assert_one_line_error(status, out, err, str(req))
     else:
         assert status in (0, 1) and err == ""
+
+
+# --- found by the fuzz suite ------------------------------------------------------------------------------------
+
+
+def test_no_cp_allowance_and_no_echo_is_not_a_crash(capsys, tmp_path):
+    """cp_allowance = 0 s with taps all within 1 dB (a max excess delay of 0): the relaxed design's margin for
+    the cyclic prefix is 0/0 (NaN), so no spacing passes; naming the rules that rule every spacing out then
+    found none and the diagnosis crashed. Now the command answers (exit 1)."""
+    req = edited(HARBOUR, tmp_path / "r.toml", rules={"cp_allowance": "0.0 s", "delay_threshold": 1.0})
+    status, out, err = run(capsys, "solve", req, "--top", "1", "--json")
+    assert status in (0, 1) and err == ""
