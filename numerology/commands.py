@@ -219,9 +219,9 @@ def verify(args) -> int:
 
 
 def _stderr_console():
-    from rich.console import Console
+    from .render_terminal import console
 
-    return Console(stderr=True)
+    return console(stderr=True)
 
 
 def sweep(args) -> int:

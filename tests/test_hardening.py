@@ -819,3 +819,13 @@ def test_no_cp_allowance_and_no_echo_is_not_a_crash(capsys, tmp_path):
     req = edited(HARBOUR, tmp_path / "r.toml", rules={"cp_allowance": "0.0 s", "delay_threshold": 1.0})
     status, out, err = run(capsys, "solve", req, "--top", "1", "--json")
     assert status in (0, 1) and err == ""
+
+
+def test_site_names_reach_the_terminal_as_written(capsys, tmp_path):
+    """A site named "[/x]" made rich raise (markup), ":fire:" became an emoji, and an escape sequence in a name
+    went to the terminal raw; names are now printed as written, control characters escaped."""
+    sites = tmp_path / "s.csv"
+    sites.write_text("site,snr [dB]\n[/x],20\n[bold]b :fire:,21\n\x1b[31mred,22\n", encoding="utf-8")
+    status, out, err = run(capsys, "sweep", HARBOUR, "--sites", sites, "--preset", "nr-mu1")
+    assert status in (0, 1) and err == ""
+    assert "[/x]" in out and "[bold]b :fire:" in out and "\\x1b[31mred" in out and "\x1b" not in out
