@@ -138,8 +138,12 @@ BLANKS = st.sampled_from(["", " ", "  ", "\t", "\u00a0", "\u202f"])
 UNIT_TEXT = st.one_of(st.builds(lambda n, b, u: f"{n}{b}{u}", NUMBERS, BLANKS, UNITS), st.text(max_size=90))
 SCALARS = st.one_of(st.booleans(), st.integers(-10**20, 10**20), st.floats(allow_nan=True, allow_infinity=True),
                     UNIT_TEXT, st.text(max_size=12))
-VALUES = st.recursive(SCALARS, lambda inner: st.lists(inner, max_size=4) | st.dictionaries(
-    st.text(max_size=6), inner, max_size=3), max_leaves=6)
+def _containers(inner):
+    """Lists and tables of ``inner`` values (the recursive step of VALUES and JSON_VALUES)."""
+    return st.lists(inner, max_size=4) | st.dictionaries(st.text(max_size=8), inner, max_size=3)
+
+
+VALUES = st.recursive(SCALARS, _containers, max_leaves=6)
 
 
 def _schema_keys(sections):
@@ -385,7 +389,8 @@ SITE_HEADERS = st.one_of(st.lists(st.sampled_from(GOOD_COLUMNS), min_size=1, max
                          st.lists(st.one_of(st.sampled_from(GOOD_COLUMNS), BAD_COLUMNS), min_size=1, max_size=6))
 PLAUSIBLE_CELLS = st.one_of(st.floats(0, 500).map(lambda x: f"{x:.4g}"), st.sampled_from(["", "EVA", "TDL-C", "none"]))
 HOSTILE_CELLS = st.one_of(NUMBERS, st.sampled_from(["=1+2", "+cmd", "@SUM(A1)", "-3", '"a, b"', '"quoted\nline"', '"',
-                                                    "nan", "inf"]), st.text(max_size=8))
+                                                    "nan", "inf", "[/x]", "[bold]b", ":fire:", "\x1b[31mred"]),
+                          st.text(max_size=8))
 CELLS = st.one_of(PLAUSIBLE_CELLS, PLAUSIBLE_CELLS, PLAUSIBLE_CELLS, HOSTILE_CELLS)
 
 
@@ -476,8 +481,7 @@ def test_output_paths(name, option, plot_suffix):
 # --- cache contents ---------------------------------------------------------------------------------------------
 
 JSON_VALUES = st.recursive(st.one_of(st.none(), st.booleans(), st.integers(), st.floats(), st.text(max_size=10)),
-                           lambda inner: st.lists(inner, max_size=3) | st.dictionaries(st.text(max_size=10), inner,
-                                                                                      max_size=3), max_leaves=8)
+                           _containers, max_leaves=8)
 
 
 @pytest.fixture(scope="module")
