@@ -21,12 +21,19 @@ from .design import Design, DesignArrays, load_design
 from .environment import Environment, derive_environment
 from .errors import InputError
 from .limits import Limit, stretch_limits
-from .requirements import Requirements, load_requirements
+from .requirements import Requirements, checked, load_requirements
 from .units import db, engineering
 
 
 def load(path) -> Requirements:
-    """Read a requirement file (see ``numerology.requirements``)."""
+    """Read a requirement file (see ``numerology.requirements``).
+
+    Raises
+    ------
+    InputError
+        For a path that is not a file name, an unreadable file, or any problem in it. Every function of
+        this module raises InputError (a ValueError) for a bad argument, and nothing else.
+    """
     return load_requirements(path)
 
 
@@ -36,6 +43,11 @@ def design_from(design=None, preset: str | None = None, path: str | None = None,
 
     A preset is taken for the channel bandwidth ``bandwidth_hz`` where its
     standard defines one (``presets.preset_for``).
+
+    Raises
+    ------
+    InputError
+        For anything else.
     """
     return resolve_design(design, preset, path, bandwidth_hz)[0]
 
@@ -45,9 +57,13 @@ def resolve_design(design=None, preset: str | None = None, path: str | None = No
     """:func:`design_from` and the notes on how a preset was chosen for the bandwidth."""
     if isinstance(design, Design):
         return design, ()
+    if design is not None:
+        raise InputError("design", f"expected a numerology.design.Design, got {type(design).__name__}")
     if preset is not None:
         from .presets import get_preset, preset_for
 
+        if not isinstance(preset, str):
+            raise InputError("preset", f"expected a preset name such as 'nr-mu1', got {preset!r}")
         if bandwidth_hz is None:
             return get_preset(preset, place="--preset").design, ()
         chosen, note = preset_for(preset, bandwidth_hz, place="--preset")
@@ -55,6 +71,22 @@ def resolve_design(design=None, preset: str | None = None, path: str | None = No
     if path is not None:
         return load_design(path), ()
     raise InputError("design", "expected a design, a preset name or a design file")
+
+
+def _flag(value, name: str) -> bool:
+    if not isinstance(value, bool):
+        raise InputError(name, f"expected True or False, got {value!r}")
+    return value
+
+
+def _optional_si(value, name: str, low: float, high: float, unit: str):
+    """An optional what-if value in SI: None, or a real number from low to high."""
+    if value is None:
+        return None
+    if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)) \
+            or not low <= value <= high:  # written so that NaN fails too
+        raise InputError(name, f"expected a number from {low:g} to {high:g} {unit}, got {value!r}")
+    return float(value)
 
 
 @dataclass(frozen=True)
@@ -137,12 +169,23 @@ class CheckResult:
         return (f"{self.design.name}: {verdict}; binding {b.name} (margin {_show_margin(b)}); "
                 f"SINR {self.effective_sinr_db:.1f} dB; {engineering(self.net_throughput_bps, 'bit/s')}")
 
+    @property
+    def constraints(self) -> tuple:
+        """Deprecated name of :attr:`rules` (the JSON key ``constraints`` is likewise an alias of ``rules``)."""
+        import warnings
+
+        warnings.warn("CheckResult.constraints is deprecated; use CheckResult.rules", DeprecationWarning,
+                      stacklevel=2)
+        return self.rules
+
     def to_json(self) -> dict:
+        rules = [r.to_json() for r in self.rules]
         return {
             "design": self.design.to_json(),
             "passed": self.passed,
             "binding_rule": self.binding_rule.name,
-            "constraints": [r.to_json() for r in self.rules],
+            "rules": rules,
+            "constraints": rules,  # deprecated alias of "rules" (schema 2.x), to be removed in 3.0
             "sinr_terms_db": {k: _finite(10 * math.log10(v)) if v > 0 else None for k, v in self.sinr_terms.items()},
             "effective_sinr_db": self.effective_sinr_db,
             "spectral_efficiency": self.efficiency,
@@ -197,7 +240,17 @@ def check(req: Requirements, design=None, *, preset: str | None = None, design_f
         What-if overrides of the environment.
     with_limits : bool
         Compute the stretch limits (the slow part).
+
+    Raises
+    ------
+    InputError
+        For a bad argument: requirements that are not loaded ones or hold a value out of range, no
+        design or an unknown preset, a what-if outside 0..20 km/s or 0..1 s.
     """
+    req = checked(req)
+    speed_mps = _optional_si(speed_mps, "speed_mps", 0.0, 2e4, "m/s")
+    max_excess_delay_s = _optional_si(max_excess_delay_s, "max_excess_delay_s", 0.0, 1.0, "s")
+    with_limits = _flag(with_limits, "with_limits")
     chosen, notes = resolve_design(design, preset, design_file, req.radio.bandwidth_hz)
     environment = derive_environment(req, speed_mps=speed_mps, max_excess_delay_s=max_excess_delay_s)
     arrays = DesignArrays.from_designs([chosen])
@@ -358,10 +411,24 @@ def solve(req: Requirements, *, objective: str | None = None, top: int = 5, expl
         (infeasible requests: the conflict and the relaxations).
     with_limits : bool
         Stretch limits of the best design.
-    """
-    from . import solver
 
+    Raises
+    ------
+    InputError
+        For a bad argument (an unknown objective, ``top`` outside 1..100, requirements with a value out of
+        range) or a search beyond the work budget (``numerology.budget.check_search``).
+    """
+    from . import budget, solver
+
+    req = checked(req)
+    if objective is not None and objective not in solver.OBJECTIVES:
+        raise InputError("objective", f"unknown objective {objective!r}; expected one of: "
+                                      f"{', '.join(solver.OBJECTIVES)}")
+    if isinstance(top, bool) or not isinstance(top, (int, np.integer)) or not 1 <= top <= 100:
+        raise InputError("top", f"expected a whole number from 1 to 100, got {top!r}")
+    explain, with_limits = _flag(explain, "explain"), _flag(with_limits, "with_limits")
     objective = objective or req.goals.objective
+    budget.check_search(req)  # before any work: a search beyond the budget says what to narrow
     environment = derive_environment(req)
     found = solver.search(req, environment, objective=objective, top=top)
     if not found.feasible:

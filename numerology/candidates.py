@@ -266,9 +266,9 @@ def spacing_window(environment: Environment, req: Requirements, ignore=()) -> Wi
     ok = np.all(stack >= 0, axis=0)
     names = list(margins)
     if not ok.any():
-        # Name the rules that fail at the spacing where the fewest fail.
-        worst = int(np.argmin(np.sum(stack < 0, axis=0)))
-        failing = [names[i] for i in np.flatnonzero(stack[:, worst] < 0)]
+        # Name the rules that fail at the spacing where the fewest fail (a NaN margin fails, as in `ok`).
+        worst = int(np.argmin(np.sum(~(stack >= 0), axis=0)))
+        failing = [names[i] for i in np.flatnonzero(~(stack[:, worst] >= 0))]
         return Window(np.inf, -np.inf, failing[0], failing[-1], lo, hi)
     first, last = int(np.argmax(ok)), int(len(ok) - 1 - np.argmax(ok[::-1]))
     lower_rule = upper_rule = None

@@ -3,8 +3,11 @@
 Exit status: 0 = answer found (every rule passes), 1 = valid input but the
 request is infeasible or a rule fails (an answer, with a diagnosis),
 2 = bad input or usage (one line on stderr, nothing written); ``verify`` also
-exits 1 when model and simulation disagree, 3 when the run is inconclusive,
-130 when interrupted (Ctrl-C: the report shows what was measured).
+exits 1 when model and simulation disagree, 3 when the run is inconclusive.
+Never 1 for anything else: 130 = interrupted (Ctrl-C; ``verify`` reports what
+it measured), 141 = stdout closed before the output was written (as a shell
+reports a process ended by SIGPIPE), 70 = an internal error (one line asking
+for a report; ``NUMEROLOGY_DEBUG=1`` shows the traceback).
 """
 
 from __future__ import annotations
@@ -15,7 +18,8 @@ from typing import Sequence
 
 from .errors import InputError
 
-EXIT_OK, EXIT_FAILS, EXIT_BAD_INPUT, EXIT_INCONCLUSIVE, EXIT_INTERRUPTED = 0, 1, 2, 3, 130
+EXIT_OK, EXIT_FAILS, EXIT_BAD_INPUT, EXIT_INCONCLUSIVE = 0, 1, 2, 3
+EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_CLOSED_PIPE = 70, 130, 141
 
 VERIFY_EPILOG = ("exit status: 0 = model and simulation agree and every rule passes; 1 = they disagree, or the design "
                  "fails a rule (the report names it); 2 = bad input; 3 = inconclusive (the run was too short to "
@@ -112,9 +116,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         from . import commands
 
         status = getattr(commands, args.command)(args)
-        from .units import save_cache
+        from .quantity_cache import save
 
-        save_cache()  # quantity strings pint read in this run: later runs skip importing pint
+        save()  # quantity strings pint read in this run: later runs skip importing pint
         return status
     except InputError as exc:
         print("numerology: " + " ".join(str(exc).splitlines()), file=sys.stderr)  # always one line
@@ -122,3 +126,27 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("numerology: interrupted", file=sys.stderr)
         return EXIT_INTERRUPTED
+    except BrokenPipeError:
+        _silence_stdout()  # the reader has gone (numerology ... | head): nothing more to say to it
+        return EXIT_CLOSED_PIPE
+    except Exception as exc:  # a bug: one line, never a traceback with exit 1 ("the answer is no")
+        import os
+
+        if os.environ.get("NUMEROLOGY_DEBUG"):
+            raise
+        what = " ".join(str(exc).split())[:200]
+        print(f"numerology: internal error ({type(exc).__name__}: {what}); please report it with the command "
+              "and its input files (NUMEROLOGY_DEBUG=1 shows the traceback)", file=sys.stderr)
+        return EXIT_INTERNAL
+
+
+def _silence_stdout() -> None:
+    """Point stdout at the null device, so that the interpreter's last flush finds no closed pipe."""
+    import os
+
+    try:
+        sys.stdout = open(os.devnull, "w")  # noqa: SIM115 - lives until the process ends
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, 1)
+    except (OSError, ValueError):
+        pass

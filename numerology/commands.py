@@ -42,13 +42,15 @@ def profiles(args) -> int:
     from .profiles import CATALOGUE
 
     if args.json:
+        # A normalised profile's delays are in units of its rms spread, and its keys say so (_rms, not _s).
+        unit = {True: "rms", False: "s"}
         body = {"profiles": [{
             "name": p.name,
             "source": p.source,
             "normalised": p.normalised,
-            "delays_s": list(p.delays_s),
+            f"delays_{unit[p.normalised]}": list(p.delays_s),
             "powers_db": list(p.powers_db),
-            "rms_delay_spread_s": p.rms_delay_spread_s,
+            f"rms_delay_spread_{unit[p.normalised]}": p.rms_delay_spread_s,
             "stated_rms_delay_spread_s": p.stated_rms_delay_spread_s,
             "los_k_factor_db": p.los_k_factor_db,
             "note": p.note,
@@ -84,14 +86,15 @@ def _what_if(args):
 
     speed = parse_quantity(args.speed, "speed", "--speed") if args.speed else None
     delay = parse_quantity(args.delay, "time", "--delay") if args.delay else None
+    from .errors import InputError
+    from .units import show_si
+
     if speed is not None and not 0 <= speed <= 2e4:
-        from .errors import InputError
-
-        raise InputError("--speed", f"expected a speed between 0 and 20 km/s, got {args.speed!r}")
+        raise InputError("--speed", f"expected a speed between 0 and 20 km/s, got {args.speed!r} "
+                                    f"(read as {show_si(speed, 'speed')})")
     if delay is not None and not 0 <= delay <= 1:
-        from .errors import InputError
-
-        raise InputError("--delay", f"expected a delay between 0 and 1 s, got {args.delay!r}")
+        raise InputError("--delay", f"expected a delay between 0 and 1 s, got {args.delay!r} "
+                                    f"(read as {show_si(delay, 'time')})")
     return speed, delay
 
 
@@ -100,37 +103,55 @@ def check(args) -> int:
 
     req = api.load(args.requirements)
     speed, delay = _what_if(args)
-    outputs = _check_outputs(args, req)
+    planned = _planned_outputs(args, req)
     result = api.check(req, preset=args.preset, design_file=args.design, speed_mps=speed, max_excess_delay_s=delay)
+    _write_files(planned, req, check=result)
     if args.json:
         _emit(render_json.document("numerology.check", {"requirements": req.path, **result.to_json()}))
     else:
         from . import render_terminal
 
         render_terminal.check(render_terminal.console(), result, req)
-    _write_outputs(outputs, req, check=result)
     return EXIT_OK if result.passed else EXIT_FAILS
 
 
-def _check_outputs(args, req):
-    """Validate output paths before any work, so bad options write nothing."""
-    from .output import output_path
+def _planned_outputs(args, req) -> dict:
+    """Every output option checked before any work (see ``output.output_path``), and the modules it needs.
 
-    return {
-        "markdown": output_path(getattr(args, "markdown", None), "--markdown", (".md", ".markdown"), req),
-        "plot": output_path(getattr(args, "plot", None), "--plot", (".png", ".svg"), req),
-    }
+    Returns ``{option: path}``; the inputs protected from every output are the requirement file, the
+    files it names, and the design and sites files.
+    """
+    from .output import optional_module, output_path
+
+    inputs = [getattr(args, "design", None), getattr(args, "sites", None)]
+    planned = {}
+    if getattr(args, "plot", None) is not None:
+        optional_module("matplotlib", "--plot", "plot")
+    for option, suffixes in (("markdown", (".md", ".markdown")), ("plot", (".png", ".svg")), ("out", (".csv",))):
+        if getattr(args, option, None) is not None:
+            planned[option] = output_path(getattr(args, option), f"--{option}", suffixes, req, inputs)
+    if "out" in planned:
+        from .sweep import metadata_path
+
+        planned["out metadata"] = output_path(metadata_path(planned["out"]), "--out", (".json",), req, inputs)
+    return planned
 
 
-def _write_outputs(outputs, req, check=None, solution=None):
-    if outputs["markdown"]:
-        from .note import write_note
+def _write_files(planned: dict, req, check=None, solution=None, verification=None) -> None:
+    """Render every planned file in memory, then write them all together (nothing is written if one fails)."""
+    from .output import write_all
 
-        write_note(outputs["markdown"], req, check=check, solution=solution)
-    if outputs["plot"]:
-        from .plots import write_plot
+    files = {}
+    if "markdown" in planned:
+        from .note import render_note
 
-        write_plot(outputs["plot"], req, check=check, solution=solution)
+        files[planned["markdown"]] = render_note(req, check, solution, verification).encode("utf-8")
+    if "plot" in planned:
+        from .plots import plot_bytes
+
+        files[planned["plot"]] = plot_bytes(req, planned["plot"].suffix.lower().lstrip("."), check, solution)
+    if files:
+        write_all(files)
 
 
 def solve(args) -> int:
@@ -141,15 +162,15 @@ def solve(args) -> int:
         from .errors import InputError
 
         raise InputError("--top", f"expected a whole number from 1 to 100, got {args.top}")
-    outputs = _check_outputs(args, req)
+    planned = _planned_outputs(args, req)
     result = api.solve(req, objective=args.objective, top=args.top)
+    _write_files(planned, req, solution=result)
     if args.json:
         _emit(render_json.document("numerology.solve", {"requirements": req.path, **result.to_json()}))
     else:
         from . import render_terminal
 
         render_terminal.solve(render_terminal.console(), result)
-    _write_outputs(outputs, req, solution=result)
     return EXIT_OK if result.feasible else EXIT_FAILS
 
 
@@ -173,7 +194,7 @@ def verify(args) -> int:
         raise InputError("--frames", f"expected a whole number from 2 to 100000, got {args.frames}")
     if not 0 <= args.seed < 2**63:
         raise InputError("--seed", f"expected a whole number from 0 to 2^63 - 1, got {args.seed}")
-    outputs = _check_outputs(args, req)
+    planned = _planned_outputs(args, req)
     design = _chosen_design(args, req)
     if design is None:
         print("numerology: --best: the request is infeasible, so there is no design to verify "
@@ -181,24 +202,24 @@ def verify(args) -> int:
         return EXIT_FAILS
     from .verify import verify as run_verify
 
-    def run(progress):
+    def run(progress=None):
         return run_verify(req, design, seed=args.seed, frames=args.frames, speed_mps=speed, max_excess_delay_s=delay,
                           progress=progress)
 
-    if args.json:
-        verification = run(None)
-        _emit(render_json.document("numerology.verify", {"requirements": req.path, **verification.to_json()}))
-    else:
+    if args.json and not sys.stderr.isatty():
+        verification = run()
+    else:  # a long run shows its progress on a terminal (on stderr under --json), never in the JSON
         from . import render_terminal
 
-        con = render_terminal.console()
+        con = _stderr_console() if args.json else render_terminal.console()
         verification = render_terminal.with_progress(con, run)
+    if planned and not verification.interrupted:
+        _write_files(planned, req, check=api.check(req, design, speed_mps=speed, max_excess_delay_s=delay),
+                     verification=verification)
+    if args.json:
+        _emit(render_json.document("numerology.verify", {"requirements": req.path, **verification.to_json()}))
+    else:
         render_terminal.verification(con, verification)
-    if outputs["markdown"] and not verification.interrupted:
-        from .note import write_note
-
-        write_note(outputs["markdown"], req, check=api.check(req, design, speed_mps=speed, max_excess_delay_s=delay),
-                   verification=verification)
     return verify_status(verification)
 
 
@@ -213,33 +234,35 @@ def verify_status(verification) -> int:
     return EXIT_OK
 
 
+def _stderr_console():
+    from .render_terminal import console
+
+    return console(stderr=True)
+
+
 def sweep(args) -> int:
     from . import api
-    from .output import output_path
+    from .budget import sites_that_fit
     from .sweep import load_sites, sweep as run_sweep, write_sweep_csv
 
     req = api.load(args.requirements)
-    out = output_path(args.out, "--out", (".csv",), req)
-    if out is not None and out.resolve() == __import__("pathlib").Path(args.sites).resolve():
-        from .errors import InputError
-
-        raise InputError("--out", f"refusing to overwrite the sites file {args.sites!r}")
-    sites = load_sites(args.sites, req)
+    planned = _planned_outputs(args, req)
+    sites = load_sites(args.sites, req, sites_that_fit(with_json=args.json))
     design = _chosen_design(args, req)
     if design is None:
         print("numerology: --best: the request is infeasible, so there is no design to sweep "
               "(run numerology solve for the diagnosis)", file=sys.stderr)
         return EXIT_FAILS
     result = run_sweep(req, design, sites)
-    if out is not None:
-        write_sweep_csv(out, result)
+    if "out" in planned:
+        write_sweep_csv(planned["out"], result, args.sites)  # and its metadata, checked as planned["out metadata"]
     if args.json:
         _emit(render_json.document("numerology.sweep", {"requirements": req.path, "sites_file": args.sites,
                                                         "design": design.to_json(), **result.to_json()}))
     else:
         from . import render_terminal
 
-        render_terminal.sweep(render_terminal.console(), design, result, out)
+        render_terminal.sweep(render_terminal.console(), design, result, args.out)
     for line, message in getattr(sites, "problems", ()):
         print(f"numerology: {args.sites}:{line}: {message}", file=sys.stderr)
     summary = result.summary()

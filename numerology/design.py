@@ -61,7 +61,6 @@ import math
 import re
 import numbers
 from dataclasses import dataclass, fields
-from pathlib import Path
 from typing import Any, Mapping, Sequence
 
 import numpy as np
@@ -949,7 +948,8 @@ def load_design(path) -> Design:
         If the file cannot be read, is not UTF-8 TOML, or describes an
         invalid design; the message names the file and the key.
     """
+    from .errors import file_path
     from .requirements import read_toml
 
-    path = Path(path)
-    return design_from_mapping(read_toml(path, "a TOML design file"), str(path), default_name=path.stem)
+    path = file_path(path)
+    return design_from_mapping(read_toml(path, "a TOML design file", "design"), str(path), default_name=path.stem)

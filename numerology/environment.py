@@ -25,8 +25,6 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from functools import lru_cache
-from pathlib import Path
 
 import numpy as np
 
@@ -341,15 +339,6 @@ def line_of_sight_rows(delays, powers, spectrum, k_factor_db, los_tap_k_db):
     return powers, np.full(rows.size, los)
 
 
-@lru_cache(maxsize=16)
-def _profile_file(path: str, mtime_ns: int):
-    """A profile CSV, read once per process (what-ifs and stretch limits derive many environments)."""
-    from . import profiles
-
-    del mtime_ns  # part of the cache key only: an edited file is read again
-    return profiles.load_profile_csv(path)
-
-
 def _two_ray(max_excess_delay_s, rms_s):
     delays, powers = delay.two_ray_profile(max_excess_delay_s, rms_s)
     return np.asarray(delays, float), np.asarray(powers, float)
@@ -366,7 +355,7 @@ def _taps(req: Requirements):
         if env.profile is not None:
             profile = profiles.get_profile(env.profile)
         else:
-            profile = _profile_file(env.profile_file, Path(env.profile_file).stat().st_mtime_ns)
+            profile = req.attached(env.profile_file, profiles.load_profile_csv)  # read once, when req was loaded
         if profile.normalised and rms is None:
             raise InputError(f"{where}: environment.rms_delay_spread",
                              f"missing; profile {profile.name} is normalised and needs a wanted rms delay spread such as \"300 ns\"")

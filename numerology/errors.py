@@ -26,7 +26,17 @@ class InputError(ValueError):
         super().__init__(f"{place}: {message}" if place else message)
 
 
-def read_text(path, expected: str) -> str:
+def file_path(path, place: str = "path"):
+    """``path`` as a :class:`pathlib.Path`, or an :class:`InputError` if it is not a file name at all."""
+    import os
+    from pathlib import Path
+
+    if isinstance(path, bool) or not isinstance(path, (str, os.PathLike)) or not str(path).strip():
+        raise InputError(place, f"expected a file name, got {path!r}")
+    return Path(path)
+
+
+def read_text(path, expected: str, kind: str | None = None) -> str:
     """The text of a user's file; any failure to read it becomes one :class:`InputError` line.
 
     Parameters
@@ -34,16 +44,30 @@ def read_text(path, expected: str) -> str:
     path : str or os.PathLike
     expected : str
         What the file should be, for the message, e.g. ``"a TOML file"``.
+    kind : str, optional
+        A key of :data:`numerology.budget.MAX_FILE_BYTES`: at most that many bytes are read (a pipe
+        or a device is read up to the limit, never to exhaustion).
     """
-    from pathlib import Path
+    from . import budget
 
-    path = Path(path)
+    path = file_path(path)
+    limit = budget.MAX_FILE_BYTES[kind] if kind else None
     try:
-        data = path.read_bytes()
+        with open(path, "rb") as handle:
+            if limit is not None:  # a regular file too large is refused before it is read
+                import os
+                import stat
+
+                status = os.fstat(handle.fileno())
+                if stat.S_ISREG(status.st_mode):
+                    budget.check_file_size(kind, status.st_size, str(path))
+            data = handle.read() if limit is None else handle.read(limit + 1)
     except IsADirectoryError:
         raise InputError(str(path), f"is a folder; expected {expected}") from None
     except (OSError, ValueError) as exc:  # ValueError: a NUL byte in the name
         raise InputError(str(path), f"cannot be read ({getattr(exc, 'strerror', None) or exc})") from None
+    if limit is not None:
+        budget.check_file_size(kind, len(data), str(path))
     try:
         return data.decode("utf-8-sig")
     except UnicodeDecodeError:

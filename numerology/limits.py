@@ -52,7 +52,10 @@ def _crossing(key, grid, worse_up):
     edge of a margin that steps (a modulation-and-coding table).
     """
     margins_on_grid = yield np.asarray(grid, dtype=float)
-    names = [n for n, v in margins_on_grid.items() if not np.all(np.asarray(v) == np.asarray(v)[0])]
+    names = [n for n, v in margins_on_grid.items() if np.size(v) and not np.all(np.asarray(v) == np.asarray(v)[0])]
+    if not names:  # no rule varies along this stress (e.g. the Shannon model without a throughput goal), or no
+        # point of the grid is a valid site (a Doppler at the top of its range: every speed is beyond it)
+        return Limit(key, math.inf if worse_up else -math.inf, None, float(grid[-1]))
     table = np.array([margins_on_grid[n] for n in names], dtype=float).reshape(len(names), -1)
     crossing = (table[:, :-1] >= 0) & (table[:, 1:] < 0)
     if not crossing.any():

@@ -162,7 +162,7 @@ def cp_allowance_s(req: Requirements) -> float:
 
 def mcs_table(req: Requirements):
     if req.rules.mcs_table is not None:
-        return mcs.load_mcs_table(req.rules.mcs_table)
+        return req.attached(req.rules.mcs_table, mcs.load_mcs_table)  # read once, when req was loaded
     return mcs.DEFAULT_TABLE
 
 
@@ -247,6 +247,10 @@ def oscillator_terms(req: Requirements, useful_symbol_s, subcarrier_spacing_hz):
     # a closed form: cheap, and the offset may be an array (one per site of a sweep)
     cfo = np.asarray(oscillator.cfo_ici(radio.frequency_error_hz, subcarrier_spacing_hz), dtype=float)
     return np.asarray(pn, dtype=float), np.asarray(cfo, dtype=float)
+
+
+#: Lowest pilot SINR the estimators are given (-120 dB: an error of 1 to 1e-11).
+PILOT_SINR_FLOOR = 1e-12
 
 
 def estimation_floor(req: Requirements, pilot_sinr):
@@ -534,7 +538,10 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
         "frequency_offset": np.broadcast_to(_over_useful(cfo), shape),
     }
     impairments = sum(terms.values())  # noise and interference over the useful power
-    pilot_sinr = 1.0 / impairments  # pilots see the same noise and interference as data (boost: estimation)
+    # Pilots see the same noise and interference as data (the boost enters the estimation). An interference of
+    # the whole signal (ICI -> 1: an infinite term) leaves the pilots an SINR of 0, where the estimate knows
+    # nothing (error 1, its limit); the floor keeps the estimators' arithmetic finite.
+    pilot_sinr = np.maximum(1.0 / impairments, PILOT_SINR_FLOOR)
     if estimation:
         mse = np.broadcast_to(estimation_error(designs, environment, req, pilot_sinr), shape)
     else:

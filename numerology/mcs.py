@@ -40,11 +40,11 @@ import math
 from dataclasses import dataclass
 from fractions import Fraction
 from functools import lru_cache
-from pathlib import Path
 
 import numpy as np
 
-from .errors import InputError, read_text
+from . import budget
+from .errors import InputError, file_path, read_text
 from .units import parse_db
 
 #: Gap to AWGN capacity assumed for the default table, in dB (common practice, see module docstring).
@@ -339,11 +339,14 @@ def load_mcs_table(path) -> tuple[McsEntry, ...]:
         Naming the file and line for an unreadable file, a wrong header, a bad
         row, a duplicate name, or an empty table.
     """
-    path = Path(path)
+    path = file_path(path)
     place = str(path)
-    text = read_text(path, "a CSV file of modulation-and-coding entries")
+    text = read_text(path, "a CSV file of modulation-and-coding entries", "mcs")
+    budget.check_rows("mcs", sum(1 for x in text.splitlines() if x.strip() and not x.lstrip().startswith("#")) - 1,
+                      place)
     reader = csv.reader(io.StringIO(text, newline=""), strict=True)
     entries: list[McsEntry] = []
+    names: set = set()
     header_seen = False
     while True:
         start = reader.line_num + 1  # a quoted cell may span lines: name the line where the row starts
@@ -367,8 +370,9 @@ def load_mcs_table(path) -> tuple[McsEntry, ...]:
         name, bits, rate, sinr = cells
         if not name:
             raise InputError(line, "the name is empty")
-        if any(entry.name == name for entry in entries):
+        if name in names:
             raise InputError(line, f"the name {name!r} appears twice")
+        names.add(name)
         entries.append(McsEntry(name, _parse_bits(bits, f"{line}: bits_per_symbol"),
                                 _parse_rate(rate, f"{line}: code_rate"),
                                 _parse_sinr(sinr, f"{line}: required_sinr")))

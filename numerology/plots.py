@@ -36,7 +36,7 @@ from .design import Design, DesignArrays
 from .environment import derive_environment
 from .errors import InputError
 from .rules import BY_NAME
-from .output import output_path, write_atomic
+from .output import optional_module, output_path, write_atomic
 from .requirements import Requirements
 from .units import engineering
 from .sweep import site_environments, sites_from_values
@@ -46,6 +46,13 @@ KMH = 1000.0 / 3600.0  # m/s per km/h
 DEFAULT_GRID = (64, 48)
 #: Halvings of each edge bracket (of a grid step) when refining the limits.
 REFINE_STEPS = 32
+#: What only the picture uses is refined less, and many points at a time (an evaluation costs about as much
+#: for one point as for a hundred), which keeps --plot within a few times the run without it
+#: (benchmarks/bench_plot.py): (points per row and step, steps) for the limits through the requirement,
+#: written in the title to 4 digits (41^-4 of a probe step of 19 %: 7e-8 relative), and for the edge of each
+#: grid row and column of the map (16^-2 of a grid step; only the rule beyond it is used); halvings of the
+#: window of panel (b) (it sets the zoom; the panel draws the edges of its grid, not the refined ones).
+TITLE_REFINE, MAP_EDGE_REFINE, ZOOM_STEPS = (40, 4), (15, 2), 4
 #: Line styles for the rules, in declaration order of the rules drawn: dash pattern and a
 #: colour-blind-safe colour (Okabe & Ito, "Color Universal Design", 2008), distinct in black and white.
 STYLES = (("-", "#000000"), ("--", "#D55E00"), (":", "#0072B2"), ("-.", "#009E73"),
@@ -109,31 +116,66 @@ def _first_failure(passed):
 
 def _limits(req, design, axis, fixed, grid, along_speed, steps=REFINE_STEPS):
     """Highest value along a grid (speed or delay) up to which the design holds, refined by bisection."""
-    fixed = np.asarray(fixed, dtype=float)
-    grid = np.asarray(grid, dtype=float)
+    return _limits_together(req, design, axis, [(fixed, grid, along_speed)], steps)[0]
 
-    def margins(values, fixed_values):
-        if along_speed:
-            return _evaluate(req, design, values, axis, fixed_values)
-        return _evaluate(req, design, fixed_values, axis, values)
 
-    table = margins(grid[None, :], fixed[:, None])
-    worst = np.min(np.stack(list(table.values())), axis=0)
-    first = _first_failure(worst >= 0)
-    limit = np.where(first == -1, np.inf, np.nan)
-    rule = np.full(fixed.size, None, dtype=object)
-    rows = np.flatnonzero(first >= 0)
-    if rows.size:
-        lo, hi = grid[first[rows] - 1], grid[first[rows]]
-        for _ in range(steps):  # bisection, vectorised over the rows with an edge
-            mid = 0.5 * (lo + hi)
-            holds = np.min(np.stack(list(margins(mid, fixed[rows]).values())), axis=0) >= 0
-            lo, hi = np.where(holds, mid, lo), np.where(holds, hi, mid)
-        at_edge = margins(hi, fixed[rows])
-        names = list(at_edge)
-        rule[rows] = np.array(names, dtype=object)[np.argmin(np.stack([at_edge[k] for k in names]), axis=0)]
-        limit[rows] = 0.5 * (lo + hi)
-    return limit, rule
+def _limits_together(req, design, axis, tasks, steps, initial=None, points=1):
+    """:func:`_limits` for several ``(fixed, grid, along_speed)`` tasks in lockstep.
+
+    Each step of every task is one evaluation of all their points: ``points`` equally spaced
+    points inside each row's bracket (1: bisection), which shrinks it ``points + 1`` times.
+    ``initial`` gives tables of the tasks' grids already evaluated (rows: fixed values); the
+    result is one (limits, rules) pair per task.
+    """
+    tasks = [(np.asarray(fixed, dtype=float), np.asarray(grid, dtype=float), along) for fixed, grid, along in tasks]
+
+    def evaluate(parts):
+        """Margins at (values along, fixed values) pairs of each part, in one call; one table per part."""
+        speeds, delays, shapes = [], [], []
+        for values, fixed_values, along_speed in parts:
+            values, fixed_values = np.broadcast_arrays(values, fixed_values)
+            speeds.append((values if along_speed else fixed_values).ravel())
+            delays.append((fixed_values if along_speed else values).ravel())
+            shapes.append(values.shape)
+        sizes = [int(np.prod(shape)) for shape in shapes]
+        if not sum(sizes):
+            return [{} for _ in parts]
+        table = _evaluate(req, design, np.concatenate(speeds), axis, np.concatenate(delays))
+        edges = np.cumsum([0] + sizes)
+        return [{k: m[a:b].reshape(shape) for k, m in table.items()} for a, b, shape in zip(edges, edges[1:], shapes)]
+
+    tables = initial or evaluate([(grid[None, :], fixed[:, None], along) for fixed, grid, along in tasks])
+    states = []
+    for (fixed, grid, along), table in zip(tasks, tables):
+        first = _first_failure(np.min(np.stack(list(table.values())), axis=0) >= 0)
+        rows = np.flatnonzero(first >= 0)
+        states.append({"rows": rows, "lo": grid[first[rows] - 1], "hi": grid[first[rows]],
+                       "limit": np.where(first == -1, np.inf, np.nan), "rule": np.full(fixed.size, None, dtype=object)})
+    fractions = np.arange(1, points + 1) / (points + 1)
+    for _ in range(steps):  # vectorised over the rows with an edge, all tasks at once
+        inside = [0.5 * (state["lo"] + state["hi"])[:, None] if points == 1 else  # bisection as written elsewhere
+                  state["lo"][:, None] + (state["hi"] - state["lo"])[:, None] * fractions for state in states]
+        answers = evaluate([(values, fixed[state["rows"]][:, None], along) for values, state, (fixed, _, along)
+                            in zip(inside, states, tasks)])
+        for values, state, answer in zip(inside, states, answers):
+            if state["rows"].size:
+                fails = np.min(np.stack(list(answer.values())), axis=0) < 0  # (rows, points)
+                j = np.argmax(fails, axis=1)  # the first point that fails (0 where none does)
+                some = fails.any(axis=1)
+                at = np.arange(values.shape[0])
+                state["hi"] = np.where(some, values[at, j], state["hi"])
+                state["lo"] = np.where(some, np.where(j > 0, values[at, j - 1], state["lo"]), values[:, -1])
+    at_edges = evaluate([(state["hi"], fixed[state["rows"]], along) for state, (fixed, _, along) in zip(states, tasks)])
+    results = []
+    for state, at_edge in zip(states, at_edges):
+        rows = state["rows"]
+        if rows.size:
+            names = list(at_edge)
+            state["rule"][rows] = np.array(names, dtype=object)[np.argmin(np.stack([at_edge[k] for k in names]),
+                                                                          axis=0)]
+            state["limit"][rows] = 0.5 * (state["lo"] + state["hi"])
+        results.append((state["limit"], state["rule"]))
+    return results
 
 
 def speed_limits(req: Requirements, design: Design, delays_s, speed_grid_mps):
@@ -176,7 +218,7 @@ class OperatingMap:
     delays_s: np.ndarray  # (ny,)
     normalised: dict  # rule -> (ny, nx) capacity/demand - 1
     required_speed_mps: float
-    speed_limit_mps: np.ndarray  # (ny,) see speed_limits
+    speed_limit_mps: np.ndarray  # (ny,) as speed_limits, refined to 16^-2 of a grid step (MAP_EDGE_REFINE)
     speed_limit_rule: np.ndarray
     delay_limit_s: np.ndarray  # (nx,) see delay_limits
     delay_limit_rule: np.ndarray
@@ -203,8 +245,10 @@ def _extent(req, design, axis, speed_mps, delay_s):
     speed_ref = max(speed_mps, 1.0)
     delay_ref = max(delay_s, 1e-9)
     probe = np.geomspace(1.0 / 64, 64.0, 49)
-    v_lim, v_rule = _limits(req, design, axis, [delay_s], speed_ref * probe, along_speed=True)
-    d_lim, d_rule = _limits(req, design, axis, [speed_mps], delay_ref * probe, along_speed=False)
+    points, steps = TITLE_REFINE
+    (v_lim, v_rule), (d_lim, d_rule) = _limits_together(
+        req, design, axis, [([delay_s], speed_ref * probe, True), ([speed_mps], delay_ref * probe, False)],
+        steps, points=points)
     v_lim, d_lim = float(v_lim[0]), float(d_lim[0])
     x_max = 1.5 * max(v_lim if math.isfinite(v_lim) else 2.0 * speed_mps, speed_mps)
     x_max = min(x_max, MAX_ZOOM_OUT * speed_mps) if speed_mps > 0 else x_max
@@ -243,8 +287,10 @@ def operating_map(req: Requirements, design: Design, grid=DEFAULT_GRID, speed_ma
     speeds = np.linspace(0.0, speed_max_mps, nx)
     delays = np.linspace(delay_max_s / 1000, delay_max_s, ny)  # a profile cannot be scaled to 0
     normalised = _evaluate(req, design, speeds[None, :], axis, delays[:, None])
-    v_lim, v_rule = _limits(req, design, axis, delays, speeds, along_speed=True)
-    d_lim, d_rule = _limits(req, design, axis, speeds, delays, along_speed=False)
+    points, steps = MAP_EDGE_REFINE
+    (v_lim, v_rule), (d_lim, d_rule) = _limits_together(
+        req, design, axis, [(delays, speeds, True), (speeds, delays, False)], steps, points=points,
+        initial=[normalised, {k: m.T for k, m in normalised.items()}])  # the grid is both tasks' first table
     return OperatingMap(design, axis, speeds, delays, normalised, speed_req, v_lim, v_rule, d_lim, d_rule,
                         at_requirement)
 
@@ -267,7 +313,6 @@ def edge_segments(x, y, normalised: dict) -> list:
         with the smallest margin changes; neighbouring pieces share a vertex.
     """
     import contourpy
-    from scipy.interpolate import RegularGridInterpolator
 
     names = list(normalised)
     stack = np.clip(np.stack([normalised[k] for k in names]), -1e6, 1e6)  # unbounded margins are far from 0
@@ -278,13 +323,28 @@ def edge_segments(x, y, normalised: dict) -> list:
     for line in contourpy.contour_generator(x, y, worst).lines(0.0):
         if len(line) < 2:
             continue
-        at = np.clip(line[:, ::-1], [y[0], x[0]], [y[-1], x[-1]])
-        values = np.stack([RegularGridInterpolator((y, x), m)(at) for m in stack])
+        values = _bilinear(x, y, stack, line[:, 0], line[:, 1])
         which = np.argmin(values, axis=0)
         cuts = np.flatnonzero(np.diff(which)) + 1
         for start, stop in zip(np.concatenate([[0], cuts]), np.concatenate([cuts, [len(line)]])):
             out.append((names[which[start]], line[max(start - 1, 0):stop]))
     return out
+
+
+def _bilinear(x, y, tables, px, py):
+    """Tables (k, ny, nx) on an ascending grid, interpolated linearly in x and y at the points (px, py).
+
+    The same as ``scipy.interpolate.RegularGridInterpolator`` (linear) on points clipped to the grid,
+    without importing scipy.interpolate (a large part of a --plot run).
+    """
+    px = np.clip(px, x[0], x[-1])
+    py = np.clip(py, y[0], y[-1])
+    i = np.clip(np.searchsorted(x, px, side="right") - 1, 0, x.size - 2)
+    j = np.clip(np.searchsorted(y, py, side="right") - 1, 0, y.size - 2)
+    tx = (px - x[i]) / (x[i + 1] - x[i])
+    ty = (py - y[j]) / (y[j + 1] - y[j])
+    return ((1 - ty) * ((1 - tx) * tables[:, j, i] + tx * tables[:, j, i + 1])
+            + ty * ((1 - tx) * tables[:, j + 1, i] + tx * tables[:, j + 1, i + 1]))
 
 
 @dataclass(frozen=True)
@@ -310,7 +370,7 @@ class SpacingMap:
         return tuple(name for name in self.normalised if name in found)
 
 
-def spacing_map(req: Requirements, speeds_mps, spacings_hz) -> SpacingMap:
+def spacing_map(req: Requirements, speeds_mps, spacings_hz, steps: int = REFINE_STEPS) -> SpacingMap:
     """The spacing window at each speed, from relaxed margins on a (speed, spacing) grid.
 
     Parameters
@@ -320,6 +380,8 @@ def spacing_map(req: Requirements, speeds_mps, spacings_hz) -> SpacingMap:
         Speeds in m/s (the requirement's speed is replaced by each).
     spacings_hz : array_like
         Ascending subcarrier spacings in Hz (a log grid).
+    steps : int
+        Halvings of the grid step that holds each edge.
 
     Returns
     -------
@@ -361,7 +423,7 @@ def spacing_map(req: Requirements, speeds_mps, spacings_hz) -> SpacingMap:
         if not rows.size:
             continue
         inside_hz, outside_hz = np.log(spacings[index[rows]]), np.log(spacings[outside[rows]])
-        for _ in range(REFINE_STEPS):  # bisection in log spacing, vectorised over speeds
+        for _ in range(steps):  # bisection in log spacing, vectorised over speeds
             mid = 0.5 * (inside_hz + outside_hz)
             m = margins_at(_column(mid, rows, speeds.size))
             holds = np.all(np.stack([m[k][rows, 0] >= 0 for k in names]), axis=0)
@@ -404,12 +466,19 @@ def write_plot(path, req: Requirements, check=None, solution=None, *, grid=DEFAU
         Without matplotlib (``--plot``: install the ``plot`` extra), or for a
         bad path.
     """
-    try:
-        import matplotlib
-    except ImportError:
-        raise InputError("--plot", "needs matplotlib: pip install 'numerology[plot]'") from None
-    del matplotlib
-    target = output_path(str(path), "--plot", (".png", ".svg"), req)
+    from .requirements import checked
+
+    req = checked(req)
+    if not (isinstance(grid, tuple) and len(grid) == 2
+            and all(isinstance(n, int) and not isinstance(n, bool) and 2 <= n <= 1000 for n in grid)):
+        raise InputError("grid", f"expected (points across, points up), each from 2 to 1000, got {grid!r}")
+    optional_module("matplotlib", "--plot", "plot")
+    target = output_path(path, "--plot", (".png", ".svg"), req)
+    write_atomic(target, plot_bytes(req, target.suffix.lower().lstrip("."), check, solution, grid=grid))
+
+
+def plot_bytes(req: Requirements, fmt: str, check=None, solution=None, *, grid=DEFAULT_GRID) -> bytes:
+    """The picture of :func:`write_plot` as the bytes of a ``png`` or ``svg`` file (matplotlib needed)."""
     design = None
     if check is not None:
         design = check.design
@@ -423,15 +492,14 @@ def write_plot(path, req: Requirements, check=None, solution=None, *, grid=DEFAU
         speed_max = max(3.0 * environment.speed_mps, 10 * KMH)
     family = candidates.spacing_family(req)
     speeds = np.linspace(0.0, speed_max, grid[0])
-    smap = spacing_map(req, speeds, np.geomspace(family[0] / 4, family[-1] * 4, 4 * grid[1]))
+    smap = spacing_map(req, speeds, np.geomspace(family[0] / 4, family[-1] * 4, 4 * grid[1]), steps=ZOOM_STEPS)
     low, high = np.nanmin(smap.lower_hz, initial=np.inf), np.nanmax(smap.upper_hz, initial=-np.inf)
     if design is not None:
         low, high = min(low, design.subcarrier_spacing_hz), max(high, design.subcarrier_spacing_hz)
     if low <= high:  # zoom on the window: a factor 8 beyond its extremes, within the searched range
         spacings = np.geomspace(max(low / 8, family[0] / 4), min(high * 8, family[-1] * 4), 4 * grid[1])
-        smap = spacing_map(req, speeds, spacings)
-    data = _render(req, environment, design, omap, smap, family, target.suffix.lower().lstrip("."))
-    write_atomic(target, data)
+        smap = spacing_map(req, speeds, spacings, steps=ZOOM_STEPS)  # the panel draws the grid's edges
+    return _render(req, environment, design, omap, smap, family, fmt)
 
 
 def _delay_unit(value_s):

@@ -18,11 +18,10 @@ import difflib
 import math
 import re
 from dataclasses import dataclass, replace
-from pathlib import Path
 
 import numpy as np
 
-from . import delay
+from . import budget, delay
 from .errors import InputError, read_text
 
 __all__ = ["Profile", "CATALOGUE", "get_profile", "load_profile_csv"]
@@ -306,14 +305,16 @@ def load_profile_csv(path) -> Profile:
         missing header, a row that is not two finite numbers, a negative or
         absurd delay, a power outside -200..+60 dB, duplicate delays, no taps.
     """
+    from .errors import file_path
     from .units import parse_quantity
 
-    path = Path(path)
-    text = read_text(path, "a CSV file of taps (delay, power in dB)")
+    path = file_path(path)
+    text = read_text(path, "a CSV file of taps (delay, power in dB)", "profile")
     factor = None
     rows = []  # (delay_s, power_db, line)
     seen = {}
     lines = text.splitlines()
+    budget.check_rows("profile", sum(1 for x in lines if x.strip() and not x.lstrip().startswith("#")) - 1, str(path))
     for number, raw in enumerate(lines, start=1):
         line = raw.strip()
         place = f"{path}:{number}"

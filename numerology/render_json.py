@@ -13,9 +13,15 @@ import math
 
 import numpy as np
 
-SCHEMA_VERSION = "1.0"
-#: Documents whose keys changed meaning since 1.0 (see the README's JSON section).
-SCHEMA_VERSIONS = {"numerology.verify": "2.0"}
+#: 2.0: check and solve name their rule list "rules" ("constraints" stays as a deprecated alias until 3.0), each
+#: rule with its "value", "comparison" and "limit"; designs describe their pilot arrangement ("pilot": scope,
+#: symbols, period, boost_db, data_shared) and channel_bandwidth_hz; the cyclic-prefix rule is "guard_interval"
+#: by default and "pilots_in_slot" is gone; normalised profiles give "delays_rms" and "rms_delay_spread_rms"
+#: (in units of the rms spread) instead of "delays_s" and "rms_delay_spread_s"; verify gives a verdict per
+#: figure (agree, disagree, inconclusive); sweep --out writes its metadata as numerology.sweep_csv.
+SCHEMA_VERSION = "2.0"
+#: Documents whose keys changed meaning at a different release than the rest (none at present).
+SCHEMA_VERSIONS: dict = {}
 
 
 def _clean(obj):

@@ -19,11 +19,20 @@ CAUTION = ("Caution: spectrum use is regulated. Check carrier, bandwidth and pow
            "regulator; safety-relevant links need certified equipment and review by a licensed engineer.")
 
 
-def console() -> Console:
-    con = Console(highlight=False, soft_wrap=False)
+def console(stderr: bool = False) -> Console:
+    """The report's console. Markup and emoji codes are off: names come from users' files, and a site called
+    "[/x]" or ":fire:" is printed as written (markup in it made rich raise, or printed something else)."""
+    con = Console(highlight=False, soft_wrap=False, markup=False, emoji=False, stderr=stderr)
     if not con.is_terminal:
         con.width = 110  # piped into a file or a pager: tables need not wrap at 80
     return con
+
+
+def plain(text) -> str:
+    """Text from a user's file as it may reach a terminal: control characters (an escape sequence in a site
+    name would restyle or move the terminal's cursor) are shown escaped, as in a Python string."""
+    text = str(text)
+    return text if text.isprintable() else "".join(c if c.isprintable() else repr(c)[1:-1] for c in text)
 
 
 def fmt(value: float, unit: str) -> str:
@@ -40,11 +49,11 @@ def fmt(value: float, unit: str) -> str:
 
 
 def environment(con: Console, env, rows, thumbs, title: str) -> None:
-    table = _table(title, "quantity", ">value", "formula", "~source")
+    table = _table(plain(title), "quantity", ">value", "formula", "~source")
     for row in rows:
         table.add_row(row.label, fmt(row.value, row.unit), row.formula, row.source)
     con.print(table)
-    con.print(f"Profile: {env.profile_name} ({len(env.delays_s)} taps) - {env.profile_source}")
+    con.print(f"Profile: {plain(env.profile_name)} ({len(env.delays_s)} taps) - {plain(env.profile_source)}")
     if thumbs:
         alt = _table("Other definitions in use (for comparison)", "quantity", "rule of thumb", ">value", heavy=False)
         for quantity, label, value in thumbs:
@@ -202,7 +211,7 @@ def check(con: Console, result, req) -> None:
     d = result.design
     verdict = Text("PASSES", style="bold green") if result.passed else Text("FAILS", style="bold red")
     b = result.binding_rule
-    con.print(Text.assemble(("Design ", ""), (d.name, "bold"), " ", verdict, f" against {req.path}"))
+    con.print(Text.assemble(("Design ", ""), (plain(d.name), "bold"), " ", verdict, f" against {plain(req.path)}"))
     con.print(design_line(d))
     env = result.environment
     con.print(f"Channel: f_D {engineering(env.max_doppler_hz, 'Hz')} at {speed_kmh(env.speed_mps)}, "
@@ -287,7 +296,7 @@ def setting(dotted_key: str, value_si: float) -> str:
 
 def solve(con: Console, result) -> None:
     req, env = result.requirements, result.environment
-    con.print(Text.assemble(("numerology solve ", "bold"), req.path))
+    con.print(Text.assemble(("numerology solve ", "bold"), plain(req.path)))
     con.print(f"Channel: f_D {engineering(env.max_doppler_hz, 'Hz')} at {speed_kmh(env.speed_mps)} "
               f"({env.doppler_spectrum}), coherence time {engineering(env.coherence_time_s, 's')}; "
               f"max excess delay {engineering(env.max_excess_delay_s, 's')}, rms {engineering(env.rms_delay_spread_s, 's')}, "
@@ -372,7 +381,7 @@ def verification(con: Console, result) -> None:
     """The verification for people: the verdict, each figure against its prediction, the rate margin, the rules."""
     design, sim = result.design, result.simulation
     verdict = result.verdict
-    con.print(Text.assemble("Verification of ", (design.name, "bold"), ": model and simulation ",
+    con.print(Text.assemble("Verification of ", (plain(design.name), "bold"), ": model and simulation ",
                             (verdict.upper(), _VERDICT_STYLE[verdict])))
     con.print(design_line(design))
     if result.what_if:
@@ -429,7 +438,7 @@ def _db_or_na(value) -> str:
 
 def sweep(con: Console, design, result, out) -> None:
     summary = result.summary()
-    con.print(Text.assemble("Sweep of ", (design.name, "bold"), f" over {summary.sites} sites: ",
+    con.print(Text.assemble("Sweep of ", (plain(design.name), "bold"), f" over {summary.sites} sites: ",
                             (f"{summary.passed} pass", "bold green" if summary.passed == summary.sites else "bold"),
                             f", {summary.sites - summary.passed} fail"))
     con.print(design_line(design))
@@ -441,7 +450,7 @@ def sweep(con: Console, design, result, out) -> None:
         margin = result.margin[rule.name][i]
         margin_text = (db(margin) if rule.convention == "db" else f"{100 * margin:+.1f} %") if math.isfinite(margin) \
             else "unbounded"
-        table.add_row(str(result.sites.names[i]), Text("PASS", style="green") if result.passed[i]
+        table.add_row(plain(result.sites.names[i]), Text("PASS", style="green") if result.passed[i]
                       else Text("FAIL", style="bold red"), names[i], margin_text,
                       engineering(float(result.net_throughput_bps[i]), "bit/s"), db(float(result.effective_sinr_db[i])))
     con.print(table)
@@ -450,7 +459,7 @@ def sweep(con: Console, design, result, out) -> None:
     if summary.failures:
         con.print("Rules failing most: " + ", ".join(f"{k} at {v} site{'s' if v != 1 else ''}" for k, v in summary.failures.items()))
     if summary.worst_site is not None:
-        con.print(f"Worst site: {summary.worst_site} (line {summary.worst_line}), binding {summary.worst_rule}")
+        con.print(f"Worst site: {plain(summary.worst_site)} (line {summary.worst_line}), binding {summary.worst_rule}")
     if out is not None:
-        con.print(f"Per-site results written to {out}")
+        con.print(f"Per-site results written to {out} (columns, units and rows not evaluated in {out}.json)")
     con.print(Text(CAUTION, style="dim"))

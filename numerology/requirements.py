@@ -15,15 +15,19 @@ is ``environment``'s job.
 
 from __future__ import annotations
 
+import dataclasses
 import difflib
 import math
+import numbers
+import os
 import tomllib
 from dataclasses import dataclass, field, make_dataclass
 from pathlib import Path
 from typing import Any
 
-from .errors import InputError, read_text
-from .units import parse_db, parse_either, parse_quantity
+from . import budget
+from .errors import InputError, file_path, read_text
+from .units import BARE_NUMBER_RULE, UnitSpellingError, parse_db, parse_either, parse_quantity, show_si
 
 SUFFIX = {"frequency": "_hz", "time": "_s", "speed": "_mps", "length": "_m", "bitrate": "_bps", "db": "_db", "ratio": ""}
 
@@ -59,6 +63,7 @@ class Key:
     low_open: bool = False
     choices: tuple = ()
     source: str = ""
+    high_open: bool = False
 
     @property
     def field(self) -> str:
@@ -150,10 +155,10 @@ SCHEMA: tuple[Key, ...] = (
         default=5.0, low=0.01, high=1000.0,
         source="common practice (factors of 5 to 10 are in use): the channel is nearly static over a symbol"),
     Key("rules", "coherence_correlation", "number", "correlation level that defines coherence time and bandwidth",
-        default=0.5, low=0.0, high=1.0, low_open=True,
+        default=0.5, low=0.0, high=1.0, low_open=True, high_open=True,
         source="Rappaport, Wireless Communications 2nd ed., sect. 5.4 (0.5 and 0.9 in use)"),
     Key("rules", "delay_threshold", "db", "taps weaker than this (below the strongest) do not set the max excess delay",
-        default=30.0, low=0.0, high=100.0, source="common practice; ITU-R P.1407 thresholds"),
+        default=30.0, low=1.0, high=100.0, source="common practice; ITU-R P.1407 thresholds"),
     Key("rules", "estimator", "choice", "channel estimator the receiver uses (LMMSE over every usable pilot, or "
         "least squares with linear interpolation)", default="lmmse", choices=ESTIMATORS),
     Key("rules", "estimation_lookahead", "integer",
@@ -203,8 +208,13 @@ _BY_SECTION = {s: {k.name: k for k in SCHEMA if k.section == s} for s in SECTION
 
 def key(dotted_key: str) -> Key:
     """The declaration of a requirement key such as ``"goals.max_latency"``."""
-    section, name = dotted_key.split(".")
-    return _BY_SECTION[section][name]
+    section, _, name = str(dotted_key).partition(".")
+    declared = _BY_SECTION.get(section, {}).get(name)
+    if declared is None:
+        known = [k.path for k in SCHEMA]
+        raise InputError("key", f"unknown requirement key {dotted_key!r}{_did_you_mean(dotted_key, known)}; "
+                                "expected a dotted key such as 'goals.max_latency'")
+    return declared
 
 
 def _section_class(section: str):
@@ -231,11 +241,21 @@ class Requirements:
     search: Any
     path: str = "<memory>"
     given: tuple = ()  # the dotted keys the user wrote, as (key, text) pairs, for echoing back
+    files: tuple = ()  # (path, content) of the files the requirement names, each read once when it is loaded
+
+    def attached(self, path: str, read):
+        """The content of a file the requirement names (read when the requirement was loaded).
+
+        Every part of a run sees the same content, however long the run and whatever happens to the
+        file meanwhile; a path not read at load time (a what-if's) is read now with ``read(path)``.
+        """
+        for known, content in self.files:
+            if known == path:
+                return content
+        return read(path)
 
     def replace(self, dotted_key: str, value) -> "Requirements":
         """A copy with one key set to an SI value (used for what-ifs and relaxations)."""
-        import dataclasses
-
         declared = key(dotted_key)
         table = dataclasses.replace(getattr(self, declared.section), **{declared.field: value})
         return dataclasses.replace(self, **{declared.section: table})
@@ -251,9 +271,13 @@ class Requirements:
 
 def _check_range(key: Key, value: float, place: str, text) -> float:
     low_ok = value > key.low if key.low_open else value >= key.low
-    if not (low_ok and value <= key.high):  # written so that NaN fails too
+    high_ok = value < key.high if key.high_open else value <= key.high
+    if not (low_ok and high_ok):  # written so that NaN fails too
         lo = "above" if key.low_open else "at least"
-        raise InputError(place, f"{text!r} is out of range: expected {lo} {_show(key, key.low)} and at most {_show(key, key.high)}")
+        hi = "below" if key.high_open else "at most"
+        read = f" (read as {show_si(value, key.dimension)})" if isinstance(text, str) and key.kind != "db" else ""
+        raise InputError(place, f"{text!r}{read} is out of range: expected {lo} {_show(key, key.low)} and {hi} "
+                                f"{_show(key, key.high)}")
     return value
 
 
@@ -270,6 +294,7 @@ def _show(key: Key, si: float) -> str:
 
 def _parse_value(key: Key, raw, place: str, base_dir: Path):
     kind = key.kind
+    budget.check_list(key.path, raw, place)
     if kind == "quantity":
         return _check_range(key, parse_quantity(raw, key.dimension, place), place, raw)
     if kind == "db":
@@ -309,8 +334,11 @@ def _parse_value(key: Key, raw, place: str, base_dir: Path):
         try:
             path = (base_dir / raw).resolve()
             found = path.is_file()
-        except (OSError, ValueError):  # a name too long for the system, or with a NUL byte
-            raise InputError(place, f"expected a usable file name, got {raw!r}") from None
+        except RuntimeError:  # Python < 3.13 reports a loop of symbolic links so
+            raise InputError(place, f"{raw!r} is a loop of symbolic links") from None
+        except (OSError, ValueError) as exc:  # a name too long for the system, with a NUL byte, a link loop
+            raise InputError(place, f"expected a usable file name, got {raw!r} "
+                                    f"({getattr(exc, 'strerror', None) or exc})") from None
         if not found:
             raise InputError(place, f"file {raw!r} not found (looked in {path.parent})")
         return str(path)
@@ -327,14 +355,25 @@ def _parse_value(key: Key, raw, place: str, base_dir: Path):
 def _parse_offset(raw, place):
     """A frequency ("40 Hz") or a ratio of the carrier ("0.1 ppm"); returned as ("hz"|"ratio", value)."""
     kind, value = "ratio", math.nan
+    expected = "expected a non-negative frequency error such as \"40 Hz\" or \"0.1 ppm\""
     if isinstance(raw, str):
+        try:
+            float(raw)
+        except ValueError:
+            pass
+        else:
+            raise InputError(place, f"{expected}, got the bare number {raw!r}; {BARE_NUMBER_RULE}")
         try:
             dimension, value = parse_either(raw, ("frequency", "ratio"), place)
             kind = "hz" if dimension == "frequency" else "ratio"
+        except UnitSpellingError:
+            raise  # its advice on what to write is more useful than the generic line
         except InputError:
             pass
+    elif isinstance(raw, (int, float)) and not isinstance(raw, bool):
+        raise InputError(place, f"{expected}, got the bare number {raw!r}; {BARE_NUMBER_RULE}")
     if not (value >= 0) or math.isinf(value) or (kind == "ratio" and value > 1e-3):
-        raise InputError(place, f"expected a non-negative frequency error such as \"40 Hz\" or \"0.1 ppm\", got {raw!r}")
+        raise InputError(place, f"{expected}, got {raw!r}")
     return (kind, value)
 
 
@@ -370,13 +409,16 @@ def _did_you_mean(word: str, options) -> str:
     return f" (did you mean {close[0]!r}?)" if close else ""
 
 
-def read_toml(path: str | Path, expected: str = "a TOML file") -> dict:
-    """Read a TOML file; any failure becomes one :class:`InputError` line (``expected`` names the kind of file)."""
-    text = read_text(path, expected)
+def read_toml(path: str | Path, expected: str = "a TOML file", kind: str = "requirements") -> dict:
+    """Read a TOML file; any failure becomes one :class:`InputError` line (``expected`` names the kind of file,
+    ``kind`` its size budget in :data:`numerology.budget.MAX_FILE_BYTES`)."""
+    text = read_text(path, expected, kind)
     try:
         return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise InputError(str(path), f"is not valid TOML ({exc})") from None
+    except RecursionError:  # tables or arrays nested hundreds deep
+        raise InputError(str(path), "is not valid TOML for numerology (nested too deeply)") from None
 
 
 def load_requirements(path: str | Path) -> Requirements:
@@ -397,15 +439,27 @@ def load_requirements(path: str | Path) -> Requirements:
     InputError
         For any problem, naming the file and the key path.
     """
-    path = Path(path)
+    path = file_path(path)
     return requirements_from_mapping(read_toml(path), str(path), path.parent)
 
 
 def requirements_from_mapping(data: dict, where: str = "<memory>", base_dir: Path | str = ".") -> Requirements:
-    """Check a parsed TOML mapping and convert it to :class:`Requirements`."""
+    """Check a parsed TOML mapping and convert it to :class:`Requirements`.
+
+    Raises
+    ------
+    InputError
+        For anything that is not a mapping of the five tables with valid keys and values.
+    """
+    where = str(where)
+    if not isinstance(data, dict):
+        raise InputError(where, f"expected a mapping of tables such as {{'environment': {{...}}}}, "
+                                f"got {type(data).__name__}")
+    if not isinstance(base_dir, (str, os.PathLike)):
+        raise InputError("base_dir", f"expected a folder name, got {base_dir!r}")
     base_dir = Path(base_dir)
     for section in data:
-        if section not in SECTIONS:
+        if not isinstance(section, str) or section not in SECTIONS:
             raise InputError(f"{where}: [{_printable(section)}]",
                              f"unknown table{_did_you_mean(section, SECTIONS)}; expected one of: {', '.join(SECTIONS)}")
         if not isinstance(data[section], dict):
@@ -432,12 +486,26 @@ def requirements_from_mapping(data: dict, where: str = "<memory>", base_dir: Pat
         tables[section] = _CLASSES[section](**values)
     req = Requirements(**tables, path=where, given=tuple(given))
     _check_consistency(req, where)
-    return req
+    return dataclasses.replace(req, files=_named_files(req))
 
 
-def _printable(name: str) -> str:
-    """A key name as written, or quoted with escapes if it holds a line break or other control character."""
-    return name if name.isprintable() else repr(name)
+def _named_files(req: Requirements) -> tuple:
+    """The profile and the MCS table a requirement names, read once (and checked now, before any work)."""
+    from .mcs import load_mcs_table
+    from .profiles import load_profile_csv
+
+    files = []
+    if req.environment.profile_file is not None:
+        files.append((req.environment.profile_file, load_profile_csv(req.environment.profile_file)))
+    if req.rules.mcs_table is not None:
+        files.append((req.rules.mcs_table, load_mcs_table(req.rules.mcs_table)))
+    return tuple(files)
+
+
+def _printable(name) -> str:
+    """A key name as written, or quoted with escapes if it holds a line break or other control character
+    (or is not text at all: a mapping built in Python may have any keys)."""
+    return name if isinstance(name, str) and name.isprintable() else repr(name)
 
 
 def _echo(raw) -> str:
@@ -489,6 +557,61 @@ def _check_consistency(req: Requirements, where: str) -> None:
             raise InputError(f"{where}: search.spacing_exponents", f"expected [lowest, highest] such as [-4, 6], got {list(exps)}")
     if not search.min_fft_size <= search.max_fft_size:
         raise InputError(f"{where}: search.min_fft_size", "must not exceed max_fft_size")
+
+
+def checked(req) -> Requirements:
+    """``req`` itself if it is a :class:`Requirements` whose every value lies in its declared range.
+
+    For the edge of the API: values set with :meth:`Requirements.replace` (a zero bandwidth, a
+    negative speed, text where a number belongs) are refused as the file reader would refuse them.
+
+    Raises
+    ------
+    InputError
+        Naming the key and what was expected.
+    """
+    if not isinstance(req, Requirements):
+        raise InputError("requirements", f"expected the Requirements that numerology.api.load returns, "
+                                         f"got {type(req).__name__}")
+    for declared in SCHEMA:
+        value = getattr(getattr(req, declared.section), declared.field)
+        if value is not None:
+            _check_si(declared, value, f"{req.path}: {declared.path}")
+    _check_consistency(req, req.path)
+    return req
+
+
+def _check_si(declared: Key, value, place: str) -> None:
+    """One loaded (SI) value against its declaration."""
+    def real(x):
+        if isinstance(x, bool) or not isinstance(x, numbers.Real):
+            raise InputError(place, f"expected a number in SI units, got {x!r}")
+        return _check_range(declared, float(x), place, x)
+
+    kind = declared.kind
+    if kind in ("quantity", "db", "number", "offset"):
+        real(value)
+    elif kind == "integer":
+        if not isinstance(value, numbers.Integral) or isinstance(value, bool):
+            raise InputError(place, f"expected a whole number, got {value!r}")
+        real(value)
+    elif kind in ("integer_list", "quantity_list", "choice_list"):
+        if not isinstance(value, (tuple, list)) or not value:
+            raise InputError(place, f"expected a non-empty tuple, got {value!r}")
+        for item in value:
+            _check_si(Key(declared.section, declared.name, kind.removesuffix("_list"), "", declared.dimension,
+                          None, declared.low, declared.high, declared.low_open, declared.choices,
+                          high_open=declared.high_open), item, place)
+    elif kind == "choice":
+        if value not in (declared.choices or _profile_names()):
+            raise InputError(place, f"unknown value {value!r}; expected one of: "
+                                    f"{', '.join(declared.choices or _profile_names())}")
+    elif kind == "path":
+        if not isinstance(value, str):
+            raise InputError(place, f"expected a file name, got {value!r}")
+    elif kind == "mask":
+        if not (isinstance(value, tuple) and len(value) == 2 and len(value[0]) == len(value[1]) >= 2):
+            raise InputError(place, f"expected (offsets in Hz, levels in dBc/Hz), got {value!r}")
 
 
 def _offset_to_hz(parsed, carrier_hz, place) -> float:

@@ -308,6 +308,7 @@ def _screen_chunks(req: Requirements, environment: Environment, spacings_hz, ign
     first = np.searchsorted(cell, low, side="left")
     counts = np.maximum(np.searchsorted(cell, high, side="right") - first, 0)
     any_slot = {"N_slot": float(min(slots))}  # the shortest slot is the best case for latency ...
+    chunk = max(1, chunk // slots.size)  # lattice rows per chunk: each becomes one candidate per slot length
     blocks = np.searchsorted(np.cumsum(counts), np.arange(chunk, counts.sum() + chunk, chunk))
     edges = np.unique(np.concatenate([[0], np.minimum(blocks + 1, numerologies.size), [numerologies.size]]))
     for start, end in zip(edges[:-1], edges[1:]):

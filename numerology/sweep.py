@@ -51,11 +51,10 @@ from pathlib import Path
 
 import numpy as np
 
-from . import delay, doppler, link, profiles
+from . import budget, delay, doppler, link, profiles
 from .design import Design, DesignArrays
 from .environment import WIDEBAND_FRACTION, EnvironmentBatch, derive_environment, line_of_sight_rows
 from .errors import InputError, read_text
-from .output import write_atomic
 from .requirements import SCHEMA, Requirements
 from .units import parse_either, parse_quantity
 
@@ -139,7 +138,7 @@ class Sites:
         return f"{self.size} sites from {self.path}{problems}"
 
 
-def load_sites(path, req: Requirements) -> Sites:
+def load_sites(path, req: Requirements, max_sites: int | None = None) -> Sites:
     """Read a sites file (see the module docstring).
 
     Parameters
@@ -148,6 +147,9 @@ def load_sites(path, req: Requirements) -> Sites:
         The CSV file. It is only read.
     req : Requirements
         The requirement set whose values fill the columns and cells not given.
+    max_sites : int, optional
+        Most sites accepted (default :func:`numerology.budget.sites_that_fit`); a larger file is
+        refused before its rows are read.
 
     Returns
     -------
@@ -160,7 +162,13 @@ def load_sites(path, req: Requirements) -> Sites:
         If the file cannot be read, has no header or no rows, or its header
         is malformed (unknown column, missing or wrong unit, repeated column).
     """
-    where = str(path)
+    from .errors import file_path
+    from .requirements import checked
+
+    req = checked(req)
+    where = str(file_path(path))
+    if max_sites is not None and (isinstance(max_sites, bool) or not isinstance(max_sites, int) or max_sites < 1):
+        raise InputError("max_sites", f"expected a whole number of at least 1, got {max_sites!r}")
     numbers, texts = _content_lines(Path(path))
     if not texts:
         raise InputError(where, f"has no header; expected a first row such as {_HEADER_EXAMPLE!r}")
@@ -168,6 +176,7 @@ def load_sites(path, req: Requirements) -> Sites:
     columns = _parse_header(header, f"{where}: line {numbers[0]}")
     if len(texts) == 1:
         raise InputError(where, "has a header but no sites")
+    budget.check_sites(len(texts) - 1, where, budget.sites_that_fit() if max_sites is None else max_sites)
     lines = numbers[1:]
     width = len(columns)
     flat, counts = _split_rows(texts[1:], lines, where)
@@ -202,7 +211,16 @@ def sites_from_values(req: Requirements, *, names=None, max_speed_mps=None, max_
     """
     values = {"max_speed": max_speed_mps, "max_doppler": max_doppler_hz, "max_excess_delay": max_excess_delay_s,
               "rms_delay_spread": rms_delay_spread_s, "carrier": carrier_hz, "snr": snr_db}
-    arrays = {k: np.asarray(v, dtype=float) for k, v in values.items() if v is not None}
+    if not isinstance(req, Requirements):
+        raise InputError("requirements", f"expected the Requirements that numerology.api.load returns, "
+                                         f"got {type(req).__name__}")
+    arrays = {}
+    for name, value in values.items():
+        if value is not None:
+            try:
+                arrays[name] = np.asarray(value, dtype=float)
+            except (TypeError, ValueError):
+                raise InputError(name, f"expected numbers in SI units, got {value!r}") from None
     if profile is not None:
         arrays["profile"] = np.asarray(profile, dtype=object)
     if names is not None:
@@ -234,7 +252,7 @@ def sites_from_values(req: Requirements, *, names=None, max_speed_mps=None, max_
 
 def _content_lines(path: Path):
     """Line numbers (int array) and texts of the lines that are neither blank nor comments."""
-    text = read_text(path, "a CSV file of sites")
+    text = read_text(path, "a CSV file of sites", "sites")
     lines = text.splitlines()
     # Most lines start with a value: only those starting with a blank, '#' or nothing need a closer look.
     heads = np.array(list(map(_FIRST_CHARACTER, lines)), dtype=str)
@@ -265,6 +283,10 @@ def _split_rows(texts: list, lines, where: str):
         ends = np.append(np.flatnonzero(raw == ord("\n")), raw.size)  # a multi-byte character
         commas_before = np.searchsorted(np.flatnonzero(raw == ord(",")), ends)
         return flat, np.diff(commas_before, prepend=0) + 1
+    odd = [i for i, text in enumerate(texts) if text.count('"') % 2]
+    if odd:  # a quoted cell that goes on to the next line: rows would no longer be lines
+        raise InputError(f"{where}: line {lines[odd[0]]}", "a line break inside quotes is not supported in a sites "
+                                                           "file; keep each site on one line")
     reader = csv.reader(texts)
     try:
         rows = list(reader)
@@ -652,8 +674,8 @@ def _site_shapes(req: Requirements, sites: Sites):
         if not (name or path):
             continue
         on = label == j
-        stamp = Path(path).stat().st_mtime_ns if path else 0
-        profile, d0, p0, bc0 = _template(name, path, stamp, rho)
+        profile, d0, p0, bc0 = _template(profiles.get_profile(name) if name else
+                                         req.attached(path, profiles.load_profile_csv), rho)
         sigma = rms[on]
         scaled = ~np.isnan(sigma)
         if profile.normalised:
@@ -709,9 +731,8 @@ def _unit_profile(shape: str, floor_db: float, rho: float):
 
 
 @lru_cache(maxsize=64)
-def _template(name: str, path: str, stamp: int, rho: float):
-    """A profile's taps (powers summing to 1) and coherence bandwidth, once per profile (and file version)."""
-    profile = profiles.get_profile(name) if name else profiles.load_profile_csv(path)
+def _template(profile: profiles.Profile, rho: float):
+    """A profile's taps (powers summing to 1) and coherence bandwidth, once per profile."""
     d0 = np.asarray(profile.delays_s, dtype=float)
     p0 = np.asarray(profile.powers, dtype=float)
     p0 = p0 / np.sum(p0)
@@ -915,11 +936,24 @@ def sweep(req: Requirements, design: Design, sites: Sites) -> SweepResult:
         throughput, effective SINR; the site environments (coherence time and
         bandwidth, notes).
 
+    Raises
+    ------
+    InputError
+        For a bad argument (requirements with a value out of range, a design that is not a
+        :class:`Design`, sites that are not :class:`Sites`).
+
     Notes
     -----
     One call of ``link.evaluate`` with the design against the batch of site
     environments; the per-site SNR is passed as an array in ``radio.snr``.
     """
+    from .requirements import checked
+
+    req = checked(req)
+    if not isinstance(design, Design):
+        raise InputError("design", f"expected a numerology.design.Design, got {type(design).__name__}")
+    if not isinstance(sites, Sites):
+        raise InputError("sites", f"expected Sites from load_sites or sites_from_values, got {type(sites).__name__}")
     environment = site_environments(req, sites)
     rules = link.applicable_rules(req)
     n = sites.size
@@ -948,26 +982,63 @@ def sweep(req: Requirements, design: Design, sites: Sites) -> SweepResult:
         requirements_path=req.path)
 
 
-def write_sweep_csv(path, result: SweepResult) -> None:
-    """Write the sweep as CSV, atomically (validate the path first with ``output.output_path``).
+def write_sweep_csv(path, result: SweepResult, sites_file: str | None = None) -> None:
+    """Write the sweep as CSV and its metadata beside it as ``FILE.csv.json``, together and atomically.
 
-    Columns: site, pass (yes/no), binding_rule, net_throughput [Mbit/s],
-    effective_sinr [dB], one margin column per rule (``[%]`` for ratio
-    margins, ``[dB]`` for dB margins), coherence_time [ms],
-    coherence_bandwidth [MHz]. Rows that could not be evaluated are listed
-    first as ``#`` comment lines with their line and problem.
+    Validate the path first with ``output.output_path`` (a command does so before any work).
+    The CSV (:func:`sweep_csv`) is plain: one header row, then one row per evaluated site, readable by
+    any CSV reader without options; what does not fit in rows (the rows of the sites file that were not
+    evaluated, notes, the design, the summary) is in the metadata document (:func:`sweep_csv_metadata`).
+    """
+    from .output import write_all
+    from .render_json import document
+
+    path = Path(path)
+    meta = document("numerology.sweep_csv", sweep_csv_metadata(result, path.name, sites_file))
+    write_all({path: sweep_csv(result).encode("utf-8"), metadata_path(path): meta.encode("utf-8")})
+
+
+def metadata_path(path) -> Path:
+    """The metadata file of a sweep CSV: ``FILE.csv.json`` beside ``FILE.csv``."""
+    path = Path(path)
+    return path.with_name(path.name + ".json")
+
+
+#: First characters that make a spreadsheet evaluate a cell as a formula (OWASP, "CSV Injection").
+_FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+
+
+def spreadsheet_safe(text: str) -> str:
+    """A text cell that spreadsheets show as text: a leading ``'`` before a formula's first character.
+
+    Common practice (OWASP, "CSV Injection"): a site named ``=HYPERLINK(...)`` must not become a formula.
+    Numbers written by numerology are not text cells and are left alone.
+    """
+    return "'" + text if text.startswith(_FORMULA_STARTS) else text
+
+
+def _csv_columns(result: SweepResult) -> list:
+    """(header, unit or None) of each CSV column."""
+    return [("site", None), ("pass", None), ("binding_rule", None), ("net_throughput [Mbit/s]", "Mbit/s"),
+            ("effective_sinr [dB]", "dB"),
+            *[(f"{rule.name} margin [{'dB' if rule.convention == 'db' else '%'}]",
+               "dB" if rule.convention == "db" else "%") for rule in result.rules],
+            ("coherence_time [ms]", "ms"), ("coherence_bandwidth [MHz]", "MHz")]
+
+
+def sweep_csv(result: SweepResult) -> str:
+    """The per-site results as CSV text.
+
+    Columns: site, pass (yes/no), binding_rule, net_throughput [Mbit/s], effective_sinr [dB], one
+    margin column per rule (``[%]`` for ratio margins, ``[dB]`` for dB margins), coherence_time [ms],
+    coherence_bandwidth [MHz]. Site names that a spreadsheet would evaluate are escaped
+    (:func:`spreadsheet_safe`).
     """
     buffer = io.StringIO()
-    for line, message in result.sites.problems:
-        buffer.write(f"# line {line} not evaluated: {message}\n")
-    for note in result.sites.notes:
-        buffer.write(f"# note: {note}\n")
     writer = csv.writer(buffer, lineterminator="\n")
-    margin_headers = [f"{rule.name} margin [{'dB' if rule.convention == 'db' else '%'}]" for rule in result.rules]
-    writer.writerow(["site", "pass", "binding_rule", "net_throughput [Mbit/s]", "effective_sinr [dB]",
-                     *margin_headers, "coherence_time [ms]", "coherence_bandwidth [MHz]"])
+    writer.writerow([header for header, _ in _csv_columns(result)])
     columns = [
-        result.sites.names.tolist(),
+        [spreadsheet_safe(name) for name in map(str, result.sites.names.tolist())],
         np.where(result.passed, "yes", "no").tolist(),
         result.binding_rule.tolist(),
         _formatted(result.net_throughput_bps / 1e6),
@@ -978,7 +1049,21 @@ def write_sweep_csv(path, result: SweepResult) -> None:
         _formatted(result.environment.coherence_bandwidth_hz / 1e6),
     ]
     writer.writerows(zip(*columns))
-    write_atomic(Path(path), buffer.getvalue().encode("utf-8"))
+    return buffer.getvalue()
+
+
+def sweep_csv_metadata(result: SweepResult, csv_name: str, sites_file: str | None = None) -> dict:
+    """What goes with a sweep CSV: its columns and units, the design, the summary, rows not evaluated, notes."""
+    return {
+        "csv": csv_name,
+        "requirements": result.requirements_path,
+        "sites_file": sites_file if sites_file is not None else result.sites.path,
+        "design": result.design.to_json(),
+        "columns": [{"name": header, "unit": unit} for header, unit in _csv_columns(result)],
+        "summary": result.summary().to_json(),
+        "problems": [{"line": line, "message": message} for line, message in result.sites.problems],
+        "notes": list(result.sites.notes),
+    }
 
 
 def _formatted(values) -> list:

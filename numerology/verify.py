@@ -58,7 +58,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from . import link, mcs
+from . import budget, link, mcs
 from .design import Design, DesignArrays
 from .environment import derive_environment
 from .errors import InputError
@@ -315,11 +315,23 @@ def verify(req, design: Design, *, seed=0, frames=None, speed_mps=None, max_exce
     Raises
     ------
     InputError
-        If the design is not a :class:`Design` or the simulation cannot run.
+        For a bad argument (requirements with a value out of range, a design that is not a
+        :class:`Design`, frames below 2, a negative seed), a simulation beyond the work budget
+        (``numerology.budget.check_simulation``), or one that cannot run.
     """
+    from .requirements import checked
+
+    req = checked(req)
     if not isinstance(design, Design):
         raise InputError("design", f"expected a numerology.design.Design, got {type(design).__name__}")
+    if frames is not None and (isinstance(frames, bool) or not isinstance(frames, (int, np.integer)) or frames < 2):
+        raise InputError("frames", f"expected a whole number of frames, at least 2, got {frames!r}")
+    if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or not 0 <= seed < 2**63:
+        raise InputError("seed", f"expected a whole number from 0 to 2^63 - 1, got {seed!r}")
+    if progress is not None and not callable(progress):
+        raise InputError("progress", "expected a callable progress(done, total) or None")
     environment = derive_environment(req, speed_mps=speed_mps, max_excess_delay_s=max_excess_delay_s)
+    budget.check_simulation(design, environment, frames)  # before any work: what would fit, if it would not
     evaluation = link.evaluate(DesignArrays.from_designs([design]), environment, req)
     terms = {name: float(np.ravel(value)[0]) for name, value in evaluation.terms.items()}
     failing = tuple((rule.name, float(np.ravel(evaluation.margin[rule.name])[0]), rule.convention)

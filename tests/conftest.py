@@ -1,12 +1,15 @@
 """Shared fixtures: the shipped example files and a small TOML writer for modified copies."""
 
 import atexit
+import contextlib
 import json
 import math
 import os
 import re
 import shutil
+import signal
 import tempfile
+import tomllib
 from pathlib import Path
 
 import pytest
@@ -64,6 +67,46 @@ def toml_text(data: dict) -> str:
             lines.extend(f"{toml_key(key)} = {toml_value(value)}" for key, value in table.items())
         lines.append("")
     return "\n".join(lines)
+
+
+def requirement_data(path: Path, edits=()) -> dict:
+    """A requirement file as a mapping, with the files it names made absolute (a copy elsewhere still finds
+    them) and ``edits`` applied: ``((section, key), value)`` pairs, a value of None removing the key."""
+    data = tomllib.loads(Path(path).read_text(encoding="utf-8"))
+    for section, name in (("environment", "profile_file"), ("rules", "mcs_table")):
+        if name in data.get(section, {}):
+            data[section][name] = str(Path(path).parent / data[section][name])
+    return apply_edits(data, edits)
+
+
+def apply_edits(data: dict, edits) -> dict:
+    """``data`` with ``((section, key), value)`` edits applied in place: a value sets, None removes."""
+    for (section, name), value in edits:
+        table = data.setdefault(section, {})
+        if value is None:
+            table.pop(name, None)
+        else:
+            table[name] = value
+    return data
+
+
+class Timeout(BaseException):
+    """A case ran past its alarm (a BaseException, so that the command line cannot take it for a bug of its own)."""
+
+
+@contextlib.contextmanager
+def alarm(seconds: int):
+    """Fail a case that would hang, instead of waiting: SIGALRM raises :class:`Timeout` after ``seconds``."""
+    def expire(*_):
+        raise Timeout(f"took longer than {seconds} s")
+
+    previous = signal.signal(signal.SIGALRM, expire)
+    signal.alarm(seconds)
+    try:
+        yield
+    finally:
+        signal.alarm(0)
+        signal.signal(signal.SIGALRM, previous)
 
 
 @pytest.fixture

@@ -117,7 +117,7 @@ def test_presets_json(capsys):
 
 # --- check -----------------------------------------------------------------------------------
 
-CHECK_KEYS = ("design", "constraints", "sinr_terms_db", "effective_sinr_db", "net_throughput_bps", "overhead",
+CHECK_KEYS = ("design", "rules", "sinr_terms_db", "effective_sinr_db", "net_throughput_bps", "overhead",
               "limits", "passed")
 
 
@@ -131,7 +131,7 @@ def test_check_exit_status_follows_the_verdict(capsys, example, preset):
     assert body["schema"] == "numerology.check"
     assert err == ""
     assert status == (0 if body["passed"] else 1)
-    assert body["passed"] == all(c["passed"] for c in body["constraints"])
+    assert body["passed"] == all(c["passed"] for c in body["rules"])
 
 
 def test_check_json_keys(capsys):
@@ -139,8 +139,8 @@ def test_check_json_keys(capsys):
     body = json.loads(out)
     for key in CHECK_KEYS:
         assert key in body, key
-    assert body["constraints"]
-    for constraint in body["constraints"]:
+    assert body["rules"]
+    for constraint in body["rules"]:
         assert {"name", "margin", "passed"} <= set(constraint)
         if constraint["margin"] is not None:  # None: an unbounded margin (JSON has no infinity)
             assert constraint["passed"] == (constraint["margin"] >= 0), constraint["name"]
@@ -157,7 +157,7 @@ def test_check_table(capsys):
 
 def _margins(capsys, *extra):
     status, out, _ = run(capsys, "check", HARBOUR, "--preset", "nr-mu1", "--json", *extra)
-    return {c["name"]: c["margin"] for c in json.loads(out)["constraints"]}
+    return {c["name"]: c["margin"] for c in json.loads(out)["rules"]}
 
 
 def test_a_faster_what_if_never_raises_a_margin(capsys):

@@ -12,7 +12,7 @@ import os
 import tomllib
 
 import pytest
-from conftest import EXAMPLES, toml_text
+from conftest import EXAMPLES, apply_edits, toml_text
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
@@ -35,17 +35,8 @@ SI_UNIT = {"frequency": "Hz", "time": "s", "speed": "m/s", "length": "m", "bitra
 def changed(*edits):
     """BASE with edits applied: ("section.key", value) sets, ("section.key", None) removes."""
     data = {section: dict(table) for section, table in BASE.items()}
-    for dotted, value in edits:
-        if "." not in dotted:
-            data[dotted] = value
-            continue
-        section, name = dotted.split(".")
-        table = data.setdefault(section, {})
-        if value is None:
-            table.pop(name, None)
-        else:
-            table[name] = value
-    return data
+    data.update({dotted: value for dotted, value in edits if "." not in dotted})
+    return apply_edits(data, [(tuple(dotted.split(".")), value) for dotted, value in edits if "." in dotted])
 
 
 def assert_one_located_line(error, path, dotted):
@@ -151,7 +142,7 @@ BAD_FILES = [
      "radio.phase_noise[0]", "pair"),
     ("mask offset not a frequency", changed(("radio.phase_noise", [["1 ms", "-80 dBc/Hz"], ["1 MHz", "-120 dBc/Hz"]])),
      "radio.phase_noise[0]", "expected a frequency"),
-    ("mask level not dB", changed(("radio.phase_noise", [["1 kHz", "-80"], ["1 MHz", "-120 dBc/Hz"]])),
+    ("mask level not dB", changed(("radio.phase_noise", [["1 kHz", "-80 dBm"], ["1 MHz", "-120 dBc/Hz"]])),
      "radio.phase_noise[0]", "dB"),
     ("mask level positive", changed(("radio.phase_noise", [["1 kHz", "-80 dBc/Hz"], ["1 MHz", "10 dBc/Hz"]])),
      "radio.phase_noise[1]", "between -250 and 0"),

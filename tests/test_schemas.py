@@ -54,3 +54,13 @@ def test_verify_output_validates(capsys):
                                      "--json"])
     assert status in (0, 1, 3)
     jsonschema.validate(document, _schema("verify"))
+
+
+def test_sweep_csv_metadata_validates(capsys, tmp_path):
+    out = tmp_path / "sites-result.csv"
+    status = main(["sweep", str(EX / "harbour_crane.toml"), "--sites", str(EX / "harbour_sites.csv"), "--preset",
+                   "nr-mu1", "--out", str(out)])
+    capsys.readouterr()
+    assert status in (0, 1)
+    jsonschema.validate(json.loads((tmp_path / "sites-result.csv.json").read_text(encoding="utf-8")),
+                        _schema("sweep_csv"))

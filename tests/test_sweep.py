@@ -494,12 +494,16 @@ def test_csv_output(tmp_path):
     result = sweep(req, HARBOUR_DESIGN, load_sites(path, req))
     out = tmp_path / "out.csv"
     write_sweep_csv(out, result)
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["out.csv", "sites.csv"]  # no temporary file left
+    # the metadata beside the CSV; no temporary file left
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["out.csv", "out.csv.json", "sites.csv"]
+    meta = json.loads((tmp_path / "out.csv.json").read_text())
+    assert meta["schema"] == "numerology.sweep_csv" and meta["csv"] == "out.csv"
+    assert meta["problems"][0] == {"line": 4, "message": "max_speed: expected a number in km/h, got 'fast'"}
+    assert len(meta["problems"]) + len(meta["notes"]) == 9
     text = out.read_text().splitlines()
-    comments = [line for line in text if line.startswith("#")]
-    assert comments[0] == "# line 4 not evaluated: max_speed: expected a number in km/h, got 'fast'"
-    assert len(comments) == 9
-    rows = list(csv.reader(line for line in text if not line.startswith("#")))
+    assert not any(line.startswith("#") for line in text)  # plain CSV: every line is the header or a row
+    rows = list(csv.reader(text))
+    assert [c["name"] for c in meta["columns"]] == rows[0]
     header = rows[0]
     assert header[:5] == ["site", "pass", "binding_rule", "net_throughput [Mbit/s]", "effective_sinr [dB]"]
     assert header[-2:] == ["coherence_time [ms]", "coherence_bandwidth [MHz]"]
@@ -539,4 +543,5 @@ def test_no_valid_site(tmp_path):
     assert (summary.sites, summary.passed, summary.worst_site) == (0, 0, None)
     assert result.to_json()["sites"] == []
     write_sweep_csv(tmp_path / "out.csv", result)
-    assert (tmp_path / "out.csv").read_text().count("not evaluated") == 2
+    assert (tmp_path / "out.csv").read_text().count("\n") == 1  # the header only
+    assert len(json.loads((tmp_path / "out.csv.json").read_text())["problems"]) == 2

@@ -13,7 +13,7 @@ from hypothesis import given
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
-from numerology import units
+from numerology import quantity_cache, units
 from numerology.errors import InputError
 from numerology.units import DIMENSIONS, EXAMPLES, db, engineering, parse_db, parse_quantity, speed_kmh
 
@@ -86,8 +86,8 @@ BAD = [
     ("-inf m/s", "speed", "finite"),
     ("1e400 Hz", "frequency", "finite"),  # overflows to inf
     ("1e308 * 10 Hz", "frequency", "finite"),
-    ("10**10**10 Hz", "frequency", "no powers"),
-    ("10^3 Hz", "frequency", "no powers"),
+    ("10**10**10 Hz", "frequency", "powers are not read"),
+    ("10^3 Hz", "frequency", "powers are not read"),
     ("1" * 90 + " Hz", "frequency", "at most 80 characters"),
     ("hello", "time", "expected a time"),
     ("3 (Hz", "time", "could not read"),
@@ -125,8 +125,9 @@ def test_a_tower_of_powers_is_refused_fast():
     assert time.perf_counter() - start < 1.0  # generous: each refusal is a string test
 
 
-def test_unknown_dimension_is_a_programming_error():
-    with pytest.raises(KeyError):
+def test_unknown_dimension_is_refused_as_input():
+    """A public function raises its documented InputError for every bad argument (issue 15, finding 8)."""
+    with pytest.raises(InputError, match="unknown dimension 'colour'"):
         parse_quantity("1 Hz", "colour", "x")
 
 
@@ -135,13 +136,14 @@ def test_unknown_dimension_is_a_programming_error():
 @pytest.mark.parametrize("text, value_db", [
     ("18 dB", 18.0), ("-25 dB", -25.0), ("+3 dB", 3.0), (".5 dB", 0.5), ("18dB", 18.0),
     ("-90 dBc/Hz", -90.0), ("-30 dBc", -30.0), ("1e1 dB", 10.0), (12, 12.0), (-3.5, -3.5),
+    ("18", 18.0), (" -3.5 ", -3.5),  # the bare-number rule: a bare number, quoted or not, is read as dB
 ])
 def test_parse_db_reads_decibels(text, value_db):
     assert parse_db(text, "x") == value_db
 
 
 @pytest.mark.parametrize("text", [
-    "18", "18 db", "18 dBm", "dB", "nan dB", "inf dB", "1e3 dB", math.nan, math.inf, -math.inf, 401, True,
+    "18 db", "18 dBm", "dB", "nan dB", "inf dB", "1e3 dB", math.nan, math.inf, -math.inf, 401, True,
     None, "18 dB 3", [18], "eighteen dB",
 ])
 def test_parse_db_refuses_junk_in_one_line(text):
@@ -235,46 +237,45 @@ def test_any_text_gives_a_db_value_or_an_input_error(text):
 
 @pytest.fixture
 def fresh_cache(tmp_path, monkeypatch):
-    """An empty cache folder, nothing learned or loaded in this process."""
+    """An empty cache folder, nothing learned or loaded in this process; yields the cache file."""
     monkeypatch.setenv("NUMEROLOGY_CACHE_DIR", str(tmp_path))
-    monkeypatch.setattr(units, "_LEARNED", {})
-    units._known.cache_clear()
-    yield tmp_path / "quantities.json"
-    units._known.cache_clear()
+    quantity_cache.forget()
+    yield quantity_cache.cache_path()
+    quantity_cache.forget()
 
 
 def test_cached_values_equal_what_pint_gives(fresh_cache):
     strings = [("120 km/h", "speed"), ("3.5 GHz", "frequency"), ("2.3 us", "time"), ("50 Mbit/s", "bitrate")]
     first = [units.parse_quantity(t, d, "x") for t, d in strings]
-    units.save_cache()
+    quantity_cache.save()
     assert fresh_cache.exists()
-    units._known.cache_clear()
-    assert units._LEARNED == {}
+    assert quantity_cache._LEARNED == {}
     again = [units.parse_quantity(t, d, "x") for t, d in strings]
     assert again == first  # the very same floats
-    assert units._LEARNED == {}  # all from the file: pint was not asked
+    assert quantity_cache._LEARNED == {}  # all from the file: pint was not asked
 
 
 def test_cache_keeps_the_dimension_check(fresh_cache):
     units.parse_quantity("1 ms", "time", "x")
-    units.save_cache()
-    units._known.cache_clear()
+    quantity_cache.save()
     with pytest.raises(InputError, match="expected a frequency"):
         units.parse_quantity("1 ms", "frequency", "radio.bandwidth")
 
 
 def test_unreadable_or_foreign_cache_is_ignored(fresh_cache):
+    fresh_cache.parent.mkdir(parents=True, exist_ok=True)
     fresh_cache.write_text("{not json", encoding="utf-8")
     assert units.parse_quantity("36 km/h", "speed", "x") == pytest.approx(10.0)
-    # an entry written by another installation (other fingerprint) is not used, even if wrong
-    fresh_cache.write_text(json.dumps({"fingerprint": "other", "values": {"speed|36 km/h": 99.0}}), encoding="utf-8")
-    units._known.cache_clear()
+    # an entry written by another installation is not used, even with a valid tag of its own
+    fresh_cache.write_text(json.dumps({"installation": "other", "entries": {
+        "speed|36 km/h": [99.0, "speed", "0" * 32]}}), encoding="utf-8")
+    quantity_cache.forget()
     assert units.parse_quantity("36 km/h", "speed", "x") == pytest.approx(10.0)
 
 
 def test_cache_can_be_switched_off(monkeypatch):
     monkeypatch.setenv("NUMEROLOGY_CACHE_DIR", "")
-    assert units.cache_path() is None
+    assert quantity_cache.cache_path() is None
 
 
 def test_a_run_with_known_strings_never_imports_pint(tmp_path):
@@ -298,10 +299,9 @@ def test_a_run_that_stops_on_bad_input_writes_no_cache(tmp_path, monkeypatch):
     from numerology.cli import main
 
     monkeypatch.setenv("NUMEROLOGY_CACHE_DIR", str(tmp_path / "cache"))
-    monkeypatch.setattr(units, "_LEARNED", {})
-    units._known.cache_clear()
+    quantity_cache.forget()
     req = tmp_path / "bad.toml"
     req.write_text('[environment]\ncarrier = "2.4 GHz"\nmax_speed = "fast"\n', encoding="utf-8")
     assert main(["env", str(req)]) == 2
     assert not (tmp_path / "cache").exists()
-    units._known.cache_clear()
+    quantity_cache.forget()
