@@ -81,6 +81,27 @@ import scipy.special as sp
 from . import arrangement
 from .oscillator import phase_autocorrelation
 
+
+def hermitian_eigen(m: np.ndarray):
+    """Eigenvalues (ascending) and eigenvectors of Hermitian matrices, stacked on the leading axes.
+
+    LAPACK's divide-and-conquer solver (``numpy.linalg.eigh``) can fail to converge on nearly
+    degenerate matrices, which occur here when components of the channel are nearly equal;
+    those stacks are done again one matrix at a time with the slower, more robust QR solver.
+    """
+    m = np.asarray(m)
+    try:
+        return np.linalg.eigh(m)
+    except np.linalg.LinAlgError:
+        import scipy.linalg
+
+        flat = m.reshape((-1,) + m.shape[-2:])
+        parts = [scipy.linalg.eigh(a, driver="ev", check_finite=False) for a in flat]
+        value = np.stack([p[0] for p in parts]).reshape(m.shape[:-1])
+        vector = np.stack([p[1] for p in parts]).reshape(m.shape)
+        return value, vector
+
+
 #: Pilot-bearing symbols that enter the estimate of one data symbol, at most (the nearest usable ones).
 MAX_PILOT_SYMBOLS = 4
 #: The weakest band eigenmodes of the scattered taps are dropped while their energy together stays below
@@ -168,7 +189,7 @@ def components(delays_s, powers, los_fraction, spacing_hz, used) -> tuple[Compon
     scattered[first] = max(scattered[first] - los_fraction, 0.0)
     root = np.sqrt(scattered)
     g_band = gram(delays, delays, spacing_hz, 0, 1, used) / used
-    gamma, v = np.linalg.eigh(root[:, None] * g_band * root[None, :])  # ascending
+    gamma, v = hermitian_eigen(root[:, None] * g_band * root[None, :])  # ascending
     gamma = np.clip(gamma, 0.0, None)
     keep = np.cumsum(gamma) > MODE_ENERGY_TOL
     dropped = float(np.sum(gamma[~keep]))
@@ -344,7 +365,7 @@ class Band:
         key = (step, offset, subset.tobytes())
         if key not in self._eigen:
             g = self.comb_gram(step, offset)[np.ix_(subset, subset)]
-            self._eigen[key] = np.linalg.eigh(0.5 * (g + g.conj().T))
+            self._eigen[key] = hermitian_eigen(0.5 * (g + g.conj().T))
         return self._eigen[key]
 
     def clusters(self, step, offsets):
@@ -384,7 +405,7 @@ class Band:
         """The Hermitian square root of :meth:`comb_gram`."""
         key = (step, offset)
         if key not in self._root:
-            value, vector = np.linalg.eigh(self.comb_gram(step, offset))
+            value, vector = hermitian_eigen(self.comb_gram(step, offset))
             self._root[key] = (vector * np.sqrt(np.clip(value, 0.0, None))) @ vector.conj().T
         return self._root[key]
 
@@ -455,13 +476,13 @@ def spectral_weights(schedule: arrangement.Schedule, band: Band, symbol_s, max_d
             k, c = members.shape
             grams = np.stack([band.comb_gram(d_f, o) for o in pilot_offsets])  # (u, C, C)
             sub = grams[:, members[:, :, None], members[:, None, :]]  # (u, k, c, c)
-            value, vector = np.linalg.eigh(sub)
+            value, vector = hermitian_eigen(sub)
             halves = (vector * np.sqrt(np.clip(value, 0.0, None))[..., None, :]) @ np.conj(np.swapaxes(vector, -1, -2))
             r = rho[..., members]  # (n, u, u, k, c)
             # block (i, j) of D^(1/2) S D^(1/2) per cluster: H_i diag(rho_ij) H_j
             blocks = ((halves[None, :, None] * r[..., None, :]) @ halves[None, None, :])  # (n, u, u, k, c, c)
             m = blocks.transpose(0, 3, 1, 4, 2, 5).reshape(n, k, u * c, u * c)
-            lam, w = np.linalg.eigh(0.5 * (m + np.conj(np.swapaxes(m, -1, -2))))  # (n, k, uc), (n, k, uc, uc)
+            lam, w = hermitian_eigen(0.5 * (m + np.conj(np.swapaxes(m, -1, -2))))  # (n, k, uc), (n, k, uc, uc)
             x = halves[None, None] * cross[..., members][..., None, :]  # (n, T, u, k, c, c)
             x = x.transpose(0, 1, 3, 2, 4, 5).reshape(n, len(targets), k, u * c, c)
             b = np.conj(np.swapaxes(w, -1, -2))[:, None] @ x  # (n, T, k, uc, c): rows w_j^H D^(1/2) S_Un
@@ -522,7 +543,7 @@ def _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction
             key = tuple(lags - lags[0])
             if key not in eigen_cache:
                 r_s = table[k, (lags[:, None] - lags[None, :]) + 2 * reach, 0]
-                eigen_cache[key] = np.linalg.eigh(0.5 * (r_s + r_s.conj().T))
+                eigen_cache[key] = hermitian_eigen(0.5 * (r_s + r_s.conj().T))
             l_t, u_t = eigen_cache[key]
             l_t = np.where(l_t > 1e-12 * max(l_t.max(), 1e-300), l_t, 0.0)
             rho = table[k, lags + 2 * reach, 0]  # E h(t_i) h(n)^*
