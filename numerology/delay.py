@@ -9,10 +9,11 @@ Delays are *excess* delays: every moment is measured from the first tap that
 carries power (the first arrival), which is also where the receiver's FFT
 window is assumed to be synchronised.
 
-Conventions (see PHYSICS.md sect. 1): the coherence bandwidth is the first
-frequency lag where the magnitude of the profile's frequency correlation falls
-to a stated ``correlation``; the rules of thumb are returned beside it, never
-in its place.
+Conventions (definitions differ between Rappaport, Wireless Communications,
+2nd ed., eqs. 5.38/5.39, Jakes 1974 and Tse & Viswanath 2005 ch. 2): the
+coherence bandwidth is the first frequency lag where the magnitude of the
+profile's frequency correlation falls to a stated ``correlation``; the rules
+of thumb are returned beside it, never in its place.
 """
 
 from __future__ import annotations
@@ -353,7 +354,7 @@ def exponential_coherence_bandwidth_hz(rms_delay_spread_s, correlation=0.5):
 
     References
     ----------
-    PHYSICS.md sect. 1 (calc); the exponential profile exp(-tau/sigma)/sigma
+    Calc from the definition of the frequency correlation; the exponential profile exp(-tau/sigma)/sigma
     has the Fourier transform 1/(1 + j 2 pi df sigma).
 
     Examples

@@ -151,7 +151,7 @@ def _ns(*values):
 
 
 # --- 3GPP TS 36.101 Annex B.2.1 (E-UTRA extended ITU models) -----------------
-# Tables B.2.1-2..4 (table numbers from memory; taps as in PHYSICS.md sect. 3).
+# Tables B.2.1-2..4 (table numbers from memory; tap values as published in TS 36.101 Annex B.2.1).
 _LTE_NOTE = ("classical Doppler on every tap; usual pairings EPA5, EVA5, EVA70, ETU70, ETU300 "
              "(f_D in Hz, TS 36.101 Annex B.2.2)")
 
@@ -169,7 +169,7 @@ _PROFILES = [
             "3GPP TS 36.101 Annex B.2.1, Table B.2.1-4 (Extended Typical Urban)",
             991 * _NS, note=_LTE_NOTE),
     # --- ITU-R M.1225 (1997) Annex 2, channel A of each test environment ----------
-    # Tables 3-5 (table numbers and stated rms values from memory; taps as in PHYSICS.md).
+    # Tables 3-5 (table numbers and stated rms values from memory; taps as published in M.1225 Annex 2).
     Profile("ITU-IndoorA", _ns(0, 50, 110, 170, 290, 310),
             (0.0, -3.0, -10.0, -18.0, -26.0, -32.0),
             "ITU-R M.1225 Annex 2, Table 3 (indoor office, channel A)", 35 * _NS,

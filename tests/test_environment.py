@@ -27,7 +27,7 @@ from numerology.errors import InputError
 from numerology.requirements import requirements_from_mapping
 
 C_MPS = 299_792_458.0  # SI brochure, 9th ed. (2019): exact
-SEA_WATER_MPS = 1500.0  # common practice (PHYSICS.md sect. 2)
+SEA_WATER_MPS = 1500.0  # common practice
 ns, us, ms = 1e-9, 1e-6, 1e-3
 kmh = 1 / 3.6
 
@@ -49,8 +49,8 @@ def environment(where="site.toml", *, radio=None, rules=None, **env):
 
 
 def test_textbook_doppler_2ghz_120kmh():
-    """2 GHz at 120 km/h gives about 222 Hz: PHYSICS.md sect. 2, worked values ("confirmed,
-    rounded by their sources; test with 1 % tolerance")."""
+    """2 GHz at 120 km/h gives about 222 Hz: a textbook worked value (book not recorded: from memory;
+    rounded by its source, so tested with 1 % tolerance)."""
     e = environment(carrier="2 GHz", max_speed="120 km/h", max_excess_delay="1 us")
     assert_allclose(e.max_doppler_hz, 222.0, rtol=0.01)
     # and exactly f_D = v f_c / c (definition; Rappaport 2nd ed. eq. 5.2)
@@ -59,20 +59,21 @@ def test_textbook_doppler_2ghz_120kmh():
 
 
 def test_textbook_doppler_1800mhz_70mph():
-    """1.8 GHz at 70 mph: the source prints 189 Hz, the exact value is 187.9 Hz (PHYSICS.md
-    sect. 2). The source rounded up; we test the exact figure tightly and the printed one at 1 %."""
+    """1.8 GHz at 70 mph: the source prints 189 Hz, the exact value is 187.9 Hz (calc,
+    f_D = v f_c / c; the printed value is from memory). The source rounded up; we test the exact figure
+    tightly and the printed one at 1 %."""
     e = environment(carrier="1.8 GHz", max_speed="70 mi/h", max_excess_delay="1 us")
     assert_allclose(e.max_doppler_hz, 187.9, atol=0.05)  # printed to 0.1 Hz
     assert_allclose(e.max_doppler_hz, 189.0, rtol=0.01)
 
 
 def test_coherence_time_rule_of_thumb_3kmh_2ghz():
-    """3 km/h at 2 GHz: T_c = 0.423/f_D = 76 ms (PHYSICS.md sect. 2, worked values; the rule
+    """3 km/h at 2 GHz: T_c = 0.423/f_D = 76 ms (textbook worked value, from memory; the rule
     0.423/f_D is Rappaport, Wireless Communications 2nd ed., sect. 5.4.3). Printed to 1 ms."""
     e = environment(carrier="2 GHz", max_speed="3 km/h", max_excess_delay="1 us")
     thumbs = {label: value for quantity, label, value in rules_of_thumb(e) if quantity == "coherence time"}
     assert_allclose(thumbs["0.423/f_D [Rappaport 5.4.3]"], 76 * ms, atol=0.5 * ms)
-    # our own definition (|J0(2 pi f_D T_c)| = 0.5 gives 0.2421/f_D, PHYSICS.md sect. 1, calc) is shorter
+    # our own definition (|J0(2 pi f_D T_c)| = 0.5 gives 0.2421/f_D, calc from Clarke 1968) is shorter
     assert_allclose(e.coherence_time_s, 0.2421 / e.max_doppler_hz, rtol=2e-4)  # 0.2421 printed to 4 digits
 
 
@@ -87,7 +88,7 @@ def test_underwater_doppler_uses_the_speed_of_sound():
 
 def test_wideband_doppler_is_evaluated_at_the_upper_band_edge():
     """underwater_modem.toml's channel: 6 kHz at 12 kHz is 50 % of the carrier, above the
-    WIDEBAND_FRACTION of 2 % (PHYSICS.md sect. 2, common practice: evaluate at f_c + B/2 and
+    WIDEBAND_FRACTION of 2 % (common practice: evaluate at f_c + B/2 and
     tell the user to resample)."""
     e = environment(carrier="12 kHz", propagation_speed="1500 m/s", max_speed="0.5 m/s", max_excess_delay="4 ms",
                     rms_delay_spread="1 ms", radio={"bandwidth": "6 kHz", "snr": "15 dB"})
@@ -129,7 +130,7 @@ def test_strong_line_of_sight_still_decorrelates():
 
 
 def test_coherence_correlation_rule_changes_the_definition():
-    """J0(2 pi f_D T_c) = 0.9 gives 0.1020/f_D (PHYSICS.md sect. 1, calc; printed to 4 digits)."""
+    """J0(2 pi f_D T_c) = 0.9 gives 0.1020/f_D (calc from Clarke 1968's J0; printed to 4 digits)."""
     e = environment(carrier="2 GHz", max_speed="120 km/h", max_excess_delay="1 us",
                     rules={"coherence_correlation": 0.9})
     assert_allclose(e.coherence_time_s * e.max_doppler_hz, 0.1020, atol=5e-5)
@@ -140,7 +141,7 @@ def test_coherence_correlation_rule_changes_the_definition():
 
 def test_catalogue_profile_eva():
     """EVA, 3GPP TS 36.101 Annex B.2.1: the standard states 357 ns; its taps give 356.7 ns (calc,
-    PHYSICS.md sect. 3); the last tap (2510 ns, -16.9 dB) is within the 30 dB threshold."""
+    Rappaport eqs. 5.36-5.37); the last tap (2510 ns, -16.9 dB) is within the 30 dB threshold."""
     e = environment(carrier="1.9 GHz", max_speed="300 km/h", profile="EVA")
     assert_allclose(e.rms_delay_spread_s, 356.7 * ns, atol=0.05 * ns)  # printed to 0.1 ns
     assert_allclose(e.rms_delay_spread_s, 357 * ns, atol=0.5 * ns)  # the stated, rounded value
@@ -153,7 +154,7 @@ def test_catalogue_profile_eva():
 def test_normalised_tdl_profile_scaled_to_300ns():
     """3GPP TR 38.901 sect. 7.7.3 scales a normalised TDL table by multiplying its delays by the
     wanted spread, so the rms is 300 ns times the table's own rms. That rms "computes to 1.000"
-    (PHYSICS.md sect. 3, calc): for our TDL-A taps it is 1.000058, so the result is 300.017 ns,
+    (TR 38.901 sect. 7.7.2 normalisation, calc): for our TDL-A taps it is 1.000058, so the result is 300.017 ns,
     not exactly 300 ns. We follow the standard (the delays are not re-fitted) and record it."""
     from numerology.profiles import get_profile
 
@@ -270,7 +271,7 @@ def test_bounded_profile_hits_rms_and_span(span_s, fraction):
 
 @pytest.mark.parametrize("path_m, delay_s, tolerance_s, source", [
     (30.0, 100 * ns, 0.1 * ns, "common practice: 30 m of path is 100 ns (100.07 ns)"),
-    (1000.0, 3.336 * us, 0.0005 * us, "PHYSICS.md sect. 4: each km of path difference is 3.336 us"),
+    (1000.0, 3.336 * us, 0.0005 * us, "calc, 1 km / c: each km of path difference is 3.336 us"),
     (55e3, 183.5 * us, 0.05 * us, "broadcast_sfn.toml: 55 km of path difference is about 185 us (calc 183.46)"),
 ])
 def test_path_difference_to_delay(path_m, delay_s, tolerance_s, source):

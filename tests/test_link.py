@@ -52,14 +52,14 @@ def test_doppler_term_is_the_exact_integral():
     ici = doppler.doppler_ici(env.max_doppler_hz, LTE.useful_symbol_s)
     assert_allclose(ev.demand["doppler_ici"][0], ici, rtol=1e-12)
     assert_allclose(ev.terms["doppler"][0], ici / (1 - ici), rtol=1e-12)
-    # small-argument check (2 pi x)^2/24 within 1 % at x = 0.015 (PHYSICS.md sect. 5)
+    # small-argument check (2 pi x)^2/24 within 1 % at x = 0.015 (Russell & Stuber, Proc. IEEE VTC 1995)
     assert_allclose(ici, (2 * math.pi * x) ** 2 / 24, rtol=1e-2)
     # never above the Li & Cimini bound (2 pi x)^2 / 12 (IEEE Trans. Commun. 49(3), 2001; from memory)
     assert ici <= (2 * math.pi * x) ** 2 / 12
 
 
 def test_oscillator_terms_match_small_offset_formulas():
-    """CFO ICI ~ (pi e)^2/3 (Moose 1994); Wiener ICI after CPE ~ pi beta T_u / 3 (PHYSICS.md sect. 6)."""
+    """CFO ICI ~ (pi e)^2/3 (Moose 1994); Wiener ICI after CPE ~ pi beta T_u / 3 (calc)."""
     req = _req()
     ev, _ = _eval(req, LTE)
     e = 50.0 / LTE.subcarrier_spacing_hz

