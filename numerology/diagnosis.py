@@ -84,7 +84,7 @@ def diagnose(req: Requirements) -> Diagnosis:
         own = [o for o in options if o.relaxation.key == key or (key == "search.spacing_family"
                                                                   and o.relaxation.key.startswith("search.spacing"))]
         rest = [o for o in options if o not in own]
-        singles = searcher.singles(own + rest)
+        singles = searcher.singles(own + rest, options_first=True)
         return _finish(diagnosis, searcher, singles, [], own[:3])
     conflict = rule_conflict(req, oracle)
     statement = (f"no design with a spacing in the window ({account.summary()}) passes these together: "

@@ -442,8 +442,11 @@ class Searcher:
                                   share=_share(current, value, far, knob.dimension))
         return None
 
-    def singles(self, options) -> list:
+    def singles(self, options, options_first: bool = False) -> list:
         """Every numeric key and every option of the candidate space that alone makes the request feasible."""
+        if options_first:
+            first = working_options(self.oracle, options)
+            return first + self.singles(())
         out = []
         for knob, current, far in self.knobs():
             found = self.nearest(knob, current, far)
@@ -627,6 +630,8 @@ def working_options(oracle: Oracle, options) -> list:
     out, done = [], set()
     for option in options:
         key = option.relaxation.key
+        if key == "search.spacing_family":  # each family is a change of its own
+            key = (key, option.relaxation.value)
         if key in done:
             continue
         if oracle.cheap(option.changes()) and oracle.exact(option.changes()) is True:

@@ -36,8 +36,10 @@ from .environment import Environment
 from .requirements import Requirements
 from .units import engineering
 
-#: Points of the account's log grid per octave of spacing (about 4.4 % apart).
+#: Points of the account's log grid per octave of spacing (about 4.4 % apart), and of the finer grid between
+#: two of them where the bounds meet.
 POINTS_PER_OCTAVE = 16
+FINE_POINTS = 64
 #: The largest FFT a requirement may allow (requirements.SCHEMA, search.max_fft_size): no design has a spacing
 #: below the bandwidth over it, since its sample rate must cover the bandwidth.
 LARGEST_FFT = 2**22
@@ -209,6 +211,20 @@ def spacing_account(environment: Environment, req: Requirements, ignore=()) -> A
     names = list(passes)
     table = np.stack([passes[k] for k in names])
     ok = np.all(table, axis=0)
+    if not ok.any() and table.any(axis=1).all():
+        # A window narrower than one grid step lies between the two grid points where the bounds meet:
+        # look there on a finer grid.
+        first = np.argmax(table, axis=1)
+        last = grid.size - 1 - np.argmax(table[:, ::-1], axis=1)
+        top, bottom = int(first.max()), int(last.min())
+        if top == bottom + 1:
+            fine = np.geomspace(grid[bottom], grid[top], FINE_POINTS + 2)[1:-1]
+            fine_margins = relaxed_margins(fine, environment, req, ignore)
+            if np.all([fine_margins[k] >= 0 for k in names], axis=0).any():
+                grid = np.concatenate([grid[:top], fine, grid[top:]])
+                passes = {k: np.concatenate([passes[k][:top], fine_margins[k] >= 0, passes[k][top:]]) for k in names}
+                table = np.stack([passes[k] for k in names])
+                ok = np.all(table, axis=0)
     if ok.any():
         return Account(grid, passes, _open_window(grid, table, names, environment, req), ())
     window, conflict = _crossing(grid, table, names, environment, req)
