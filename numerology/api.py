@@ -350,9 +350,12 @@ class SolveResult:
 
     def __str__(self) -> str:
         if not self.feasible:
-            tips = "; ".join(str(r) for r in self.diagnosis.relaxations) if self.diagnosis else ""
-            return f"infeasible: conflict {', '.join(self.diagnosis.conflict) if self.diagnosis else '?'}" + (
-                f"; feasible if {tips}" if tips else "")
+            if self.diagnosis is None:
+                return "infeasible (no diagnosis run)"
+            tips = "; ".join(str(r) for r in self.diagnosis.relaxations)
+            pairs = "; ".join(" and ".join(str(r) for r in pair) for pair in self.diagnosis.pairs)
+            return f"infeasible: {self.diagnosis.statement}" + (f"; feasible if {tips}" if tips else "") + (
+                f"; feasible if both {pairs}" if pairs else "")
         best = self.designs[0].check
         return f"{len(self.designs)} designs; best {best.design}: binding {best.binding_rule.name}"
 
@@ -376,8 +379,11 @@ class SolveResult:
             "neighbours": [n.to_json() for n in self.neighbours],
         }
         if not self.feasible and self.diagnosis is not None:
-            body["conflict"] = list(self.diagnosis.conflict)
-            body["relaxations"] = [r.to_json() for r in self.diagnosis.relaxations]
+            diagnosis = self.diagnosis.to_json()
+            body["conflict"] = diagnosis.pop("conflict")
+            body["relaxations"] = diagnosis.pop("relaxations")
+            body["relaxation_pairs"] = diagnosis.pop("relaxation_pairs")
+            body["diagnosis"] = diagnosis
         return body
 
 
@@ -428,8 +434,10 @@ def solve(req: Requirements, *, objective: str | None = None, top: int = 5, expl
         raise InputError("top", f"expected a whole number from 1 to 100, got {top!r}")
     explain, with_limits = _flag(explain, "explain"), _flag(with_limits, "with_limits")
     objective = objective or req.goals.objective
-    budget.check_search(req)  # before any work: a search beyond the budget says what to narrow
     environment = derive_environment(req)
+    # before the search: a search beyond the budget says what to narrow (the automatic family's size is
+    # known once the environment is)
+    budget.check_search(req, spacings=_family_size(req, environment))
     found = solver.search(req, environment, objective=objective, top=top)
     if not found.feasible:
         diagnosis = None
@@ -461,6 +469,15 @@ def solve(req: Requirements, *, objective: str | None = None, top: int = 5, expl
         relaxed = _what_relaxing_buys(req, environment, objective, best, float(ranked.keys[0]))
         neighbours = _neighbours(req, environment, best.design)
     return SolveResult(req, environment, objective, found.window, designs, pareto, found.stats, relaxed, neighbours)
+
+
+def _family_size(req, environment) -> int | None:
+    """The number of spacings of an automatic family (None for the others: counted from the request)."""
+    if req.search.spacing_family != "auto":
+        return None
+    from .candidates import spacing_family
+
+    return int(spacing_family(req, environment).size)
 
 
 def _what_relaxing_buys(req, environment, objective, best: CheckResult, best_key: float) -> Relaxed | None:
@@ -501,7 +518,7 @@ def _neighbours(req, environment, design: Design) -> tuple:
 
     from .candidates import spacing_family
 
-    family = spacing_family(req)
+    family = spacing_family(req, environment)
     variants = []
     i = int(np.argmin(np.abs(family - design.subcarrier_spacing_hz)))
     for j, label in ((i + 1, "next larger spacing"), (i - 1, "next smaller spacing")):

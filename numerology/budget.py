@@ -136,12 +136,15 @@ class SearchSize:
                 + self.spacings * self.fft_sizes * 64 + self.lattices * 64)
 
 
-def search_size(req) -> SearchSize:
+def search_size(req, spacings: int | None = None) -> SearchSize:
     """What the search of a requirement set would build, counted without building it.
 
     Parameters
     ----------
     req : Requirements
+    spacings : int, optional
+        The family's size where it is known (an automatic family, once the environment is derived);
+        by default counted from the request (for an automatic family, its largest possible size).
 
     Returns
     -------
@@ -155,8 +158,12 @@ def search_size(req) -> SearchSize:
     from . import candidates as cand
 
     search = req.search
-    if search.spacing_family == "scalable":
+    if spacings is not None:
+        spacings = int(spacings)
+    elif search.spacing_family == "scalable":
         spacings = int(search.spacing_exponents[1] - search.spacing_exponents[0] + 1)
+    elif search.spacing_family == "auto":  # the scalable family, or at most spacing_steps of the finer lattice
+        spacings = max(int(search.spacing_exponents[1] - search.spacing_exponents[0] + 1), int(search.spacing_steps))
     elif search.spacing_family == "range":
         spacings = int(search.spacing_steps)
     else:
@@ -180,12 +187,12 @@ def _lattice_count(req) -> int:
     return pairs * t_max - (1 if rectangular else 0)  # a pilot on every resource element carries no data
 
 
-def check_search(req) -> SearchSize:
+def check_search(req, spacings: int | None = None) -> SearchSize:
     """Refuse a search beyond :data:`MAX_CANDIDATES`, :data:`MAX_SPACING_FFT_PAIRS` or :data:`MEMORY_BYTES`.
 
     The message names the setting to narrow and the value that would fit.
     """
-    size = search_size(req)
+    size = search_size(req, spacings)
     place = f"{req.path}: search"
     pairs = size.spacings * size.fft_sizes
     if pairs > MAX_SPACING_FFT_PAIRS:
@@ -212,7 +219,7 @@ def _narrowing(req, size: SearchSize, factor: float, ffts: bool = False) -> str:
     fit = max(1, math.floor(size.spacings / factor))
     if search.spacing_family == "scalable":
         advice = f"narrow search.spacing_exponents to at most {fit} exponents (now {size.spacings})"
-    elif search.spacing_family == "range":
+    elif search.spacing_family in ("range", "auto"):
         advice = f"lower search.spacing_steps from {size.spacings} to at most {fit}"
     else:
         advice = f"list at most {fit} spacings in search.spacings (now {size.spacings})"

@@ -2,12 +2,12 @@
 
 Candidates are built in the order the physics allows pruning:
 
-1. the subcarrier-spacing **window**: every rule evaluated on a *relaxed*
-   design for each spacing (the shortest cyclic prefix that covers the
-   delay, no pilot overhead, the densest pilots for the aliasing rule, the
-   shortest slot, the SINR without estimation error or echoes). Each relaxed
-   margin bounds the margin of every real design with that spacing from
-   above, so a spacing outside the window can never pass;
+1. the subcarrier-spacing **window** (``numerology.spacing``): every rule
+   evaluated on a *relaxed* design for each spacing (the shortest cyclic
+   prefix that covers the delay, no pilot overhead, the densest pilots for
+   the aliasing rule, the shortest slot, the SINR without estimation error or
+   echoes). Each relaxed margin bounds the margin of every real design with
+   that spacing from above, so a spacing outside the window can never pass;
 2. FFT sizes and sample rates for each spacing in the family and window;
 3. cyclic prefixes as whole samples from the shortest that covers the delay;
 4. pilot arrangements (``numerology.arrangement``) up to the aliasing limit.
@@ -26,28 +26,70 @@ from .arrangement import SCOPE_CODE
 from .design import DesignArrays
 from .environment import Environment
 from .requirements import Requirements
+from .spacing import (Window, account_range, densest_pilots_alias_scale, relaxed_margins,  # noqa: F401 (re-exported)
+                      spacing_window)
 
 #: Cyclic prefixes tried, as multiples of the shortest that covers the delay.
 CP_FACTORS = (1.0, 1.25, 1.5, 2.0, 3.0, 4.0)
 #: Largest oversampling of the channel bandwidth by the sample rate (sizes beyond twice the smallest
 #: usable FFT are dropped as well).
 MAX_OVERSAMPLING = 4.0
-#: Points of the continuous spacing grid used to locate the window's edges.
-WINDOW_GRID = 160
+#: Steps per octave of the finer lattice base x 2^(k/16) that the automatic family uses where the rules
+#: allow no spacing base x 2^mu.
+AUTO_STEPS_PER_OCTAVE = 16
 
 
 # --- families --------------------------------------------------------------
 
 
-def spacing_family(req: Requirements) -> np.ndarray:
-    """The subcarrier spacings the search may use (Hz), ascending."""
+def spacing_family(req: Requirements, environment: Environment | None = None, ignore=()) -> np.ndarray:
+    """The subcarrier spacings the search may use (Hz), ascending.
+
+    The automatic family (``search.spacing_family = "auto"``) follows the
+    spacings the rules allow (those where every relaxed margin of
+    ``numerology.spacing`` passes, the rules in ``ignore`` left out): the
+    scalable family base x 2^mu when one of its spacings is allowed (or none
+    is allowed anywhere, or no ``environment`` is given), else the allowed
+    points of the finer lattice base x 2^(k/16) (a broadcast or acoustic
+    window between two members of the cellular family, or beyond them), every
+    second, fourth, ... point where more than ``search.spacing_steps`` are
+    allowed. The lattice does not depend on the window's edges, so a spacing
+    that stays allowed stays in the family.
+    """
     search = req.search
+    if search.spacing_family == "auto":
+        scalable = _scalable(req)
+        if environment is None or _allowed(scalable, environment, req, ignore).any():
+            return scalable
+        low, high = account_range(req)
+        step = 1.0 / AUTO_STEPS_PER_OCTAVE
+        base = search.spacing_base_hz
+        k = np.arange(np.ceil(np.log2(low / base) / step), np.floor(np.log2(high / base) / step) + 1)
+        lattice = base * 2.0 ** (k * step)
+        allowed = _allowed(lattice, environment, req, ignore)
+        if not allowed.any():
+            return scalable
+        k = k[allowed]
+        # At most spacing_steps spacings; a stride of a power of two keeps the points of a wider window's
+        # family that a narrower window still allows.
+        stride = 2 ** max(0, int(np.ceil(np.log2(k.size / search.spacing_steps))))
+        return lattice[allowed][k % stride == 0]
     if search.spacing_family == "scalable":
-        low, high = search.spacing_exponents
-        return search.spacing_base_hz * 2.0 ** np.arange(low, high + 1)
+        return _scalable(req)
     if search.spacing_family == "range":
         return np.geomspace(search.spacing_min_hz, search.spacing_max_hz, search.spacing_steps)
     return np.unique(np.asarray(search.spacings_hz, dtype=float))
+
+
+def _scalable(req: Requirements) -> np.ndarray:
+    low, high = req.search.spacing_exponents
+    return req.search.spacing_base_hz * 2.0 ** np.arange(low, high + 1)
+
+
+def _allowed(spacings_hz, environment: Environment, req: Requirements, ignore=()) -> np.ndarray:
+    """Where every relaxed margin passes (a NaN margin fails)."""
+    margins = relaxed_margins(spacings_hz, environment, req, ignore)
+    return np.all([m >= 0 for m in margins.values()], axis=0) if margins else np.ones(np.shape(spacings_hz), bool)
 
 
 def smooth_numbers(low: int, high: int) -> np.ndarray:
@@ -174,170 +216,6 @@ def pilot_arrangements(req: Requirements) -> Arrangements:
     out = Arrangements(*columns)
     fraction = arrangement.pilot_fraction(out.symbols, out.period, out.freq, out.shared.astype(bool))
     return out.take(np.flatnonzero(fraction < 1))  # a pilot on every resource element leaves none for data
-
-
-# --- relaxed designs and the window -----------------------------------------
-
-
-def _relaxed_overrides(spacing_hz, environment: Environment, req: Requirements) -> dict:
-    """Best-case symbols of a relaxed design at each spacing (see module docstring)."""
-    df = np.asarray(spacing_hz, dtype=float)
-    guard_s = link.minimal_guard_s(environment, req, 1.0 / df)
-    return {
-        # the shortest continuous CP the guard rule accepts (the factor keeps rounding from failing it)
-        "N": np.ones_like(df), "N_cp": guard_s * df * (1 + 1e-12),
-        "N_u": np.floor(req.radio.occupancy * req.radio.bandwidth_hz / df + 1e-9),
-        "D_f": np.full_like(df, np.inf), "D_t": np.full_like(df, np.inf), "s_p": np.zeros_like(df),
-        "rho_pil": np.zeros_like(df),
-        "N_slot": np.full_like(df, float(min(req.search.symbols_per_slot))),
-        "R_res": np.zeros_like(df), "N_x": np.zeros_like(df), "P_x": np.full_like(df, np.inf),
-        "clock_mismatch": lambda rate: np.zeros(np.shape(rate)),  # the clock is matched by the FFT size
-        # Densest pilots are the best case for aliasing (no pilot overhead is the best case for the rest).
-        "alias_scale": densest_pilots_alias_scale,
-    }
-
-
-def densest_pilots_alias_scale(d_f, d_t, s, df, ts, tau, fd):
-    """The aliasing rule's best case before pilots are chosen: a pilot on every resource element."""
-    del d_f, d_t, s  # the lattice is not chosen yet
-    return link.pilots.aliasing_scale(1, 1, 0, df, ts, tau, fd)
-
-
-def _placeholder(df) -> DesignArrays:
-    one = np.ones(np.shape(df), dtype=np.int64)
-    return DesignArrays(name="relaxed", subcarrier_spacing_hz=df, fft_size=one, cp_samples=0 * one,
-                        used_subcarriers=one, pilot_freq_spacing=one, pilot_time_spacing=one, pilot_shift=0 * one,
-                        symbols_per_slot=one)
-
-
-def relaxed_margins(spacing_hz, environment: Environment, req: Requirements, ignore=(), only=None) -> dict:
-    """Upper bounds on every applicable rule's margin at each spacing: name -> array."""
-    df = np.asarray(spacing_hz, dtype=float)
-    evaluation = link.evaluate(_placeholder(df), environment, req, estimation=False,
-                               overrides=_relaxed_overrides(df, environment, req))
-    out = {}
-    for rule in evaluation.rules:
-        if only is not None and rule.name != only:
-            continue
-        if rule.name in ignore or rule.gate:
-            continue  # yes/no rules do not depend on the spacing (the FFT size matches the clock)
-        out[rule.name] = np.broadcast_to(evaluation.margin[rule.name], df.shape)
-    return out
-
-
-@dataclass(frozen=True)
-class Window:
-    """The feasible subcarrier-spacing window and the rules that bound it."""
-
-    min_hz: float
-    max_hz: float
-    lower_bound_rule: str | None
-    upper_bound_rule: str | None
-    searched_min_hz: float
-    searched_max_hz: float
-
-    @property
-    def empty(self) -> bool:
-        return not self.min_hz <= self.max_hz
-
-    def contains(self, spacing_hz, rtol=1e-9):
-        s = np.asarray(spacing_hz, dtype=float)
-        return (s >= self.min_hz * (1 - rtol)) & (s <= self.max_hz * (1 + rtol))
-
-    def to_json(self) -> dict:
-        return {"min_subcarrier_spacing_hz": None if self.empty else self.min_hz,
-                "max_subcarrier_spacing_hz": None if self.empty else self.max_hz,
-                "lower_bound_rule": self.lower_bound_rule, "upper_bound_rule": self.upper_bound_rule}
-
-
-def spacing_window(environment: Environment, req: Requirements, ignore=()) -> Window:
-    """The continuous window of subcarrier spacings that relaxed designs allow.
-
-    The grid spans the family (a factor 4 beyond each end); each edge is then
-    refined by bisection on the rule that fails beyond it, to 1e-9 relative.
-    """
-    family = spacing_family(req)
-    lo, hi = family[0] / 4, family[-1] * 4
-    grid = np.geomspace(lo, hi, WINDOW_GRID)
-    margins = relaxed_margins(grid, environment, req, ignore)
-    if not margins:
-        return Window(lo, hi, None, None, lo, hi)
-    stack = np.stack([margins[k] for k in margins])
-    ok = np.all(stack >= 0, axis=0)
-    names = list(margins)
-    if not ok.any():
-        # Name the rules that fail at the spacing where the fewest fail (a NaN margin fails, as in `ok`).
-        worst = int(np.argmin(np.sum(~(stack >= 0), axis=0)))
-        failing = [names[i] for i in np.flatnonzero(~(stack[:, worst] >= 0))]
-        return Window(np.inf, -np.inf, failing[0], failing[-1], lo, hi)
-    first, last = int(np.argmax(ok)), int(len(ok) - 1 - np.argmax(ok[::-1]))
-    lower_rule = upper_rule = None
-    min_hz, max_hz = grid[first], grid[last]
-    if first > 0:
-        lower_rule = names[int(np.argmin(stack[:, first - 1]))]
-        min_hz = _edge(grid[first - 1], grid[first], environment, req, lower_rule)
-    if last < len(grid) - 1:
-        upper_rule = names[int(np.argmin(stack[:, last + 1]))]
-        max_hz = _edge(grid[last], grid[last + 1], environment, req, upper_rule)
-    return Window(float(min_hz), float(max_hz), lower_rule, upper_rule, float(lo), float(hi))
-
-
-#: Points evaluated at once while narrowing a window edge.
-EDGE_POINTS = 40
-#: Bracket width (in log spacing) below which an edge is finished one point at a time.
-EDGE_FINE_BELOW = 1e-3
-#: Final width of an edge's bracket (in log spacing, i.e. relative).
-EDGE_RTOL = 1e-10
-
-
-def _edge(a, b, environment, req, rule_name) -> float:
-    """The spacing between grid points a < b where the bounding rule's relaxed margin changes sign.
-
-    The bracket is narrowed ``EDGE_POINTS`` points at a time (log scale) to
-    ``EDGE_FINE_BELOW``, then one point at a time by the Illinois variant of
-    regula falsi on the margin itself (superlinear where the margin is smooth;
-    a bisection step whenever a step gains too little, as where the margin
-    jumps) to ``EDGE_RTOL`` relative: a few single evaluations, which matters
-    for rules that are costly per spacing (a phase-noise mask). The passing
-    end is returned (so the window's edges pass).
-    """
-    def margin(log_x):
-        x = np.exp(np.atleast_1d(log_x))
-        return relaxed_margins(x, environment, req, only=rule_name)[rule_name]
-
-    lo, hi = np.log(a), np.log(b)
-    lo_passes = bool(margin(lo)[0] >= 0)
-    while hi - lo > EDGE_FINE_BELOW:
-        inside = np.linspace(lo, hi, EDGE_POINTS + 2)[1:-1]
-        ok = margin(inside) >= 0
-        change = np.flatnonzero(ok != lo_passes)
-        if change.size == 0:
-            lo = inside[-1]
-        else:
-            j = int(change[0])
-            hi = inside[j]
-            lo = inside[j - 1] if j > 0 else lo
-    f_lo, f_hi = float(margin(lo)[0]), float(margin(hi)[0])
-    kept = 0  # the end the last step kept: +1 hi, -1 lo (Illinois halves a value kept twice)
-    widths = [np.inf, np.inf]  # the bracket two steps back must at least halve, else bisect
-    while hi - lo > EDGE_RTOL:
-        width = hi - lo
-        x = np.nan
-        if width < 0.5 * widths[0] and np.isfinite(f_lo - f_hi) and f_lo != f_hi:
-            x = lo + f_lo * width / (f_lo - f_hi)
-        if not lo < x < hi:
-            x = 0.5 * (lo + hi)
-        widths = [widths[1], width]
-        f_x = float(margin(x)[0])
-        if (f_x >= 0) == lo_passes:
-            lo, f_lo = x, f_x
-            f_hi = f_hi / 2 if kept == +1 else f_hi
-            kept = +1
-        else:
-            hi, f_hi = x, f_x
-            f_lo = f_lo / 2 if kept == -1 else f_lo
-            kept = -1
-    return float(np.exp(lo if lo_passes else hi))
 
 
 # --- enumeration -----------------------------------------------------------

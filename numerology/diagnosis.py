@@ -1,19 +1,26 @@
-"""Why a request is infeasible, and what to relax.
+"""Why a request is infeasible, and what to change: one account, told the same way everywhere.
 
-Two answers, both found with the solver itself as the oracle:
+1. **The spacing axis** (``numerology.spacing``): every rule's relaxed margin
+   at every spacing. An empty window is explained by the rules whose bounds
+   cross, with the crossing values ("oscillator_ici needs >= 16.5 kHz;
+   flat_fading allows <= 15.2 kHz"), or by a rule that passes at no spacing.
+2. **The candidate space**, when the window is open: a spacing family with no
+   member in the window, or FFT sizes and a sample clock that give no
+   numerology at the window's spacings, is the cause, named by its key.
+3. **Rules beyond the window**, when candidates exist but none passes: a
+   smallest set of rules that no design passes together (a deletion filter
+   with the solver as oracle: drop each rule in turn and keep it out while
+   the rest stays infeasible).
+4. **Relaxations** (``numerology.relaxation``): every key that alone makes the
+   request feasible, with its nearest value; where none does, the smallest
+   pairs. Each is re-solved, as pasted, before it is shown.
 
-* the **conflict**: a smallest set of rules and goals that cannot hold
-  together (a deletion filter: drop each one in turn and keep it out while the
-  rest stays infeasible; what remains is irreducible);
-* the **relaxations**: for each goal or bound the user could move, the nearest
-  value (bisection on that key alone, the rest as required) at which the
-  request becomes feasible; every suggestion is re-solved and kept only if it
-  really is feasible.
+The window, the conflict and the relaxations come from the same account and
+the same oracle, so the terminal, the JSON and the design note agree.
 """
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -21,214 +28,154 @@ import numpy as np
 from . import link
 from .environment import derive_environment
 from .errors import InputError
+from .relaxation import (KNOBS, Oracle, Relaxation, Searcher, auto_option, family_options,  # noqa: F401
+                         quantity_string, space_options)
 from .requirements import Requirements
+from .spacing import Window, spacing_account
 from .units import engineering
 
-#: Relative precision of a suggested value.
-RELAX_RTOL = 0.01
-MAX_STEPS = 24
+CAUSES = ("rules", "candidates")
 
 
 @dataclass(frozen=True)
-class Relaxation:
-    key: str  # dotted requirement key
-    value: str  # quantity string ready to paste
-    value_si: float
-    current_si: float
-    direction: str  # "at most" / "at least"
-    dimension: str = "ratio"  # how to show the values (see RELAXABLE)
+class Diagnosis:
+    """The diagnosis of an infeasible request (see the module docstring)."""
 
-    @property
-    def current(self) -> str:
-        """The value the requirement file has now, written as the suggestion is."""
-        return quantity_string(self.current_si, self.dimension)
+    cause: str  # "rules" or "candidates"
+    conflict: tuple  # rule names; for the candidate space, the key that empties it
+    statement: str  # the conflict in one sentence, in engineering units
+    window: Window
+    bounds: tuple = ()  # spacing.Bound of each rule of a conflict on the spacing axis
+    relaxations: tuple = ()  # Relaxation: each alone makes the request feasible
+    pairs: tuple = ()  # (Relaxation, Relaxation): where no single change does
 
     def to_json(self) -> dict:
-        return {"key": self.key, "value": self.value, "value_si": self.value_si, "current_si": self.current_si}
+        return {"cause": self.cause, "statement": self.statement, "conflict": list(self.conflict),
+                "bounds": [b.to_json() for b in self.bounds],
+                "relaxations": [r.to_json() for r in self.relaxations],
+                "relaxation_pairs": [[r.to_json() for r in pair] for pair in self.pairs]}
 
-    def __str__(self) -> str:
-        return f"{self.key} {self.direction} {self.value}"
 
-
-def _feasible(req: Requirements, ignore=()) -> bool:
-    from .solver import any_feasible
-
+def diagnose(req: Requirements) -> Diagnosis:
+    """The conflict and the relaxations of an infeasible request."""
     try:
         environment = derive_environment(req)
-    except (InputError, ValueError):  # a trial value outside what the environment model accepts
-        return False
-    return any_feasible(req, environment, ignore)
+    except (InputError, ValueError):
+        return Diagnosis("rules", (), "the environment cannot be derived", Window(np.inf, -np.inf, None, None, 0, 0))
+    account = spacing_account(environment, req)
+    window = account.window
+    oracle = Oracle(req)
+    searcher = Searcher(req, oracle)
+    options = space_options(req, window)
+    if window.empty:
+        conflict = tuple(b.rule for b in account.conflict)
+        statement = account.summary()
+        if any(b.nowhere for b in account.conflict):
+            statement += " (even with the most favourable cyclic prefix, pilots and slot)"
+        diagnosis = Diagnosis("rules", conflict, statement, window, account.conflict)
+        sides = [(b.rule,) for b in account.conflict] if len(account.conflict) > 1 else [conflict, conflict]
+        # a family that cannot follow the window may need to, once a key has moved it
+        follow = [auto_option(req)] if req.search.spacing_family != "auto" else []
+        return _with_relaxations(diagnosis, searcher, options, sides, follow)
+    finding = space_finding(req, environment, window)
+    if finding is not None:
+        key, statement = finding
+        diagnosis = Diagnosis("candidates", (key,), statement, window)
+        own = [o for o in options if o.relaxation.key == key or (key == "search.spacing_family"
+                                                                  and o.relaxation.key.startswith("search.spacing"))]
+        rest = [o for o in options if o not in own]
+        singles = searcher.singles(own + rest, options_first=True)
+        return _finish(diagnosis, searcher, singles, [], own[:3])
+    conflict = rule_conflict(req, oracle)
+    statement = (f"no design with a spacing in the window ({account.summary()}) passes these together: "
+                 + ", ".join(conflict))
+    diagnosis = Diagnosis("rules", conflict, statement, window)
+    return _with_relaxations(diagnosis, searcher, options, [(name,) for name in conflict], [])
 
 
-def conflict_set(req: Requirements) -> tuple[str, ...]:
-    """A smallest set of rules (goals included) that conflict (deletion filter)."""
+def _with_relaxations(diagnosis, searcher, options, sides, pair_options) -> Diagnosis:
+    return _finish(diagnosis, searcher, searcher.singles(options), sides, pair_options)
+
+
+def _finish(diagnosis, searcher, singles, sides, pair_options) -> Diagnosis:
+    import dataclasses
+
+    pairs = () if singles else tuple(searcher.pairs(sides, pair_options))
+    return dataclasses.replace(diagnosis, relaxations=tuple(singles), pairs=pairs)
+
+
+def describe_family(req: Requirements) -> str:
+    """The spacing family as the requirement file sets it, in words."""
+    search = req.search
+    name = search.spacing_family
+    if name in ("scalable", "auto"):
+        low, high = search.spacing_exponents
+        return (f'search.spacing_family = "{name}": {engineering(search.spacing_base_hz, "Hz")} x 2^mu, '
+                f"mu = {low} .. {high}")
+    if name == "range":
+        return (f'search.spacing_family = "range": {search.spacing_steps} spacings from '
+                f"{engineering(search.spacing_min_hz, 'Hz')} to {engineering(search.spacing_max_hz, 'Hz')}")
+    return f'search.spacing_family = "list": {len(set(search.spacings_hz))} spacings'
+
+
+def space_finding(req: Requirements, environment, window: Window):
+    """(key, statement) when the candidate space has nothing in an open window, else None."""
+    from . import candidates as cand
+
+    family = cand.spacing_family(req, environment)
+    inside = family[window.contains(family)]
+    span = f"{engineering(window.min_hz, 'Hz')} .. {engineering(window.max_hz, 'Hz')}"
+    if inside.size == 0:
+        below, above = family[family < window.min_hz], family[family > window.max_hz]
+        nearest = [f"{engineering(below[-1], 'Hz')} below"] if below.size else []
+        nearest += [f"{engineering(above[0], 'Hz')} above"] if above.size else []
+        return "search.spacing_family", (f"the spacing family ({describe_family(req)}) has no spacing in the "
+                                         f"window {span}" + (f"; nearest: {', '.join(nearest)}" if nearest else ""))
+    if cand.numerologies(inside, environment, req)[0].size:
+        return None
+    wide = req.replace("search.max_fft_size", 2**22).replace("search.min_fft_size", 8)
+    _, sizes, _, _ = cand.numerologies(inside, environment, wide)
+    search = req.search
+    have = f"search.min_fft_size = {search.min_fft_size}, search.max_fft_size = {search.max_fft_size}"
+    if sizes.size and sizes.min() > search.max_fft_size:
+        return "search.max_fft_size", (f"the window's spacings ({span}) need an FFT of at least {int(sizes.min())} "
+                                       f"points for the sample rate to cover the bandwidth ({have})")
+    if sizes.size and sizes.max() < search.min_fft_size:
+        return "search.min_fft_size", (f"the window's spacings ({span}) need an FFT of at most {int(sizes.max())} "
+                                       f"points ({have})")
+    if req.radio.sample_clock_hz is not None:
+        return "radio.sample_clock", (f"no FFT size at the window's spacings ({span}) gives a sample rate derived "
+                                      f"from the clock of {engineering(req.radio.sample_clock_hz, 'Hz')}")
+    return "search.fft_sizes", f"no FFT size gives a numerology at the window's spacings ({span}) ({have})"
+
+
+def rule_conflict(req: Requirements, oracle: Oracle) -> tuple:
+    """A smallest set of rules (goals included) that no design passes together (deletion filter).
+
+    A rule is dropped only where the rest is shown infeasible without it; where a test is cut short by the
+    work budget the rule stays (the set is then not necessarily the smallest).
+    """
     names = [rule.name for rule in link.applicable_rules(req) if not rule.gate]
-    if not _feasible(req, ignore=tuple(names)):
+    if oracle.exact((), ignore=tuple(names)) is False:
         # Even with every graded rule left out nothing fits: the yes/no rules conflict.
         return tuple(rule.name for rule in link.applicable_rules(req) if rule.gate)
     keep = list(names)
     for name in names:
         trial = [n for n in keep if n != name]
-        ignore = tuple(n for n in names if n not in trial)
-        if not _feasible(req, ignore=ignore):
+        if oracle.exact((), ignore=tuple(n for n in names if n not in trial)) is False:
             keep = trial  # still infeasible without it: it is not needed for the conflict
     return tuple(keep)
 
 
-#: Keys a user may move: (dotted key, dimension for display, worse-to-better direction, bound).
-#: direction +1: raising the value helps; -1: lowering it helps.
-RELAXABLE = (
-    ("goals.throughput", "bitrate", -1),
-    ("goals.max_latency", "time", +1),
-    ("goals.max_overhead", "ratio", +1),
-    ("environment.max_speed", "speed", -1),
-    ("environment.max_doppler", "frequency", -1),
-    ("environment.max_excess_delay", "time", -1),
-    ("environment.rms_delay_spread", "time", -1),
-    ("radio.snr", "db", +1),
-)
-
-def quantity_string(value: float, dimension: str) -> str:
-    if dimension == "speed":
-        return f"{value * 3.6:.4g} km/h"
-    if dimension == "db":
-        return f"{value:.4g} dB"
-    if dimension == "ratio":
-        return f"{value:.4g}"
-    unit = {"bitrate": "bit/s", "time": "s", "frequency": "Hz"}[dimension]
-    text = engineering(value, unit)
-    return text.replace("us", "us")
+def relaxations(req: Requirements) -> list:
+    """The relaxations of :func:`diagnose` (each alone makes the request feasible)."""
+    return list(diagnose(req).relaxations)
 
 
-def _parse_back(text: str, dimension: str) -> float:
-    """The SI value a user gets by pasting the suggested string (rounding included)."""
-    from .units import parse_db, parse_quantity
-
-    if dimension == "db":
-        return parse_db(text, "relaxation")
-    if dimension == "ratio":
-        return float(text)
-    return parse_quantity(text, dimension, "relaxation")
+def conflict_set(req: Requirements) -> tuple:
+    """The conflict of :func:`diagnose`."""
+    return diagnose(req).conflict
 
 
-def relaxations(req: Requirements) -> list[Relaxation]:
-    """For each movable key, the nearest value that makes the request feasible."""
-    out = []
-    for key, dimension, direction in RELAXABLE:
-        current = req.value(key)
-        if current is None:
-            continue
-        if key == "goals.throughput" and not current > 0:
-            continue
-        if key == "goals.max_overhead" and not current < 1:
-            continue
-        found = _relax_one(req, key, dimension, direction, float(current))
-        if found is not None:
-            out.append(found)
-    return out
-
-
-def _candidate_values(key, current, direction):
-    """The extreme value to try first for a key (the most relaxed sensible value)."""
-    if key == "goals.max_overhead":
-        return 0.999
-    if key == "radio.snr":
-        return min(current + 40.0, 80.0)
-    if direction < 0:
-        if key.startswith("environment."):
-            return current * 1e-3  # a thousandth of the speed or delay: any relief there is this side of it
-        return current * 1e-6 if current > 0 else 0.0
-    return current * 1e3
-
-
-#: Goals whose nearest feasible value is an optimum: the best value of the goal's own quantity among
-#: the designs that meet everything else (one search instead of a bisection).
-GOAL_OBJECTIVES = {"goals.throughput": ("throughput", "throughput", 1.0),
-                   "goals.max_latency": ("latency", "latency", -1.0),
-                   "goals.max_overhead": ("overhead", "overhead", -1.0)}
-
-
-def _goal_optimum(req, key):
-    """The goal's best achievable value with the goal itself left out (None if nothing fits even then)."""
-    from .solver import search
-
-    rule, objective, sign = GOAL_OBJECTIVES[key]
-    try:
-        environment = derive_environment(req)
-    except (InputError, ValueError):
-        return None
-    found = search(req, environment, objective=objective, top=1, ignore=(rule,), pareto=False)
-    return sign * float(found.ranked.keys[0]) if found.feasible else None
-
-
-def _relax_one(req, key, dimension, direction, current) -> Relaxation | None:
-    if key in GOAL_OBJECTIVES:
-        best = _goal_optimum(req, key)
-        if best is None:
-            return None
-        # The optimum is feasible; a value just past it on the other side is the boundary to round towards.
-        bad, good = current, best
-    else:
-        extreme = _candidate_values(key, current, direction)
-        if not _feasible(req.replace(key, extreme)):
-            return None
-        bad, good = _bisect(req, key, dimension, current, extreme)
-    # Round toward the feasible side and check that the pasted value really works.
-    for digits in (3, 4, 6):
-        text = _round_towards(good, bad, dimension, digits)
-        value = _parse_back(text, dimension)
-        if _feasible(req.replace(key, value)):
-            return Relaxation(key, text, value, current, "at least" if direction > 0 else "at most", dimension)
-    return None
-
-
-def _bisect(req, key, dimension, current, extreme):
-    """(infeasible, feasible) values bracketing the boundary to RELAX_RTOL."""
-    bad, good = current, extreme
-    log = dimension not in ("db", "ratio") and bad > 0 and good > 0
-    for _ in range(MAX_STEPS):
-        mid = math.sqrt(bad * good) if log else 0.5 * (bad + good)
-        if _feasible(req.replace(key, mid)):
-            good = mid
-        else:
-            bad = mid
-        if abs(good - bad) <= RELAX_RTOL * abs(good) or (dimension in ("db", "ratio") and abs(good - bad) < 0.05):
-            break
-    return bad, good
-
-
-def _round_towards(good: float, bad: float, dimension: str, digits: int) -> str:
-    """A short quantity string on the feasible side of the boundary."""
-    if dimension == "ratio":
-        step = 10.0 ** -(digits - 1)
-        value = math.ceil(good / step) * step if good > bad else math.floor(good / step) * step
-        return f"{min(value, 1.0):.{digits}g}"
-    if dimension == "db":
-        step = 0.1
-        value = math.ceil(good / step) * step if good > bad else math.floor(good / step) * step
-        return f"{value:.1f} dB"
-    scale = 3.6 if dimension == "speed" else 1.0
-    x = good * scale
-    if x <= 0:
-        return quantity_string(0.0, dimension)
-    exponent = math.floor(math.log10(abs(x))) - (digits - 1)
-    step = 10.0**exponent
-    x = math.ceil(x / step) * step if good > bad else math.floor(x / step) * step
-    return quantity_string(x / scale, dimension)
-
-
-@dataclass(frozen=True)
-class Diagnosis:
-    conflict: tuple
-    relaxations: tuple
-
-    def to_json(self) -> dict:
-        return {"conflict": list(self.conflict), "relaxations": [r.to_json() for r in self.relaxations]}
-
-
-def diagnose(req: Requirements) -> Diagnosis:
-    """The conflict and the relaxations for an infeasible request."""
-    return Diagnosis(conflict_set(req), tuple(relaxations(req)))
-
-
-__all__ = ["Diagnosis", "Relaxation", "diagnose", "conflict_set", "relaxations", "np"]
+__all__ = ["Diagnosis", "Relaxation", "diagnose", "conflict_set", "relaxations", "describe_family",
+           "space_finding", "rule_conflict", "quantity_string", "KNOBS", "family_options"]

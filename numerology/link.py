@@ -143,6 +143,28 @@ def minimal_guard_s(environment: Environment, req: Requirements, useful_symbol_s
         return np.broadcast_to(environment.max_excess_delay_s + allowance, t_u.shape).astype(float)
     delays, powers = environment.taps
     budget = 10 ** (req.rules.max_echo_interference_db / 10)
+    if np.ndim(delays) != 1:
+        return _energy_guard_s(delays, powers, budget, t_u) + allowance
+    # One profile: remembered per useful symbol duration (the spacing grids of a diagnosis repeat them).
+    known = _GUARD_CACHE.setdefault((np.asarray(delays, float).tobytes(), np.asarray(powers, float).tobytes(),
+                                     budget), {})
+    if len(_GUARD_CACHE) > 256 or len(known) > 100_000:
+        _GUARD_CACHE.clear()
+        known = _GUARD_CACHE.setdefault((np.asarray(delays, float).tobytes(), np.asarray(powers, float).tobytes(),
+                                         budget), {})
+    flat = t_u.ravel().tolist()
+    missing = sorted({t for t in flat if t not in known})
+    if missing:
+        known.update(zip(missing, _energy_guard_s(delays, powers, budget, np.array(missing)).tolist()))
+    return np.array([known[t] for t in flat], dtype=float).reshape(t_u.shape) + allowance
+
+
+#: (profile, budget) -> {useful symbol s: shortest guard s}, within a process.
+_GUARD_CACHE: dict = {}
+
+
+def _energy_guard_s(delays, powers, budget, t_u):
+    """The shortest guard whose echo interference meets the budget: bisection, 60 halvings of [0, last tap]."""
     lo = np.zeros(t_u.shape)
     hi = np.full(t_u.shape, float(np.max(delays)) if np.size(delays) else 0.0)
     for _ in range(60):
@@ -150,7 +172,7 @@ def minimal_guard_s(environment: Environment, req: Requirements, useful_symbol_s
         ok = guard_echo(delays, powers, mid, t_u, 0.0) <= budget
         hi = np.where(ok, mid, hi)
         lo = np.where(ok, lo, mid)
-    return hi + allowance
+    return hi
 
 
 def cp_allowance_s(req: Requirements) -> float:
@@ -410,6 +432,8 @@ def _mask_ici(offsets, levels, useful_symbol_s):
 def _doppler_ici(x, spectrum, k_factor):
     """doppler.doppler_ici at normalised Doppler x = f_D T_u, once per distinct (x, K) (K may be per site)."""
     x, k = np.broadcast_arrays(np.asarray(x, dtype=float), np.asarray(k_factor, dtype=float))
+    if x.size == 0:  # no candidate left (an empty stage of the screening)
+        return np.zeros(x.shape)
     if k.ndim == 0 or np.all(k == k.flat[0]):
         k0 = float(k.flat[0]) if k.size else 0.0
         return _on_distinct(lambda u: doppler.doppler_ici(u, 1.0, spectrum, k0), x)

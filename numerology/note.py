@@ -16,7 +16,7 @@ from . import __version__
 from .environment import derivations, rules_of_thumb
 from .output import write_atomic
 from .render_terminal import (CAUTION, LIMIT_LABELS, TERM_LABELS, _quantity, design_line, fmt, relaxed_sentence,
-                              show_margin)
+                              show_margin, window_sentence)
 from .rules import BY_NAME
 from .units import db, engineering, speed_kmh
 
@@ -112,12 +112,11 @@ def _solution_section(solution) -> list[str]:
     w = solution.window
     out = ["## 3. Search", ""]
     if w.empty:
-        out.append("No subcarrier spacing satisfies every rule even with the most favourable cyclic prefix, "
-                   "pilots and slot.")
+        out.append(window_sentence(w) + " This holds even with the most favourable cyclic prefix, pilots and slot.")
     else:
         out.append(f"Subcarrier-spacing window: {engineering(w.min_hz, 'Hz')} to {engineering(w.max_hz, 'Hz')}; "
-                   f"bounded below by `{w.lower_bound_rule or 'the search range'}` and above by "
-                   f"`{w.upper_bound_rule or 'the search range'}`.")
+                   f"bounded below by `{w.lower_bound_rule or 'the largest FFT'}` and above by "
+                   f"`{w.upper_bound_rule or 'one subcarrier filling the band'}`.")
     s = solution.stats
     out.append("")
     out.append(f"{s.candidates:,} candidate designs were in the search space; {s.after_cheap_rules:,} passed the "
@@ -154,14 +153,28 @@ def _infeasible_section(solution) -> list[str]:
     diag = solution.diagnosis
     if diag is None:
         return out + ["(no diagnosis was run)", ""]
-    out.append("Rules and goals in conflict: " + ", ".join(f"`{c}`" for c in diag.conflict) + ".")
+    what = "Conflict" if diag.cause == "rules" else "The candidate space is the cause"
+    out.append(f"{what} ({', '.join(f'`{c}`' for c in diag.conflict)}): {diag.statement}.")
     out.append("")
     if diag.relaxations:
         out.append("Any one of these changes makes the request feasible (each was checked by solving again):")
         out.append("")
-        out += [f"- `{r.key}` {r.direction} `{r.value}`" for r in diag.relaxations]
+        out += [f"- {_change(r)}" for r in diag.relaxations]
+    elif diag.pairs:
+        out.append("No single change is enough; either of these pairs makes the request feasible (each was "
+                   "checked by solving again):")
+        out.append("")
+        out += [f"- {_change(a)}, together with {_change(b)}" for a, b in diag.pairs]
+    else:
+        out.append("No single change, nor any pair of the keys tried, makes the request feasible within the "
+                   "diagnosis's work budget.")
     out.append("")
     return out
+
+
+def _change(relaxation) -> str:
+    text = f"`{relaxation.key}` {relaxation.direction} `{relaxation.value}` (now `{relaxation.current}`)"
+    return text + "".join(f", `{s.key}` = `{s.text}`" for s in relaxation.also)
 
 
 def _design_sections(check, rule_latex, derived_latex) -> list[str]:

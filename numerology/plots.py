@@ -27,6 +27,7 @@ from __future__ import annotations
 
 import io
 import math
+import textwrap
 from dataclasses import dataclass
 
 import numpy as np
@@ -490,7 +491,7 @@ def plot_bytes(req: Requirements, fmt: str, check=None, solution=None, *, grid=D
         speed_max = float(omap.speeds_mps[-1])
     else:
         speed_max = max(3.0 * environment.speed_mps, 10 * KMH)
-    family = candidates.spacing_family(req)
+    family = candidates.spacing_family(req, environment)
     speeds = np.linspace(0.0, speed_max, grid[0])
     smap = spacing_map(req, speeds, np.geomspace(family[0] / 4, family[-1] * 4, 4 * grid[1]), steps=ZOOM_STEPS)
     low, high = np.nanmin(smap.lower_hz, initial=np.inf), np.nanmax(smap.upper_hz, initial=-np.inf)
@@ -499,7 +500,8 @@ def plot_bytes(req: Requirements, fmt: str, check=None, solution=None, *, grid=D
     if low <= high:  # zoom on the window: a factor 8 beyond its extremes, within the searched range
         spacings = np.geomspace(max(low / 8, family[0] / 4), min(high * 8, family[-1] * 4), 4 * grid[1])
         smap = spacing_map(req, speeds, spacings, steps=ZOOM_STEPS)  # the panel draws the grid's edges
-    return _render(req, environment, design, omap, smap, family, fmt)
+    diagnosis = solution.diagnosis if solution is not None and not solution.feasible else None
+    return _render(req, environment, design, omap, smap, family, fmt, diagnosis)
 
 
 def _delay_unit(value_s):
@@ -510,7 +512,7 @@ def _delay_unit(value_s):
     return 1.0, "s"
 
 
-def _render(req, environment, design, omap, smap, family, fmt) -> bytes:
+def _render(req, environment, design, omap, smap, family, fmt, diagnosis=None) -> bytes:
     from matplotlib.figure import Figure
 
     fig = Figure(figsize=(7.5, 10.5), layout="constrained")
@@ -527,12 +529,18 @@ def _render(req, environment, design, omap, smap, family, fmt) -> bytes:
     order = [name for name in BY_NAME if name in drawn]  # one style per rule in both panels
     styles = {name: STYLES[i % len(STYLES)] for i, name in enumerate(order)}
     if omap is None:
-        top.text(0.5, 0.5, "no design to map: the request is infeasible\n(run numerology solve for the diagnosis)",
-                 ha="center", va="center", transform=top.transAxes)
+        why = ("(run numerology solve for the diagnosis)" if diagnosis is None
+               else "\n".join(textwrap.wrap(("conflict: " if diagnosis.cause == "rules" else "the candidate space: ")
+                                             + diagnosis.statement, 70)))
+        top.text(0.5, 0.5, f"no design to map: the request is infeasible\n{why}",
+                 ha="center", va="center", transform=top.transAxes, fontsize=9)
         top.set_axis_off()
     else:
         _draw_map(top, omap, map_edges, styles, scale, unit)
-    _draw_window(bottom, environment, design, smap, window_edges, family, styles, hz_scale, hz_unit)
+    _draw_window(bottom, environment, design, smap, window_edges, family, styles, hz_scale, hz_unit,
+                 explained=diagnosis is not None and bool(diagnosis.bounds))
+    if diagnosis is not None and diagnosis.bounds:
+        _draw_conflict(bottom, environment, diagnosis.bounds, hz_scale)
     buffer = io.BytesIO()
     metadata = {"Date": None} if fmt == "svg" else {"Software": None}
     fig.savefig(buffer, format=fmt, dpi=150, metadata=metadata)
@@ -606,7 +614,8 @@ def _draw_map(ax, omap: OperatingMap, edges, styles, scale, unit):
     ax.grid(True, color="#bbbbbb", linewidth=0.5)
 
 
-def _draw_window(ax, environment, design, smap: SpacingMap, edges, family, styles, hz_scale, hz_unit):
+def _draw_window(ax, environment, design, smap: SpacingMap, edges, family, styles, hz_scale, hz_unit,
+                 explained: bool = False):
     from matplotlib.lines import Line2D
 
     x = smap.speeds_mps / KMH
@@ -639,7 +648,7 @@ def _draw_window(ax, environment, design, smap: SpacingMap, edges, family, style
                 color="black", markerfacecolor="white", markeredgewidth=2, linestyle="none")
         handles.append(Line2D([], [], marker="o", markersize=8, color="black", markerfacecolor="white",
                               markeredgewidth=2, linestyle="none", label=f"{design.name} at the required speed"))
-    empty = _nowhere_text(smap.normalised, "no spacing passes every rule at any speed shown")
+    empty = "" if explained else _nowhere_text(smap.normalised, "no spacing passes every rule at any speed shown")
     if empty:
         ax.text(0.5, 0.5, empty, ha="center", va="center", transform=ax.transAxes, fontsize=9,
                 bbox={"facecolor": "white", "edgecolor": "black"})
@@ -648,6 +657,28 @@ def _draw_window(ax, environment, design, smap: SpacingMap, edges, family, style
     ax.set_xlabel("relative speed (km/h)")
     ax.set_ylabel(f"subcarrier spacing ({hz_unit}, log scale)")
     ax.set_title("(b) subcarrier-spacing window against speed (each rule at its most lenient design)", fontsize=9.5)
+    ax.legend(handles=handles, loc="best", fontsize=8, framealpha=0.92)
+
+
+def _draw_conflict(ax, environment, bounds, hz_scale):
+    """The crossing bounds at the required speed: what each rule needs or allows, named in the legend."""
+    from matplotlib.lines import Line2D
+
+    speed = environment.speed_mps / KMH
+    handles = list(ax.get_legend().legend_handles) if ax.get_legend() else []
+    for bound in bounds:
+        for value, marker, word in ((bound.low_hz, "^", "needs >="), (bound.high_hz, "v", "allows <=")):
+            if value is None or not math.isfinite(value):
+                continue
+            ax.plot([speed], [value / hz_scale], marker=marker, markersize=11, color="#c0392b",
+                    markeredgecolor="black", linestyle="none")
+            handles.append(Line2D([], [], marker=marker, markersize=9, color="#c0392b", markeredgecolor="black",
+                                  linestyle="none", label=f"{bound.rule} {word} {engineering(value, 'Hz')}"))
+    if any(b.nowhere for b in bounds):
+        handles.append(Line2D([], [], linestyle="none", label=", ".join(b.rule for b in bounds if b.nowhere)
+                              + " fails at every spacing"))
+    ax.set_title(ax.get_title() + "\nconflict at the required speed: " + "; ".join(str(b) for b in bounds),
+                 fontsize=9.5)
     ax.legend(handles=handles, loc="best", fontsize=8, framealpha=0.92)
 
 

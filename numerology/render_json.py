@@ -20,8 +20,11 @@ import numpy as np
 #: (in units of the rms spread) instead of "delays_s" and "rms_delay_spread_s"; verify gives a verdict per
 #: figure (agree, disagree, inconclusive); sweep --out writes its metadata as numerology.sweep_csv.
 SCHEMA_VERSION = "2.0"
-#: Documents whose keys changed meaning at a different release than the rest (none at present).
-SCHEMA_VERSIONS: dict = {}
+#: Documents whose keys changed at a different release than the rest. numerology.solve 2.1 (keys added): the
+#: window says whether it is "empty" and gives "lower_bound_hz" and "upper_bound_hz" (the crossing values of an
+#: empty window); "diagnosis" {"cause", "statement", "bounds"}; each relaxation gives "toml_value", "current",
+#: "direction" and "also" (its value_si is null for a choice); "relaxation_pairs" where no single change does.
+SCHEMA_VERSIONS: dict = {"numerology.solve": "2.1"}
 
 
 def _clean(obj):

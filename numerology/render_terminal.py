@@ -234,17 +234,37 @@ OBJECTIVE_LABELS = {"throughput": "most net throughput", "robustness": "most rob
                     "overhead": "least overhead", "latency": "shortest slot"}
 
 
-def _window_line(window) -> Text:
+def window_sentence(window) -> str:
+    """The spacing window and its bounding rules, or the bounds that cross, in engineering units."""
     if window.empty:
-        rules = sorted({window.lower_bound_rule, window.upper_bound_rule} - {None})
-        return Text.assemble(("No subcarrier spacing fits: ", "bold red"),
-                             f"{' and '.join(rules)} {'rule' if len(rules) > 1 else 'rules'} out every spacing.")
-    low = engineering(window.min_hz, "Hz")
-    high = engineering(window.max_hz, "Hz")
-    lower = window.lower_bound_rule or "the search range"
-    upper = window.upper_bound_rule or "the search range"
-    return Text.assemble("Subcarrier-spacing window: ", (f"{low} .. {high}", "bold"),
-                         f"  (below: {lower}; above: {upper})")
+        if window.lower_bound_rule == window.upper_bound_rule or not math.isfinite(window.min_hz):
+            rules = sorted({window.lower_bound_rule, window.upper_bound_rule} - {None})
+            return f"No subcarrier spacing fits: {' and '.join(rules)} {'rule' if len(rules) > 1 else 'rules'} " \
+                   f"out every spacing."
+        return (f"No subcarrier spacing fits: {window.lower_bound_rule} needs >= "
+                f"{engineering(window.min_hz, 'Hz')}; {window.upper_bound_rule} allows <= "
+                f"{engineering(window.max_hz, 'Hz')}.")
+    lower = window.lower_bound_rule or "the largest FFT"
+    upper = window.upper_bound_rule or "one subcarrier filling the band"
+    return (f"Subcarrier-spacing window: {engineering(window.min_hz, 'Hz')} .. {engineering(window.max_hz, 'Hz')}"
+            f"  (below: {lower}; above: {upper})")
+
+
+def _window_line(window) -> Text:
+    text = window_sentence(window)
+    if window.empty:
+        head, _, rest = text.partition(": ")
+        return Text.assemble((head + ": ", "bold red"), rest)
+    head, _, rest = text.partition(": ")
+    values, _, bounds = rest.partition("  ")
+    return Text.assemble(head + ": ", (values, "bold"), "  " + bounds)
+
+
+def relaxation_rows(relaxation) -> list:
+    """(key, now, change to) rows of one relaxation and the settings that come with it."""
+    rows = [(relaxation.key, relaxation.current, f"{relaxation.direction} {relaxation.value}")]
+    rows += [(s.key, "", f"= {s.text}") for s in relaxation.also]
+    return rows
 
 
 def designs_table(result) -> Table:
@@ -310,15 +330,26 @@ def solve(con: Console, result) -> None:
         con.print(Text("INFEASIBLE: no design meets every rule and goal.", style="bold red"))
         diag = result.diagnosis
         if diag is not None:
-            con.print(Text.assemble("These conflict: ", (", ".join(diag.conflict), "bold")))
+            label = "Conflict" if diag.cause == "rules" else "The candidate space is the cause"
+            con.print(Text.assemble(f"{label}: ", (diag.statement, "bold")))
             if diag.relaxations:
-                table = _table("Any one of these would make the request feasible", "key", ">now", ">change to",
-                               heavy=False)
+                table = _table("Any one of these makes the request feasible (each solved again)", "key",
+                               ">now", ">change to", heavy=False)
                 for r in diag.relaxations:
-                    table.add_row(r.key, r.current, f"{r.direction} {r.value}")
+                    for key, now, change in relaxation_rows(r):
+                        table.add_row(key, now, change)
+                con.print(table)
+            elif diag.pairs:
+                table = _table("No single change is enough; each pair does (solved again)", "#", "key",
+                               ">now", ">change to", heavy=False)
+                for i, pair in enumerate(diag.pairs, start=1):
+                    for r in pair:
+                        for key, now, change in relaxation_rows(r):
+                            table.add_row(str(i), key, now, change)
                 con.print(table)
             else:
-                con.print("No single goal or bound can be moved far enough; relax several at once.")
+                con.print("No single change, nor any pair of the keys tried, makes the request feasible within the "
+                          "diagnosis's work budget.")
         con.print(Text(CAUTION, style="dim"))
         return
     con.print(designs_table(result))

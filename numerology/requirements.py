@@ -34,7 +34,7 @@ SUFFIX = {"frequency": "_hz", "time": "_s", "speed": "_mps", "length": "_m", "bi
 DOPPLER_SPECTRA = ("classical", "flat", "rician", "tracked")
 OBJECTIVES = ("throughput", "robustness", "overhead", "latency")
 ESTIMATORS = ("lmmse", "linear")
-SPACING_FAMILIES = ("scalable", "range", "list")
+SPACING_FAMILIES = ("auto", "scalable", "range", "list")
 FFT_FAMILIES = ("powers_of_two", "smooth")
 PILOT_PATTERNS = ("rectangular", "staggered")
 PILOT_SCOPES = ("slot", "stream", "packet")
@@ -175,14 +175,18 @@ SCHEMA: tuple[Key, ...] = (
         source="common practice for modern LDPC/turbo codes at moderate block lengths"),
     Key("rules", "mcs_table", "path", "CSV of modulation-and-coding entries (name,bits_per_symbol,code_rate,required_sinr [dB])"),
     # --- search: the candidate space ----------------------------------------
-    Key("search", "spacing_family", "choice", "how subcarrier spacings are drawn", default="scalable",
+    Key("search", "spacing_family", "choice", "how subcarrier spacings are drawn: auto is the scalable family when "
+        "one of its spacings lies in the window of spacings the rules allow, else the finer lattice "
+        "spacing_base x 2^(k/16) within the window (at most spacing_steps of them)", default="auto",
         choices=SPACING_FAMILIES),
-    _q("search", "spacing_base", "frequency", "base of the scalable family base x 2^mu", default=15e3, high=1e10),
+    _q("search", "spacing_base", "frequency", "base of the scalable family base x 2^mu (and of the auto family's lattice)",
+       default=15e3, high=1e10),
     Key("search", "spacing_exponents", "integer_list", "[lowest, highest] mu of the scalable family", default=(-4, 6),
         low=-20, high=20),
     _q("search", "spacing_min", "frequency", "lowest spacing of a free range", high=1e10),
     _q("search", "spacing_max", "frequency", "highest spacing of a free range", high=1e10),
-    Key("search", "spacing_steps", "integer", "number of log-spaced spacings in a free range", default=64,
+    Key("search", "spacing_steps", "integer", "number of log-spaced spacings in a free range (at most, in the auto "
+        "family's lattice)", default=64,
         low=2, high=100_000),
     Key("search", "spacings", "quantity_list", "explicit list of spacings", dimension="frequency", low=0.0, low_open=True,
         high=1e10),
@@ -551,7 +555,7 @@ def _check_consistency(req: Requirements, where: str) -> None:
                          "the range family needs spacing_min < spacing_max, such as \"1 kHz\" and \"240 kHz\"")
     if search.spacing_family == "list" and search.spacings_hz is None:
         raise InputError(f"{where}: search.spacings", "the list family needs spacings = [\"15 kHz\", ...]")
-    if search.spacing_family == "scalable":
+    if search.spacing_family in ("scalable", "auto"):
         exps = search.spacing_exponents
         if len(exps) != 2 or exps[0] > exps[1]:
             raise InputError(f"{where}: search.spacing_exponents", f"expected [lowest, highest] such as [-4, 6], got {list(exps)}")

@@ -75,6 +75,8 @@ class Search:
     ranked: Ranked | None
     stats: SearchStats
     rejected_by: dict = field(default_factory=dict)  # rule -> number of candidates it rejected in the cheap stage
+    best_key: float = -np.inf  # the best objective value found (before ties go to the smaller FFT)
+    witness: object = None  # the best design's candidate (a candidates.Grid of one), when feasible
 
     @property
     def feasible(self) -> bool:
@@ -164,7 +166,7 @@ def search(req: Requirements, environment: Environment | None = None, objective:
     environment = environment or derive_environment(req)
     objective = objective or req.goals.objective
     window = cand.spacing_window(environment, req, ignore)
-    family = cand.spacing_family(req)
+    family = cand.spacing_family(req, environment, ignore)
     if spacings_hz is None:
         spacings_hz = family[window.contains(family)] if not window.empty else family[:0]
     full_size = _space_size(req, environment, family)
@@ -180,8 +182,12 @@ def search(req: Requirements, environment: Environment | None = None, objective:
     evaluated, batch_size = 0, FIRST_BATCH
     pending = order
     per_numerology = PER_NUMEROLOGY
+    # One best key and no Pareto front (a what-if): strictly best bound first, so that only the candidates
+    # whose bound beats the best key are evaluated (breadth first would settle every numerology).
+    what_if = top == 1 and not pareto and not exhaustive and not first_feasible_only
+    best_first = exhaustive or first_feasible_only or what_if
     while pending.size:
-        if exhaustive or first_feasible_only:
+        if best_first:
             batch, pending = pending[:batch_size], pending[batch_size:]
         else:  # breadth first: the best few of every open numerology, so that each is settled early
             batch, pending = _breadth_first(pending, numerology, per_numerology, batch_size)
@@ -201,7 +207,12 @@ def search(req: Requirements, environment: Environment | None = None, objective:
             np.maximum.at(best, numerology[batch[idx]], keys)
             if first_feasible_only:
                 break
-        batch_size = min(batch_size * 2, BATCH)
+        batch_size = min(batch_size * 2, FIRST_BATCH if what_if else BATCH)  # a what-if stops soon: small steps
+        if not pareto and not exhaustive and pending.size and np.count_nonzero(np.isfinite(best)) >= top:
+            # Only the best keys are wanted (no Pareto front): a candidate whose bound is below the top-th
+            # numerology's best exact key can neither enter the top nor change a key in it.
+            kth = np.sort(best)[-top]
+            pending = pending[bound[objective][pending] >= kth - KEY_RTOL * abs(kth)]
         next_bound = bound[objective][pending[0]] if pending.size else -np.inf
         reached = best >= next_bound - KEY_RTOL * abs(next_bound)
         if np.count_nonzero(reached) >= top:
@@ -238,7 +249,7 @@ def search(req: Requirements, environment: Environment | None = None, objective:
     designs = grid.take(chosen[show]).designs()
     evaluation = link.evaluate(designs, environment, req)
     ranked = Ranked(designs, evaluation, found["key"][rank][show], on_front[show], position[show])
-    return Search(window, ranked, stats, rejected)
+    return Search(window, ranked, stats, rejected, float(np.max(found["key"])), grid.take(chosen[:1]))
 
 
 #: Objective values closer than this count as equal in the ranking: relative for throughput and latency,
@@ -347,26 +358,93 @@ def _screen(req: Requirements, environment: Environment, spacings_hz, ignore):
     return grid, {k: np.concatenate(v) for k, v in bounds.items()}, rejected
 
 
-def any_feasible(req: Requirements, environment: Environment, ignore=()) -> bool:
+def any_feasible(req: Requirements, environment: Environment, ignore=(), max_exact: int | None = None):
     """Whether any candidate passes every rule not ignored (stops at the first one found).
 
     Screens in small chunks and evaluates each chunk's survivors exactly, best bound
     first, so a feasible request is answered without building the whole space.
+
+    Parameters
+    ----------
+    max_exact : int, optional
+        At most this many candidates evaluated exactly (the costly part); beyond it
+        the answer is None: not known.
     """
-    # Only the family's own spacings matter here, not the window's edges: keep those that relaxed
-    # designs allow (one evaluation instead of the edge refinement of spacing_window).
-    family = cand.spacing_family(req)
-    margins = cand.relaxed_margins(family, environment, req, ignore)
-    spacings = family[np.all([m >= 0 for m in margins.values()], axis=0)] if margins else family
+    return first_feasible(req, environment, ignore, max_exact)[0]
+
+
+def first_feasible(req: Requirements, environment: Environment, ignore=(), max_exact: int | None = None):
+    """(:func:`any_feasible`'s answer, the feasible candidate found as a ``candidates.Grid`` of one, or None)."""
+    spacings = screened_spacings(req, environment, ignore)
     if spacings.size == 0:
-        return False
+        return False, None
+    evaluated = 0
     for part, bound, _ in _screen_chunks(req, environment, spacings, ignore, chunk=FEASIBILITY_CHUNK):
         order = np.argsort(-bound["robustness"], kind="stable")
-        for start in range(0, order.size, FIRST_BATCH):
-            index = order[start:start + FIRST_BATCH]
-            if _passed(link.evaluate(part.take(index).designs(), environment, req), ignore).any():
-                return True
-    return False
+        step = FIRST_BATCH if max_exact is None else max(1, min(FIRST_BATCH, max_exact))
+        for start in range(0, order.size, step):
+            if max_exact is not None and evaluated >= max_exact:
+                return None, None
+            index = order[start:start + step]
+            evaluated += index.size
+            passed = _passed(link.evaluate(part.take(index).designs(), environment, req), ignore)
+            if passed.any():
+                return True, part.take(index[np.flatnonzero(passed)[:1]])
+    return False, None
+
+
+def transferred(req: Requirements, environment: Environment, row: cand.Grid, ignore=()):
+    """A feasible candidate of ``req`` like ``row`` (a ``candidates.Grid`` of one), or None.
+
+    The same spacing, pilot arrangement and slot length, with every FFT size and cyclic prefix that
+    ``req``'s search space has at that spacing, evaluated at once. A feasible design found for one request
+    is then a witness for another at the cost of one evaluation: if one of these passes every rule of
+    ``req``, the search of ``req`` finds a feasible design too.
+    """
+    spacing = float(row.spacing_hz[0])
+    family = cand.spacing_family(req, environment, ignore)
+    if not np.any(np.abs(family - spacing) <= 1e-12 * spacing) or int(row.slot[0]) not in req.search.symbols_per_slot:
+        return None
+    df, n, used, cp = cand.numerologies(np.array([spacing]), environment, req)
+    p = cand.pilot_arrangements(req)
+    same = ((p.scope == row.scope[0]) & (p.freq == row.pilot_f[0]) & (p.time == row.pilot_t[0])
+            & (p.shift == row.pilot_s[0]) & (p.symbols == row.symbols[0]) & (p.period == row.period[0])
+            & (p.shared == row.shared[0]) & ((p.slot < 0) | (p.slot == row.slot[0])))
+    if df.size == 0 or not same.any():
+        return None
+    one = np.ones(df.size, dtype=np.int64)
+    grid = cand.Grid(df, n, cp, used, *(one * int(getattr(row, k)[0]) for k in
+                                         ("pilot_f", "pilot_t", "pilot_s", "slot", "scope", "symbols", "period",
+                                          "shared")))
+    passed = np.flatnonzero(_passed(link.evaluate(grid.designs(), environment, req), ignore))
+    return grid.take(passed[:1]) if passed.size else None
+
+
+def screened_spacings(req: Requirements, environment: Environment, ignore=()) -> np.ndarray:
+    """The family's spacings that relaxed designs allow (a necessary condition of any candidate passing).
+
+    Only the family's own spacings matter here, not the window's edges: one evaluation instead of the edge
+    refinement of ``spacing_window``.
+    """
+    family = cand.spacing_family(req, environment, ignore)
+    margins = cand.relaxed_margins(family, environment, req, ignore)
+    return family[np.all([m >= 0 for m in margins.values()], axis=0)] if margins else family
+
+
+def numerologies_pass(req: Requirements, environment: Environment, ignore=()) -> bool:
+    """Whether some numerology (spacing, FFT size, CP) passes the rules with its best pilots and slot.
+
+    A necessary condition of feasibility without any exact evaluation: the first stage of the screening.
+    """
+    spacings = screened_spacings(req, environment, ignore)
+    if spacings.size == 0:
+        return False
+    df, n, used, cp = cand.numerologies(spacings, environment, req)
+    if df.size == 0:
+        return False
+    ok, _, _ = _cheap_stage(cand.Grid.of_numerologies(df, n, cp, used), environment, req, ignore,
+                            _relaxed_pilots(req))
+    return bool(ok.any())
 
 
 def _cell_bounds(numerologies: cand.Grid, environment: Environment, req: Requirements, ignore):
@@ -417,7 +495,7 @@ def brute_force(req: Requirements, environment: Environment | None = None, ignor
     Returns the grid and a boolean array of which candidates pass.
     """
     environment = environment or derive_environment(req)
-    grid = cand.enumerate_grid(req, environment, cand.spacing_family(req))
+    grid = cand.enumerate_grid(req, environment, cand.spacing_family(req, environment, ignore))
     evaluation = link.evaluate(grid.designs(), environment, req)
     return grid, _passed(evaluation, ignore)
 
