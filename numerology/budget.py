@@ -263,24 +263,47 @@ class SimulationSize:
     @property
     def memory_bytes(self) -> int:
         frame = self.symbols * self.fft_size * BYTES_PER_FRAME_SAMPLE
-        from .simulate import BLOCK_BYTES
+        from .simulate import BATCH_BYTES
 
-        return BASE_BYTES + self.taps * self.fft_size * BYTES_PER_TAP_SAMPLE + max(frame, BLOCK_BYTES)
+        return BASE_BYTES + self.taps * self.fft_size * BYTES_PER_TAP_SAMPLE + max(frame, BATCH_BYTES)
 
 
 def simulation_size(design, environment, frames=None) -> SimulationSize:
-    """What ``verify`` would simulate for a design in an environment (frames: given or the simulator's default)."""
+    """What ``verify`` would simulate for a design in an environment (frames: given or the default run's most).
+
+    Counted as the simulator lays a frame out (``simulate._Plan``) without building it: the symbols a
+    frame holds (its slot or packet, or for stream pilots the span of the schedule and the pilots its
+    data symbols read, or the differential run), plus the symbols before it whose echoes reach into it.
+    """
+    import math
+
     import numpy as np
 
-    from .simulate import AUTO_FRAMES, AUTO_SAMPLES, ESTIMATOR_WINDOW
+    from . import arrangement
+    from .simulate import DIFFERENTIAL_SYMBOLS, RECEIVER_PILOT_SYMBOLS
+    from .verify import MAX_FRAMES, MIN_FRAMES, SAMPLE_BUDGET
 
-    d_t = design.pilot_time_spacing
-    measured = -(-max(design.symbols_per_slot, d_t) // d_t) * d_t
-    symbols = measured + sum(ESTIMATOR_WINDOW) * d_t
+    delays = np.asarray(environment.delays_s, dtype=float)
     taps = int(np.count_nonzero(np.asarray(environment.powers) > 0))
+    fs = design.sample_rate_hz
+    cp_s = design.cp_samples / fs
+    pre = max(0, math.ceil((float(delays.max(initial=0.0)) - cp_s) * fs / (design.fft_size + design.cp_samples)))
+    if design.pilot_scope == "differential":
+        symbols = min(max(design.symbols_per_slot, 2), DIFFERENTIAL_SYMBOLS)
+    elif design.pilot_scope == "stream":
+        plan = arrangement.schedule("stream", design.pilot_symbols, design.pilot_period, design.pilot_shift,
+                                    design.pilot_freq_spacing, design.symbols_per_slot, design.pilot_data_shared,
+                                    3, 7, RECEIVER_PILOT_SYMBOLS)
+        low = min([0] + [t.symbol + min(t.pilot_lags) for t in plan.targets if t.pilot_lags])
+        high = max([plan.span - 1] + [t.symbol + max(t.pilot_lags) for t in plan.targets if t.pilot_lags])
+        symbols = high - low + 1
+    else:
+        symbols = design.symbols_per_slot
+    symbols += pre
     if frames is None:
-        frames = int(np.clip(round(AUTO_SAMPLES / (symbols * design.fft_size)), *AUTO_FRAMES))
-    return SimulationSize(int(frames), int(symbols), int(design.fft_size), taps)
+        samples = symbols * (design.fft_size + design.cp_samples)
+        frames = int(np.clip(SAMPLE_BUDGET // max(samples, 1), MIN_FRAMES, MAX_FRAMES))
+    return SimulationSize(int(frames), int(symbols), int(design.fft_size), max(taps, 1))
 
 
 def check_simulation(design, environment, frames=None) -> SimulationSize:
