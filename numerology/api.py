@@ -374,6 +374,7 @@ class SolveResult:
                 "after_cheap_rules": self.stats.after_cheap_rules,
                 "evaluated_exactly": self.stats.evaluated_exactly,
                 "feasible_found": self.stats.feasible_found,
+                "stopped_at_budget": self.stats.stopped_at_budget,
             },
             "relaxed": self.relaxed.to_json() if self.relaxed else None,
             "neighbours": [n.to_json() for n in self.neighbours],

@@ -122,6 +122,9 @@ def _solution_section(solution) -> list[str]:
     out.append(f"{s.candidates:,} candidate designs were in the search space; {s.after_cheap_rules:,} passed the "
                f"rules that need no estimation error, {s.evaluated_exactly:,} were evaluated exactly, "
                f"{s.feasible_found:,} were found feasible. Objective: {solution.objective}.")
+    if s.stopped_at_budget:
+        out.append("The exact evaluation stopped at its work budget: the designs below are the best found, "
+                   "not proven best.")
     out.append("")
     if solution.feasible:
         rows = []

@@ -326,6 +326,10 @@ def solve(con: Console, result) -> None:
     con.print(f"Searched {stats.candidates:,} candidate designs; {stats.after_cheap_rules:,} survived the fast rules, "
               f"{stats.evaluated_exactly:,} were evaluated exactly, {stats.feasible_found:,} feasible found.",
               style="dim")
+    if stats.stopped_at_budget:
+        con.print(f"The exact evaluation stopped at its work budget ({stats.evaluated_exactly:,} designs): the designs "
+                  "below are the best found, not proven best; narrow the search (fewer spacings or FFT sizes) for a "
+                  "proof.", style="yellow")
     if not result.feasible:
         con.print(Text("INFEASIBLE: no design meets every rule and goal.", style="bold red"))
         diag = result.diagnosis

@@ -54,6 +54,7 @@ class SearchStats:
     evaluated_exactly: int
     feasible_found: int
     top: int = 5
+    stopped_at_budget: bool = False  # the exact evaluation reached MAX_EXACT_EVALUATIONS: best found, not proven
 
 
 @dataclass(frozen=True)
@@ -185,8 +186,17 @@ def search(req: Requirements, environment: Environment | None = None, objective:
     # One best key and no Pareto front (a what-if): strictly best bound first, so that only the candidates
     # whose bound beats the best key are evaluated (breadth first would settle every numerology).
     what_if = top == 1 and not pareto and not exhaustive and not first_feasible_only
-    best_first = exhaustive or first_feasible_only or what_if
+    # Thousands of numerologies (a fine spacing range with many FFT sizes): settling each one would cost
+    # an exact evaluation per numerology; best first stops once the `top` best are certain.
+    crowded = best.size > BREADTH_FIRST_NUMEROLOGIES
+    best_first = exhaustive or first_feasible_only or what_if or crowded
+    stopped = False
     while pending.size:
+        if evaluated >= MAX_EXACT_EVALUATIONS and records["index"] and not exhaustive:
+            stopped = True  # bounded work: the best found so far, said so in the report
+            break
+        if records["index"]:
+            batch_size = min(batch_size, max(MAX_EXACT_EVALUATIONS - evaluated, FIRST_BATCH))
         if best_first:
             batch, pending = pending[:batch_size], pending[batch_size:]
         else:  # breadth first: the best few of every open numerology, so that each is settled early
@@ -225,7 +235,7 @@ def search(req: Requirements, environment: Environment | None = None, objective:
             pending = pending[~settled[numerology[pending]]]
     found = {k: np.concatenate(v) if v else np.empty(0) for k, v in records.items()}
     stats = SearchStats(family.size, int(len(spacings_hz)), full_size, int(grid.size), evaluated,
-                        int(found["index"].size), top)
+                        int(found["index"].size), top, stopped)
     if not found["index"].size:
         return Search(window, None, stats, rejected)
     # Best first; objective values within the tie tolerance count as equal, and then the smaller FFT, the
@@ -250,6 +260,14 @@ def search(req: Requirements, environment: Environment | None = None, objective:
     evaluation = link.evaluate(designs, environment, req)
     ranked = Ranked(designs, evaluation, found["key"][rank][show], on_front[show], position[show])
     return Search(window, ranked, stats, rejected, float(np.max(found["key"])), grid.take(chosen[:1]))
+
+
+#: Exact evaluations of one search, at most, once a feasible design is found (work bound: a fine spacing range
+#: with every FFT size can leave 10^5 candidates whose bound beats the best design's exact value); the report
+#: then says that the designs listed are the best found, not proven best.
+MAX_EXACT_EVALUATIONS = 16384
+#: Most numerologies the search settles one by one (breadth first); beyond, it goes best first.
+BREADTH_FIRST_NUMEROLOGIES = 512
 
 
 #: Objective values closer than this count as equal in the ranking: relative for throughput and latency,

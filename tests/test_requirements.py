@@ -81,7 +81,7 @@ def test_example_values_arrive_in_si():
     assert_allclose(req.goals.max_latency_s, 1e-3, rtol=1e-15)
     # defaults filled in from SCHEMA
     assert req.environment.propagation_speed_mps == 299_792_458.0  # SI brochure 9th ed.: exact
-    assert req.search.spacing_family == "scalable"
+    assert req.search.spacing_family == "auto"  # default: 15 kHz x 2^mu where it meets the window
 
 
 def test_profile_file_is_found_beside_the_requirement_file(monkeypatch, tmp_path):
