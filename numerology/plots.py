@@ -48,11 +48,12 @@ DEFAULT_GRID = (64, 48)
 REFINE_STEPS = 32
 #: What only the picture uses is refined less, and many points at a time (an evaluation costs about as much
 #: for one point as for a hundred), which keeps --plot within a few times the run without it
-#: (benchmarks/bench_plot.py): (points per row and step, steps) for the limits through the requirement,
-#: written in the title to 4 digits (41^-4 of a probe step of 19 %: 7e-8 relative), and for the edge of each
-#: grid row and column of the map (16^-2 of a grid step; only the rule beyond it is used); halvings of the
-#: window of panel (b) (it sets the zoom; the panel draws the edges of its grid, not the refined ones).
-TITLE_REFINE, MAP_EDGE_REFINE, ZOOM_STEPS = (40, 4), (15, 2), 4
+#: (benchmarks/bench_plot.py): (points per row and step, steps) for the limits through the requirement when the
+#: check has not found them already, written in the title to 4 digits (41^-4 of a probe step of 19 %: 7e-8
+#: relative); halvings of the window of panel (b) (it sets the zoom; the panel draws the edges of its grid, not
+#: the refined ones). The map's edge along each grid row and column is read off the grid (only the rule beyond
+#: it is used: the legend).
+TITLE_REFINE, ZOOM_STEPS = (40, 4), 4
 #: Line styles for the rules, in declaration order of the rules drawn: dash pattern and a
 #: colour-blind-safe colour (Okabe & Ito, "Color Universal Design", 2008), distinct in black and white.
 STYLES = (("-", "#000000"), ("--", "#D55E00"), (":", "#0072B2"), ("-.", "#009E73"),
@@ -95,16 +96,87 @@ def delay_axis(req: Requirements) -> DelayAxis:
     return DelayAxis("max_excess_delay", label, env.max_excess_delay_s, ratio)
 
 
-def _evaluate(req: Requirements, design: Design, speeds_mps, axis: DelayAxis, delays_s):
-    """Normalised margins of every applicable rule at paired (speed, delay) points: name -> array."""
+def _evaluate(req: Requirements, design: Design, speeds_mps, axis: DelayAxis, delays_s, given_error=None,
+              with_error: bool = False):
+    """Normalised margins of every applicable rule at paired (speed, delay) points: name -> array.
+
+    ``given_error`` (the estimation error at each point) replaces the exact estimation (see
+    :func:`_grid_margins`); ``with_error`` also returns the error used, as ``(margins, error)``.
+    """
     speeds_mps, delays_s = np.broadcast_arrays(np.asarray(speeds_mps, float), np.asarray(delays_s, float))
     shape = speeds_mps.shape
     sites = sites_from_values(req, max_speed_mps=speeds_mps.ravel(), **axis.site_values(delays_s.ravel()))
     if sites.problems:
         raise InputError("plot", f"cannot map this requirement set: {sites.problems[0][1]}")
-    evaluation = link.evaluate(DesignArrays.from_designs([design]), site_environments(req, sites, notes=False), req)
-    return {rule.name: np.broadcast_to(evaluation.normalised[rule.name], (sites.size,)).reshape(shape)
-            for rule in evaluation.rules}
+    given = None if given_error is None else np.reshape(np.asarray(given_error, dtype=float), sites.size)
+    evaluation = link.evaluate(DesignArrays.from_designs([design]), site_environments(req, sites, notes=False), req,
+                               given_error=given)
+    margins = {rule.name: np.broadcast_to(evaluation.normalised[rule.name], (sites.size,)).reshape(shape)
+               for rule in evaluation.rules}
+    if not with_error:
+        return margins
+    term = np.broadcast_to(evaluation.terms["estimation"], (sites.size,)).reshape(shape)
+    with np.errstate(invalid="ignore"):
+        error = np.where(np.isfinite(term), term / (1.0 + term), 1.0)
+    return margins, error
+
+
+#: The operating map computes the channel-estimation error (most of its cost) exactly on every COARSE-th grid
+#: line and, by bilinear interpolation of its logarithm, between them; then exactly at every grid point next to
+#: the edge of the region where the design holds, again until that edge stops moving (at most EDGE_ROUNDS
+#: times). The region and its edge are then those of the exact error (tests/test_plots.py compares).
+COARSE, EDGE_ROUNDS = 8, 6
+
+
+def _grid_margins(req, design, axis, speeds, delays):
+    """Margins over the (delay, speed) grid, the estimation error exact where the picture depends on it."""
+    ny, nx = delays.size, speeds.size
+    rows = np.unique(np.r_[np.arange(0, ny, COARSE), ny - 1])
+    cols = np.unique(np.r_[np.arange(0, nx, COARSE), nx - 1])
+    _, nodes = _evaluate(req, design, speeds[None, cols], axis, delays[rows, None], with_error=True)
+    log_nodes = np.log(np.clip(nodes, 1e-300, 1.0))
+    flat_y, flat_x = np.meshgrid(np.arange(ny, dtype=float), np.arange(nx, dtype=float), indexing="ij")
+    error = np.exp(_bilinear(cols.astype(float), rows.astype(float), log_nodes[None], flat_x.ravel(),
+                             flat_y.ravel())[0]).reshape(ny, nx)
+    exact = np.zeros((ny, nx), dtype=bool)
+    error[np.ix_(rows, cols)] = nodes
+    exact[np.ix_(rows, cols)] = True
+    speed_grid, delay_grid = np.broadcast_arrays(speeds[None, :], delays[:, None])
+    for _ in range(EDGE_ROUNDS):
+        margins = _evaluate(req, design, speed_grid, axis, delay_grid, given_error=error)
+        passed = np.min(np.stack(list(margins.values())), axis=0) >= 0
+        near = np.zeros_like(passed)
+        across = passed[:, 1:] != passed[:, :-1]
+        near[:, 1:] |= across
+        near[:, :-1] |= across
+        down = passed[1:, :] != passed[:-1, :]
+        near[1:, :] |= down
+        near[:-1, :] |= down
+        todo = near & ~exact
+        if not todo.any():
+            break
+        _, found = _evaluate(req, design, speed_grid[todo], axis, delay_grid[todo], with_error=True)
+        error[todo] = found
+        exact |= todo
+    return _evaluate(req, design, speed_grid, axis, delay_grid, given_error=error)
+
+
+def _edges_on_grid(values, fixed, normalised):
+    """Along each row of ``normalised`` tables (rows: ``fixed`` values, columns: ``values``), the highest value
+    up to which every rule passes (linear between grid points; inf: holds over the whole row, nan: fails at its
+    start) and the rule with the smallest margin at the first failing point."""
+    names = list(normalised)
+    stack = np.stack([np.clip(normalised[k], -1e6, 1e6) for k in names])
+    worst = stack.min(axis=0)
+    first = _first_failure(worst >= 0)
+    limit = np.where(first == -1, np.inf, np.nan)
+    rule = np.full(np.shape(fixed), None, dtype=object)
+    for row in np.flatnonzero(first >= 0):
+        j = first[row]
+        a, b = worst[row, j - 1], worst[row, j]
+        limit[row] = values[j - 1] + (values[j] - values[j - 1]) * a / (a - b)
+        rule[row] = names[int(np.argmin(stack[:, row, j]))]
+    return limit, rule
 
 
 def _first_failure(passed):
@@ -218,7 +290,7 @@ class OperatingMap:
     delays_s: np.ndarray  # (ny,)
     normalised: dict  # rule -> (ny, nx) capacity/demand - 1
     required_speed_mps: float
-    speed_limit_mps: np.ndarray  # (ny,) as speed_limits, refined to 16^-2 of a grid step (MAP_EDGE_REFINE)
+    speed_limit_mps: np.ndarray  # (ny,) as speed_limits, linear between the grid's points
     speed_limit_rule: np.ndarray
     delay_limit_s: np.ndarray  # (nx,) see delay_limits
     delay_limit_rule: np.ndarray
@@ -324,11 +396,9 @@ def operating_map(req: Requirements, design: Design, grid=DEFAULT_GRID, speed_ma
     nx, ny = grid
     speeds = np.linspace(0.0, speed_max_mps, nx)
     delays = np.linspace(delay_max_s / 1000, delay_max_s, ny)  # a profile cannot be scaled to 0
-    normalised = _evaluate(req, design, speeds[None, :], axis, delays[:, None])
-    points, steps = MAP_EDGE_REFINE
-    (v_lim, v_rule), (d_lim, d_rule) = _limits_together(
-        req, design, axis, [(delays, speeds, True), (speeds, delays, False)], steps, points=points,
-        initial=[normalised, {k: m.T for k, m in normalised.items()}])  # the grid is both tasks' first table
+    normalised = _grid_margins(req, design, axis, speeds, delays)
+    v_lim, v_rule = _edges_on_grid(speeds, delays, normalised)
+    d_lim, d_rule = _edges_on_grid(delays, speeds, {k: m.T for k, m in normalised.items()})
     return OperatingMap(design, axis, speeds, delays, normalised, speed_req, v_lim, v_rule, d_lim, d_rule,
                         at_requirement, file_point)
 
