@@ -50,10 +50,10 @@ REFINE_STEPS = 32
 #: for one point as for a hundred), which keeps --plot within a few times the run without it
 #: (benchmarks/bench_plot.py): (points per row and step, steps) for the limits through the requirement when the
 #: check has not found them already, written in the title to 4 digits (41^-4 of a probe step of 19 %: 7e-8
-#: relative); halvings of the window of panel (b) (it sets the zoom; the panel draws the edges of its grid, not
-#: the refined ones). The map's edge along each grid row and column is read off the grid (only the rule beyond
-#: it is used: the legend).
-TITLE_REFINE, ZOOM_STEPS = (40, 4), 4
+#: relative). The window of panel (b) is not refined (the panel draws the edges of its grid, and its zoom leaves
+#: a factor 8 of room), nor is the map's edge along each grid row and column (read off the grid: only the rule
+#: beyond it is used, in the legend).
+TITLE_REFINE = (40, 4)
 #: Line styles for the rules, in declaration order of the rules drawn: dash pattern and a
 #: colour-blind-safe colour (Okabe & Ito, "Color Universal Design", 2008), distinct in black and white.
 STYLES = (("-", "#000000"), ("--", "#D55E00"), (":", "#0072B2"), ("-.", "#009E73"),
@@ -624,13 +624,17 @@ def picture(req: Requirements, check=None, solution=None, *, grid=DEFAULT_GRID) 
         speed_max = max(3.0 * environment.speed_mps, 10 * KMH)
     family = candidates.spacing_family(analysed)
     speeds = np.linspace(0.0, speed_max, grid[0])
-    smap = spacing_map(analysed, speeds, np.geomspace(family[0] / 4, family[-1] * 4, 4 * grid[1]), steps=ZOOM_STEPS)
+    # the zoom: the window's extremes over the speeds shown, on a coarser grid of speeds, to a grid step (a
+    # factor 8 of room is left beyond them anyway)
+    coarse = speeds[np.unique(np.r_[np.arange(0, speeds.size, 4), speeds.size - 1])]
+    smap = spacing_map(analysed, coarse, np.geomspace(family[0] / 4, family[-1] * 4, 4 * grid[1]), steps=0)
     low, high = np.nanmin(smap.lower_hz, initial=np.inf), np.nanmax(smap.upper_hz, initial=-np.inf)
     if design is not None:
         low, high = min(low, design.subcarrier_spacing_hz), max(high, design.subcarrier_spacing_hz)
+    spacings = np.geomspace(family[0] / 4, family[-1] * 4, 4 * grid[1])
     if low <= high:  # zoom on the window: a factor 8 beyond its extremes, within the searched range
         spacings = np.geomspace(max(low / 8, family[0] / 4), min(high * 8, family[-1] * 4), 4 * grid[1])
-        smap = spacing_map(analysed, speeds, spacings, steps=ZOOM_STEPS)  # the panel draws the grid's edges
+    smap = spacing_map(analysed, speeds, spacings, steps=0)  # the panel draws the edges of its grid
     return Picture(analysed, environment, design, omap, smap, family, bool(what_if))
 
 
