@@ -166,7 +166,7 @@ def render_note(req, check=None, solution=None, verification=None) -> str:
     else:
         out += _design_section(check, req, solution is not None)
         out += _settings_section(req, check.design, env, check)
-        out += _rules_section(check, rule_latex)
+        out += _rules_section(check, rule_latex, definition_cases(req, check.design, check.environment))
         out += _definitions_section(check, req, definition_latex, derived_latex)
         out += _budget_section(check, req)
         out += _limits_section(check)
@@ -504,7 +504,7 @@ def _schedule(req, design):
 # --- 6. rules ---------------------------------------------------------------------------------------------
 
 
-def _rules_section(check, rule_latex) -> list[str]:
+def _rules_section(check, rule_latex, cases) -> list[str]:
     out = ["## 6. Rules", "",
            "Each rule holds when its capacity (left) is at least its demand (right). Margins: ratio rules give "
            "capacity/demand - 1; interference rules give 10 log10(capacity/demand) in dB. Every symbol and "
@@ -521,6 +521,10 @@ def _rules_section(check, rule_latex) -> list[str]:
         out.append("")
         out.append(f"With the numbers: capacity {_quantity(r.name, r.capacity)}, demand "
                    f"{_quantity(r.name, r.demand)}. Source: {rule.source}.")
+        used = _definitions_in_use(check, cases, [r.name])
+        if used:
+            out.append("")
+            out.append("Defined in section 7: " + ", ".join(f"`{d.name}`" for d in used) + ".")
         out.append("")
     return out
 
@@ -535,13 +539,14 @@ def _names(text: str) -> set:
     return set(_NAME.findall(text))
 
 
-def _definitions_in_use(check, cases) -> list:
-    """The definitions the applicable rules reach (with the SINR's), in declaration order."""
+def _definitions_in_use(check, cases, rules=None) -> list:
+    """The definitions the applicable rules (or the given ones) reach, with the SINR's, in declaration order."""
     wanted = set()
-    for r in check.rules:
-        rule = BY_NAME[r.name]
+    for name in (rules if rules is not None else [r.name for r in check.rules]):
+        rule = BY_NAME[name]
         wanted |= _names(rule.capacity) | _names(rule.demand)
-    wanted |= {"sinr_eff"}
+    if rules is None:
+        wanted |= {"sinr_eff"}
     for _ in range(len(DERIVED) + 1):  # the derived quantities' own names
         for name, (text, _meaning) in DERIVED.items():
             if name in wanted:

@@ -278,6 +278,8 @@ def _window_line(window) -> Text:
 
 
 def designs_table(result) -> Table:
+    from .design import pilot_label
+
     table = _table(f"Ranked designs - objective: {OBJECTIVE_LABELS[result.objective]}", ">#", ">spacing", ">FFT/CP",
                    ">pilots", ">slot", ">net rate", "binding rule", pad_edge=False)
     for ranked in result.designs:
@@ -285,7 +287,7 @@ def designs_table(result) -> Table:
         d = c.design
         b = c.binding_rule
         table.add_row(str(ranked.rank) + ("*" if ranked.pareto else ""), engineering(d.subcarrier_spacing_hz, "Hz"),
-                      f"{d.fft_size}/{d.cp_samples}", f"{d.pilot_freq_spacing}x{d.pilot_time_spacing}/{d.pilot_shift}",
+                      f"{d.fft_size}/{d.cp_samples}", pilot_label(d),
                       engineering(d.slot_s, "s"), engineering(c.net_throughput_bps, "bit/s"),
                       f"{b.name} {show_margin(b)}")
     return table
