@@ -12,13 +12,13 @@ Every result object is frozen, prints a one-line summary, and has
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
 from . import link
 from .design import Design, DesignArrays, load_design
-from .environment import Environment, derive_environment
+from .environment import Environment, derive_environment, what_if_requirements
 from .errors import InputError
 from .limits import Limit, stretch_limits
 from .requirements import Requirements, checked, load_requirements
@@ -153,6 +153,8 @@ class CheckResult:
     modulation: str = ""  # the modulation and coding the SINR supports
     step_margin_db: float = math.inf  # SINR above that entry's threshold (inf for the Shannon-gap model)
     goal_margin_db: float | None = None  # SINR above what the throughput goal needs (None without a goal)
+    what_if: dict = field(default_factory=dict)  # values analysed in place of the file's: speed_mps, max_excess_delay_s
+    origin: str = ""  # what was checked, in words: "preset nr-mu1", "design file d.toml", "rank 1 of the search"
 
     @property
     def passed(self) -> bool:
@@ -196,6 +198,8 @@ class CheckResult:
             "goal_margin_db": _finite(self.goal_margin_db),
             "limits": {k: v.to_json() for k, v in self.limits.items()},
             "notes": list(self.notes),
+            "what_if": dict(self.what_if),
+            "origin": self.origin,
         }
 
 
@@ -255,18 +259,29 @@ def check(req: Requirements, design=None, *, preset: str | None = None, design_f
     environment = derive_environment(req, speed_mps=speed_mps, max_excess_delay_s=max_excess_delay_s)
     arrays = DesignArrays.from_designs([chosen])
     evaluation = link.evaluate(arrays, environment, req)
+    what_if = {key: value for key, value in (("speed_mps", speed_mps), ("max_excess_delay_s", max_excess_delay_s))
+               if value is not None}
     limits = {}
-    if with_limits:
-        if speed_mps is not None:
-            req = req.replace("environment.max_speed", speed_mps).replace("environment.max_doppler", None)
-        limits = stretch_limits(arrays, req, environment)
+    if with_limits:  # through the point analysed: the requirement set with the what-ifs in place
+        analysed = what_if_requirements(req, speed_mps=speed_mps, max_excess_delay_s=max_excess_delay_s)
+        limits = stretch_limits(arrays, analysed, environment)
     return CheckResult(
         design=chosen, environment=environment, rules=results_from_evaluation(evaluation, 0),
         sinr_terms={k: float(np.ravel(v)[0]) for k, v in evaluation.terms.items()},
         effective_sinr_db=float(evaluation.sinr_eff_db[0]), efficiency=float(evaluation.efficiency[0]),
         net_throughput_bps=float(evaluation.rate_bps[0]), overhead=float(evaluation.overhead[0]), limits=limits,
         notes=notes, modulation=modulation_at(req, float(evaluation.sinr_eff_db[0])),
-        step_margin_db=float(np.ravel(evaluation.step_margin_db)[0]), goal_margin_db=_goal_margin(evaluation, 0))
+        step_margin_db=float(np.ravel(evaluation.step_margin_db)[0]), goal_margin_db=_goal_margin(evaluation, 0),
+        what_if=what_if, origin=describe_origin(chosen, preset, design_file))
+
+
+def describe_origin(design: Design, preset: str | None = None, design_file=None) -> str:
+    """What a check evaluates, in words, for reports and the design note: the preset or design file named."""
+    if preset is not None:
+        return f"preset {preset}" + (f" (taken as {design.name})" if design.name != preset else "")
+    if design_file is not None:
+        return f"design file {design_file}"
+    return f"design {design.name!r}" + (f" ({design.source})" if design.source else "")
 
 
 __all__ = ["load", "check", "CheckResult", "RuleResult", "Limit", "design_from"]
@@ -460,7 +475,8 @@ def solve(req: Requirements, *, objective: str | None = None, top: int = 5, expl
 
         name = f"design {rank}" if leader else f"Pareto design {i + 1}"
         check_result = dataclasses.replace(check_result, design=dataclasses.replace(
-            check_result.design, name=name, source="numerology solve"))
+            check_result.design, name=name, source="numerology solve"),
+            origin=f"rank {rank} of the search" if leader else "a design on the Pareto front of the search")
         checks.append(RankedDesign(rank, check_result, bool(ranked.pareto[i])))
     designs = tuple(sorted((c for c in checks if c.rank is not None), key=lambda c: c.rank))
     pareto = tuple(c for c in checks if c.pareto)

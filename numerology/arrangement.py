@@ -78,6 +78,30 @@ SCOPE_MEANING = {
     "differential": "no channel estimate: each symbol is detected against the previous one",
 }
 
+#: The estimators a receiver may use (``rules.estimator``), in words.
+ESTIMATOR_NAMES = {"lmmse": "LMMSE", "linear": "least squares and linear interpolation"}
+
+
+def allowance_text(scope: str, estimator: str, lookahead: int, memory: int, max_pilot_symbols: int) -> str:
+    """What the receiver may use to estimate the channel of a data symbol, in words (reports and the note).
+
+    It follows :func:`schedule`: the look-ahead and memory bound only a stream's pilots.
+
+    Examples
+    --------
+    >>> allowance_text("stream", "lmmse", 3, 7, 4)
+    'LMMSE from at most 4 pilot-bearing symbols, up to 7 symbols back and 3 ahead'
+    """
+    if scope == "differential":
+        return "no estimate: each symbol is detected against the previous one"
+    how = f"{ESTIMATOR_NAMES.get(estimator, estimator)} from at most {max_pilot_symbols} pilot-bearing symbols"
+    if scope == "stream":
+        return f"{how}, up to {memory} symbols back and {lookahead} ahead"
+    if scope == "slot":
+        return f"{how} of the symbol's own slot"
+    return f"{ESTIMATOR_NAMES.get(estimator, estimator)} from the packet's latest training block, averaged and held"
+
+
 #: Bits of a pilot-symbol mask: masks are held in int64 arrays and grouped through float64 tables, which
 #: hold whole numbers exactly up to 2^53.
 MAX_PATTERN_BITS = 53

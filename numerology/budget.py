@@ -268,47 +268,45 @@ class SimulationSize:
         return BASE_BYTES + self.taps * self.fft_size * BYTES_PER_TAP_SAMPLE + max(frame, BATCH_BYTES)
 
 
-def simulation_size(design, environment, frames=None) -> SimulationSize:
-    """What ``verify`` would simulate for a design in an environment (frames: given or the default run's most).
-
-    Counted as the simulator lays a frame out (``simulate._Plan``) without building it: the symbols a
-    frame holds (its slot or packet, or for stream pilots the span of the schedule and the pilots its
-    data symbols read, or the differential run), plus the symbols before it whose echoes reach into it.
-    """
-    import math
-
+def simulation_size(design, environment, frames=None, rules=None) -> SimulationSize:
+    """What ``verify`` would simulate for a design in an environment (frames: given, or the most a default run
+    takes). The frame follows the simulator's layout: the symbols a late echo reaches back, then the arrangement's
+    span (a slot or packet; a stream's pattern period with the pilots before and after it that the receiver may
+    use, ``rules.estimation_memory`` and ``estimation_lookahead``, their defaults without ``rules``)."""
     import numpy as np
 
     from . import arrangement
+    from .requirements import key
     from .simulate import DIFFERENTIAL_SYMBOLS, RECEIVER_PILOT_SYMBOLS
     from .verify import MAX_FRAMES, MIN_FRAMES, SAMPLE_BUDGET
 
-    delays = np.asarray(environment.delays_s, dtype=float)
-    taps = int(np.count_nonzero(np.asarray(environment.powers) > 0))
-    fs = design.sample_rate_hz
-    cp_s = design.cp_samples / fs
-    pre = max(0, math.ceil((float(delays.max(initial=0.0)) - cp_s) * fs / (design.fft_size + design.cp_samples)))
+    lookahead = key("rules.estimation_lookahead").default if rules is None else rules.estimation_lookahead
+    memory = key("rules.estimation_memory").default if rules is None else rules.estimation_memory
+    n, ncp = design.fft_size, design.cp_samples
+    delays = np.asarray(environment.delays_s, dtype=float)[np.asarray(environment.powers) > 0]
+    late_s = float(delays.max(initial=0.0) - delays.min(initial=0.0)) - ncp / design.sample_rate_hz
+    before = max(0, math.ceil(late_s * design.sample_rate_hz / (n + ncp))) if late_s > 0 else 0
     if design.pilot_scope == "differential":
         symbols = min(max(design.symbols_per_slot, 2), DIFFERENTIAL_SYMBOLS)
     elif design.pilot_scope == "stream":
         plan = arrangement.schedule("stream", design.pilot_symbols, design.pilot_period, design.pilot_shift,
                                     design.pilot_freq_spacing, design.symbols_per_slot, design.pilot_data_shared,
-                                    3, 7, RECEIVER_PILOT_SYMBOLS)
+                                    lookahead, memory, RECEIVER_PILOT_SYMBOLS)
         low = min([0] + [t.symbol + min(t.pilot_lags) for t in plan.targets if t.pilot_lags])
         high = max([plan.span - 1] + [t.symbol + max(t.pilot_lags) for t in plan.targets if t.pilot_lags])
         symbols = high - low + 1
     else:
         symbols = design.symbols_per_slot
-    symbols += pre
+    symbols += before
+    taps = int(np.count_nonzero(np.asarray(environment.powers) > 0))
     if frames is None:
-        samples = symbols * (design.fft_size + design.cp_samples)
-        frames = int(np.clip(SAMPLE_BUDGET // max(samples, 1), MIN_FRAMES, MAX_FRAMES))
-    return SimulationSize(int(frames), int(symbols), int(design.fft_size), max(taps, 1))
+        frames = int(np.clip(SAMPLE_BUDGET // max(symbols * (n + ncp), 1), MIN_FRAMES, MAX_FRAMES))
+    return SimulationSize(int(frames), int(symbols), int(n), taps)
 
 
-def check_simulation(design, environment, frames=None) -> SimulationSize:
+def check_simulation(design, environment, frames=None, rules=None) -> SimulationSize:
     """Refuse a simulation beyond :data:`MAX_SIMULATED_SAMPLES` or :data:`MEMORY_BYTES`, saying what would fit."""
-    size = simulation_size(design, environment, frames)
+    size = simulation_size(design, environment, frames, rules)
     per_frame = size.symbols * size.fft_size
     where = "--frames" if frames is not None else "verify (default frames)"
     if size.samples > MAX_SIMULATED_SAMPLES:
@@ -335,9 +333,9 @@ def check_simulation(design, environment, frames=None) -> SimulationSize:
 
 
 def _taps_that_fit(size: SimulationSize) -> int:
-    from .simulate import BLOCK_BYTES
+    from .simulate import BATCH_BYTES
 
-    room = MEMORY_BYTES - BASE_BYTES - max(size.symbols * size.fft_size * BYTES_PER_FRAME_SAMPLE, BLOCK_BYTES)
+    room = MEMORY_BYTES - BASE_BYTES - max(size.symbols * size.fft_size * BYTES_PER_FRAME_SAMPLE, BATCH_BYTES)
     return max(0, room // (size.fft_size * BYTES_PER_TAP_SAMPLE))
 
 

@@ -214,12 +214,16 @@ def verify(args) -> int:
         con = _stderr_console() if args.json else render_terminal.console()
         verification = render_terminal.with_progress(con, run)
     if planned and not verification.interrupted:
-        _write_files(planned, req, check=api.check(req, design, speed_mps=speed, max_excess_delay_s=delay),
-                     verification=verification)
+        import dataclasses
+
+        check = api.check(req, design, speed_mps=speed, max_excess_delay_s=delay)
+        if not args.best:  # the design named as the user named it (the file is not read again)
+            check = dataclasses.replace(check, origin=api.describe_origin(design, args.preset, args.design))
+        _write_files(planned, req, check=check, verification=verification)
     if args.json:
         _emit(render_json.document("numerology.verify", {"requirements": req.path, **verification.to_json()}))
     else:
-        render_terminal.verification(con, verification)
+        render_terminal.verification(con, verification, req)
     return verify_status(verification)
 
 

@@ -23,6 +23,7 @@ echo-beyond-guard term, so one is assumed and the assumption is stated:
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass
 
@@ -214,13 +215,72 @@ def derive_environment(req: Requirements, *, speed_mps: float | None = None,
     speed_mps : float, optional
         Override of ``environment.max_speed`` in m/s (what-if).
     max_excess_delay_s : float, optional
-        Override of the max excess delay in s (what-if): the profile's delays
-        are stretched so that its max excess delay becomes this value.
+        Override of the max excess delay in s (what-if): see
+        :func:`what_if_requirements`, which says how the profile follows.
 
     Returns
     -------
     Environment
+        With what-ifs, the environment of ``what_if_requirements(req, ...)``
+        (its max excess delay the what-if's value exactly).
     """
+    if speed_mps is not None or max_excess_delay_s is not None:
+        analysed = what_if_requirements(req, speed_mps=speed_mps, max_excess_delay_s=max_excess_delay_s)
+        found = _derive(analysed, max_excess_delay_s)
+        if max_excess_delay_s is not None:
+            found = dataclasses.replace(found, profile_name=f"{found.profile_name}, stretched to "
+                                                            f"{max_excess_delay_s * 1e6:.4g} us (what-if)")
+        return found
+    return _derive(req, None)
+
+
+def what_if_requirements(req: Requirements, *, speed_mps: float | None = None,
+                         max_excess_delay_s: float | None = None) -> Requirements:
+    """The requirement set a what-if analyses: the file's, with the what-if's values in their place.
+
+    ``speed_mps`` becomes ``environment.max_speed`` (a given ``max_doppler``
+    is dropped). ``max_excess_delay_s`` becomes the channel's max excess
+    delay: a profile (catalogue or file) is stretched as a whole, its
+    ``rms_delay_spread`` scaled so that the max excess delay of its taps (at
+    ``rules.delay_threshold``) is the what-if's (every delay scales with the
+    rms spread, 3GPP TR 38.901 sect. 7.7.3); given bounds are replaced, the
+    rms spread in proportion to the max excess delay; a channel without spread
+    (one path) becomes two equal rays that far apart. The plot and the stretch
+    limits of a what-if read this requirement set, so they show what ``check``
+    analysed.
+    """
+    if speed_mps is not None:
+        req = req.replace("environment.max_speed", float(speed_mps)).replace("environment.max_doppler", None)
+    if max_excess_delay_s is None:
+        return req
+    env = req.environment
+    target = float(max_excess_delay_s)
+    if env.profile is not None or env.profile_file is not None or env.max_excess_delay_s is None:
+        current = _derive(req, None).max_excess_delay_s  # of the (given or assumed) taps
+    else:
+        current = env.max_excess_delay_s  # stated: the what-if replaces it
+    if not current > 0:  # one path: two equal rays, the what-if apart
+        for key in ("environment.profile", "environment.profile_file", "environment.rms_delay_spread"):
+            req = req.replace(key, None)
+        return req.replace("environment.max_excess_delay", target)
+    factor = target / current
+    if env.profile is not None or env.profile_file is not None:
+        rms = env.rms_delay_spread_s
+        if rms is None:  # the profile's own rms spread, the value Profile.scaled stretches from
+            from . import profiles
+
+            profile = (profiles.get_profile(env.profile) if env.profile is not None
+                       else req.attached(env.profile_file, profiles.load_profile_csv))
+            rms = profile.rms_delay_spread_s
+        return req.replace("environment.rms_delay_spread", rms * factor)
+    if env.max_excess_delay_s is not None:
+        req = req.replace("environment.max_excess_delay", target)
+    if env.rms_delay_spread_s is not None:
+        req = req.replace("environment.rms_delay_spread", env.rms_delay_spread_s * factor)
+    return req
+
+
+def _derive(req: Requirements, stated_span: float | None) -> Environment:
     env, rules, radio = req.environment, req.rules, req.radio
     notes = []
     c = env.propagation_speed_mps
@@ -236,8 +296,7 @@ def derive_environment(req: Requirements, *, speed_mps: float | None = None,
         notes.append(f"wideband ({100 * fractional_bw:.0f} % of the carrier): Doppler is a time scaling; "
                      "evaluated at the upper band edge, and the receiver must resample")
     wavelength = float(doppler.wavelength_m(env.carrier_hz, c))
-    if speed_mps is None:
-        speed_mps = env.max_speed_mps
+    speed_mps = env.max_speed_mps
     if speed_mps is not None:
         f_d = float(doppler.max_doppler_hz(speed_mps, doppler_carrier_hz, c))
     else:
@@ -253,16 +312,8 @@ def derive_environment(req: Requirements, *, speed_mps: float | None = None,
     powers, los, name, more = line_of_sight(delays, powers, name, spectrum, env.k_factor_db, los_tap_k_db)
     notes.extend(more)
     k_factor = los / (1.0 - los)
-    if max_excess_delay_s is not None:
-        current = float(delay.max_excess_delay_s(delays, powers, rules.delay_threshold_db))
-        if current > 0:
-            delays = delays * (max_excess_delay_s / current)
-            name = f"{name}, stretched to {max_excess_delay_s * 1e6:.4g} us"
-        else:
-            delays, powers = _two_ray(max_excess_delay_s, None)
-            name = f"two equal rays {max_excess_delay_s * 1e6:.4g} us apart (what-if)"
     # A max excess delay the user states (or asks for) is used as given, not re-derived from assumed taps.
-    stated_span = max_excess_delay_s if max_excess_delay_s is not None else env.max_excess_delay_s
+    stated_span = stated_span if stated_span is not None else env.max_excess_delay_s
     return Environment(
         carrier_hz=env.carrier_hz,
         propagation_speed_mps=c,

@@ -507,7 +507,7 @@ def _alias_scale_for(designs: DesignArrays):
 
 
 def evaluate(designs: DesignArrays, environment: Environment, req: Requirements, *, estimation: bool = True,
-             overrides: dict | None = None) -> Evaluation:
+             overrides: dict | None = None, given_error=None) -> Evaluation:
     """Evaluate designs against an environment and a requirement set.
 
     Parameters
@@ -527,6 +527,10 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
     overrides : dict, optional
         Symbols of the rule language replaced by given values (best cases
         while a design is incomplete; see ``numerology.solver``).
+    given_error : array_like, optional
+        The channel-estimation error (a fraction of the channel power) to use
+        instead of computing it, broadcasting with the result (a picture that
+        knows it from nearby points: ``numerology.plots``).
 
     Returns
     -------
@@ -566,7 +570,9 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
     # the whole signal (ICI -> 1: an infinite term) leaves the pilots an SINR of 0, where the estimate knows
     # nothing (error 1, its limit); the floor keeps the estimators' arithmetic finite.
     pilot_sinr = np.maximum(1.0 / impairments, PILOT_SINR_FLOOR)
-    if estimation:
+    if given_error is not None:
+        mse = np.broadcast_to(np.asarray(given_error, dtype=float), shape)
+    elif estimation:
         mse = np.broadcast_to(estimation_error(designs, environment, req, pilot_sinr), shape)
     else:
         mse = np.broadcast_to(estimation_floor(req, pilot_sinr), shape)

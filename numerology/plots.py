@@ -33,8 +33,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import candidates, link
-from .design import Design, DesignArrays
-from .environment import derive_environment
+from .design import Design, DesignArrays, pilot_label
+from .environment import derive_environment, what_if_requirements
 from .errors import InputError
 from .rules import BY_NAME
 from .output import optional_module, output_path, write_atomic
@@ -49,11 +49,12 @@ DEFAULT_GRID = (64, 48)
 REFINE_STEPS = 32
 #: What only the picture uses is refined less, and many points at a time (an evaluation costs about as much
 #: for one point as for a hundred), which keeps --plot within a few times the run without it
-#: (benchmarks/bench_plot.py): (points per row and step, steps) for the limits through the requirement,
-#: written in the title to 4 digits (41^-4 of a probe step of 19 %: 7e-8 relative), and for the edge of each
-#: grid row and column of the map (16^-2 of a grid step; only the rule beyond it is used); halvings of the
-#: window of panel (b) (it sets the zoom; the panel draws the edges of its grid, not the refined ones).
-TITLE_REFINE, MAP_EDGE_REFINE, ZOOM_STEPS = (40, 4), (15, 2), 4
+#: (benchmarks/bench_plot.py): (points per row and step, steps) for the limits through the requirement when the
+#: check has not found them already, written in the title to 4 digits (41^-4 of a probe step of 19 %: 7e-8
+#: relative). The window of panel (b) is not refined (the panel draws the edges of its grid, and its zoom leaves
+#: a factor 8 of room), nor is the map's edge along each grid row and column (read off the grid: only the rule
+#: beyond it is used, in the legend).
+TITLE_REFINE = (40, 4)
 #: Line styles for the rules, in declaration order of the rules drawn: dash pattern and a
 #: colour-blind-safe colour (Okabe & Ito, "Color Universal Design", 2008), distinct in black and white.
 STYLES = (("-", "#000000"), ("--", "#D55E00"), (":", "#0072B2"), ("-.", "#009E73"),
@@ -96,16 +97,87 @@ def delay_axis(req: Requirements) -> DelayAxis:
     return DelayAxis("max_excess_delay", label, env.max_excess_delay_s, ratio)
 
 
-def _evaluate(req: Requirements, design: Design, speeds_mps, axis: DelayAxis, delays_s):
-    """Normalised margins of every applicable rule at paired (speed, delay) points: name -> array."""
+def _evaluate(req: Requirements, design: Design, speeds_mps, axis: DelayAxis, delays_s, given_error=None,
+              with_error: bool = False):
+    """Normalised margins of every applicable rule at paired (speed, delay) points: name -> array.
+
+    ``given_error`` (the estimation error at each point) replaces the exact estimation (see
+    :func:`_grid_margins`); ``with_error`` also returns the error used, as ``(margins, error)``.
+    """
     speeds_mps, delays_s = np.broadcast_arrays(np.asarray(speeds_mps, float), np.asarray(delays_s, float))
     shape = speeds_mps.shape
     sites = sites_from_values(req, max_speed_mps=speeds_mps.ravel(), **axis.site_values(delays_s.ravel()))
     if sites.problems:
         raise InputError("plot", f"cannot map this requirement set: {sites.problems[0][1]}")
-    evaluation = link.evaluate(DesignArrays.from_designs([design]), site_environments(req, sites, notes=False), req)
-    return {rule.name: np.broadcast_to(evaluation.normalised[rule.name], (sites.size,)).reshape(shape)
-            for rule in evaluation.rules}
+    given = None if given_error is None else np.reshape(np.asarray(given_error, dtype=float), sites.size)
+    evaluation = link.evaluate(DesignArrays.from_designs([design]), site_environments(req, sites, notes=False), req,
+                               given_error=given)
+    margins = {rule.name: np.broadcast_to(evaluation.normalised[rule.name], (sites.size,)).reshape(shape)
+               for rule in evaluation.rules}
+    if not with_error:
+        return margins
+    term = np.broadcast_to(evaluation.terms["estimation"], (sites.size,)).reshape(shape)
+    with np.errstate(invalid="ignore"):
+        error = np.where(np.isfinite(term), term / (1.0 + term), 1.0)
+    return margins, error
+
+
+#: The operating map computes the channel-estimation error (most of its cost) exactly on every COARSE-th grid
+#: line and, by bilinear interpolation of its logarithm, between them; then exactly at every grid point next to
+#: the edge of the region where the design holds, again until that edge stops moving (at most EDGE_ROUNDS
+#: times). The region and its edge are then those of the exact error (tests/test_plots.py compares).
+COARSE, EDGE_ROUNDS = 8, 6
+
+
+def _grid_margins(req, design, axis, speeds, delays):
+    """Margins over the (delay, speed) grid, the estimation error exact where the picture depends on it."""
+    ny, nx = delays.size, speeds.size
+    rows = np.unique(np.r_[np.arange(0, ny, COARSE), ny - 1])
+    cols = np.unique(np.r_[np.arange(0, nx, COARSE), nx - 1])
+    _, nodes = _evaluate(req, design, speeds[None, cols], axis, delays[rows, None], with_error=True)
+    log_nodes = np.log(np.clip(nodes, 1e-300, 1.0))
+    flat_y, flat_x = np.meshgrid(np.arange(ny, dtype=float), np.arange(nx, dtype=float), indexing="ij")
+    error = np.exp(_bilinear(cols.astype(float), rows.astype(float), log_nodes[None], flat_x.ravel(),
+                             flat_y.ravel())[0]).reshape(ny, nx)
+    exact = np.zeros((ny, nx), dtype=bool)
+    error[np.ix_(rows, cols)] = nodes
+    exact[np.ix_(rows, cols)] = True
+    speed_grid, delay_grid = np.broadcast_arrays(speeds[None, :], delays[:, None])
+    for _ in range(EDGE_ROUNDS):
+        margins = _evaluate(req, design, speed_grid, axis, delay_grid, given_error=error)
+        passed = np.min(np.stack(list(margins.values())), axis=0) >= 0
+        near = np.zeros_like(passed)
+        across = passed[:, 1:] != passed[:, :-1]
+        near[:, 1:] |= across
+        near[:, :-1] |= across
+        down = passed[1:, :] != passed[:-1, :]
+        near[1:, :] |= down
+        near[:-1, :] |= down
+        todo = near & ~exact
+        if not todo.any():
+            break
+        _, found = _evaluate(req, design, speed_grid[todo], axis, delay_grid[todo], with_error=True)
+        error[todo] = found
+        exact |= todo
+    return _evaluate(req, design, speed_grid, axis, delay_grid, given_error=error)
+
+
+def _edges_on_grid(values, fixed, normalised):
+    """Along each row of ``normalised`` tables (rows: ``fixed`` values, columns: ``values``), the highest value
+    up to which every rule passes (linear between grid points; inf: holds over the whole row, nan: fails at its
+    start) and the rule with the smallest margin at the first failing point."""
+    names = list(normalised)
+    stack = np.stack([np.clip(normalised[k], -1e6, 1e6) for k in names])
+    worst = stack.min(axis=0)
+    first = _first_failure(worst >= 0)
+    limit = np.where(first == -1, np.inf, np.nan)
+    rule = np.full(np.shape(fixed), None, dtype=object)
+    for row in np.flatnonzero(first >= 0):
+        j = first[row]
+        a, b = worst[row, j - 1], worst[row, j]
+        limit[row] = values[j - 1] + (values[j] - values[j - 1]) * a / (a - b)
+        rule[row] = names[int(np.argmin(stack[:, row, j]))]
+    return limit, rule
 
 
 def _first_failure(passed):
@@ -219,11 +291,12 @@ class OperatingMap:
     delays_s: np.ndarray  # (ny,)
     normalised: dict  # rule -> (ny, nx) capacity/demand - 1
     required_speed_mps: float
-    speed_limit_mps: np.ndarray  # (ny,) as speed_limits, refined to 16^-2 of a grid step (MAP_EDGE_REFINE)
+    speed_limit_mps: np.ndarray  # (ny,) as speed_limits, linear between the grid's points
     speed_limit_rule: np.ndarray
     delay_limit_s: np.ndarray  # (nx,) see delay_limits
     delay_limit_rule: np.ndarray
     limits_at_requirement: tuple = ()  # (speed limit m/s, its rule, delay limit s, its rule) through the requirement
+    file_point: tuple | None = None  # (speed m/s, delay s) of the requirement file when the map is of a what-if
 
     @property
     def passed(self) -> np.ndarray:
@@ -241,32 +314,60 @@ class OperatingMap:
 MAX_ZOOM_OUT = 10.0
 
 
-def _extent(req, design, axis, speed_mps, delay_s):
-    """Axis ends showing the requirement and the design's limits through it, and those limits."""
-    speed_ref = max(speed_mps, 1.0)
-    delay_ref = max(delay_s, 1e-9)
-    probe = np.geomspace(1.0 / 64, 64.0, 49)
-    points, steps = TITLE_REFINE
-    (v_lim, v_rule), (d_lim, d_rule) = _limits_together(
-        req, design, axis, [([delay_s], speed_ref * probe, True), ([speed_mps], delay_ref * probe, False)],
-        steps, points=points)
-    v_lim, d_lim = float(v_lim[0]), float(d_lim[0])
+def _extent(req, design, axis, speed_mps, delay_s, known=None):
+    """Axis ends showing the requirement and the design's limits through it, and those limits.
+
+    ``known`` gives the limits through the requirement when they were already worked out (the stretch limits
+    of ``check``: :func:`limits_from_check`); else they are found here.
+    """
+    if known is None:
+        speed_ref = max(speed_mps, 1.0)
+        delay_ref = max(delay_s, 1e-9)
+        probe = np.geomspace(1.0 / 64, 64.0, 49)
+        points, steps = TITLE_REFINE
+        (v_lim, v_rule), (d_lim, d_rule) = _limits_together(
+            req, design, axis, [([delay_s], speed_ref * probe, True), ([speed_mps], delay_ref * probe, False)],
+            steps, points=points)
+        known = (float(v_lim[0]), v_rule[0], float(d_lim[0]), d_rule[0])
+    v_lim, _, d_lim, _ = known
     x_max = 1.5 * max(v_lim if math.isfinite(v_lim) else 2.0 * speed_mps, speed_mps)
     x_max = min(x_max, MAX_ZOOM_OUT * speed_mps) if speed_mps > 0 else x_max
     y_max = 1.5 * max(d_lim if math.isfinite(d_lim) else 2.0 * delay_s, delay_s)
     y_max = min(y_max, MAX_ZOOM_OUT * delay_s) if delay_s > 0 else y_max
     x_max = x_max if x_max > 0 else 10 * KMH  # a requirement at rest with no speed limit in sight
-    return (min(x_max, 2e4), min(max(y_max, 1e-9), 1.0),
-            (v_lim, v_rule[0], d_lim, d_rule[0]))
+    return min(x_max, 2e4), min(max(y_max, 1e-9), 1.0), known
+
+
+def limits_from_check(check, axis: DelayAxis, environment):
+    """(speed limit, its rule, delay limit on the map's axis, its rule) from a check's stretch limits, or None.
+
+    The stretch limits (``numerology.limits``) are found through the point the check analysed, each stress
+    alone, as the map's limits through it: the picture's title then says what the note's table says. None when
+    the check has no limits, or the design fails there (a limit then is not a crossing from pass to fail).
+    """
+    limits = getattr(check, "limits", None) or {}
+    if not check.passed or "max_speed_mps" not in limits or "max_excess_delay_s" not in limits:
+        return None
+    speed, span = limits["max_speed_mps"], limits["max_excess_delay_s"]
+    if axis.key == "rms_delay_spread":
+        stretched = limits.get("max_rms_delay_spread_s")
+        if stretched is None:  # an assumed profile stretched as a whole: its rms spread in proportion
+            if not environment.max_excess_delay_s > 0:
+                return None
+            scale = environment.rms_delay_spread_s / environment.max_excess_delay_s
+            return speed.value, speed.rule, span.value * scale, span.rule
+        return speed.value, speed.rule, stretched.value, stretched.rule
+    return speed.value, speed.rule, span.value, span.rule
 
 
 def operating_map(req: Requirements, design: Design, grid=DEFAULT_GRID, speed_max_mps=None,
-                  delay_max_s=None) -> OperatingMap:
+                  delay_max_s=None, *, limits=None, file_req: Requirements | None = None) -> OperatingMap:
     """Evaluate a design over a (speed, delay) grid, with its speed and delay limits along the grid lines.
 
     Parameters
     ----------
     req : Requirements
+        The requirement set analysed (a what-if's: ``environment.what_if_requirements``).
     design : Design
     grid : (int, int)
         Points across (speed) and up (delay).
@@ -274,6 +375,10 @@ def operating_map(req: Requirements, design: Design, grid=DEFAULT_GRID, speed_ma
         Axis ends; by default 1.5 times the larger of the requirement and the
         design's limit through it, at most :data:`MAX_ZOOM_OUT` times the
         requirement.
+    limits : tuple, optional
+        The limits through the requirement if known (:func:`limits_from_check`).
+    file_req : Requirements, optional
+        The requirement file's own set when ``req`` is a what-if's: its point is marked too.
 
     Returns
     -------
@@ -281,19 +386,22 @@ def operating_map(req: Requirements, design: Design, grid=DEFAULT_GRID, speed_ma
     """
     axis = delay_axis(req)
     speed_req = derive_environment(req).speed_mps
-    x_max, y_max, at_requirement = _extent(req, design, axis, speed_req, axis.required_s)
+    x_max, y_max, at_requirement = _extent(req, design, axis, speed_req, axis.required_s, limits)
+    file_point = None
+    if file_req is not None:
+        file_point = (derive_environment(file_req).speed_mps, delay_axis(file_req).required_s)
+        x_max = max(x_max, min(1.1 * file_point[0], 2e4))
+        y_max = max(y_max, min(1.1 * file_point[1], 1.0))
     speed_max_mps = speed_max_mps or x_max
     delay_max_s = delay_max_s or y_max
     nx, ny = grid
     speeds = np.linspace(0.0, speed_max_mps, nx)
     delays = np.linspace(delay_max_s / 1000, delay_max_s, ny)  # a profile cannot be scaled to 0
-    normalised = _evaluate(req, design, speeds[None, :], axis, delays[:, None])
-    points, steps = MAP_EDGE_REFINE
-    (v_lim, v_rule), (d_lim, d_rule) = _limits_together(
-        req, design, axis, [(delays, speeds, True), (speeds, delays, False)], steps, points=points,
-        initial=[normalised, {k: m.T for k, m in normalised.items()}])  # the grid is both tasks' first table
+    normalised = _grid_margins(req, design, axis, speeds, delays)
+    v_lim, v_rule = _edges_on_grid(speeds, delays, normalised)
+    d_lim, d_rule = _edges_on_grid(delays, speeds, {k: m.T for k, m in normalised.items()})
     return OperatingMap(design, axis, speeds, delays, normalised, speed_req, v_lim, v_rule, d_lim, d_rule,
-                        at_requirement)
+                        at_requirement, file_point)
 
 
 def edge_segments(x, y, normalised: dict) -> list:
@@ -478,30 +586,66 @@ def write_plot(path, req: Requirements, check=None, solution=None, *, grid=DEFAU
     write_atomic(target, plot_bytes(req, target.suffix.lower().lstrip("."), check, solution, grid=grid))
 
 
-def plot_bytes(req: Requirements, fmt: str, check=None, solution=None, *, grid=DEFAULT_GRID) -> bytes:
-    """The picture of :func:`write_plot` as the bytes of a ``png`` or ``svg`` file (matplotlib needed)."""
-    design = None
+@dataclass(frozen=True)
+class Picture:
+    """Everything :func:`plot_bytes` draws, worked out (matplotlib is only needed to draw it)."""
+
+    requirements: Requirements  # the set analysed: a check's what-ifs in place of the file's values
+    environment: object
+    design: Design | None
+    operating: OperatingMap | None
+    window: SpacingMap
+    family: np.ndarray
+    what_if: bool
+    diagnosis: object = None  # an infeasible solve's diagnosis: the window panel names its crossing rules
+
+
+def picture(req: Requirements, check=None, solution=None, *, grid=DEFAULT_GRID) -> Picture:
+    """The numbers of the picture: the operating map of the design and the spacing window.
+
+    A check with what-ifs (``check.what_if``) is mapped at the point it analysed, the requirement file's
+    point beside it; the limits through that point are the check's stretch limits when it has them.
+    """
+    design, source = None, None
     if check is not None:
-        design = check.design
+        design, source = check.design, check
     elif solution is not None and solution.feasible:
-        design = solution.designs[0].check.design
-    omap = operating_map(req, design, grid) if design is not None else None
-    environment = derive_environment(req)
+        source = solution.designs[0].check
+        design = source.design
+    what_if = dict(getattr(check, "what_if", None) or {})
+    analysed = what_if_requirements(req, speed_mps=what_if.get("speed_mps"),
+                                    max_excess_delay_s=what_if.get("max_excess_delay_s"))
+    environment = derive_environment(analysed)
+    omap = None
+    if design is not None:
+        known = limits_from_check(source, delay_axis(analysed), environment)
+        omap = operating_map(analysed, design, grid, limits=known, file_req=req if what_if else None)
     if omap is not None:
         speed_max = float(omap.speeds_mps[-1])
     else:
         speed_max = max(3.0 * environment.speed_mps, 10 * KMH)
-    family = candidates.spacing_family(req, environment)
+    family = candidates.spacing_family(analysed, environment)
     speeds = np.linspace(0.0, speed_max, grid[0])
-    smap = spacing_map(req, speeds, np.geomspace(family[0] / 4, family[-1] * 4, 4 * grid[1]), steps=ZOOM_STEPS)
+    # the zoom: the window's extremes over the speeds shown, on a coarser grid of speeds, to a grid step (a
+    # factor 8 of room is left beyond them anyway)
+    coarse = speeds[np.unique(np.r_[np.arange(0, speeds.size, 4), speeds.size - 1])]
+    smap = spacing_map(analysed, coarse, np.geomspace(family[0] / 4, family[-1] * 4, 4 * grid[1]), steps=0)
     low, high = np.nanmin(smap.lower_hz, initial=np.inf), np.nanmax(smap.upper_hz, initial=-np.inf)
     if design is not None:
         low, high = min(low, design.subcarrier_spacing_hz), max(high, design.subcarrier_spacing_hz)
+    spacings = np.geomspace(family[0] / 4, family[-1] * 4, 4 * grid[1])
     if low <= high:  # zoom on the window: a factor 8 beyond its extremes, within the searched range
         spacings = np.geomspace(max(low / 8, family[0] / 4), min(high * 8, family[-1] * 4), 4 * grid[1])
-        smap = spacing_map(req, speeds, spacings, steps=ZOOM_STEPS)  # the panel draws the grid's edges
+    smap = spacing_map(analysed, speeds, spacings, steps=0)  # the panel draws the edges of its grid
     diagnosis = solution.diagnosis if solution is not None and not solution.feasible else None
-    return _render(req, environment, design, omap, smap, family, fmt, diagnosis)
+    return Picture(analysed, environment, design, omap, smap, family, bool(what_if), diagnosis)
+
+
+def plot_bytes(req: Requirements, fmt: str, check=None, solution=None, *, grid=DEFAULT_GRID) -> bytes:
+    """The picture of :func:`write_plot` as the bytes of a ``png`` or ``svg`` file (matplotlib needed)."""
+    p = picture(req, check, solution, grid=grid)
+    return _render(p.requirements, p.environment, p.design, p.operating, p.window, p.family, fmt, p.what_if,
+                   p.diagnosis)
 
 
 def _delay_unit(value_s):
@@ -512,7 +656,7 @@ def _delay_unit(value_s):
     return 1.0, "s"
 
 
-def _render(req, environment, design, omap, smap, family, fmt, diagnosis=None) -> bytes:
+def _render(req, environment, design, omap, smap, family, fmt, what_if=False, diagnosis=None) -> bytes:
     from matplotlib.figure import Figure
 
     fig = Figure(figsize=(7.5, 10.5), layout="constrained")
@@ -536,8 +680,8 @@ def _render(req, environment, design, omap, smap, family, fmt, diagnosis=None) -
                  ha="center", va="center", transform=top.transAxes, fontsize=9)
         top.set_axis_off()
     else:
-        _draw_map(top, omap, map_edges, styles, scale, unit)
-    _draw_window(bottom, environment, design, smap, window_edges, family, styles, hz_scale, hz_unit,
+        _draw_map(top, omap, map_edges, styles, scale, unit, what_if)
+    _draw_window(bottom, environment, design, smap, window_edges, family, styles, hz_scale, hz_unit, what_if,
                  explained=diagnosis is not None and bool(diagnosis.bounds))
     if diagnosis is not None and diagnosis.bounds:
         _draw_conflict(bottom, environment, diagnosis.bounds, hz_scale)
@@ -576,7 +720,7 @@ def _speed_text(value_mps):
     return f"{value_mps / KMH:.4g} km/h"
 
 
-def _draw_map(ax, omap: OperatingMap, edges, styles, scale, unit):
+def _draw_map(ax, omap: OperatingMap, edges, styles, scale, unit, what_if=False):
     from matplotlib.lines import Line2D
 
     design = omap.design
@@ -587,7 +731,16 @@ def _draw_map(ax, omap: OperatingMap, edges, styles, scale, unit):
     handles += _draw_edges(ax, edges, styles, "edge set by")
     required = (omap.required_speed_mps / KMH, omap.axis.required_s / scale)
     ax.plot(*required, marker="*", markersize=15, color="black", markeredgecolor="white", linestyle="none")
-    handles.append(Line2D([], [], marker="*", markersize=12, color="black", linestyle="none", label="requirement"))
+    where = "analysed (what-if)" if what_if else "requirement"
+    handles.append(Line2D([], [], marker="*", markersize=12, color="black", linestyle="none",
+                          label=f"{where}: {_speed_text(omap.required_speed_mps)}, {required[1]:.4g} {unit}"))
+    if omap.file_point is not None:
+        speed, delay_s = omap.file_point
+        ax.plot([speed / KMH], [delay_s / scale], marker="*", markersize=15, color="white", markeredgecolor="black",
+                linestyle="none")
+        handles.append(Line2D([], [], marker="*", markersize=12, color="white", markeredgecolor="black",
+                              linestyle="none",
+                              label=f"requirement file: {_speed_text(speed)}, {delay_s / scale:.4g} {unit}"))
     empty = _nowhere_text(omap.normalised, f"{design.name} holds at no point shown")
     if empty:
         ax.text(0.5, 0.5, empty, ha="center", va="center", transform=ax.transAxes, fontsize=9,
@@ -598,8 +751,7 @@ def _draw_map(ax, omap: OperatingMap, edges, styles, scale, unit):
     label = omap.axis.label
     ax.set_ylabel(label.replace(" (", f" ({unit})\n(", 1) if " (" in label else f"{label} ({unit})")
     title = (f"(a) where {design.name} holds: {engineering(design.subcarrier_spacing_hz, 'Hz')} spacing, "
-             f"CP {engineering(design.cp_s, 's')}, pilots {design.pilot_freq_spacing}x{design.pilot_time_spacing}"
-             f"/{design.pilot_shift}")
+             f"CP {engineering(design.cp_s, 's')}, {pilot_label(design)}")
     if omap.limits_at_requirement:
         v_lim, v_rule, d_lim, d_rule = omap.limits_at_requirement
         parts = []
@@ -608,13 +760,13 @@ def _draw_map(ax, omap: OperatingMap, edges, styles, scale, unit):
         if math.isfinite(d_lim):
             parts.append(f"{d_lim / scale:.4g} {unit} ({d_rule})")
         if parts:
-            title += "\nlimits through the requirement: " + ", ".join(parts)
+            title += f"\nlimits through the {'analysed point' if what_if else 'requirement'}: " + ", ".join(parts)
     ax.set_title(title, fontsize=9.5)
     ax.legend(handles=handles, loc="best", fontsize=8, framealpha=0.92)
     ax.grid(True, color="#bbbbbb", linewidth=0.5)
 
 
-def _draw_window(ax, environment, design, smap: SpacingMap, edges, family, styles, hz_scale, hz_unit,
+def _draw_window(ax, environment, design, smap: SpacingMap, edges, family, styles, hz_scale, hz_unit, what_if=False,
                  explained: bool = False):
     from matplotlib.lines import Line2D
 
@@ -647,7 +799,8 @@ def _draw_window(ax, environment, design, smap: SpacingMap, edges, family, style
         ax.plot([environment.speed_mps / KMH], [design.subcarrier_spacing_hz / hz_scale], marker="o", markersize=9,
                 color="black", markerfacecolor="white", markeredgewidth=2, linestyle="none")
         handles.append(Line2D([], [], marker="o", markersize=8, color="black", markerfacecolor="white",
-                              markeredgewidth=2, linestyle="none", label=f"{design.name} at the required speed"))
+                              markeredgewidth=2, linestyle="none",
+                              label=f"{design.name} at the {'analysed' if what_if else 'required'} speed"))
     empty = "" if explained else _nowhere_text(smap.normalised, "no spacing passes every rule at any speed shown")
     if empty:
         ax.text(0.5, 0.5, empty, ha="center", va="center", transform=ax.transAxes, fontsize=9,

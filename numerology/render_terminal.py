@@ -126,13 +126,39 @@ LIMIT_LABELS = {
 }
 
 
-def design_line(d) -> str:
+def design_line(d, req=None) -> str:
+    """One line for a design: numerology, pilots (``design.pilot_label``), slot; with ``req``, the receiver's
+    estimation allowance (``rules.estimator``, ``estimation_lookahead``, ``estimation_memory``)."""
+    from .design import pilot_label
+
+    allowance = ""
+    if req is not None:
+        from .arrangement import allowance_text
+        from .estimation import MAX_PILOT_SYMBOLS
+
+        rules = req.rules
+        text = allowance_text(d.pilot_scope, rules.estimator, rules.estimation_lookahead, rules.estimation_memory,
+                              MAX_PILOT_SYMBOLS)
+        allowance = f" (estimate: {text})"
     return (f"{engineering(d.subcarrier_spacing_hz, 'Hz')} spacing, FFT {d.fft_size} at "
             f"{engineering(d.sample_rate_hz, 'Hz')} (T_u {engineering(d.useful_symbol_s, 's')}), "
             f"CP {d.cp_samples} samples = {engineering(d.cp_s, 's')}, {d.used_subcarriers} used "
-            f"({engineering(d.occupied_bandwidth_hz, 'Hz')}), pilots every {d.pilot_freq_spacing} subcarriers x "
-            f"{d.pilot_time_spacing} symbols, shift {d.pilot_shift}, {d.symbols_per_slot} symbols per slot "
-            f"({engineering(d.slot_s, 's')})")
+            f"({engineering(d.occupied_bandwidth_hz, 'Hz')}), {pilot_label(d)}{allowance}, "
+            f"{d.symbols_per_slot} symbols per slot ({engineering(d.slot_s, 's')})")
+
+
+def what_if_text(what_if: dict, req) -> str:
+    """"speed 350 km/h (the file: 300 km/h)" for the values a check analysed in place of the file's ("" if none)."""
+    given = dict(req.given)
+    parts = []
+    if "speed_mps" in what_if:
+        file_text = given.get("environment.max_speed") or (
+            f"max_doppler {given['environment.max_doppler']}" if "environment.max_doppler" in given else "not given")
+        parts.append(f"speed {speed_kmh(what_if['speed_mps'])} (the file: {file_text})")
+    if "max_excess_delay_s" in what_if:
+        file_text = given.get("environment.max_excess_delay", "from the profile")
+        parts.append(f"max excess delay {engineering(what_if['max_excess_delay_s'], 's')} (the file: {file_text})")
+    return ", ".join(parts)
 
 
 def show_margin(rule) -> str:
@@ -212,7 +238,11 @@ def check(con: Console, result, req) -> None:
     verdict = Text("PASSES", style="bold green") if result.passed else Text("FAILS", style="bold red")
     b = result.binding_rule
     con.print(Text.assemble(("Design ", ""), (plain(d.name), "bold"), " ", verdict, f" against {plain(req.path)}"))
-    con.print(design_line(d))
+    if result.origin:
+        con.print(f"Checked: {plain(result.origin)}")
+    con.print(design_line(d, req))
+    if result.what_if:
+        con.print(Text("What-if: " + what_if_text(result.what_if, req), style="bold"))
     env = result.environment
     con.print(f"Channel: f_D {engineering(env.max_doppler_hz, 'Hz')} at {speed_kmh(env.speed_mps)}, "
               f"max excess delay {engineering(env.max_excess_delay_s, 's')}, "
@@ -268,6 +298,8 @@ def relaxation_rows(relaxation) -> list:
 
 
 def designs_table(result) -> Table:
+    from .design import pilot_label
+
     table = _table(f"Ranked designs - objective: {OBJECTIVE_LABELS[result.objective]}", ">#", ">spacing", ">FFT/CP",
                    ">pilots", ">slot", ">net rate", "binding rule", pad_edge=False)
     for ranked in result.designs:
@@ -275,7 +307,7 @@ def designs_table(result) -> Table:
         d = c.design
         b = c.binding_rule
         table.add_row(str(ranked.rank) + ("*" if ranked.pareto else ""), engineering(d.subcarrier_spacing_hz, "Hz"),
-                      f"{d.fft_size}/{d.cp_samples}", f"{d.pilot_freq_spacing}x{d.pilot_time_spacing}/{d.pilot_shift}",
+                      f"{d.fft_size}/{d.cp_samples}", pilot_label(d),
                       engineering(d.slot_s, "s"), engineering(c.net_throughput_bps, "bit/s"),
                       f"{b.name} {show_margin(b)}")
     return table
@@ -359,7 +391,7 @@ def solve(con: Console, result) -> None:
     con.print(designs_table(result))
     con.print("* on the Pareto front over (throughput, speed margin, delay margin)", style="dim")
     best = result.designs[0].check
-    con.print(Text.assemble(("Best: ", "bold"), design_line(best.design)))
+    con.print(Text.assemble(("Best: ", "bold"), design_line(best.design, req)))
     b = best.binding_rule
     con.print(Text.assemble("Binding rule: ", (b.name, "bold"), f" (margin {show_margin(b)}) - {b.statement}"))
     con.print(rules_table(best.rules, title="Rules for the best design"))
@@ -412,20 +444,16 @@ def _interval(low, high) -> str:
     return f"{one(low)} .. {one(high)} dB"
 
 
-def verification(con: Console, result) -> None:
+def verification(con: Console, result, req=None) -> None:
     """The verification for people: the verdict, each figure against its prediction, the rate margin, the rules."""
     design, sim = result.design, result.simulation
     verdict = result.verdict
     con.print(Text.assemble("Verification of ", (plain(design.name), "bold"), ": model and simulation ",
                             (verdict.upper(), _VERDICT_STYLE[verdict])))
-    con.print(design_line(design))
+    con.print(design_line(design, req))
     if result.what_if:
-        parts = []
-        if "speed_mps" in result.what_if:
-            parts.append(f"speed {speed_kmh(result.what_if['speed_mps'])}")
-        if "max_excess_delay_s" in result.what_if:
-            parts.append(f"max excess delay {engineering(result.what_if['max_excess_delay_s'], 's')}")
-        con.print("What-if: " + ", ".join(parts))
+        con.print("What-if: " + (what_if_text(result.what_if, req) if req is not None else
+                                 ", ".join(f"{k} {v:g}" for k, v in result.what_if.items())))
     level = f"{100 * sim.confidence:g} %"
     table = _table(f"Measured ({sim.frames} frames, {sim.frames * sim.data_per_frame:,} data resource elements, "
                    f"seed {result.seed}) against predicted", "figure", ">measured", f">{level} interval",

@@ -95,7 +95,8 @@ SCHEMA: tuple[Key, ...] = (
     _q("environment", "max_doppler", "frequency", "largest Doppler shift, given directly instead of max_speed",
        low_open=False, high=1e7),
     _q("environment", "propagation_speed", "speed", "speed of the wave: light for radio, about 1500 m/s in sea water",
-       default=299_792_458.0, low=1.0, high=3.0e8),
+       default=299_792_458.0, low=1.0, high=3.0e8,
+       source="the speed of light in vacuum, exact by the SI definition of the metre"),
     _q("environment", "max_excess_delay", "time", "longest echo that still matters, after the first arrival",
        low_open=False, high=1.0),
     _q("environment", "rms_delay_spread", "time", "rms delay spread (also scales a normalised profile)",
@@ -103,24 +104,27 @@ SCHEMA: tuple[Key, ...] = (
     Key("environment", "profile", "choice", "a tapped-delay-line profile from the built-in catalogue (numerology profiles)"),
     Key("environment", "profile_file", "path", "a CSV of taps: delay and relative power in dB (a measured profile)"),
     Key("environment", "doppler_spectrum", "choice", "shape of the Doppler spectrum", default="classical",
-        choices=DOPPLER_SPECTRA),
+        choices=DOPPLER_SPECTRA, source="Clarke 1968; Jakes 1974: scattering from all directions around a moving "
+                                        "terminal (the classical spectrum)"),
     Key("environment", "k_factor", "db", "Rician K-factor (line of sight over scattered power)", default=None,
         low=-40.0, high=60.0),
     # --- radio: what the hardware and the licence allow --------------------
     _q("radio", "bandwidth", "frequency", "channel bandwidth", high=1e11),
     Key("radio", "occupancy", "number", "usable fraction of the bandwidth (the rest is guard band)", default=0.9,
-        low=0.0, high=1.0, low_open=True),
+        low=0.0, high=1.0, low_open=True, source="common practice: LTE's 10 MHz channel carries 600 subcarriers of "
+                                                 "15 kHz, 9 MHz (3GPP TS 36.104 Table 5.6-1)"),
     Key("radio", "snr", "db", "signal-to-noise ratio at the edge of coverage", low=-30.0, high=80.0),
     _q("radio", "oscillator_linewidth", "frequency", "3-dB linewidth of the oscillator (Wiener phase noise)",
-       default=0.0, low_open=False, high=1e8),
+       default=0.0, low_open=False, high=1e8,
+       source="none stated: no phase noise is counted (give the oscillator's linewidth or mask)"),
     Key("radio", "phase_noise", "mask", "phase-noise mask: a list of [offset, level] pairs such as [\"10 kHz\", \"-90 dBc/Hz\"]"),
     Key("radio", "frequency_error", "offset", "residual carrier-frequency error after synchronisation (\"0.1 ppm\" or \"40 Hz\")",
-        default=0.0, low=0.0, high=1e7),
+        default=0.0, low=0.0, high=1e7, source="none stated: a perfect frequency lock is assumed"),
     _q("radio", "sample_clock", "frequency", "base clock the sample rate must be derived from (integer multiple or divisor)",
        high=1e12),
     # --- goals -------------------------------------------------------------
     _q("goals", "throughput", "bitrate", "net throughput needed at the edge of coverage", default=0.0,
-       low_open=False, high=1e13),
+       low_open=False, high=1e13, source="none stated: no throughput goal"),
     _q("goals", "max_latency", "time", "longest acceptable slot (the air-interface scheduling unit)", high=100.0),
     Key("goals", "max_overhead", "number", "largest fraction of resources spent on cyclic prefix and pilots",
         default=0.3, low=0.0, high=1.0, low_open=True,
@@ -160,7 +164,9 @@ SCHEMA: tuple[Key, ...] = (
     Key("rules", "delay_threshold", "db", "taps weaker than this (below the strongest) do not set the max excess delay",
         default=30.0, low=1.0, high=100.0, source="common practice; ITU-R P.1407 thresholds"),
     Key("rules", "estimator", "choice", "channel estimator the receiver uses (LMMSE over every usable pilot, or "
-        "least squares with linear interpolation)", default="lmmse", choices=ESTIMATORS),
+        "least squares with linear interpolation)", default="lmmse", choices=ESTIMATORS,
+        source="Hoeher, Kaiser & Robertson, ICASSP 1997: the 2-D Wiener (LMMSE) filter, the best linear estimate "
+               "(Kay, Estimation Theory, ch. 12)"),
     Key("rules", "estimation_lookahead", "integer",
         "symbols after a data symbol whose pilots the receiver still uses (stream and packet pilots; "
         "a slot is decoded whole)", default=3, low=0, high=62,
@@ -170,10 +176,13 @@ SCHEMA: tuple[Key, ...] = (
         "symbols before a data symbol whose pilots the receiver still uses (stream pilots)", default=7, low=0,
         high=1000, source="common practice: channel smoothing over about one slot of past pilots"),
     Key("rules", "efficiency_model", "choice", "spectral efficiency from a modulation-and-coding table or a Shannon gap",
-        default="table", choices=EFFICIENCY_MODELS),
+        default="table", choices=EFFICIENCY_MODELS,
+        source="common practice: link adaptation picks the best entry of the receiver's modulation-and-coding table"),
     Key("rules", "shannon_gap", "db", "gap to capacity for the Shannon-gap model", default=3.0, low=0.0, high=20.0,
         source="common practice for modern LDPC/turbo codes at moderate block lengths"),
-    Key("rules", "mcs_table", "path", "CSV of modulation-and-coding entries (name,bits_per_symbol,code_rate,required_sinr [dB])"),
+    Key("rules", "mcs_table", "path", "CSV of modulation-and-coding entries (name,bits_per_symbol,code_rate,required_sinr [dB])",
+        source="none given: the built-in table (IEEE Std 802.11-2016 Table 17-4 rates plus 256-QAM 3/4 and 5/6, "
+               "thresholds derived with a 5 dB gap to capacity; numerology.mcs)"),
     # --- search: the candidate space ----------------------------------------
     Key("search", "spacing_family", "choice", "how subcarrier spacings are drawn: auto is the scalable family when "
         "one of its spacings lies in the window of spacings the rules allow, else the finer lattice "

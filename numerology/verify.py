@@ -331,7 +331,7 @@ def verify(req, design: Design, *, seed=0, frames=None, speed_mps=None, max_exce
     if progress is not None and not callable(progress):
         raise InputError("progress", "expected a callable progress(done, total) or None")
     environment = derive_environment(req, speed_mps=speed_mps, max_excess_delay_s=max_excess_delay_s)
-    budget.check_simulation(design, environment, frames)  # before any work: what would fit, if it would not
+    budget.check_simulation(design, environment, frames, req.rules)  # before any work: what would fit, if it would not
     evaluation = link.evaluate(DesignArrays.from_designs([design]), environment, req)
     terms = {name: float(np.ravel(value)[0]) for name, value in evaluation.terms.items()}
     failing = tuple((rule.name, float(np.ravel(evaluation.margin[rule.name])[0]), rule.convention)

@@ -132,3 +132,41 @@ def examples_copy(tmp_path):
     target = tmp_path / "examples"
     shutil.copytree(EXAMPLES, target)
     return target
+
+
+# --- reading a design note as a reviewer (tests/test_note.py, tests/test_what_if.py) -------------------------
+
+
+def note_sections(text: str) -> dict:
+    """Markdown text -> {heading: body}, for headings of levels 2 and 3."""
+    out, name = {}, None
+    for line in text.splitlines():
+        if line.startswith("## ") or line.startswith("### "):
+            name = line.lstrip("#").strip()
+            out[name] = []
+        elif name is not None:
+            out[name].append(line)
+    return {k: "\n".join(v) for k, v in out.items()}
+
+
+def note_section(text: str, start: str) -> str:
+    """The body of the first section whose heading starts with ``start``."""
+    return next(body for name, body in note_sections(text).items() if name.startswith(start))
+
+
+def note_tables(body: str) -> list:
+    """Every Markdown table in a section body, as a list of rows (dicts by header)."""
+    found, current = [], None
+    for line in body.splitlines():
+        if line.startswith("|"):
+            cells = [c.strip() for c in re.split(r"(?<!\\)\|", line.strip())[1:-1]]
+            if current is None:
+                current = {"header": cells, "rows": []}
+            elif not all(set(c) <= {"-"} for c in cells):
+                current["rows"].append(dict(zip(current["header"], cells)))
+        elif current is not None:
+            found.append(current["rows"])
+            current = None
+    if current is not None:
+        found.append(current["rows"])
+    return found

@@ -3,8 +3,8 @@
 For each command the option values (and the example file) are factors; the runs form a covering array in
 which every pair of values of two factors appears at least once (all-pairs, common practice in
 combinatorial testing), so every option meets every other option and every example. Each run must give
-an answer (exit 0 or 1), nothing on stderr but the lines a command documents (the sweep's row problems),
-no traceback, and no warning: warnings are errors in this test run (pyproject.toml), so a numpy
+an answer (exit 0 or 1; verify also 3, inconclusive, as README documents), nothing on stderr but the lines
+a command documents (the sweep's row problems), no traceback, and no warning: warnings are errors in this test run (pyproject.toml), so a numpy
 RuntimeWarning fails the run it occurs in. Files asked for are written; JSON validates against its schema.
 """
 
@@ -99,7 +99,8 @@ def test_option_combination(capsys, tmp_path, command, row):
     argv, wanted = _argv(command, row, tmp_path)
     status = main(argv)
     out, err = capsys.readouterr()
-    assert status in (0, 1), (argv, err)
+    answers = (0, 1, 3) if command == "verify" else (0, 1)  # verify: 3 = inconclusive (two frames rarely decide)
+    assert status in answers, (argv, err)
     assert "Traceback" not in err and "Warning" not in err
     lines = [line for line in err.splitlines() if line]
     if command in ("verify", "sweep") and row.get("design") == "--best" and status == 1 and lines \

@@ -167,3 +167,33 @@ def test_profile_requirement_maps_the_rms_spread():
     assert axis.key == "rms_delay_spread"
     assert_allclose(axis.required_s, derive_environment(req).rms_delay_spread_s, rtol=1e-12)
     assert math.isclose(axis.site_values([1e-7])["rms_delay_spread_s"][0], 1e-7)
+
+
+def test_the_map_computes_the_estimation_error_exactly_where_the_picture_depends_on_it():
+    """The operating map interpolates the estimation error between exact grid lines and computes it exactly
+    next to the edge of the region (plots.COARSE, EDGE_ROUNDS): the region, and every margin next to its edge,
+    are those of the exact error at every point. Invented: the rail channel at 22 dB, a 14 Mbit/s goal, whose
+    throughput edge (set by the SINR, so by the estimation error) crosses the map."""
+    req = requirements_from_mapping({
+        "environment": {"carrier": "1.9 GHz", "max_speed": "300 km/h", "profile": "EVA", "doppler_spectrum": "tracked",
+                        "k_factor": "9 dB"},
+        "radio": {"bandwidth": "10 MHz", "snr": "22 dB", "frequency_error": "0.05 ppm"},
+        "goals": {"throughput": "14 Mbit/s"}})
+    design = api.design_from(preset="nr-mu1", bandwidth_hz=10e6)
+    axis = plots.delay_axis(req)
+    speeds = np.linspace(0.0, 1500 * KMH, 24)
+    delays = np.linspace(axis.required_s * 8e-3, axis.required_s * 8, 16)
+    mapped = plots._grid_margins(req, design, axis, speeds, delays)
+    exact = plots._evaluate(req, design, speeds[None, :], axis, delays[:, None])
+    worst = {k: np.min(np.stack(list(m.values())), axis=0) for k, m in (("mapped", mapped), ("exact", exact))}
+    passed = worst["exact"] >= 0
+    assert np.array_equal(worst["mapped"] >= 0, passed) and 0 < passed.mean() < 1
+    _, rules = plots._edges_on_grid(speeds, delays, exact)
+    assert "throughput" in set(rules.tolist())
+    edge = np.zeros_like(passed)
+    edge[:, 1:] |= passed[:, 1:] != passed[:, :-1]
+    edge[:, :-1] |= passed[:, 1:] != passed[:, :-1]
+    edge[1:, :] |= passed[1:, :] != passed[:-1, :]
+    edge[:-1, :] |= passed[1:, :] != passed[:-1, :]
+    for name in exact:
+        assert_allclose(mapped[name][edge], exact[name][edge], rtol=1e-9, atol=1e-12)
