@@ -70,7 +70,16 @@ def fuzz_settings(examples: int):
 
 def _reset_peak() -> None:
     """Start a new peak of this process's resident memory (Linux: writing 5 to clear_refs resets VmHWM), so that
-    a case is measured by its own peak, not by the heaviest test that ran before it in the same process."""
+    a case is measured by its own peak, not by the heaviest test that ran before it in the same process. The
+    model's in-process caches are emptied first: a command run starts without them, and what earlier tests left
+    in them would count against every case."""
+    import gc
+
+    from numerology import link
+
+    for cache in (link._WEIGHTS_CACHE, link._GUARD_CACHE, link._MASK_CACHE):
+        cache.clear()
+    gc.collect()
     with contextlib.suppress(OSError):
         Path("/proc/self/clear_refs").write_text("5")
 
