@@ -121,12 +121,13 @@ class SearchSize:
     spacings: int
     fft_sizes: int
     numerologies: int  # (spacing, FFT size, CP) combinations, at most
-    lattices: int
+    lattices: int  # stream pilot lattices, each crossed with every slot length
     slots: int
+    own_slot: int = 0  # slot and packet arrangements, each with its own slot length
 
     @property
     def candidates(self) -> int:
-        return self.numerologies * self.lattices * self.slots
+        return self.numerologies * (self.lattices * self.slots + self.own_slot)
 
     @property
     def memory_bytes(self) -> int:
@@ -171,20 +172,35 @@ def search_size(req, spacings: int | None = None) -> SearchSize:
     ffts = cand.fft_family(req)
     within_octave = int(np.max(np.searchsorted(ffts, 2 * ffts, side="right") - np.arange(ffts.size))) if ffts.size else 0
     numerologies = spacings * within_octave * len(cand.CP_FACTORS)
-    return SearchSize(spacings, int(ffts.size), numerologies, _lattice_count(req), len(search.symbols_per_slot))
+    lattices, own_slot = _arrangement_count(req)
+    return SearchSize(spacings, int(ffts.size), numerologies, lattices, len(search.symbols_per_slot), own_slot)
 
 
-def _lattice_count(req) -> int:
-    """Pilot lattices of ``candidates.pilot_lattices``, counted: (D_f, shift) pairs times time spacings."""
-    f_max = req.search.max_pilot_freq_spacing
-    t_max = min(req.search.max_pilot_time_spacing, max(req.search.symbols_per_slot))
-    pairs = 0
-    rectangular = "rectangular" in req.search.pilot_patterns
-    if rectangular:
-        pairs += f_max
-    if "staggered" in req.search.pilot_patterns:
-        pairs += sum(f_max // divisor for divisor in (2, 3, 4))
-    return pairs * t_max - (1 if rectangular else 0)  # a pilot on every resource element carries no data
+#: Pilot arrangements of the default search (3199 stream lattices, 696 slot arrangements): the scale against
+#: which the advice judges how far a search's pilots were widened.
+DEFAULT_ARRANGEMENTS = 3895
+
+
+def _arrangement_count(req) -> tuple[int, int]:
+    """Pilot arrangements of ``candidates.pilot_arrangements``, counted without building them (upper bounds):
+    (stream lattices, crossed with every slot length; slot and packet arrangements, each with its slot)."""
+    from .arrangement import MAX_PATTERN_BITS
+
+    search = req.search
+    f_max = search.max_pilot_freq_spacing
+    rectangular = f_max if "rectangular" in search.pilot_patterns else 0
+    staggered = sum(f_max // divisor for divisor in (2, 3, 4)) if "staggered" in search.pilot_patterns else 0
+    lattices = 0
+    if "stream" in search.pilot_scopes:  # a pilot on every resource element carries no data
+        lattices = (rectangular + staggered) * search.max_pilot_time_spacing - (1 if rectangular else 0)
+    own_slot = 0
+    for slot in search.symbols_per_slot:
+        if "slot" in search.pilot_scopes and slot <= MAX_PATTERN_BITS:
+            for count in search.pilot_symbols_per_slot:  # a staggered comb needs two pilot-bearing symbols
+                own_slot += 0 if count > slot else (rectangular + staggered if count > 1 else rectangular)
+        if "packet" in search.pilot_scopes:
+            own_slot += 2 * 3  # one or two training symbols, repeated every packet, half or quarter packet
+    return lattices, own_slot
 
 
 def check_search(req, spacings: int | None = None) -> SearchSize:
@@ -230,7 +246,8 @@ def _narrowing(req, size: SearchSize, factor: float, ffts: bool = False) -> str:
                                             f"(now {size.fft_sizes})", size.fft_sizes >= factor))
     else:
         f_max = search.max_pilot_freq_spacing
-        knobs.append((size.lattices / 1400, f"lower search.max_pilot_freq_spacing from {f_max} to at most "
+        knobs.append(((size.lattices + size.own_slot) / DEFAULT_ARRANGEMENTS,
+                      f"lower search.max_pilot_freq_spacing from {f_max} to at most "
                                             f"{max(1, math.floor(f_max / factor))} (or max_pilot_time_spacing)",
                       f_max >= factor))
         knobs.append((size.slots / 2, f"list at most {max(1, math.floor(size.slots / factor))} slot lengths in "
