@@ -14,6 +14,8 @@ from typing import Sequence
 from .errors import InputError
 
 EXIT_OK, EXIT_FAILS, EXIT_BAD_INPUT = 0, 1, 2
+#: Objectives of ``plan`` (numerology.plan.OBJECTIVES, listed here so that --help needs no import).
+PLAN_OBJECTIVES = ("weakest-margin", "weakest-throughput", "total-throughput")
 
 
 class _Parser(argparse.ArgumentParser):
@@ -67,6 +69,17 @@ def _parser() -> argparse.ArgumentParser:
     _design_options(swp, best=True)
     swp.add_argument("--out", metavar="FILE.csv", help="write the per-site results to FILE.csv")
     swp.add_argument("--json", action="store_true", help="machine-readable output on stdout")
+
+    pln = sub.add_parser("plan", help="the fewest designs (modes) that serve every site of a deployment")
+    pln.add_argument("requirements", metavar="REQ.toml")
+    pln.add_argument("--sites", required=True, metavar="FILE.csv", help="one site per row (the columns of sweep)")
+    pln.add_argument("--modes", type=int, metavar="K",
+                     help="exactly this many modes at most: those serving the most sites (default: the fewest that "
+                          "serve every site a design can serve)")
+    pln.add_argument("--objective", choices=PLAN_OBJECTIVES,
+                     help="among plans serving as many sites: weakest-margin (default: the smallest worst margin of "
+                          "a site, as large as possible), weakest-throughput or total-throughput")
+    _output_options(pln)
     return p
 
 
@@ -96,8 +109,8 @@ def main(argv: Sequence[str] | None = None) -> int:
 
             return version()
         if args.command is None:
-            raise InputError("", "expected a command: env, profiles, presets, check, solve, verify or "
-                                           "sweep (numerology --help lists them)")
+            raise InputError("", "expected a command: env, profiles, presets, check, solve, verify, "
+                                           "sweep or plan (numerology --help lists them)")
         from . import commands
 
         status = getattr(commands, args.command)(args)

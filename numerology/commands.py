@@ -226,3 +226,37 @@ def sweep(args) -> int:
         print(f"numerology: {args.sites}:{line}: {message}", file=sys.stderr)
     summary = result.summary()
     return EXIT_OK if summary.failed == 0 and not getattr(sites, "problems", ()) else EXIT_FAILS
+
+
+def plan(args) -> int:
+    from . import api
+    from .errors import InputError
+    from .plan import DEFAULT_OBJECTIVE, plan as run_plan
+    from .sweep import load_sites
+
+    req = api.load(args.requirements)
+    if args.modes is not None and not 1 <= args.modes <= 26:
+        raise InputError("--modes", f"expected a whole number from 1 to 26, got {args.modes}")
+    outputs = _check_outputs(args, req)
+    sites = load_sites(args.sites, req)
+    if sites.size == 0:
+        line, message = sites.problems[0]
+        raise InputError(f"{args.sites}:{line}", f"no site could be read ({message})")
+    result = run_plan(req, sites, modes=args.modes, objective=args.objective or DEFAULT_OBJECTIVE)
+    if args.json:
+        _emit(render_json.document("numerology.plan", result.to_json()))
+    else:
+        from . import render_terminal
+
+        render_terminal.plan(render_terminal.console(), result)
+    if outputs["markdown"]:
+        from .note import write_plan_note
+
+        write_plan_note(outputs["markdown"], req, result)
+    if outputs["plot"]:
+        from .plan_plot import write_plan_plot
+
+        write_plan_plot(outputs["plot"], req, result)
+    for line, message in sites.problems:
+        print(f"numerology: {args.sites}:{line}: {message}", file=sys.stderr)
+    return EXIT_OK if result.served_all and not sites.problems else EXIT_FAILS
