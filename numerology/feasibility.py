@@ -365,6 +365,7 @@ class Space:
     matrix: Matrix
     anchors: tuple
     ruled_out: dict  # channel -> the rule that rules out every spacing there (relaxed rules)
+    untried: int = 0  # channels no candidate passes that were not made anchors of their own (over the limit)
 
 
 def plan_space(req: Requirements, sites: Sites) -> Space:
@@ -378,14 +379,15 @@ def plan_space(req: Requirements, sites: Sites) -> Space:
     anchors = group_anchors(channels)
     matrix = Matrix(req, channels, candidate_designs(req, anchors))
     bare = np.flatnonzero(~matrix.passed.any(axis=0))
-    ruled_out = {}
+    ruled_out, untried = {}, 0
     if bare.size:
         out, rule = relaxed_failure(req, channels, bare)
         ruled_out = {int(c): str(r) for c, r in zip(bare[out], rule[out])}
         retry = bare[~out]
+        untried = max(0, retry.size - MAX_OWN_ANCHORS)
         retry = retry[np.argsort(-channels.weight[retry], kind="stable")][:MAX_OWN_ANCHORS]
         if retry.size:
             extra = own_anchors(channels, retry)
             anchors = anchors + extra
             matrix.add(candidate_designs(req, extra))
-    return Space(matrix, tuple(anchors), ruled_out)
+    return Space(matrix, tuple(anchors), ruled_out, untried)

@@ -268,10 +268,10 @@ def plan_section(result, heading: str = "## 2. Mode plan") -> list[str]:
         for mode in result.modes:
             out.append(f"- {plan_hardest_sentence(mode, lambda name: f'`{name}`')} {design_line(mode.design)}.")
         out.append("")
-    out += ["What the modes buy, over the sites each plan serves:", ""]
-    out += _md_table([c.lstrip(">") or "plan" for c in PLAN_COMPARISON],
-                     [plan_figures_row(label, figures) for label, figures in plan_comparison(result)])
-    out.append("")
+        out += ["What the modes buy, over the sites each plan serves:", ""]
+        out += _md_table([c.lstrip(">") or "plan" for c in PLAN_COMPARISON],
+                         [plan_figures_row(label, figures) for label, figures in plan_comparison(result)])
+        out.append("")
     if result.fewest_for_all and result.fewest_for_all != len(result.modes):
         out += [f"{result.fewest_for_all} modes serve every site a design can serve.", ""]
     if result.unserved:

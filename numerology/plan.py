@@ -45,7 +45,7 @@ import numpy as np
 from . import cover
 from .design import Design
 from .errors import InputError
-from .feasibility import Matrix, _designs, plan_space
+from .feasibility import MAX_OWN_ANCHORS, Matrix, _designs, plan_space
 from .requirements import Requirements
 from .sweep import Sites
 
@@ -381,7 +381,7 @@ def plan(req: Requirements, sites: Sites, *, modes: int | None = None, objective
     servable = matrix.passed[everything.rows].any(axis=0)  # what the fewest modes for all serve
     return _explain(req, sites, channels, matrix, planner, objective, modes, chosen.rows, single_rows,
                     fewer.rows if fewer else None, more.rows if more else None, fewest, servable,
-                    space.ruled_out, optimisation, search)
+                    space, optimisation, search)
 
 
 def _figures(planner: "_Planner", rows, sites: int) -> Figures:
@@ -408,30 +408,20 @@ def _figures(planner: "_Planner", rows, sites: int) -> Figures:
 
 
 def _explain(req, sites, channels, matrix, planner, objective, modes_asked, rows, single_rows, fewer_rows,
-             more_rows, fewest, servable, relaxed_rules, optimisation, search) -> PlanResult:
+             more_rows, fewest, servable, space, optimisation, search) -> PlanResult:
     n = sites.size
-    support = matrix.passed.T
-    value = planner.value()
-    serve, _ = cover.serving(support, value, rows)  # the chosen mode serving each channel, by the objective's figure
-    # modes, most sites first (then the smaller spacing)
-    site_serve = serve[channels.of_site] if n else np.zeros(0, dtype=np.intp)
-    counts = np.bincount(site_serve[site_serve >= 0], minlength=len(rows))
-    spacing = matrix.grid.spacing_hz[rows] if len(rows) else np.zeros(0)
-    order = np.lexsort((np.arange(len(rows)), spacing, -counts))
-    rank = np.empty(len(rows), dtype=np.intp)
-    rank[order] = np.arange(len(rows))
-    rows = np.asarray(rows)[order]
-    site_mode = np.where(site_serve >= 0, rank[np.maximum(site_serve, 0)], -1) if n else site_serve
     ch = channels.of_site
-    row_of_site = np.where(site_mode >= 0, rows[np.maximum(site_mode, 0)] if len(rows) else 0, 0)
+    rows = _most_sites_first(planner, rows)
+    serve, _ = cover.serving(matrix.passed.T, planner.value(), rows)  # by the objective's figure
+    site_mode = serve[ch]
     served = site_mode >= 0
-    rate = np.where(served, matrix.rate_bps[row_of_site, ch], np.nan)
-    margin = np.where(served, matrix.margin[row_of_site, ch], np.nan)
-    rule = np.array([matrix.rule_name(b) for b in matrix.binding[row_of_site, ch]], dtype=object) if n else \
-        np.zeros(0, dtype=object)
-    rule[~served] = None
-    serves_site = support[ch][:, rows] if len(rows) else np.zeros((n, 0), dtype=bool)
-    alone = serves_site.sum(axis=1) == 1
+    row_of_site = rows[site_mode[served]]
+    rate, margin = np.full(n, np.nan), np.full(n, np.nan)
+    rule = np.full(n, None, dtype=object)
+    rate[served] = matrix.rate_bps[row_of_site, ch[served]]
+    margin[served] = matrix.margin[row_of_site, ch[served]]
+    rule[served] = [matrix.rule_name(b) for b in matrix.binding[row_of_site, ch[served]]]
+    alone = matrix.passed[rows][:, ch].sum(axis=0) == 1  # sites only one mode of the plan serves
     mode_list = []
     for k, j in enumerate(rows):
         mine = np.flatnonzero(site_mode == k)
@@ -442,8 +432,6 @@ def _explain(req, sites, channels, matrix, planner, objective, modes_asked, rows
                               float(np.sum(rate[mine])), float(np.min(rate[mine])), float(matrix.overhead[j]),
                               str(sites.names[hardest]), int(sites.lines[hardest]) or None, str(rule[hardest]),
                               float(margin[hardest])))
-    unserved = _unserved(sites, channels, matrix, rows, mode_list, site_mode, servable, relaxed_rules)
-    single = _figures(planner, single_rows, n)
     single_design = None
     if single_rows.size:
         single_design = replace(_designs(matrix.grid, single_rows).design(0), name="best single design",
@@ -451,14 +439,27 @@ def _explain(req, sites, channels, matrix, planner, objective, modes_asked, rows
     notes = []
     if search.candidates_serving_a_site == 0:
         notes.append("no candidate design passes every rule at any site")
+    if space.untried:
+        notes.append(f"{space.untried} site channels that no candidate passes were not searched on their own "
+                     f"(the first {MAX_OWN_ANCHORS} were): a design of their own may serve some of them")
     return PlanResult(
         requirements_path=req.path, sites=sites, objective=objective, modes_asked=modes_asked,
         modes=tuple(mode_list), site_mode=site_mode, site_throughput_bps=rate, site_margin=margin, site_rule=rule,
-        unserved=unserved, figures=_figures(planner, rows, n), single=single,
+        unserved=_unserved(sites, channels, matrix, rows, mode_list, site_mode, servable, space.ruled_out),
+        figures=_figures(planner, rows, n), single=_figures(planner, single_rows, n),
         fewer=_figures(planner, fewer_rows, n) if fewer_rows is not None else None,
         more=_figures(planner, more_rows, n) if more_rows is not None else None,
         fewest_for_all=fewest, optimisation=optimisation, search=search, single_design=single_design,
         notes=tuple(notes))
+
+
+def _most_sites_first(planner: "_Planner", rows) -> np.ndarray:
+    """The chosen rows ordered by the sites each serves (most first), then by subcarrier spacing."""
+    matrix = planner.matrix
+    rows = np.asarray(rows, dtype=np.intp)
+    serve, _ = cover.serving(matrix.passed.T, planner.value(), rows)
+    sites = np.bincount(serve[serve >= 0], weights=matrix.channels.weight[serve >= 0], minlength=rows.size)
+    return rows[np.lexsort((np.arange(rows.size), matrix.grid.spacing_hz[rows], -sites))]
 
 
 def _unserved(sites, channels, matrix, rows, mode_list, site_mode, servable, relaxed_rules) -> tuple:
@@ -472,14 +473,15 @@ def _unserved(sites, channels, matrix, rows, mode_list, site_mode, servable, rel
         else:
             j = int(np.argmax(matrix.margin[:, c])) if matrix.size else None
             closest = None
-        rule = matrix.rule_name(matrix.binding[j, c]) if j is not None else relaxed_rules.get(c)
+        rule = matrix.rule_name(matrix.binding[j, c]) if j is not None else None
         margin = float(matrix.margin[j, c]) if j is not None else None
         if can:
             reason = "another mode would serve it"
         elif relaxed_rules.get(c):
-            reason = f"no subcarrier spacing works ({relaxed_rules[c]} fails even in the best case)"
-            rule = relaxed_rules[c]
+            reason = "no design can (the most lenient fails at every spacing)"
+            if not len(rows):
+                rule, margin = relaxed_rules[c], None
         else:
-            reason = "no design in the search space passes here"
+            reason = "no candidate design passes here"
         out.append(Unserved(str(sites.names[i]), int(sites.lines[i]) or None, closest, rule, margin, can, reason))
     return tuple(out)

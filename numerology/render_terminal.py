@@ -465,11 +465,12 @@ def plan(con: Console, result) -> None:
         con.print(table)
         for mode in result.modes:
             con.print(plan_hardest_sentence(mode, lambda name: f"[bold]{name}[/bold]"))
-    comparison = _table("What the modes buy (throughput and margin over the served sites)", *PLAN_COMPARISON,
-                        heavy=False)
-    for label, figures in plan_comparison(result):
-        comparison.add_row(*plan_figures_row(label, figures))
-    con.print(comparison)
+    if result.modes:
+        comparison = _table("What the modes buy (throughput and margin over the served sites)", *PLAN_COMPARISON,
+                            heavy=False)
+        for label, figures in plan_comparison(result):
+            comparison.add_row(*plan_figures_row(label, figures))
+        con.print(comparison)
     if result.fewest_for_all != len(result.modes) and result.fewest_for_all:
         con.print(f"{_count(result.fewest_for_all, 'mode')} serve every site a design can serve.")
     if result.unserved:

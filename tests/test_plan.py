@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import itertools
 import json
-import math
 from pathlib import Path
 
 import numpy as np
@@ -63,8 +62,11 @@ def small():
     return req, sites, plan(req, sites)
 
 
-def _brute_force(req, sites, objective_figure):
-    """Every set of modes of the plan's candidate space, exactly evaluated: (fewest modes, best weakest figure)."""
+def _brute_force(req, sites, objective_figure, kind="min"):
+    """Every set of modes of the plan's candidate space, exactly evaluated: (fewest modes, best objective).
+
+    The objective is the weakest figure over the sites (``kind`` "min") or the total over the sites ("sum").
+    """
     space = plan_space(req, sites)
     m = space.matrix
     m.make_exact(np.arange(m.size))
@@ -79,24 +81,29 @@ def _brute_force(req, sites, objective_figure):
             sub = passed[:, chosen]
             if not np.array_equal(sub.any(axis=1), servable):
                 continue
-            weakest = np.min(np.max(np.where(sub, figure[:, chosen], -np.inf), axis=1)[servable])
-            best = weakest if best is None else max(best, weakest)
+            serving = np.max(np.where(sub, figure[:, chosen], -np.inf), axis=1)[servable]
+            value = np.min(serving) if kind == "min" else np.sum(weight[servable] * serving)
+            best = value if best is None else max(best, value)
         if best is not None:
             return size, best, int(weight[servable].sum()), m.size
     return 0, None, 0, m.size
 
 
-@pytest.mark.parametrize("objective, figure", [("weakest-margin", "margin"), ("weakest-throughput", "rate")])
-def test_plan_equals_brute_force_over_every_set_of_modes(objective, figure):
+@pytest.mark.parametrize("objective, figure, kind", [("weakest-margin", "margin", "min"),
+                                                     ("weakest-throughput", "rate", "min"),
+                                                     ("total-throughput", "rate", "sum")])
+def test_plan_equals_brute_force_over_every_set_of_modes(objective, figure, kind):
     req, sites = _small()
-    fewest, weakest, served, candidates = _brute_force(req, sites, figure)
+    fewest, best, served, candidates = _brute_force(req, sites, figure, kind)
     assert candidates <= 150  # the enumeration above stays small
     result = plan(req, sites, objective=objective)
     assert fewest == 2  # the case is built to need two modes: long echoes and fast vehicles
     assert len(result.modes) == fewest
     assert result.figures.served == served == sites.size
-    got = result.figures.weakest_margin if figure == "margin" else result.figures.min_throughput_bps
-    assert_allclose(got, weakest, rtol=RTOL)
+    got = {"margin": result.figures.weakest_margin, "rate": result.figures.min_throughput_bps}[figure]
+    if kind == "sum":
+        got = result.figures.total_throughput_bps
+    assert_allclose(got, best, rtol=RTOL)
 
 
 def test_every_site_passes_check_with_its_mode(small):
@@ -166,8 +173,12 @@ def test_plan_json_is_deterministic_and_carries_its_schema(small):
 
 
 def test_shipped_port_example_needs_two_or_three_modes(capsys):
+    import jsonschema
+
     status = main(["plan", str(PORT), "--sites", str(PORT_SITES), "--json"])
     data = json.loads(capsys.readouterr().out)
+    schema = Path(__file__).resolve().parent.parent / "numerology" / "schemas" / "plan.schema.json"
+    jsonschema.validate(data, json.loads(schema.read_text(encoding="utf-8")))
     assert status == 0
     assert data["served_all"] and 2 <= len(data["modes"]) <= 3
     assert data["comparison"]["single_design"]["sites_served"] < data["comparison"]["plan"]["sites_served"]
@@ -214,4 +225,14 @@ def test_plan_exit_status_is_one_when_a_site_is_unserved(capsys):
     out = capsys.readouterr().out
     assert status == 1
     assert "Sites no mode serves" in out and "empty-container depot" in out
-    assert not math.isnan(1.0)
+
+
+def test_a_request_no_design_meets_lists_every_site(capsys, tmp_path):
+    """The drone example asks too much everywhere: no mode, every site listed, the note still written."""
+    note = tmp_path / "plan.md"
+    status = main(["plan", str(EXAMPLES / "drone_video.toml"), "--sites", str(EXAMPLES / "harbour_sites.csv"),
+                   "--markdown", str(note)])
+    out = capsys.readouterr().out
+    assert status == 1
+    assert "0 modes serve 0 of" in out and "no design can" in out
+    assert "Sites no mode serves" in note.read_text(encoding="utf-8")
