@@ -252,8 +252,8 @@ def write_note(path, req, check=None, solution=None, verification=None) -> None:
 def plan_section(result, heading: str = "## 2. Mode plan") -> list[str]:
     """The Markdown section that explains a mode plan (``numerology.plan.PlanResult``)."""
     from .plan import OBJECTIVE_WORDS
-    from .render_terminal import (PLAN_COMPARISON, PLAN_MODE_COLUMNS, plan_comparison, plan_figures_row,
-                                  plan_hardest_sentence, plan_mode_cells, rule_margin)
+    from .render_terminal import (PLAN_COMPARISON, PLAN_MODE_COLUMNS, plan_change_sentences, plan_comparison,
+                                  plan_figures_row, plan_hardest_sentence, plan_mode_cells, rule_margin)
 
     f, o, s = result.figures, result.optimisation, result.search
     out = [heading, ""]
@@ -271,7 +271,7 @@ def plan_section(result, heading: str = "## 2. Mode plan") -> list[str]:
         out += ["What the modes buy, over the sites each plan serves:", ""]
         out += _md_table([c.lstrip(">") or "plan" for c in PLAN_COMPARISON],
                          [plan_figures_row(label, figures) for label, figures in plan_comparison(result)])
-        out.append("")
+        out += ["", " ".join(plan_change_sentences(result)), ""]
     if result.fewest_for_all and result.fewest_for_all != len(result.modes):
         out += [f"{result.fewest_for_all} modes serve every site a design can serve.", ""]
     if result.unserved:

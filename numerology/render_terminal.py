@@ -417,6 +417,40 @@ def plan_comparison(result) -> list:
     return rows
 
 
+def _objective_figure(objective: str, figures):
+    """(label, value, text) of the figure an objective maximises, for a plan's figures."""
+    if objective == "weakest-margin":
+        return "the weakest margin", figures.weakest_margin, _percent(figures.weakest_margin)
+    if objective == "weakest-throughput":
+        return "the smallest net throughput", figures.min_throughput_bps, _rate(figures.min_throughput_bps)
+    return "the total net throughput", figures.total_throughput_bps, _rate(figures.total_throughput_bps)
+
+
+def plan_change_sentences(result) -> list[str]:
+    """What one design, one mode fewer and one mode more would change, in words."""
+    f = result.figures
+    label, _, now = _objective_figure(result.objective, f)
+    out = []
+    for name, other in (("The best single design", result.single if len(result.modes) > 1 else None),
+                        ("With one mode fewer", result.fewer if len(result.modes) > 2 else None),
+                        ("With one mode more", result.more)):
+        if other is None:
+            continue
+        _, value, text = _objective_figure(result.objective, other)
+        if other.served != f.served:
+            lost = f.served - other.served
+            change = (f"{abs(lost)} site{'s' if abs(lost) != 1 else ''} "
+                      f"{'would go unserved' if lost > 0 else 'more would be served'}")
+        elif value is None or not math.isfinite(value):
+            change = "as many sites would be served"
+        elif text == now:
+            change = f"as many sites would be served, with the same {label.removeprefix('the ')} ({now})"
+        else:
+            change = f"as many sites would be served, with {label} {text} instead of {now}"
+        out.append(f"{name}: {change}.")
+    return out
+
+
 def plan_mode_cells(mode) -> tuple:
     """The cells of one mode in the plan's table (also used by the design note)."""
     d = mode.design
@@ -471,6 +505,8 @@ def plan(con: Console, result) -> None:
         for label, figures in plan_comparison(result):
             comparison.add_row(*plan_figures_row(label, figures))
         con.print(comparison)
+        for sentence in plan_change_sentences(result):
+            con.print(sentence)
     if result.fewest_for_all != len(result.modes) and result.fewest_for_all:
         con.print(f"{_count(result.fewest_for_all, 'mode')} serve every site a design can serve.")
     if result.unserved:
