@@ -264,7 +264,7 @@ class _Planner:
 
     def value(self) -> np.ndarray:
         m = self.matrix
-        return (m.rate_bps if self.figure == "rate" else m.margin).T.astype(float)
+        return (m.rate_bps if self.figure == "rate" else m.margin).T  # a view: channels x candidates
 
     def _refine(self, chosen, key, pairs: int) -> None:
         """Make the chosen rows exact, and the next best by ``key`` up to about ``pairs`` pairs in all."""

@@ -162,6 +162,11 @@ def test_with_fewer_modes_than_needed_the_rest_are_listed(small):
     assert full.single.served == result.figures.served  # the best single design, by the same machinery
 
 
+def test_plan_prints_a_one_line_summary(small):
+    _, _, result = small
+    assert str(result) == "2 modes serve 6 of 6 sites: mode A (3 sites), mode B (3 sites)"
+
+
 def test_plan_json_is_deterministic_and_carries_its_schema(small):
     req, sites, result = small
     again = plan(req, sites)
