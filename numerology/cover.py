@@ -38,6 +38,8 @@ All functions are pure; matrices are dense numpy arrays (rows x columns).
 
 from __future__ import annotations
 
+import itertools
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -49,6 +51,8 @@ MIP_GAP = 1e-7
 KINDS = ("sum", "min")
 #: Largest problem (passing pairs) whose ties at the best minimum are broken by the total.
 TIE_BREAK_PAIRS = 20_000
+#: Largest enumeration (sets of k columns x rows, after the reduction) tried instead of integer programming.
+ENUMERATION_BUDGET = 200_000_000
 
 
 @dataclass(frozen=True)
@@ -114,19 +118,20 @@ def reduced(support, value, weight):
     support, value = support[first], value[first]
     # With failing pairs set below every value, j is dominated by k exactly when v_j <= v_k row by row.
     v = np.where(support, value, float(np.min(value[support])) - 1.0)
-    # A necessary condition first: the same holds for sums with positive weights (a few random ones) ...
-    sums = np.random.default_rng(0).uniform(0.5, 1.5, (8, v.shape[0])) @ v
-    slack = 1e-9 * (np.abs(sums) + 1.0)
-    maybe = np.all(sums[:, :, None] <= sums[:, None, :] + slack[:, None, :], axis=0)  # [j, k]
-    np.fill_diagonal(maybe, False)
-    dominated = np.zeros(columns.size, dtype=bool)
-    j_all, k_all = np.nonzero(maybe)
-    for start in range(0, j_all.size, 4096):  # ... then row by row for the pairs that pass it
-        j, k = j_all[start:start + 4096], k_all[start:start + 4096]
-        no_worse = np.all(v[:, j] <= v[:, k], axis=0)
-        equal = np.all(v[:, j] == v[:, k], axis=0)
-        dominated[j[no_worse & (~equal | (k < j))]] = True
-    keep = ~dominated
+    # A dominating column has the larger sum (rounding is monotone), and dominance is transitive: taking
+    # columns by decreasing sum (equal sums: lower index first), each need only be compared with those kept.
+    # A few rows first: a column that beats j there is then checked on every row.
+    order = np.lexsort((np.arange(columns.size), -v.sum(axis=0)))
+    sample = np.random.default_rng(0).permutation(v.shape[0])[:64]
+    keep = np.zeros(columns.size, dtype=bool)
+    kept = []
+    for j in order:
+        if kept:
+            maybe = np.asarray(kept)[np.all(v[sample, j:j + 1] <= v[np.ix_(sample, kept)], axis=0)]
+            if maybe.size and np.any(np.all(v[:, j:j + 1] <= v[:, maybe], axis=0)):
+                continue
+        keep[j] = True
+        kept.append(j)
     return support[:, keep], value[:, keep], weight, columns[keep]
 
 
@@ -205,11 +210,12 @@ def best_value(support, value, weight, k: int, covered_at_least: float, kind: st
     support = np.asarray(support, dtype=bool)
     weight = np.asarray(weight, dtype=float)
     value = np.asarray(value, dtype=float)
-    if k == 1:
-        return _one_column(support, value, weight, covered_at_least, kind)
     support, value, weight, kept = reduced(support, value, weight)
     if support.shape[0] == 0:
         return Solved(np.zeros(0, dtype=np.intp), "optimal", 0.0)
+    found = _enumerated(support, value, weight, k, covered_at_least, kind)
+    if found is not None:
+        return Solved(kept[found[0]], "optimal", 0.0)
     if kind == "sum":
         solved = _best_total(support, value, weight, k, covered_at_least, time_limit_s)
         return Solved(kept[solved.chosen], solved.status, solved.gap)
@@ -234,6 +240,81 @@ def best_value(support, value, weight, k: int, covered_at_least: float, kind: st
         found, _ = max_coverage(support, weight, k, time_limit_s)
     status = "optimal" if all(s == "optimal" for s in statuses) else "time limit"
     return Solved(kept[found.chosen], status, max(gaps, default=0.0))
+
+
+@dataclass(frozen=True)
+class Enumerated:
+    """Every set of k columns tried: the best, its objective, and a bound per column."""
+
+    chosen: np.ndarray  # column indices, ascending (empty when no set serves enough)
+    value: float  # its objective (-inf when none)
+    bound: np.ndarray  # per column: the best objective of a set that holds it (-inf for dropped columns)
+
+
+def k_sets(support, value, weight, k: int, covered_at_least: float, kind: str) -> Enumerated | None:
+    """Every set of at most ``k`` columns serving at least the given weight, when there are few enough.
+
+    Exact like :func:`best_value` (after the same reduction), and it also
+    gives, for each column, the best objective of a set containing it: a
+    bound that tells which columns can still matter when the values are
+    upper bounds (``numerology.plan``). None when the sets times the rows
+    exceed :data:`ENUMERATION_BUDGET` (use :func:`best_value`).
+    """
+    if kind not in KINDS:
+        raise ValueError(kind)
+    support = np.asarray(support, dtype=bool)
+    bound = np.full(support.shape[1], -np.inf)
+    small, small_value, small_weight, kept = reduced(support, np.asarray(value, dtype=float),
+                                                     np.asarray(weight, dtype=float))
+    if small.shape[0] == 0:
+        return Enumerated(np.zeros(0, dtype=np.intp), -np.inf, bound)
+    found = _enumerated(small, small_value, small_weight, k, covered_at_least, kind)
+    if found is None:
+        return None
+    chosen, objective, column_bound = found
+    bound[kept] = column_bound
+    return Enumerated(kept[chosen], objective, bound)
+
+
+def _enumerated(support, value, weight, k: int, covered_at_least: float, kind: str):
+    """(best set, its objective, per-column bound) over every set of min(k, columns) columns, or None if too many.
+
+    Sets are taken in lexicographic order; the best is the first with the
+    largest objective (for "min", then the largest total). A set of the
+    first k - 1 columns is extended by every later column at once.
+    """
+    rows, columns = support.shape
+    k = min(k, columns)
+    if k < 1 or math.comb(columns, k) * rows > ENUMERATION_BUDGET:
+        return None
+    v = np.where(support, value, -np.inf)
+    need = covered_at_least * (1 - 1e-12)
+    bound = np.full(columns, -np.inf)
+    best, best_key = np.zeros(0, dtype=np.intp), (-np.inf, -np.inf)
+    for base in itertools.combinations(range(columns), k - 1):
+        start = base[-1] + 1 if base else 0
+        if start >= columns:
+            continue
+        served = np.maximum(v[:, list(base)].max(axis=1)[:, None], v[:, start:]) if base else v[:, start:]
+        on = served > -np.inf
+        total = weight @ np.where(on, served, 0.0)
+        if kind == "sum":
+            objective = total
+        else:
+            objective = np.where(on.any(axis=0), np.min(np.where(on, served, np.inf), axis=0), -np.inf)
+        objective = np.where(weight @ on >= need, objective, -np.inf)
+        bound[start:] = np.maximum(bound[start:], objective)
+        top = float(objective.max())
+        if base:
+            bound[list(base)] = np.maximum(bound[list(base)], top)
+        if top == -np.inf:
+            continue
+        ties = np.flatnonzero(objective == top)
+        i = int(ties[np.argmax(total[ties])]) if kind == "min" else int(ties[0])  # first of the largest totals
+        key = (top, float(total[i]) if kind == "min" else 0.0)
+        if key > best_key:
+            best, best_key = np.array(base + (start + i,), dtype=np.intp), key
+    return best, best_key[0], bound
 
 
 def _one_column(support, value, weight, covered_at_least: float, kind: str) -> Solved:

@@ -267,10 +267,10 @@ class _Planner:
         return (m.rate_bps if self.figure == "rate" else m.margin).T  # a view: channels x candidates
 
     def _refine(self, chosen, key, pairs: int) -> None:
-        """Make the chosen rows exact, and the next best by ``key`` up to about ``pairs`` pairs in all."""
+        """Make the chosen rows exact, and the next best by ``key`` (those above -inf) up to about ``pairs`` pairs."""
         m = self.matrix
         chosen = np.asarray(chosen, dtype=np.intp)
-        pending = np.flatnonzero(~m.exact & m.passed.any(axis=1))
+        pending = np.flatnonzero(~m.exact & m.passed.any(axis=1) & (key > -np.inf))
         pending = pending[~np.isin(pending, chosen)]
         order = pending[np.argsort(-key[pending], kind="stable")]
         cost = np.cumsum(np.count_nonzero(m.passed[order], axis=1))
@@ -294,15 +294,34 @@ class _Planner:
             batch *= 2
 
     def best(self, count: int, covered: float) -> _Choice:
-        """Stage 2: the best objective with at most ``count`` modes serving at least ``covered`` sites."""
+        """Stage 2: the best objective with at most ``count`` modes serving at least ``covered`` sites.
+
+        Where every set of ``count`` candidates can be tried (``cover.k_sets``), each candidate's bound
+        (the best upper bound of a set holding it) is compared with the best set of exact rows: only
+        candidates whose bound beats it are made exact; when none is left, that set is optimal (for the
+        weakest objectives, ties at the optimum are broken by the total among the rows made exact).
+        Otherwise the integer programmes, with the chosen rows made exact, as in stage 1.
+        """
         batch = FIRST_PAIRS
         while True:
             m = self.matrix
             support, value = m.passed.T, self.value()
-            solved = cover.best_value(support, value, self.weight, count, covered, self.kind, self.time_limit_s)
-            if m.exact[solved.chosen].all():
-                return _Choice(solved.chosen, covered, solved.status, solved.gap)
-            self._refine(solved.chosen, self.weight @ np.where(support, value, 0.0), batch)
+            found = cover.k_sets(support, value, self.weight, count, covered, self.kind)
+            if found is None:
+                solved = cover.best_value(support, value, self.weight, count, covered, self.kind,
+                                          self.time_limit_s)
+                if m.exact[solved.chosen].all():
+                    return _Choice(solved.chosen, covered, solved.status, solved.gap)
+                self._refine(solved.chosen, self.weight @ np.where(support, value, 0.0), batch)
+            else:
+                if m.exact[found.chosen].all():
+                    return _Choice(found.chosen, covered, "optimal", 0.0)
+                exact = np.flatnonzero(m.exact)
+                known = cover.k_sets(support[:, exact], value[:, exact], self.weight, count, covered, self.kind)
+                floor = known.value if known is not None else -np.inf
+                if not np.any(~m.exact & (found.bound > floor)):
+                    return _Choice(exact[known.chosen], covered, "optimal", 0.0)
+                self._refine(found.chosen, np.where(~m.exact & (found.bound > floor), found.bound, -np.inf), batch)
             batch *= 2
 
     def plan(self, k: int | None) -> tuple[_Choice, _Choice]:
@@ -387,7 +406,7 @@ def plan(req: Requirements, sites: Sites, *, modes: int | None = None, objective
 def _figures(planner: "_Planner", rows, sites: int) -> Figures:
     """What the modes at ``rows`` achieve, each channel served by the mode with the best objective figure."""
     matrix, channels = planner.matrix, planner.matrix.channels
-    rows = np.asarray(rows, dtype=np.intp)
+    rows = _most_sites_first(planner, rows)
     serve, _ = cover.serving(matrix.passed.T, planner.value(), rows)
     on = serve >= 0
     w = channels.weight
@@ -454,12 +473,17 @@ def _explain(req, sites, channels, matrix, planner, objective, modes_asked, rows
 
 
 def _most_sites_first(planner: "_Planner", rows) -> np.ndarray:
-    """The chosen rows ordered by the sites each serves (most first), then by subcarrier spacing."""
+    """The chosen rows that serve a site, ordered by the sites each serves (most first), then by spacing.
+
+    A chosen mode that another chosen mode beats at every site it passes serves none (a set of K modes
+    where fewer do as well): it is left out.
+    """
     matrix = planner.matrix
     rows = np.asarray(rows, dtype=np.intp)
     serve, _ = cover.serving(matrix.passed.T, planner.value(), rows)
     sites = np.bincount(serve[serve >= 0], weights=matrix.channels.weight[serve >= 0], minlength=rows.size)
-    return rows[np.lexsort((np.arange(rows.size), matrix.grid.spacing_hz[rows], -sites))]
+    order = np.lexsort((np.arange(rows.size), matrix.grid.spacing_hz[rows], -sites))
+    return rows[order[sites[order] > 0]]
 
 
 def _unserved(sites, channels, matrix, rows, mode_list, site_mode, servable, relaxed_rules) -> tuple:

@@ -51,9 +51,17 @@ def test_fewest_columns_equal_brute_force(seed):
     assert np.array_equal(support[:, found.chosen].any(axis=1), everything)
 
 
+@pytest.fixture(params=["enumeration", "integer programming"])
+def method(request, monkeypatch):
+    """Both ways to the objective's optimum: every set of k columns, or the integer programmes."""
+    if request.param == "integer programming":
+        monkeypatch.setattr(cover, "ENUMERATION_BUDGET", 0)
+    return request.param
+
+
 @pytest.mark.parametrize("seed", SEEDS)
 @pytest.mark.parametrize("k", [1, 2, 3])
-def test_coverage_then_objective_equal_brute_force(seed, k):
+def test_coverage_then_objective_equal_brute_force(seed, k, method):
     support, value, weight = _case(seed)
     subsets = _subsets(support.shape[1], k)
     most = max(cover.plan_value(support, value, weight, s, "sum")[0] for s in subsets)
@@ -103,3 +111,22 @@ def test_serving_picks_the_best_chosen_column():
     assert served.tolist() == [1, 0, -1]
     assert_allclose(v[:2], [2.0, 3.0], rtol=0)
     assert math.isnan(v[2])
+
+
+@pytest.mark.parametrize("seed", SEEDS)
+def test_each_column_bound_is_the_best_set_that_holds_it(seed):
+    """k_sets' bound of column j: the best objective of a set of k columns containing j (or a dominating one)."""
+    support, value, weight = _case(seed)
+    k = 2
+    covered = cover.max_coverage(support, weight, k)[1]
+    for kind in cover.KINDS:
+        found = cover.k_sets(support, value, weight, k, covered, kind)
+        subsets = [s for s in _subsets(support.shape[1], k) if _key(support, value, weight, s, kind)[0] == covered]
+        best = max(_key(support, value, weight, s, kind)[1] for s in subsets)
+        assert_allclose(found.value, best, rtol=1e-12)
+        for j in range(support.shape[1]):
+            holding = [_key(support, value, weight, s, kind)[1] for s in subsets if j in s]
+            if np.isfinite(found.bound[j]):
+                assert_allclose(found.bound[j], max(holding), rtol=1e-12)
+            else:  # a dropped (dominated) column, or one in no set that serves enough
+                assert not holding or max(holding) <= best
