@@ -25,8 +25,13 @@ gap are reported if the limit is hit):
   small, :data:`TIE_BREAK_PAIRS`).
 
 Each programme is first made smaller without changing its optimum
-(:func:`reduced`: identical rows merged, dominated columns dropped). With one
-column (k = 1) every column is simply tried.
+(:func:`reduced`: identical rows merged, dominated columns dropped). Where
+the sets of k columns are few (:data:`ENUMERATION_BUDGET`; k of 2 or 3 among
+a few dozen columns left by the reduction), :func:`best_value` tries every
+one instead, which is exact too and much faster than the facility-location
+programme at thousands of rows; :func:`k_sets` also gives each column the
+best objective of a set holding it (for the planner's exact evaluation on
+demand). With one column (k = 1) every column is simply tried.
 
 :func:`greedy` is the classical bound beside them (Chvatal, Math. Oper. Res.
 4(3), 1979: within H(max column size) of the fewest columns; Nemhauser,

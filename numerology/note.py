@@ -280,7 +280,8 @@ def plan_section(result, heading: str = "## 2. Mode plan") -> list[str]:
                          [(u.site, u.line or "-", u.closest_mode or "-", f"`{u.rule}`" if u.rule else "-",
                            rule_margin(u.rule, u.margin), u.reason) for u in result.unserved])
         out.append("")
-    exact = ("proved optimal by integer programming (HiGHS through scipy.optimize.milp)" if o.status == "optimal"
+    exact = (f"proved optimal ({o.method}; the integer programmes by HiGHS through scipy.optimize.milp)"
+             if o.status == "optimal"
              else f"the best found within the time limit of {o.time_limit_s:g} s per integer programme "
                   f"(relative gap {o.gap:.2g})")
     out.append(f"The plan is {exact}; the greedy plan beside it uses {o.greedy_modes} modes and serves "

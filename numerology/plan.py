@@ -146,6 +146,7 @@ class Optimisation:
 
     status: str  # "optimal", or "time limit" (best found; see gap)
     gap: float
+    method: str  # how the sites served and the modes were found, then the objective
     greedy_modes: int
     greedy_served: int
     greedy_objective: float | None
@@ -153,7 +154,8 @@ class Optimisation:
     seconds: float
 
     def to_json(self) -> dict:
-        return {"status": self.status, "gap": _finite(self.gap), "greedy_modes": self.greedy_modes,
+        return {"status": self.status, "gap": _finite(self.gap), "method": self.method,
+                "greedy_modes": self.greedy_modes,
                 "greedy_sites_served": self.greedy_served, "greedy_objective": _finite(self.greedy_objective),
                 "time_limit_s": self.time_limit_s}
 
@@ -245,12 +247,17 @@ def _finite(x):
 # --- the optimisation -----------------------------------------------------------------
 
 
+#: How each stage reached its answer (reports).
+INTEGER_PROGRAMMING, EVERY_SET = "integer programming", "every set of modes tried"
+
+
 @dataclass(frozen=True)
 class _Choice:
     rows: np.ndarray  # matrix rows chosen
     covered: float
     status: str
     gap: float
+    method: str = INTEGER_PROGRAMMING
 
 
 class _Planner:
@@ -315,12 +322,12 @@ class _Planner:
                 self._refine(solved.chosen, self.weight @ np.where(support, value, 0.0), batch)
             else:
                 if m.exact[found.chosen].all():
-                    return _Choice(found.chosen, covered, "optimal", 0.0)
+                    return _Choice(found.chosen, covered, "optimal", 0.0, EVERY_SET)
                 exact = np.flatnonzero(m.exact)
                 known = cover.k_sets(support[:, exact], value[:, exact], self.weight, count, covered, self.kind)
                 floor = known.value if known is not None else -np.inf
                 if not np.any(~m.exact & (found.bound > floor)):
-                    return _Choice(exact[known.chosen], covered, "optimal", 0.0)
+                    return _Choice(exact[known.chosen], covered, "optimal", 0.0, EVERY_SET)
                 self._refine(found.chosen, np.where(~m.exact & (found.bound > floor), found.bound, -np.inf), batch)
             batch *= 2
 
@@ -392,7 +399,8 @@ def plan(req: Requirements, sites: Sites, *, modes: int | None = None, objective
     seconds = time.perf_counter() - started
     g_served, g_value = cover.plan_value(matrix.passed.T, planner.value(), channels.weight, greedy.chosen,
                                          planner.kind)
-    optimisation = Optimisation(status, gap, int(greedy.chosen.size), int(round(g_served)),
+    method = first.method if chosen.method == first.method else f"{first.method}, then {chosen.method}"
+    optimisation = Optimisation(status, gap, method, int(greedy.chosen.size), int(round(g_served)),
                                 g_value if greedy.chosen.size else None, time_limit_s, seconds)
     search = SearchFigures(sites.size, channels.size, len(anchors), matrix.size,
                            int(np.count_nonzero(matrix.passed.any(axis=1))), int(np.count_nonzero(matrix.exact)),

@@ -519,7 +519,7 @@ def plan(con: Console, result) -> None:
         if len(result.unserved) > 40:
             con.print(f"({len(result.unserved) - 40} more: use --json)", style="dim")
     o, s = result.optimisation, result.search
-    exact = ("proved optimal by integer programming" if o.status == "optimal"
+    exact = (f"proved optimal ({o.method})" if o.status == "optimal"
              else f"best found within the time limit ({o.time_limit_s:g} s per programme; gap {100 * o.gap:.2g} %)")
     con.print(f"Plan {exact}; the greedy plan beside it: {_count(o.greedy_modes, 'mode')} serving "
               f"{_count(o.greedy_served, 'site')}.", style="dim")
