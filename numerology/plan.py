@@ -338,6 +338,19 @@ class _Planner:
             return first, first
         return first, self.best(count, first.covered)
 
+    def fewest_alike(self, first: _Choice, chosen: _Choice) -> _Choice:
+        """The plan with the fewest modes that serves as many sites with an objective as good as ``chosen``'s."""
+        m = self.matrix
+        goal = cover.plan_value(m.passed.T, self.value(), self.weight, chosen.rows, self.kind)[1]
+        for k in range(1, chosen.rows.size):
+            fewer_first, fewer = self.plan(k)
+            if fewer_first.covered < first.covered:
+                continue
+            got = cover.plan_value(m.passed.T, self.value(), self.weight, fewer.rows, self.kind)[1]
+            if got >= goal - 1e-12 * abs(goal):
+                return fewer
+        return chosen
+
     def greedy(self, k: int | None) -> cover.Solved:
         """The greedy plan over the exactly evaluated candidates (a bound beside the exact optimum)."""
         m = self.matrix
@@ -385,9 +398,10 @@ def plan(req: Requirements, sites: Sites, *, modes: int | None = None, objective
     fewest = int(everything_first.rows.size)
     if modes is None:
         first, chosen = everything_first, everything
-    else:
+    else:  # at most `modes`: no more of them than the sites and the objective need
         first, chosen = planner.plan(modes)
-    count = chosen.rows.size if modes is None else modes
+        chosen = planner.fewest_alike(first, chosen)
+    count = chosen.rows.size
     single = planner.plan(1)[1]
     single_rows = single.rows
     fewer = (single if count == 2 else planner.plan(count - 1)[1]) if count >= 2 else None

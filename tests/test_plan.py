@@ -162,6 +162,16 @@ def test_with_fewer_modes_than_needed_the_rest_are_listed(small):
     assert full.single.served == result.figures.served  # the best single design, by the same machinery
 
 
+def test_more_modes_allowed_than_needed_uses_no_more_than_the_objective_needs(small):
+    """--modes is a ceiling: a third mode that neither serves more sites nor raises the weakest margin is left out."""
+    req, sites, full = small
+    result = plan(req, sites, modes=3)
+    assert result.figures.served == sites.size
+    assert result.figures.weakest_margin >= full.figures.weakest_margin
+    # a third mode only where it raises the weakest margin above the two-mode plan's
+    assert len(result.modes) == 2 or result.figures.weakest_margin > full.figures.weakest_margin
+
+
 def test_plan_prints_a_one_line_summary(small):
     _, _, result = small
     assert str(result) == "2 modes serve 6 of 6 sites: mode A (3 sites), mode B (3 sites)"
