@@ -11,7 +11,7 @@ Data flow (pure functions)::
 site some candidate serves), then the fewest modes that serve them (minimum
 set cover), then the objective among those plans. With ``modes=K``: first
 the sites K modes can serve (maximum coverage), then the objective among
-plans that serve as many. The objective is the total net throughput over the
+plans that serve as many, then the fewest modes that do as well. The objective is the total net throughput over the
 served sites, the smallest net throughput of a served site, or the smallest
 worst normalised margin of a served site (the last two break ties by the
 total). Each stage is one integer programme (``numerology.cover``), a
@@ -373,9 +373,9 @@ def plan(req: Requirements, sites: Sites, *, modes: int | None = None, objective
     sites : Sites
         From ``sweep.load_sites`` or ``sweep.sites_from_values``.
     modes : int, optional
-        The number of modes K: the K modes that serve the most sites, then
-        the best objective. Default: the fewest modes that serve every site
-        some design serves.
+        At most this many modes: those that serve the most sites, then the
+        best objective, then as few as give both. Default: the fewest modes
+        that serve every site some design serves.
     objective : str
         One of :data:`OBJECTIVES`.
     time_limit_s : float
