@@ -74,8 +74,8 @@ def _parser() -> argparse.ArgumentParser:
     pln.add_argument("requirements", metavar="REQ.toml")
     pln.add_argument("--sites", required=True, metavar="FILE.csv", help="one site per row (the columns of sweep)")
     pln.add_argument("--modes", type=int, metavar="K",
-                     help="exactly this many modes at most: those serving the most sites (default: the fewest that "
-                          "serve every site a design can serve)")
+                     help="at most this many modes: those serving the most sites, then the best objective "
+                          "(default: the fewest that serve every site a design can serve)")
     pln.add_argument("--objective", choices=PLAN_OBJECTIVES,
                      help="among plans serving as many sites: weakest-margin (default: the smallest worst margin of "
                           "a site, as large as possible), weakest-throughput or total-throughput")
