@@ -6,7 +6,17 @@ and its baseline are measured in turns where the benchmark can.
 
 from __future__ import annotations
 
+import os
 import time
+
+#: Thread-count variables of the numerical libraries.
+THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
+
+
+def one_core() -> None:
+    """Keep BLAS and OpenMP to one thread (call it before numpy is imported)."""
+    for var in THREAD_VARIABLES:
+        os.environ[var] = "1"
 
 
 def timed(fn) -> float:

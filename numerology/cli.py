@@ -25,6 +25,8 @@ VERIFY_EPILOG = ("exit status: 0 = model and simulation agree and every rule pas
                  "fails a rule (the report names it); 2 = bad input; 3 = inconclusive (the run was too short to "
                  "decide: the report says how many frames would); 130 = interrupted by Ctrl-C (what was measured "
                  "is reported)")
+#: Objectives of ``plan`` (numerology.plan.OBJECTIVES, listed here so that --help needs no import).
+PLAN_OBJECTIVES = ("weakest-margin", "weakest-throughput", "total-throughput")
 
 
 class _Parser(argparse.ArgumentParser):
@@ -82,6 +84,17 @@ def _parser() -> argparse.ArgumentParser:
     _design_options(swp, best=True)
     swp.add_argument("--out", metavar="FILE.csv", help="write the per-site results to FILE.csv")
     swp.add_argument("--json", action="store_true", help="machine-readable output on stdout")
+
+    pln = sub.add_parser("plan", help="the fewest designs (modes) that serve every site of a deployment")
+    pln.add_argument("requirements", metavar="REQ.toml")
+    pln.add_argument("--sites", required=True, metavar="FILE.csv", help="one site per row (the columns of sweep)")
+    pln.add_argument("--modes", type=int, metavar="K",
+                     help="at most this many modes: those serving the most sites, then the best objective "
+                          "(default: the fewest that serve every site a design can serve)")
+    pln.add_argument("--objective", choices=PLAN_OBJECTIVES,
+                     help="among plans serving as many sites: weakest-margin (default: the smallest worst margin of "
+                          "a site, as large as possible), weakest-throughput or total-throughput")
+    _output_options(pln)
     return p
 
 
@@ -111,8 +124,8 @@ def main(argv: Sequence[str] | None = None) -> int:
 
             return version()
         if args.command is None:
-            raise InputError("", "expected a command: env, profiles, presets, check, solve, verify or "
-                                           "sweep (numerology --help lists them)")
+            raise InputError("", "expected a command: env, profiles, presets, check, solve, verify, "
+                                           "sweep or plan (numerology --help lists them)")
         from . import commands
 
         status = getattr(commands, args.command)(args)

@@ -137,19 +137,25 @@ def _planned_outputs(args, req) -> dict:
     return planned
 
 
-def _write_files(planned: dict, req, check=None, solution=None, verification=None) -> None:
+def _write_files(planned: dict, req, check=None, solution=None, verification=None, plan=None) -> None:
     """Render every planned file in memory, then write them all together (nothing is written if one fails)."""
     from .output import write_all
 
     files = {}
+    fmt = planned["plot"].suffix.lower().lstrip(".") if "plot" in planned else None
     if "markdown" in planned:
-        from .note import render_note
+        from .note import render_note, render_plan_note
 
-        files[planned["markdown"]] = render_note(req, check, solution, verification).encode("utf-8")
-    if "plot" in planned:
+        text = render_plan_note(req, plan) if plan is not None else render_note(req, check, solution, verification)
+        files[planned["markdown"]] = text.encode("utf-8")
+    if fmt is not None and plan is not None:
+        from .plan_plot import plan_plot_bytes
+
+        files[planned["plot"]] = plan_plot_bytes(req, plan, fmt)
+    elif fmt is not None:
         from .plots import plot_bytes
 
-        files[planned["plot"]] = plot_bytes(req, planned["plot"].suffix.lower().lstrip("."), check, solution)
+        files[planned["plot"]] = plot_bytes(req, fmt, check, solution)
     if files:
         write_all(files)
 
@@ -271,3 +277,31 @@ def sweep(args) -> int:
         print(f"numerology: {args.sites}:{line}: {message}", file=sys.stderr)
     summary = result.summary()
     return EXIT_OK if summary.failed == 0 and not getattr(sites, "problems", ()) else EXIT_FAILS
+
+
+def plan(args) -> int:
+    from . import api
+    from .budget import sites_that_fit
+    from .errors import InputError
+    from .plan import DEFAULT_OBJECTIVE, plan as run_plan
+    from .sweep import load_sites
+
+    req = api.load(args.requirements)
+    if args.modes is not None and not 1 <= args.modes <= 26:
+        raise InputError("--modes", f"expected a whole number from 1 to 26, got {args.modes}")
+    planned = _planned_outputs(args, req)
+    sites = load_sites(args.sites, req, sites_that_fit(with_json=args.json))
+    if sites.size == 0:
+        line, message = sites.problems[0]
+        raise InputError(f"{args.sites}:{line}", f"no site could be read ({message})")
+    result = run_plan(req, sites, modes=args.modes, objective=args.objective or DEFAULT_OBJECTIVE)
+    _write_files(planned, req, plan=result)
+    if args.json:
+        _emit(render_json.document("numerology.plan", result.to_json()))
+    else:
+        from . import render_terminal
+
+        render_terminal.plan(render_terminal.console(), result)
+    for line, message in sites.problems:
+        print(f"numerology: {args.sites}:{line}: {message}", file=sys.stderr)
+    return EXIT_OK if result.served_all and not sites.problems else EXIT_FAILS

@@ -179,6 +179,17 @@ class EnvironmentBatch:
         values["notes"] = tuple((text, np.reshape(mask, shape)) for text, mask in self.notes)
         return dataclasses.replace(self, **values)
 
+    def take(self, index) -> "EnvironmentBatch":
+        """The sites at ``index`` (an integer array: a subset, a reordering or repeats) as a batch of their own."""
+        import dataclasses
+
+        index = np.asarray(index, dtype=np.intp)
+        values = {key: np.asarray(getattr(self, key))[index] for key in self.PER_SITE}
+        values["delays_s"] = self.delays_s[index]
+        values["powers"] = self.powers[index]
+        values["notes"] = tuple((text, np.asarray(mask)[index]) for text, mask in self.notes)
+        return dataclasses.replace(self, **values)
+
     def notes_at(self, index) -> tuple:
         """The notes that apply to the site at ``index``."""
         return tuple(text for text, mask in self.notes if mask[index])

@@ -526,3 +526,153 @@ def sweep(con: Console, design, result, out) -> None:
     if out is not None:
         con.print(f"Per-site results written to {out} (columns, units and rows not evaluated in {out}.json)")
     con.print(Text(CAUTION, style="dim"))
+
+
+def _count(n: int, noun: str) -> str:
+    return f"{n} {noun}{'' if n == 1 else 's'}"
+
+
+def _percent(value) -> str:
+    return "-" if value is None or not math.isfinite(value) else f"{100 * value:+.1f} %"
+
+
+def _rate(value) -> str:
+    return "-" if value is None or not math.isfinite(value) else engineering(value, "bit/s")
+
+
+def plan_figures_row(label: str, figures) -> tuple:
+    """One row of the plan comparison: sites served, weakest margin, smallest and total throughput, overhead."""
+    overhead = "-" if figures.mean_overhead is None else f"{100 * figures.mean_overhead:.1f} %"
+    return (label, f"{figures.served} of {figures.sites}", _percent(figures.weakest_margin),
+            _rate(figures.min_throughput_bps), _rate(figures.total_throughput_bps), overhead)
+
+
+PLAN_COMPARISON = ("", ">sites served", ">weakest margin", ">smallest rate", ">total rate", ">mean overhead")
+
+
+def plan_comparison(result) -> list:
+    """(label, figures) rows: the best single design, one mode fewer, the plan, one mode more."""
+    count = result.figures.modes
+    rows = [("best single design", result.single)]
+    if result.fewer is not None and count - 1 > 1:
+        rows.append((f"{count - 1} modes (one fewer)", result.fewer))
+    rows.append((f"this plan: {count} mode{'s' if count != 1 else ''}", result.figures))
+    if result.more is not None:
+        rows.append((f"{count + 1} modes (one more)", result.more))
+    return rows
+
+
+def _objective_figure(objective: str, figures):
+    """(label, value, text) of the figure an objective maximises, for a plan's figures."""
+    if objective == "weakest-margin":
+        return "the weakest margin", figures.weakest_margin, _percent(figures.weakest_margin)
+    if objective == "weakest-throughput":
+        return "the smallest net throughput", figures.min_throughput_bps, _rate(figures.min_throughput_bps)
+    return "the total net throughput", figures.total_throughput_bps, _rate(figures.total_throughput_bps)
+
+
+def plan_change_sentences(result) -> list[str]:
+    """What one design, one mode fewer and one mode more would change, in words."""
+    f = result.figures
+    label, _, now = _objective_figure(result.objective, f)
+    out = []
+    for name, other in (("The best single design", result.single if len(result.modes) > 1 else None),
+                        ("With one mode fewer", result.fewer if len(result.modes) > 2 else None),
+                        ("With one mode more", result.more)):
+        if other is None:
+            continue
+        _, value, text = _objective_figure(result.objective, other)
+        if other.served != f.served:
+            lost = f.served - other.served
+            change = (f"{abs(lost)} site{'s' if abs(lost) != 1 else ''} "
+                      f"{'would go unserved' if lost > 0 else 'more would be served'}")
+        elif value is None or not math.isfinite(value):
+            change = "as many sites would be served"
+        elif text == now:
+            change = f"as many sites would be served, with the same {label.removeprefix('the ')} ({now})"
+        else:
+            change = f"as many sites would be served, with {label} {text} instead of {now}"
+        out.append(f"{name}: {change}.")
+    return out
+
+
+def plan_mode_cells(mode) -> tuple:
+    """The cells of one mode in the plan's table (also used by the design note)."""
+    from .design import pilot_label
+
+    d = mode.design
+    return (mode.name.removeprefix("mode "), engineering(d.subcarrier_spacing_hz, "Hz"), str(d.fft_size),
+            f"{engineering(d.cp_s, 's')} ({d.cp_samples})",
+            pilot_label(d).removeprefix("pilots "), engineering(d.slot_s, "s"),
+            str(mode.sites), str(mode.only_here), f"{100 * mode.overhead:.1f} %")
+
+
+PLAN_MODE_COLUMNS = ("mode", ">spacing", ">FFT", ">CP (samples)", ">pilots", ">slot", ">sites",
+                     ">only it serves", ">overhead")
+
+
+def plan_hardest_sentence(mode, code=str) -> str:
+    """Which site presses a mode hardest and the rule that binds there (``code`` marks up names)."""
+    return (f"{mode.name[:1].upper()}{mode.name[1:]}: hardest site {mode.hardest_site}, where "
+            f"{code(mode.hardest_rule)} binds ({rule_margin(mode.hardest_rule, mode.hardest_margin)}).")
+
+
+def rule_margin(rule_name: str, normalised) -> str:
+    """A normalised margin (capacity/demand - 1) in its rule's convention: dB for interference rules, else %."""
+    from .rules import BY_NAME
+
+    if normalised is None or not math.isfinite(normalised):
+        return "-" if normalised is None or math.isnan(normalised) else "unbounded"
+    if rule_name in BY_NAME and BY_NAME[rule_name].convention == "db":
+        return db(10 * math.log10(1 + normalised)) if normalised > -1 else "-inf dB"
+    return _percent(normalised)
+
+
+def plan(con: Console, result) -> None:
+    from .plan import OBJECTIVE_WORDS
+
+    f = result.figures
+    verdict = (Text(f"{_count(len(result.modes), 'mode')} serve{'s' if len(result.modes) == 1 else ''} "
+                    f"{'all ' if result.served_all else ''}{f.served} of {f.sites} sites",
+                    style="bold green" if result.served_all else "bold red"))
+    con.print(Text.assemble(("Mode plan ", "bold"), f"for {result.requirements_path} at {result.sites.path}: ",
+                            verdict))
+    asked = f"at most {_count(result.modes_asked, 'mode')}; " if result.modes_asked else "the fewest modes; "
+    con.print(f"Asked for {asked}then {OBJECTIVE_WORDS[result.objective]}.", style="dim")
+    if result.modes:
+        table = _table(None, *PLAN_MODE_COLUMNS, pad_edge=False)
+        for mode in result.modes:
+            table.add_row(*plan_mode_cells(mode))
+        con.print(table)
+        for mode in result.modes:
+            con.print(plain(plan_hardest_sentence(mode)))
+    if result.modes:
+        comparison = _table("What the modes buy (throughput and margin over the served sites)", *PLAN_COMPARISON,
+                            heavy=False)
+        for label, figures in plan_comparison(result):
+            comparison.add_row(*plan_figures_row(label, figures))
+        con.print(comparison)
+        for sentence in plan_change_sentences(result):
+            con.print(sentence)
+    if result.fewest_for_all != len(result.modes) and result.fewest_for_all:
+        con.print(f"{_count(result.fewest_for_all, 'mode')} serve every site a design can serve.")
+    if result.unserved:
+        table = _table(f"Sites no mode serves ({len(result.unserved)})", "site", ">line", "closest mode",
+                       "failing rule", ">margin", "why", heavy=False)
+        for u in result.unserved[:40]:
+            table.add_row(plain(u.site), str(u.line or "-"), u.closest_mode or "-", u.rule or "-",
+                          rule_margin(u.rule, u.margin), u.reason)
+        con.print(table)
+        if len(result.unserved) > 40:
+            con.print(f"({len(result.unserved) - 40} more: use --json)", style="dim")
+    o, s = result.optimisation, result.search
+    exact = (f"proved optimal ({o.method})" if o.status == "optimal"
+             else f"best found within the time limit ({o.time_limit_s:g} s per programme; gap {100 * o.gap:.2g} %)")
+    con.print(f"Plan {exact}; the greedy plan beside it: {_count(o.greedy_modes, 'mode')} serving "
+              f"{_count(o.greedy_served, 'site')}.", style="dim")
+    con.print(f"{s.sites:,} sites in {s.channels:,} distinct channels; candidates from {s.anchors} anchor "
+              f"environments: {s.candidates:,}, {s.exact_rows:,} of them evaluated exactly "
+              f"({s.exact_pairs:,} site channels).", style="dim")
+    for note in result.notes:
+        con.print(Text(f"note: {note}", style="yellow"))
+    con.print(Text(CAUTION, style="dim"))

@@ -962,12 +962,7 @@ def sweep(req: Requirements, design: Design, sites: Sites) -> SweepResult:
         return SweepResult(design, sites, environment, rules, {r.name: empty for r in rules},
                            {r.name: empty for r in rules}, np.zeros(0, dtype=bool), np.zeros(0, dtype=np.int64),
                            empty, empty, req.path)
-    site_req = req.replace("radio.snr", sites.snr_db)
-    if req.radio.frequency_error_hz and _given_as_ratio(req, "radio.frequency_error"):
-        # "0.1 ppm" is a fraction of each site's own carrier
-        site_req = site_req.replace("radio.frequency_error",
-                                    req.radio.frequency_error_hz * sites.carrier_hz / req.environment.carrier_hz)
-    evaluation = link.evaluate(DesignArrays.from_designs([design]), environment, site_req)
+    evaluation = link.evaluate(DesignArrays.from_designs([design]), environment, site_requirements(req, sites))
 
     def per_site(x):
         return np.broadcast_to(np.asarray(x, dtype=float), (n,)).copy()
@@ -980,6 +975,20 @@ def sweep(req: Requirements, design: Design, sites: Sites) -> SweepResult:
         binding=np.broadcast_to(evaluation.binding, (n,)).astype(np.int64),
         net_throughput_bps=per_site(evaluation.rate_bps), effective_sinr_db=per_site(evaluation.sinr_eff_db),
         requirements_path=req.path)
+
+
+def site_requirements(req: Requirements, sites: Sites) -> Requirements:
+    """The requirement set with the per-site values ``link.evaluate`` takes as arrays (one entry per site).
+
+    The SNR of each site, and a frequency error given relative to the carrier
+    ("0.1 ppm") taken of each site's own carrier.
+    """
+    site_req = req.replace("radio.snr", sites.snr_db)
+    if req.radio.frequency_error_hz and _given_as_ratio(req, "radio.frequency_error"):
+        # "0.1 ppm" is a fraction of each site's own carrier
+        site_req = site_req.replace("radio.frequency_error",
+                                    req.radio.frequency_error_hz * sites.carrier_hz / req.environment.carrier_hz)
+    return site_req
 
 
 def write_sweep_csv(path, result: SweepResult, sites_file: str | None = None) -> None:

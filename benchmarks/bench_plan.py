@@ -1,0 +1,97 @@
+"""Mode-plan benchmark: figures printed, never asserted.
+
+Generates a sites file of 10^4 invented rows for the port example (the zones
+of ``requirements_examples/port_sites.csv``: quay cranes, yard blocks, access
+road, rail spur, gates; values rounded as that file rounds them, so most
+rows are distinct channels) in a temporary folder, then times on one core,
+in turns, best of three:
+
+(a) ``sweep --best`` in process: ``api.solve`` for the best design, then
+    ``load_sites`` and ``sweep``;
+(b) ``plan`` in process: ``load_sites`` and ``plan.plan`` with the default
+    objective and search space;
+
+and prints both with their ratio (the target: (b) within 10 times (a)). The
+other objectives are timed once each, for information.
+
+Run: python benchmarks/bench_plan.py [rows]
+"""
+
+from __future__ import annotations
+
+import csv
+import sys
+import tempfile
+from pathlib import Path
+
+from timing import one_core, timed
+
+one_core()  # before numpy is imported
+import numpy as np  # noqa: E402
+
+ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT))
+
+from numerology import api, plan, sweep  # noqa: E402
+
+TARGET_RATIO = 10.0
+ROWS = 10_000
+#: zone -> (share of the sites, speed km/h, max excess delay us, rms delay spread ns, SNR dB): invented.
+ZONES = {
+    "quay": (0.12, (5, 12), (1.5, 2.5), (200, 400), (18, 24)),
+    "yard": (0.40, (10, 25), (3.0, 6.0), (600, 1400), (14, 20)),
+    "road": (0.24, (80, 130), (0.8, 1.5), (150, 300), (16, 22)),
+    "rail": (0.16, (30, 60), (0.5, 1.0), (100, 200), (14, 20)),
+    "gate": (0.08, (0, 20), (0.5, 1.0), (100, 250), (20, 26)),
+}
+
+
+def write_sites(path: Path, rows: int, seed: int = 11) -> None:
+    """Invented sites in the example's zones, rounded to 5 km/h, 0.1 us, 10 ns and 1 dB."""
+    rng = np.random.default_rng(seed)
+    with open(path, "w", newline="") as handle:
+        handle.write("# invented benchmark sites (numerology benchmarks/bench_plan.py)\n")
+        writer = csv.writer(handle)
+        writer.writerow(["site", "max_speed [km/h]", "max_excess_delay [us]", "rms_delay_spread [ns]", "snr [dB]"])
+        for zone, (share, speed, delay, rms, snr) in ZONES.items():
+            n = int(round(share * rows))
+            v = np.round(rng.uniform(*speed, n) / 5) * 5
+            d = np.round(rng.uniform(*delay, n), 1)
+            r = np.minimum(np.round(rng.uniform(*rms, n), -1), d * 500)  # at most half the span
+            s = np.round(rng.uniform(*snr, n))
+            writer.writerows(zip((f"{zone} {i}" for i in range(n)), v.tolist(), d.tolist(), r.tolist(), s.tolist()))
+
+
+def main():
+    rows = int(sys.argv[1]) if len(sys.argv) > 1 else ROWS
+    req = api.load(ROOT / "requirements_examples" / "port_deployment.toml")
+    with tempfile.TemporaryDirectory() as folder:
+        path = Path(folder) / "sites.csv"
+        write_sites(path, rows)
+
+        def sweep_best():
+            design = api.solve(req, explain=False, with_limits=False, top=1).designs[0].check.design
+            return sweep.sweep(req, design, sweep.load_sites(path, req))
+
+        def make_plan(objective=plan.DEFAULT_OBJECTIVE):
+            return plan.plan(req, sweep.load_sites(path, req), objective=objective)
+
+        sweep_s, plan_s = [], []
+        for _ in range(3):  # in turns: the machine's speed drifts
+            sweep_s.append(timed(sweep_best))
+            plan_s.append(timed(make_plan))
+        result = make_plan()
+        others = {objective: timed(lambda: make_plan(objective)) for objective in plan.OBJECTIVES
+                  if objective != plan.DEFAULT_OBJECTIVE}
+    a, b = min(sweep_s), min(plan_s)
+    print(f"plan: {result}")
+    print(f"      {result.search}")
+    print(f"(a) sweep --best:              {a:8.2f} s")
+    print(f"(b) plan ({plan.DEFAULT_OBJECTIVE}):      {b:8.2f} s")
+    print(f"ratio (b)/(a): {b / a:.1f} (target: at most {TARGET_RATIO:g})")
+    for objective, seconds in others.items():
+        print(f"    plan ({objective}), once: {seconds:8.2f} s   (ratio to (a): {seconds / a:.1f})")
+
+
+if __name__ == "__main__":
+    main()
