@@ -15,15 +15,19 @@ weighted by its number of sites; everything below works on channels.
 **Candidates.** :func:`candidate_designs` is the one place the planner meets
 the solver: it asks ``solver._screen`` for its candidates (numerologies,
 pilot arrangements and slots that the rules without estimation error cannot
-reject) at a few *anchor* environments and merges them. An anchor is the
-harsh corner of a group of channels (highest Doppler, longest delay and
-lowest coherence bandwidth in the group, the lowest SNR, the largest
-frequency error): the solver then offers designs for the whole group,
-cyclic prefixes sized to the group's longest echo included. Groups are the
-channels in each octave of Doppler and of max excess delay, and all
-channels together. A channel that no candidate passes, and that the
-relaxed rules do not rule out (``candidates.relaxed_margins``), becomes an
-anchor of its own in a second round.
+reject) at a few *anchor* environments, and keeps of them designs that pass
+every rule there by the full model (:func:`anchor_designs`: a bounded
+number of exact evaluations per anchor; the screen's best bounds belong to
+the sparsest pilots, which the exact estimation error often rejects). An
+anchor is the harsh corner of a group of channels (highest Doppler, longest
+delay and lowest coherence bandwidth in the group, the lowest SNR, the
+largest frequency error): a design that passes there is meant for the whole
+group, cyclic prefix sized to the group's longest echo included. Groups are
+the channels in each octave of Doppler and of max excess delay (wider bins
+when that makes more than :data:`MAX_GROUP_ANCHORS` groups), and all
+channels together. A channel that no candidate passes, and that the relaxed
+rules do not rule out (``candidates.relaxed_margins``), becomes an anchor of
+its own in a second round (at most :data:`MAX_OWN_ANCHORS`).
 
 **The matrix.** Every pair is first evaluated by ``link.evaluate`` with
 ``estimation=False``: the rules that do not depend on the SINR are then
@@ -60,7 +64,17 @@ CHUNK_PAIRS = 1 << 16
 #: Largest matrix: candidates x channels (18 bytes per pair).
 MAX_PAIRS = 6_000_000
 #: Channels of a second round that become anchors of their own, at most (most sites first).
-MAX_OWN_ANCHORS = 64
+MAX_OWN_ANCHORS = 8
+#: Group anchors, at most: the (Doppler, max excess delay) bins widen from one octave to 2, 4, ... octaves
+#: until there are no more groups than this.
+MAX_GROUP_ANCHORS = 8
+#: At each anchor, the numerologies whose pilot arrangements are evaluated exactly: the best this many by the
+#: bound of each objective (throughput, robustness).
+NUMEROLOGIES_PER_ANCHOR = 3
+#: Pilot arrangements (each with its slot) of one numerology evaluated exactly at an anchor in each of two
+#: rounds: spread over the numerology's candidates in order of their throughput bound, then between the last
+#: that failed and the first that passed.
+LADDER = 6
 
 
 # --- channels ----------------------------------------------------------------------
@@ -147,14 +161,24 @@ def corner(channels: Channels, members) -> Anchor:
 
 
 def group_anchors(channels: Channels) -> list[Anchor]:
-    """Corners of all channels together and of each (Doppler octave, max-excess-delay octave) group."""
+    """Corners of all channels together and of each (Doppler, max excess delay) group.
+
+    Groups are the channels in one octave of each; when that makes more than
+    :data:`MAX_GROUP_ANCHORS` groups, bins of 2, 4, ... octaves instead.
+    """
     env = channels.environment
     if channels.size == 0:
         return []
     doppler_octave = np.floor(np.log2(np.maximum(env.max_doppler_hz, 1.0))).astype(np.int64)
     delay_octave = np.floor(np.log2(np.maximum(env.max_excess_delay_s, 1e-9) / 1e-9)).astype(np.int64)
     out = [dataclasses.replace(corner(channels, np.arange(channels.size)), ranked=True)]
-    keys, group = np.unique(np.stack([doppler_octave, delay_octave], axis=1), axis=0, return_inverse=True)
+    width = 1
+    while True:
+        keys, group = np.unique(np.stack([doppler_octave // width, delay_octave // width], axis=1), axis=0,
+                                return_inverse=True)
+        if keys.shape[0] <= MAX_GROUP_ANCHORS:
+            break
+        width *= 2
     group = np.ravel(group)
     if keys.shape[0] > 1:
         out += [corner(channels, np.flatnonzero(group == g)) for g in range(keys.shape[0])]
@@ -170,51 +194,112 @@ GRID_FIELDS = tuple(f.name for f in dataclasses.fields(cand.Grid))
 
 
 def candidate_designs(req: Requirements, anchors) -> cand.Grid:
-    """The plan's candidate space: at each anchor, what the solver's ranking would list; each design once.
+    """The plan's candidate space: at each anchor, designs that pass every rule there; each design once.
 
     At each anchor the solver screens its candidates (``solver._screen`` over
-    the whole spacing family, as ``solver.any_feasible`` does) and, as its
-    ranking does, each numerology (spacing, FFT size, CP) is kept once with
-    its best pilot arrangement and slot, here by the solver's bound of each
-    objective that concerns a plan (throughput and robustness). At a
-    ``ranked`` anchor (the corner of all sites) the designs ``solve`` would
-    rank first there are added (``solver.search``, exact, for both
-    objectives), so that one mode is never worse than ``solve`` on the
-    sites' worst case. This is the only function that knows how the solver
-    builds, screens and ranks candidates; when that changes, only this changes.
+    the whole spacing family, as ``solver.any_feasible`` does). The screen's
+    bounds leave the channel-estimation error out, so the arrangement with
+    the best bound of a numerology is its sparsest, which the exact model
+    often rejects; an anchor's candidates are therefore chosen exactly
+    (:func:`anchor_designs`). At a ``ranked`` anchor (the corner of all sites)
+    the designs ``solve`` would rank first there are added (``solver.search``,
+    exact, for both objectives), so that one mode is never worse than
+    ``solve`` on the sites' worst case. This is the only function that knows
+    how the solver builds, screens and ranks candidates; when that changes,
+    only this changes.
     """
     from . import solver
 
     family = cand.spacing_family(req)
     parts = []
     for anchor in anchors:
-        grid, bound, _ = solver._screen(anchor.requirements(req), anchor.environment, family, ())
-        if grid.size == 0:
-            continue
-        numerology, _ = distinct_rows(np.stack([grid.spacing_hz, grid.fft_size, grid.cp_samples], axis=1))
-        keep = []
-        for objective in ("throughput", "robustness"):
-            order = np.lexsort((np.arange(grid.size), -bound[objective], numerology))  # best first per numerology
-            first = np.ones(order.size, dtype=bool)
-            first[1:] = numerology[order][1:] != numerology[order][:-1]
-            keep.append(order[first])
-        parts.append(grid.take(np.unique(np.concatenate(keep))))
+        anchor_req = anchor.requirements(req)
+        grid, bound, _ = solver._screen(anchor_req, anchor.environment, family, ())
+        parts.append(anchor_designs(anchor_req, anchor.environment, grid, bound))
         if anchor.ranked:
             for objective in ("throughput", "robustness"):
-                found = solver.search(anchor.requirements(req), anchor.environment, objective=objective)
+                found = solver.search(anchor_req, anchor.environment, objective=objective)
                 if found.feasible:
-                    d = found.ranked.designs
-                    parts.append(cand.Grid(*(np.asarray(x) for x in (
-                        d.subcarrier_spacing_hz, d.fft_size, d.cp_samples, d.used_subcarriers,
-                        d.pilot_freq_spacing, d.pilot_time_spacing, d.pilot_shift, d.symbols_per_slot,
-                        d.pilot_scope, d.pilot_symbols, d.pilot_period, d.pilot_data_shared.astype(np.int64)))))
+                    parts.append(_grid_of(found.ranked.designs))
     if not parts:
-        return cand.Grid(*(np.zeros(0, dtype=float if f == "spacing_hz" else np.int64) for f in GRID_FIELDS))
+        return cand.Grid.empty()
     grid = cand.Grid(*(np.concatenate([getattr(p, f) for p in parts]) for f in GRID_FIELDS))
     if grid.size == 0:
         return grid
     _, first = distinct_rows(np.stack([np.asarray(getattr(grid, f), dtype=float) for f in GRID_FIELDS], axis=1))
     return grid.take(np.sort(first))  # each design once, in order of first appearance
+
+
+def anchor_designs(req: Requirements, environment: Environment, grid: cand.Grid, bound: dict) -> cand.Grid:
+    """Screened candidates that pass every rule at one anchor, found with a bounded number of exact evaluations.
+
+    The numerologies (spacing, FFT size, CP) with the best :data:`NUMEROLOGIES_PER_ANCHOR`
+    bounds of each objective are taken. The candidates of each, in order of
+    their throughput bound (sparse pilots and long slots first), are evaluated
+    exactly at :data:`LADDER` ranks spread over that order, then at ranks
+    between the last failure before the first pass and that pass: the sparsest
+    arrangement that carries the estimation is found to within a few ranks.
+    Of each numerology the passing design with the best exact throughput and
+    the one with the best exact robustness are kept. At most
+    ``2 x NUMEROLOGIES_PER_ANCHOR x 2 x LADDER`` exact evaluations per anchor.
+    """
+    if grid.size == 0:
+        return grid
+    numerology, _ = distinct_rows(np.stack([grid.spacing_hz, grid.fft_size, grid.cp_samples], axis=1))
+    count = int(numerology.max()) + 1
+    chosen = set()
+    for objective in ("throughput", "robustness"):
+        best = np.full(count, -np.inf)
+        np.maximum.at(best, numerology, bound[objective])
+        chosen |= set(np.argsort(-best, kind="stable")[:NUMEROLOGIES_PER_ANCHOR].tolist())
+    order = np.lexsort((np.arange(grid.size), -bound["throughput"], numerology))
+    starts = np.searchsorted(numerology[order], np.arange(count + 1))
+    members = [order[starts[k]:starts[k + 1]] for k in sorted(chosen)]  # a few numerologies: a short loop
+    positions = [_ladder(0, m.size - 1) for m in members]
+    first_round = [m[p] for m, p in zip(members, positions)]
+    passed, rate, robust = _exact_at(req, environment, grid, np.concatenate(first_round))
+    second_round, at = [], 0
+    for m, p in zip(members, positions):
+        ok = passed[at:at + p.size]
+        at += p.size
+        if ok.any() and not ok[0]:  # between the last failure before the first pass and that pass
+            hit = int(np.argmax(ok))
+            second_round.append(m[_ladder(int(p[hit - 1]) + 1, int(p[hit]) - 1)])
+    tried = np.concatenate(first_round + second_round)
+    if second_round:
+        more = _exact_at(req, environment, grid, np.concatenate(second_round))
+        passed, rate, robust = (np.concatenate([a, b]) for a, b in zip((passed, rate, robust), more))
+    keep = []
+    for figure in (rate, robust):  # per numerology, the passing design with the best exact figure
+        good = np.flatnonzero(passed)
+        pick = good[np.lexsort((good, -figure[good], numerology[tried[good]]))]
+        lead = np.ones(pick.size, dtype=bool)
+        lead[1:] = numerology[tried[pick]][1:] != numerology[tried[pick]][:-1]
+        keep.append(tried[pick[lead]])
+    return grid.take(np.unique(np.concatenate(keep)))
+
+
+def _ladder(low: int, high: int) -> np.ndarray:
+    """At most :data:`LADDER` ranks from ``low`` to ``high`` (both included), evenly spread; none if high < low."""
+    if high < low:
+        return np.zeros(0, dtype=np.intp)
+    return np.unique(np.round(np.linspace(low, high, min(LADDER, high - low + 1))).astype(np.intp))
+
+
+def _exact_at(req: Requirements, environment: Environment, grid: cand.Grid, index):
+    """Pass, net throughput and robustness of the candidates at ``index`` by the full link model."""
+    ev = link.evaluate(_designs(grid, index), environment, req)
+    shape = np.shape(index)
+    return (np.broadcast_to(ev.passed, shape).copy(), np.broadcast_to(ev.rate_bps, shape).astype(float),
+            np.broadcast_to(ev.robustness, shape).astype(float))
+
+
+def _grid_of(d: DesignArrays) -> cand.Grid:
+    """Design arrays as a candidate grid."""
+    return cand.Grid(*(np.asarray(x) for x in (
+        d.subcarrier_spacing_hz, d.fft_size, d.cp_samples, d.used_subcarriers, d.pilot_freq_spacing,
+        d.pilot_time_spacing, d.pilot_shift, d.symbols_per_slot, d.pilot_scope, d.pilot_symbols, d.pilot_period,
+        d.pilot_data_shared.astype(np.int64))))
 
 
 def merged(a: cand.Grid, b: cand.Grid) -> tuple[cand.Grid, np.ndarray]:
@@ -255,15 +340,14 @@ def relaxed_failure(req: Requirements, channels: Channels, index):
 
 
 def _designs(grid: cand.Grid, index, shape=None) -> DesignArrays:
+    """The candidates at ``index`` (any shape) as design arrays: numerology, pilot arrangement and slot."""
     index = np.asarray(index, dtype=np.intp)
-    sub = grid.take(index.ravel())
+    sub = grid.take(index.ravel()).designs()
     shape = index.shape if shape is None else shape
-    return DesignArrays(name="candidate", **{
-        key: np.reshape(value, shape) for key, value in (
-            ("subcarrier_spacing_hz", sub.spacing_hz), ("fft_size", sub.fft_size), ("cp_samples", sub.cp_samples),
-            ("used_subcarriers", sub.used), ("pilot_freq_spacing", sub.pilot_f),
-            ("pilot_time_spacing", sub.pilot_t), ("pilot_shift", sub.pilot_s), ("symbols_per_slot", sub.slot))},
-        source="numerology plan")
+    values = {f.name: getattr(sub, f.name) for f in dataclasses.fields(sub)}
+    values = {key: np.reshape(v, shape) if np.ndim(v) and np.size(v) == index.size else v
+              for key, v in values.items()}
+    return DesignArrays(**{**values, "name": "candidate", "source": "numerology plan"})
 
 
 class Matrix:

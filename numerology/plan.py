@@ -64,9 +64,10 @@ OBJECTIVE_WORDS = {
 DEFAULT_OBJECTIVE = "weakest-margin"
 #: Time limit of each integer programme (s); the best plan found and its gap are reported if it is hit.
 TIME_LIMIT_S = 20.0
-#: Pairs made exact in the first refinement round, the chosen rows included (the budget doubles each round;
-#: about 30 us each).
-FIRST_PAIRS = 8192
+#: Rows' worth of pairs (this many times the channels) made exact in the first refinement round besides the
+#: chosen rows (the budget doubles each round). A pair's exact evaluation is mostly the channel-estimation error,
+#: from a few milliseconds to a second for long echoes and dense pilot clusters: few rows at a time.
+FIRST_ROWS = 4
 MODE_LETTERS = "ABCDEFGHIJKLMNOPQRSTUVWXYZ"
 
 
@@ -286,7 +287,7 @@ class _Planner:
 
     def coverage(self, k: int | None) -> _Choice:
         """Stage 1: the most sites served with at most k modes (k None: every servable site, fewest modes)."""
-        batch = FIRST_PAIRS
+        batch = FIRST_ROWS * max(1, self.matrix.channels.size)
         while True:
             m = self.matrix
             support = m.passed.T
@@ -309,7 +310,7 @@ class _Planner:
         weakest objectives, ties at the optimum are broken by the total among the rows made exact).
         Otherwise the integer programmes, with the chosen rows made exact, as in stage 1.
         """
-        batch = FIRST_PAIRS
+        batch = FIRST_ROWS * max(1, self.matrix.channels.size)
         while True:
             m = self.matrix
             support, value = m.passed.T, self.value()
