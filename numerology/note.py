@@ -804,8 +804,8 @@ def plan_section(result, heading: str = "## 2. Mode plan") -> list[str]:
              else f"the best found within the time limit of {o.time_limit_s:g} s per integer programme "
                   f"(relative gap {o.gap:.2g})")
     out.append(f"The plan is {exact}; the greedy plan beside it uses {o.greedy_modes} modes and serves "
-               f"{o.greedy_served} sites. Candidates: the solver's designs at {s.anchors} anchor environments "
-               f"(the harsh corners of groups of sites), {s.candidates} in all, {s.exact_rows} of them evaluated "
+               f"{o.greedy_served} sites. Candidates: designs that pass every rule at one of {s.anchors} anchor "
+               f"environments (the harsh corners of groups of sites), {s.candidates} in all, {s.exact_rows} of them evaluated "
                "exactly at every site; every figure above is from the same link model as `numerology check` "
                "at each site's own values.")
     out.append("")
