@@ -111,14 +111,17 @@ def _relaxed_pilots(req: Requirements) -> dict:
     }
 
 
-def _cheap_stage(grid: cand.Grid, environment: Environment, req: Requirements, ignore, overrides=None):
+def _cheap_stage(grid: cand.Grid, environment: Environment, req: Requirements, ignore, overrides=None,
+                 error_floor: bool = False):
     """Every rule with the estimation error left out: exact for most rules, an upper bound for the SINR rules.
 
     ``overrides`` replaces symbols by best-case values (used to screen numerologies before pilots,
-    and pilot arrangements before slot lengths).
+    and pilot arrangements before slot lengths). ``error_floor`` puts the estimation error's lower
+    bound (``link.estimation_floor``) in its place: still an upper bound, and a tight one.
     Returns (passes, objective bounds, rejections per rule).
     """
-    evaluation = link.evaluate(grid.designs(), environment, req, estimation=False, overrides=overrides)
+    evaluation = link.evaluate(grid.designs(), environment, req, estimation=False, overrides=overrides,
+                               error_floor=error_floor)
     ok = np.ones(grid.size, dtype=bool)
     rejected = {}
     normalised = []
@@ -353,8 +356,12 @@ def _screen_chunks(req: Requirements, environment: Environment, spacings_hz, ign
                                 chosen.shared)
         ok, _, _ = _cheap_stage(with_pilots, environment, req, ignore, any_slot)
         candidates = cand.with_slots(with_pilots.take(np.flatnonzero(ok)), slots)
-        ok, bound, rejections = _cheap_stage(candidates, environment, req, ignore)
-        for name, count in rejections.items():
+        ok, _, rejections = _cheap_stage(candidates, environment, req, ignore)
+        # The survivors again with the estimation error's lower bound (time interpolation alone): the SINR
+        # rules and the bounds tighten, and a candidate that fails now fails exactly too.
+        candidates = candidates.take(np.flatnonzero(ok))
+        ok, bound, floor_rejections = _cheap_stage(candidates, environment, req, ignore, error_floor=True)
+        for name, count in (*rejections.items(), *floor_rejections.items()):
             rejected[name] = rejected.get(name, 0) + count
         keep = np.flatnonzero(ok)
         yield candidates.take(keep), {k: np.asarray(bound[k])[keep] for k in OBJECTIVES}, rejected
