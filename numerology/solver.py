@@ -441,6 +441,11 @@ def transferred(req: Requirements, environment: Environment, row: cand.Grid, ign
     grid = cand.Grid(df, n, cp, used, *(one * int(getattr(row, k)[0]) for k in
                                          ("pilot_f", "pilot_t", "pilot_s", "slot", "scope", "symbols", "period",
                                           "shared")))
+    # the cheap rules with the estimation floor first (necessary): only their survivors cost an exact evaluation
+    grid = grid.take(np.flatnonzero(_passed(link.evaluate(grid.designs(), environment, req, estimation=False,
+                                                          error_floor=True), ignore)))
+    if grid.size == 0:
+        return None
     passed = np.flatnonzero(_passed(link.evaluate(grid.designs(), environment, req), ignore))
     return grid.take(passed[:1]) if passed.size else None
 
