@@ -34,6 +34,9 @@ DELAY_RULES = ("guard_interval", "cp_covers_delay", "flat_fading", "pilot_aliasi
 #: (rounds double in between).
 FIRST_BATCH = 256
 BATCH = 4096
+#: The first round of a what-if search (one best key): its best-bound candidates usually settle it, and
+#: with the estimation floor in the bounds they are usually the answer.
+WHAT_IF_FIRST_BATCH = 16
 #: Objective values this close (relative) count as equal: a bound and the exact value of the same design
 #: may differ in the last bits, as they are computed along different paths.
 KEY_RTOL = 1e-9
@@ -183,12 +186,12 @@ def search(req: Requirements, environment: Environment | None = None, objective:
     # unless every feasible design is asked for (top >= the space: brute-force comparisons).
     exhaustive = top >= order.size
     records = {k: [] for k in ("index", "key", "robust", "rate", "speed", "delay")}
-    evaluated, batch_size = 0, FIRST_BATCH
     pending = order
     per_numerology = PER_NUMEROLOGY
     # One best key and no Pareto front (a what-if): strictly best bound first, so that only the candidates
     # whose bound beats the best key are evaluated (breadth first would settle every numerology).
     what_if = top == 1 and not pareto and not exhaustive and not first_feasible_only
+    evaluated, batch_size = 0, WHAT_IF_FIRST_BATCH if what_if else FIRST_BATCH
     # Thousands of numerologies (a fine spacing range with many FFT sizes): settling each one would cost
     # an exact evaluation per numerology; best first stops once the `top` best are certain.
     crowded = best.size > BREADTH_FIRST_NUMEROLOGIES
