@@ -14,6 +14,8 @@ from pathlib import Path
 
 import pytest
 
+import numerology  # noqa: F401  (before any test module imports numpy: BLAS keeps to one thread, as in a run)
+
 # The tests never touch the user's cache of quantity strings: theirs lives in a folder of this session.
 _CACHE_DIR = tempfile.mkdtemp(prefix="numerology-test-cache-")
 os.environ["NUMEROLOGY_CACHE_DIR"] = _CACHE_DIR
