@@ -307,8 +307,7 @@ def estimation_floor(designs: DesignArrays, environment: Environment, req: Requi
         np.asarray(designs.pilot_data_shared, dtype=bool) & (np.asarray(designs.pilot_freq_spacing) > 1),
         designs.symbol_s, site_index, radio.oscillator_linewidth_hz, radio.frequency_error_hz,
         np.broadcast_to(0.0, shape))
-    table = np.ascontiguousarray(np.stack([np.asarray(c, dtype=float).ravel() for c in columns], axis=1))
-    unique, inverse = _unique_rows(table)
+    unique, inverse = _distinct_columns(columns)
     doppler_all = np.broadcast_to(environment.max_doppler_hz, environment.shape if batch else ()).ravel()
     los_all = np.broadcast_to(environment.los_fraction, environment.shape if batch else ()).ravel()
     site = unique[:, 6].astype(np.int64)
@@ -405,8 +404,7 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
         designs.pilot_period, designs.symbols_per_slot, designs.pilot_data_shared, designs.subcarrier_spacing_hz,
         designs.used_subcarriers, designs.symbol_s, site_index, np.broadcast_to(0.0, shape),
         radio.oscillator_linewidth_hz, radio.frequency_error_hz)
-    table = np.ascontiguousarray(np.stack([np.asarray(c, dtype=float).ravel() for c in columns], axis=1))
-    unique, inverse = _unique_rows(table)
+    unique, inverse = _distinct_columns(columns)
     boost = np.broadcast_to(10 ** (np.asarray(designs.pilot_boost_db, float) / 10), shape).ravel()
     noise = 1.0 / (np.broadcast_to(pilot_sinr, shape).ravel() * boost)
     scope_of = np.broadcast_to(designs.pilot_scope, shape).ravel()
@@ -494,6 +492,11 @@ def _band(channel, spacing, used) -> estimation.Band:
 def _schedule(scope, mask, period, shift, d_f, slot, shared, lookahead, memory):
     return arrangement.schedule(scope, mask, period, shift, d_f, slot, shared, lookahead, memory,
                                 estimation.MAX_PILOT_SYMBOLS)
+
+
+def _distinct_columns(columns):
+    """The distinct rows of equally shaped columns read side by side, and per row the index of its distinct row."""
+    return _unique_rows(np.ascontiguousarray(np.stack([np.asarray(c, dtype=float).ravel() for c in columns], axis=1)))
 
 
 def _unique_rows(table):
