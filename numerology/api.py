@@ -523,7 +523,9 @@ def _what_relaxing_buys(req, environment, objective, best: CheckResult, best_key
         new = min(new, 0.0)
     relaxed_req = req.replace(key, new)
     found = solver.search(relaxed_req, derive_environment(relaxed_req), objective=objective, top=1, pareto=False)
-    after = float(found.ranked.keys[0]) if found.feasible else None
+    # the best value found (branch and bound makes it exact), not the tie-broken first design, which depends
+    # on which of the designs within the tie tolerance the search happened to evaluate
+    after = float(found.best_key) if found.feasible else None
     if after is not None and abs(after - best_key) <= float(solver.tie_tolerance(objective, best_key)):
         return None  # it would buy nothing visible: not worth a line
     return Relaxed(key, float(current), float(new), objective, best_key, after)

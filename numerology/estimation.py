@@ -79,6 +79,7 @@ import numpy as np
 import scipy.special as sp
 
 from . import arrangement
+from .grouping import distinct_rows
 from .oscillator import phase_autocorrelation
 
 
@@ -408,6 +409,76 @@ class Band:
             value, vector = hermitian_eigen(self.comb_gram(step, offset))
             self._root[key] = (vector * np.sqrt(np.clip(value, 0.0, None))) @ vector.conj().T
         return self._root[key]
+
+
+#: Diagonal loading of the genie's time correlation matrix in :func:`interpolation_floor` (a fraction of
+#: the channel power); the bound subtracts what the loading can add (at most this much per pilot symbol).
+GENIE_LOADING = 1e-9
+
+
+def interpolation_floor(lags, symbol_s, max_doppler_hz, spectrum, los_fraction, oscillator=None):
+    """Error of interpolating the channel in time from noiseless, full-band pilot symbols: a lower bound.
+
+    A genie that observed every component of the channel without noise at the
+    pilot-bearing symbols ``lags`` (every subcarrier, not only the comb) would
+    still have to interpolate each component in time to the data symbol at lag
+    0. Its LMMSE error for a component of time correlation rho is
+    ``1 - c^H T^-1 c`` with ``T_ij = rho(l_i - l_j)`` and ``c_i = rho(l_i)``.
+    The receiver's pilots are fewer and noisy observations of the same
+    channel, and the LMMSE error can only grow as observations are removed or
+    made noisier, so this error bounds the exact one (:func:`spectral_weights`)
+    from below for the same pilot symbols; the screening of a search uses it
+    to bound the SINR from above (``numerology.link.estimation_floor``).
+
+    Parameters
+    ----------
+    lags : int array (n, u)
+        Per case, the usable pilot-bearing symbols relative to the data symbol (u may be 0).
+    symbol_s, max_doppler_hz, los_fraction : array (n,)
+        Per case: symbol duration (cyclic prefix included), maximum Doppler, line-of-sight fraction.
+    spectrum : str
+        As :func:`time_correlation`.
+    oscillator : (linewidth Hz, offset Hz, mask), optional
+        Linewidth and offset arrays (n,) or scalars.
+
+    Returns
+    -------
+    array (n, 2)
+        The error of a scattered and of a line-of-sight component (a fraction of its power).
+
+    Examples
+    --------
+    One pilot symbol, a Jakes channel: the error of holding it one symbol is 1 - J0(2 pi f_D T)^2.
+
+    >>> e = interpolation_floor(np.array([[-1]]), [1e-3], [100.0], "classical", [0.0])
+    >>> round(float(e[0, 0]), 6), round(float(1 - sp.j0(2 * np.pi * 0.1) ** 2), 6)
+    (0.183303, 0.183303)
+    """
+    lag = np.asarray(lags, dtype=float)
+    n, u = lag.shape
+    if u == 0:
+        return np.ones((n, 2))
+    kinds = np.array([SCATTERED, LINE_OF_SIGHT])
+    symbol_s = np.reshape(np.asarray(symbol_s, dtype=float), (-1, 1))
+    lag_s = np.concatenate([(lag[:, :, None] - lag[:, None, :]).reshape(n, -1), lag], axis=1) * symbol_s
+    los = np.reshape(np.asarray(los_fraction, dtype=float), (-1, 1, 1))
+    rho = time_correlation(kinds, lag_s, np.reshape(max_doppler_hz, (-1, 1)), spectrum, los)
+    if oscillator is not None and has_phase_variation(oscillator):
+        # the oscillator's factor (a measured mask is an integral per lag) once per distinct lag and oscillator
+        linewidth, offset, mask = oscillator
+        triples = np.stack(np.broadcast_arrays(lag_s, np.reshape(linewidth, (-1, 1)), np.reshape(offset, (-1, 1))),
+                           axis=-1)
+        index, first = distinct_rows(triples)
+        flat = triples.reshape(-1, 3)[first]
+        rho = rho * phase_autocorrelation(flat[:, 0], flat[:, 1], flat[:, 2], mask)[index][..., None]
+    rho = np.moveaxis(np.broadcast_to(rho, (n,) + rho.shape[1:]), -1, 1)  # (n, kind, u*u + u)
+    t = rho[..., :u * u].reshape(n, 2, u, u)
+    c = rho[..., u * u:]
+    value, vector = hermitian_eigen(0.5 * (t + np.conj(np.swapaxes(t, -1, -2))) + GENIE_LOADING * np.eye(u))
+    proj = np.abs(np.einsum("nkij,nki->nkj", np.conj(vector), c)) ** 2
+    explained = np.sum(proj / np.maximum(value, GENIE_LOADING), axis=-1)
+    # the loading raises the error by at most GENIE_LOADING per pilot symbol: taken off, the bound holds
+    return np.clip(1.0 - explained - u * GENIE_LOADING, 0.0, 1.0)
 
 
 def data_count(used: int, freq_spacing: int, target: arrangement.Target) -> int:

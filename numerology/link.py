@@ -275,14 +275,102 @@ def oscillator_terms(req: Requirements, useful_symbol_s, subcarrier_spacing_hz):
 PILOT_SINR_FLOOR = 1e-12
 
 
-def estimation_floor(req: Requirements, pilot_sinr):
-    """A lower bound of the estimation error of any design in any channel (for screening): zero.
+def estimation_floor(designs: DesignArrays, environment: Environment, req: Requirements, shape):
+    """A lower bound of each design's estimation error, far cheaper than the error itself (for screening).
 
-    A full-band estimate from many pilots can be arbitrarily good, so the only
-    bound valid for every arrangement is 0; the SINR without estimation error
-    then bounds every design's SINR from above.
+    For every data symbol of the design's span, a genie that knew the channel
+    without noise on every subcarrier of the pilot-bearing symbols the
+    receiver may use still interpolates in time
+    (``estimation.interpolation_floor``), with the line of sight and the
+    scattered part weighted by their power. The exact error
+    (:func:`estimation_error`, any estimator) averages over the span's data
+    elements; the bound averages the genie's error over its data symbols,
+    counting those that carry pilots of their own (their genie error is
+    about zero; their data elements at most a full symbol) as error-free
+    full symbols, which can only lower the average. So the SINR it gives
+    bounds the exact SINR from above. It depends on the arrangement's
+    pilot-bearing symbols only (not on the comb), so many candidates share
+    it; the pilot SINR does not enter (a noiseless genie). Differential
+    detection: 0.
+
+    Returns
+    -------
+    array of the evaluation's shape
     """
-    return np.zeros(np.shape(pilot_sinr))
+    delays, _ = environment.taps
+    batch = np.ndim(delays) > 1
+    site_index = np.arange(int(np.prod(environment.shape))).reshape(environment.shape) if batch else np.zeros(())
+    radio = req.radio
+    stream = np.asarray(designs.pilot_scope) == SCOPE_CODE["stream"]
+    columns = np.broadcast_arrays(  # the time pattern only: a stream's slot does not change its pilots
+        designs.pilot_scope, designs.pilot_symbols, designs.pilot_period, np.where(stream, 0, designs.symbols_per_slot),
+        np.asarray(designs.pilot_data_shared, dtype=bool) & (np.asarray(designs.pilot_freq_spacing) > 1),
+        designs.symbol_s, site_index, radio.oscillator_linewidth_hz, radio.frequency_error_hz,
+        np.broadcast_to(0.0, shape))
+    unique, inverse = _distinct_columns(columns)
+    doppler_all = np.broadcast_to(environment.max_doppler_hz, environment.shape if batch else ()).ravel()
+    los_all = np.broadcast_to(environment.los_fraction, environment.shape if batch else ()).ravel()
+    site = unique[:, 6].astype(np.int64)
+    params = np.stack([unique[:, 5], doppler_all[site], los_all[site], unique[:, 7], unique[:, 8]], axis=1)
+    patterns, pattern_of = _unique_rows(unique[:, :5])
+    rules = req.rules
+    # every (distinct row, data symbol without pilots of its own): the target's pilot lags, and its weight
+    pair_row, pair_lags, pair_weight = [], [], []
+    order = np.argsort(pattern_of, kind="stable")
+    bounds = np.searchsorted(pattern_of[order], np.arange(patterns.shape[0] + 1))
+    for p, key in enumerate(patterns):
+        scope, mask, period, slot, shared = (int(v) for v in key)
+        if SCOPES[scope] == "differential":
+            continue
+        lag_ids, symbols = _floor_targets(scope, mask, period, slot, bool(shared), rules.estimation_lookahead,
+                                          rules.estimation_memory)
+        rows = order[bounds[p]:bounds[p + 1]]
+        pair_row.append(np.repeat(rows, lag_ids.size))
+        pair_lags.append(np.tile(lag_ids, rows.size))
+        pair_weight.append(np.full(rows.size * lag_ids.size, 1.0 / symbols))
+    floor = np.zeros(unique.shape[0])
+    if pair_row:
+        pair_row, pair_lags, pair_weight = (np.concatenate(v) for v in (pair_row, pair_lags, pair_weight))
+        keys = np.column_stack([pair_lags, params[pair_row]])
+        distinct, first = distinct_rows(keys)
+        first_keys = keys[first]
+        per_distinct = np.empty(first.size)
+        mask = None if radio.phase_noise is None else (tuple(radio.phase_noise[0]), tuple(radio.phase_noise[1]))
+        count = np.array([len(lags) for lags in _FLOOR_LAGS])[first_keys[:, 0].astype(np.int64)]
+        for u in np.unique(count):  # cases with as many pilot symbols at once
+            which = np.flatnonzero(count == u)
+            k = first_keys[which]
+            lags = np.array([_FLOOR_LAGS[i] for i in k[:, 0].astype(np.int64)], dtype=float).reshape(which.size, u)
+            kinds = estimation.interpolation_floor(lags, k[:, 1], k[:, 2], environment.doppler_spectrum, k[:, 3],
+                                                   (k[:, 4], k[:, 5], mask))
+            per_distinct[which] = (1.0 - k[:, 3]) * kinds[:, 0] + k[:, 3] * kinds[:, 1]
+        floor = np.bincount(pair_row, weights=pair_weight * per_distinct[distinct], minlength=unique.shape[0])
+    return floor[inverse].reshape(shape)
+
+
+#: Pilot-lag tuples met by :func:`_floor_targets`, numbered in order of first appearance within a process.
+_FLOOR_LAGS: list = []
+_FLOOR_LAG_ID: dict = {}
+
+
+@lru_cache(maxsize=4096)
+def _floor_targets(scope, mask, period, slot, shared, lookahead, memory):
+    """The lag-tuple numbers of the data symbols without pilots of their own, and the data symbols' count.
+
+    The comb does not move a pilot-bearing symbol in time, so a comb of 2 subcarriers stands for every
+    comb (1 when pilot-bearing symbols carry no data); a stream's lags repeat every period, so one period
+    stands for its span.
+    """
+    plan = _schedule(SCOPES[scope], mask, period, 0, 2 if shared else 1, slot, shared, lookahead, memory)
+    ids = [_lag_id(t.pilot_lags) for t in plan.targets if t.data_offset < 0]
+    return np.array(ids, dtype=np.int64), max(len(plan.targets), 1)
+
+
+def _lag_id(lags) -> int:
+    if lags not in _FLOOR_LAG_ID:
+        _FLOOR_LAG_ID[lags] = len(_FLOOR_LAGS)
+        _FLOOR_LAGS.append(lags)
+    return _FLOOR_LAG_ID[lags]
 
 
 #: Structures (arrangement x numerology x channel) whose estimation weights are kept within a process.
@@ -316,8 +404,7 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
         designs.pilot_period, designs.symbols_per_slot, designs.pilot_data_shared, designs.subcarrier_spacing_hz,
         designs.used_subcarriers, designs.symbol_s, site_index, np.broadcast_to(0.0, shape),
         radio.oscillator_linewidth_hz, radio.frequency_error_hz)
-    table = np.ascontiguousarray(np.stack([np.asarray(c, dtype=float).ravel() for c in columns], axis=1))
-    unique, inverse = _unique_rows(table)
+    unique, inverse = _distinct_columns(columns)
     boost = np.broadcast_to(10 ** (np.asarray(designs.pilot_boost_db, float) / 10), shape).ravel()
     noise = 1.0 / (np.broadcast_to(pilot_sinr, shape).ravel() * boost)
     scope_of = np.broadcast_to(designs.pilot_scope, shape).ravel()
@@ -405,6 +492,11 @@ def _band(channel, spacing, used) -> estimation.Band:
 def _schedule(scope, mask, period, shift, d_f, slot, shared, lookahead, memory):
     return arrangement.schedule(scope, mask, period, shift, d_f, slot, shared, lookahead, memory,
                                 estimation.MAX_PILOT_SYMBOLS)
+
+
+def _distinct_columns(columns):
+    """The distinct rows of equally shaped columns read side by side, and per row the index of its distinct row."""
+    return _unique_rows(np.ascontiguousarray(np.stack([np.asarray(c, dtype=float).ravel() for c in columns], axis=1)))
 
 
 def _unique_rows(table):
@@ -507,7 +599,7 @@ def _alias_scale_for(designs: DesignArrays):
 
 
 def evaluate(designs: DesignArrays, environment: Environment, req: Requirements, *, estimation: bool = True,
-             overrides: dict | None = None, given_error=None) -> Evaluation:
+             overrides: dict | None = None, given_error=None, error_floor: bool = False) -> Evaluation:
     """Evaluate designs against an environment and a requirement set.
 
     Parameters
@@ -521,12 +613,16 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
         ``req.radio.snr_db`` may be an array broadcasting with the batch (a
         per-site SNR, as ``numerology.sweep`` passes it).
     estimation : bool
-        False replaces the channel-estimation error by zero
-        (``estimation_floor``): every SINR-dependent margin is then an upper
+        False replaces the channel-estimation error by zero (or by a lower
+        bound, ``error_floor``): every SINR-dependent margin is then an upper
         bound (the solver's screening).
     overrides : dict, optional
         Symbols of the rule language replaced by given values (best cases
         while a design is incomplete; see ``numerology.solver``).
+    error_floor : bool
+        With ``estimation=False``, use :func:`estimation_floor` (a lower bound
+        of the estimation error, from time interpolation alone) instead of
+        zero: the SINR-dependent margins are still upper bounds, and tighter.
     given_error : array_like, optional
         The channel-estimation error (a fraction of the channel power) to use
         instead of computing it, broadcasting with the result (a picture that
@@ -575,7 +671,7 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
     elif estimation:
         mse = np.broadcast_to(estimation_error(designs, environment, req, pilot_sinr), shape)
     else:
-        mse = np.broadcast_to(estimation_floor(req, pilot_sinr), shape)
+        mse = np.zeros(shape) if not error_floor else estimation_floor(designs, environment, req, shape)
     with np.errstate(divide="ignore"):
         terms["estimation"] = np.where(mse < 1, mse / (1 - mse), np.inf)
     # An LMMSE estimate h_hat = h - e with e uncorrelated with h_hat keeps 1 - MSE of the channel power as

@@ -34,6 +34,9 @@ DELAY_RULES = ("guard_interval", "cp_covers_delay", "flat_fading", "pilot_aliasi
 #: (rounds double in between).
 FIRST_BATCH = 256
 BATCH = 4096
+#: The first round of a what-if search (one best key): its best-bound candidates usually settle it, and
+#: with the estimation floor in the bounds they are usually the answer.
+WHAT_IF_FIRST_BATCH = 16
 #: Objective values this close (relative) count as equal: a bound and the exact value of the same design
 #: may differ in the last bits, as they are computed along different paths.
 KEY_RTOL = 1e-9
@@ -111,14 +114,17 @@ def _relaxed_pilots(req: Requirements) -> dict:
     }
 
 
-def _cheap_stage(grid: cand.Grid, environment: Environment, req: Requirements, ignore, overrides=None):
+def _cheap_stage(grid: cand.Grid, environment: Environment, req: Requirements, ignore, overrides=None,
+                 error_floor: bool = False):
     """Every rule with the estimation error left out: exact for most rules, an upper bound for the SINR rules.
 
     ``overrides`` replaces symbols by best-case values (used to screen numerologies before pilots,
-    and pilot arrangements before slot lengths).
+    and pilot arrangements before slot lengths). ``error_floor`` puts the estimation error's lower
+    bound (``link.estimation_floor``) in its place: still an upper bound, and a tight one.
     Returns (passes, objective bounds, rejections per rule).
     """
-    evaluation = link.evaluate(grid.designs(), environment, req, estimation=False, overrides=overrides)
+    evaluation = link.evaluate(grid.designs(), environment, req, estimation=False, overrides=overrides,
+                               error_floor=error_floor)
     ok = np.ones(grid.size, dtype=bool)
     rejected = {}
     normalised = []
@@ -180,12 +186,12 @@ def search(req: Requirements, environment: Environment | None = None, objective:
     # unless every feasible design is asked for (top >= the space: brute-force comparisons).
     exhaustive = top >= order.size
     records = {k: [] for k in ("index", "key", "robust", "rate", "speed", "delay")}
-    evaluated, batch_size = 0, FIRST_BATCH
     pending = order
     per_numerology = PER_NUMEROLOGY
     # One best key and no Pareto front (a what-if): strictly best bound first, so that only the candidates
     # whose bound beats the best key are evaluated (breadth first would settle every numerology).
     what_if = top == 1 and not pareto and not exhaustive and not first_feasible_only
+    evaluated, batch_size = 0, WHAT_IF_FIRST_BATCH if what_if else FIRST_BATCH
     # Thousands of numerologies (a fine spacing range with many FFT sizes): settling each one would cost
     # an exact evaluation per numerology; best first stops once the `top` best are certain.
     crowded = best.size > BREADTH_FIRST_NUMEROLOGIES
@@ -353,8 +359,12 @@ def _screen_chunks(req: Requirements, environment: Environment, spacings_hz, ign
                                 chosen.shared)
         ok, _, _ = _cheap_stage(with_pilots, environment, req, ignore, any_slot)
         candidates = cand.with_slots(with_pilots.take(np.flatnonzero(ok)), slots)
-        ok, bound, rejections = _cheap_stage(candidates, environment, req, ignore)
-        for name, count in rejections.items():
+        ok, _, rejections = _cheap_stage(candidates, environment, req, ignore)
+        # The survivors again with the estimation error's lower bound (time interpolation alone): the SINR
+        # rules and the bounds tighten, and a candidate that fails now fails exactly too.
+        candidates = candidates.take(np.flatnonzero(ok))
+        ok, bound, floor_rejections = _cheap_stage(candidates, environment, req, ignore, error_floor=True)
+        for name, count in (*rejections.items(), *floor_rejections.items()):
             rejected[name] = rejected.get(name, 0) + count
         keep = np.flatnonzero(ok)
         yield candidates.take(keep), {k: np.asarray(bound[k])[keep] for k in OBJECTIVES}, rejected
@@ -434,6 +444,11 @@ def transferred(req: Requirements, environment: Environment, row: cand.Grid, ign
     grid = cand.Grid(df, n, cp, used, *(one * int(getattr(row, k)[0]) for k in
                                          ("pilot_f", "pilot_t", "pilot_s", "slot", "scope", "symbols", "period",
                                           "shared")))
+    # the cheap rules with the estimation floor first (necessary): only their survivors cost an exact evaluation
+    grid = grid.take(np.flatnonzero(_passed(link.evaluate(grid.designs(), environment, req, estimation=False,
+                                                          error_floor=True), ignore)))
+    if grid.size == 0:
+        return None
     passed = np.flatnonzero(_passed(link.evaluate(grid.designs(), environment, req), ignore))
     return grid.take(passed[:1]) if passed.size else None
 

@@ -17,9 +17,11 @@ def test_readme_has_exactly_the_two_setup_commands_first():
     commands = [line for line in setup.splitlines() if line.startswith("pip install")]
     assert commands == [
         "pip install . && numerology solve requirements_examples/rail_corridor.toml",
-        "pip install '.[test,plot]' && python -m pytest -q",
+        "pip install '.[test,plot]' && python -m pytest -q -n 2",
     ]
 
 
 def test_ci_runs_the_readme_test_command():
-    assert "python -m pytest -q" in (ROOT / ".ci" / "run").read_text(encoding="utf-8")
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    command = next(line for line in text.splitlines() if line.startswith("pip install '.[test")).split(" && ", 1)[1]
+    assert f"\n{command}\n" in (ROOT / ".ci" / "run").read_text(encoding="utf-8")

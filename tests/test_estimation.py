@@ -233,3 +233,36 @@ def test_linear_interpolation_of_a_static_flat_channel():
     got = estimation.spectral_weights(plan, band, [1e-4], 0.0, "classical", 0.0, "linear")[0].mse(0.1)
     gains = [(1 - f) ** 2 + f**2 for f in (0.25, 0.5, 0.75)] * 3  # the 9 data subcarriers between pilots
     assert_allclose(got, 0.1 * np.mean(gains), rtol=1e-12)
+
+
+def test_interpolation_floor_of_one_held_pilot_symbol():
+    """One pilot symbol k symbols back, known without noise: the error of holding it is the Clarke/Jakes
+    held-estimate error 1 - J0(2 pi f_D k T)^2 (Jakes, Microwave Mobile Communications, ch. 1: the J0
+    autocorrelation); a line of sight turning at f_D is predicted exactly (error 0)."""
+    lags = np.array([[-1], [-3]])
+    got = estimation.interpolation_floor(lags, [1e-3, 1e-3], [100.0, 100.0], "rician", [0.5, 0.5])
+    assert_allclose(got[:, 0], 1 - sp.j0(2 * np.pi * 100.0 * 1e-3 * np.array([1, 3])) ** 2, atol=1e-8)
+    assert_allclose(got[:, 1], 0.0, atol=1e-8)
+
+
+@pytest.mark.parametrize("example", ["harbour_crane", "rail_corridor", "factory_robots"])
+def test_estimation_floor_never_exceeds_the_exact_error(example):
+    """The screening's lower bound of the estimation error (a noiseless full-band genie at the usable
+    pilot symbols) is below the exact whole-span LMMSE error for every candidate tried: the LMMSE error
+    only grows as observations are removed or made noisier (Kay, Estimation Theory, ch. 12). Candidates:
+    a sample of those each shipped example's search evaluates (invented scenarios)."""
+    from numerology import link, solver
+    from numerology.candidates import spacing_family
+    from numerology.environment import derive_environment
+
+    from conftest import EXAMPLES
+
+    req = api.load(EXAMPLES / f"{example}.toml")
+    environment = derive_environment(req)
+    grid, _, _ = solver._screen(req, environment, spacing_family(req, environment), ())
+    rows = np.random.default_rng(7).choice(grid.size, min(grid.size, 120), replace=False)
+    designs = grid.take(rows).designs()
+    floor = link.evaluate(designs, environment, req, estimation=False, error_floor=True).terms["estimation"]
+    exact = link.evaluate(designs, environment, req).terms["estimation"]
+    assert np.all(floor <= exact * (1 + 1e-9) + 1e-12)
+    assert np.count_nonzero(floor > 0.1 * exact) > rows.size // 2  # and it is a useful bound, not zero
