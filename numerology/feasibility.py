@@ -27,7 +27,11 @@ the channels in each octave of Doppler and of max excess delay (wider bins
 when that makes more than :data:`MAX_GROUP_ANCHORS` groups), and all
 channels together. A channel that no candidate passes, and that the relaxed
 rules do not rule out (``candidates.relaxed_margins``), becomes an anchor of
-its own in a second round (at most :data:`MAX_OWN_ANCHORS`).
+its own in a second round (at most :data:`MAX_OWN_ANCHORS`); so does a
+channel that the cheap rules let a candidate serve but that no candidate
+serves once the plan has made the rows exact (``plan`` asks for that round).
+An anchor of its own takes the solver's ranked designs, whose search is
+exact: a channel that some design of the search space serves is served.
 
 **The matrix.** Every pair is first evaluated by ``link.evaluate`` with
 ``estimation=False``: the rules that do not depend on the SINR are then
@@ -186,8 +190,14 @@ def group_anchors(channels: Channels) -> list[Anchor]:
 
 
 def own_anchors(channels: Channels, index) -> list[Anchor]:
-    """Each channel at ``index`` as its own anchor."""
-    return [corner(channels, [i]) for i in np.asarray(index, dtype=np.intp)]
+    """Each channel at ``index`` as its own anchor, ranked: the solver's own best designs there are taken.
+
+    These channels are those no first-round candidate passes; the bounded
+    exact ladder of :func:`anchor_designs` looks only at a few numerologies
+    and can miss the one design that serves such a channel, while the
+    solver's search is exact (any feasible design there is found).
+    """
+    return [dataclasses.replace(corner(channels, [i]), ranked=True) for i in np.asarray(index, dtype=np.intp)]
 
 
 GRID_FIELDS = tuple(f.name for f in dataclasses.fields(cand.Grid))
@@ -463,16 +473,32 @@ def plan_space(req: Requirements, sites: Sites) -> Space:
     channels = channels_of(req, sites)
     anchors = group_anchors(channels)
     matrix = Matrix(req, channels, candidate_designs(req, anchors))
-    bare = np.flatnonzero(~matrix.passed.any(axis=0))
-    ruled_out, untried = {}, 0
-    if bare.size:
-        out, rule = relaxed_failure(req, channels, bare)
-        ruled_out = {int(c): str(r) for c, r in zip(bare[out], rule[out])}
-        retry = bare[~out]
-        untried = max(0, retry.size - MAX_OWN_ANCHORS)
-        retry = retry[np.argsort(-channels.weight[retry], kind="stable")][:MAX_OWN_ANCHORS]
-        if retry.size:
-            extra = own_anchors(channels, retry)
-            anchors = anchors + extra
-            matrix.add(candidate_designs(req, extra))
-    return Space(matrix, tuple(anchors), ruled_out, untried)
+    space = Space(matrix, tuple(anchors), {})
+    return with_own_anchors(req, space, np.flatnonzero(~matrix.passed.any(axis=0)))
+
+
+def with_own_anchors(req: Requirements, space: Space, bare) -> Space:
+    """``space`` with the channels at ``bare`` (no candidate serves them) tried as anchors of their own.
+
+    Channels the relaxed rules rule out are recorded with their rule and not
+    tried; of the others, at most :data:`MAX_OWN_ANCHORS` in all (most sites
+    first, channels already anchors of their own left out) are added, their
+    candidates appended to the matrix (which fills in place).
+    """
+    bare = np.asarray(bare, dtype=np.intp)
+    bare = bare[~np.isin(bare, list(space.ruled_out))]
+    tried = [int(a.channels[0]) for a in space.anchors if a.ranked and a.channels.size == 1]
+    bare = bare[~np.isin(bare, tried)]
+    if not bare.size:
+        return space
+    matrix, channels = space.matrix, space.matrix.channels
+    out, rule = relaxed_failure(req, channels, bare)
+    ruled_out = {**space.ruled_out, **{int(c): str(r) for c, r in zip(bare[out], rule[out])}}
+    retry = bare[~out]
+    room = max(0, MAX_OWN_ANCHORS - len(tried))
+    retry = retry[np.argsort(-channels.weight[retry], kind="stable")]
+    untried = max(0, retry.size - room)
+    extra = own_anchors(channels, retry[:room])
+    if extra:
+        matrix.add(candidate_designs(req, extra))
+    return Space(matrix, space.anchors + tuple(extra), ruled_out, untried)

@@ -45,7 +45,7 @@ import numpy as np
 from . import cover
 from .design import Design
 from .errors import InputError
-from .feasibility import MAX_OWN_ANCHORS, Matrix, _designs, plan_space
+from .feasibility import MAX_OWN_ANCHORS, Matrix, _designs, plan_space, with_own_anchors
 from .requirements import Requirements
 from .sweep import Sites
 
@@ -396,6 +396,12 @@ def plan(req: Requirements, sites: Sites, *, modes: int | None = None, objective
     planner = _Planner(matrix, objective, time_limit_s)
 
     everything_first, everything = planner.plan(None)
+    # Channels the cheap rules let some candidate serve but none serves exactly: anchors of their own too
+    unserved = np.flatnonzero(~matrix.passed[everything_first.rows].any(axis=0))
+    wider = with_own_anchors(req, space, unserved)
+    if len(wider.anchors) > len(space.anchors):
+        everything_first, everything = planner.plan(None)
+    space, anchors = wider, wider.anchors
     fewest = int(everything_first.rows.size)
     if modes is None:
         first, chosen = everything_first, everything

@@ -9,13 +9,14 @@ from __future__ import annotations
 
 import itertools
 import json
+import re
 from pathlib import Path
 
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from numerology import api, render_json
+from numerology import api, render_json, solver
 from numerology.cli import main
 from numerology.feasibility import plan_space
 from numerology.plan import plan
@@ -133,14 +134,17 @@ def test_one_mode_equals_solve_on_the_worst_case_when_one_serves_all():
                               snr_db=[16.0, 20.0, 22.0])
     result = plan(req, sites, modes=1, objective="weakest-throughput")
     assert result.served_all
-    solved = api.solve(sites.requirements_for(req, 0), objective="throughput", top=1, explain=False,
-                       with_limits=False)
+    worst = sites.requirements_for(req, 0)
+    solved = api.solve(worst, objective="throughput", top=1, explain=False, with_limits=False)
     best = solved.designs[0].check
+    found = solver.search(worst, objective="throughput", top=1)
     mode = result.modes[0].design
-    for key in ("subcarrier_spacing_hz", "fft_size", "cp_samples", "used_subcarriers", "pilot_freq_spacing",
-                "pilot_time_spacing", "pilot_shift", "symbols_per_slot"):
+    # solve's numerology, and the best throughput its search proves (solve lists, of the designs within its
+    # tie tolerance of that best, the one with the larger margin; the plan takes the best value itself)
+    for key in ("subcarrier_spacing_hz", "fft_size", "cp_samples", "used_subcarriers"):
         assert getattr(mode, key) == getattr(best.design, key), key
-    assert_allclose(result.figures.min_throughput_bps, best.net_throughput_bps, rtol=RTOL)
+    assert_allclose(result.figures.min_throughput_bps, found.best_key, rtol=RTOL)
+    assert best.net_throughput_bps >= found.best_key - solver.tie_tolerance("throughput", found.best_key)
 
 
 def test_unserved_sites_are_listed_with_their_binding_rule():
@@ -180,8 +184,10 @@ def test_more_modes_allowed_than_needed_uses_no_more_than_the_objective_needs(sm
 
 
 def test_plan_prints_a_one_line_summary(small):
-    _, _, result = small
-    assert str(result) == "2 modes serve 6 of 6 sites: mode A (4 sites), mode B (2 sites)"
+    _, sites, result = small
+    text = str(result)
+    assert re.fullmatch(r"2 modes serve 6 of 6 sites: mode A \((\d) sites?\), mode B \((\d) sites?\)", text), text
+    assert sum(int(n) for n in re.findall(r"\((\d) site", text)) == sites.size
 
 
 def test_plan_json_is_deterministic_and_carries_its_schema(small):
@@ -242,11 +248,15 @@ def test_plan_usage_errors(capsys, argv, words):
     assert words in err and err.count("\n") == 1
 
 
-def test_plan_exit_status_is_one_when_a_site_is_unserved(capsys):
-    status = main(["plan", str(EXAMPLES / "harbour_crane.toml"), "--sites", str(EXAMPLES / "harbour_sites.csv")])
+def test_plan_exit_status_is_one_when_a_site_is_unserved(capsys, tmp_path):
+    """A site far beyond the rest (a track-test sled at 600 km/h, invented) is listed, with exit status 1."""
+    sites = tmp_path / "sites.csv"
+    rows = (EXAMPLES / "harbour_sites.csv").read_text(encoding="utf-8").rstrip("\n").splitlines()
+    sites.write_text("\n".join(rows + ["test sled,600,250,,,8"]) + "\n", encoding="utf-8")
+    status = main(["plan", str(EXAMPLES / "harbour_crane.toml"), "--sites", str(sites)])
     out = capsys.readouterr().out
     assert status == 1
-    assert "Sites no mode serves" in out and "empty-container depot" in out
+    assert "Sites no mode serves" in out and "test sled" in out
 
 
 def test_a_request_no_design_meets_lists_every_site(capsys, tmp_path):
