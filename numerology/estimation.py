@@ -605,12 +605,12 @@ def staggered_bound(schedule: arrangement.Schedule, band: Band, symbol_s, max_do
     :func:`spectral_weights`. Where the combs sample the channel alike (the
     common case: echoes well within the comb's alias-free span), the bound is
     close to the exact error. A single comb: the exact weights (the separable
-    form is then exact). None where a line of sight is present (its exact
-    form is not separable; use :func:`spectral_weights`) or for the linear
-    estimator (not an LMMSE).
+    form is then exact). None where a line of sight meets a randomly
+    wandering oscillator phase (the separable form's rank-one line of sight
+    cannot follow it; use :func:`spectral_weights`).
     """
     offsets = sorted({o for t in schedule.targets for o in t.pilot_offsets})
-    if (band.components.kind == LINE_OF_SIGHT).any():
+    if (band.components.kind == LINE_OF_SIGHT).any() and _random_phase(oscillator):
         return None
     symbol_s = np.atleast_1d(np.asarray(symbol_s, dtype=float))
     doppler = np.broadcast_to(np.asarray(max_doppler_hz, dtype=float), symbol_s.shape)

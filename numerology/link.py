@@ -395,7 +395,8 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
     ``comb_bound``: an arrangement whose pilot symbols sit on different combs
     gets a lower bound of its LMMSE error instead (``estimation.staggered_bound``,
     a few times cheaper; the solver's refinement before exact evaluation).
-    Other arrangements, a line of sight or the linear estimator: the exact error.
+    Other arrangements, the linear estimator, or a line of sight with a wandering oscillator phase: the
+    exact error.
     """
     delays, powers = environment.taps
     batch = np.ndim(delays) > 1
@@ -449,7 +450,7 @@ def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, sp
         channel = (tuple(flat_delays[site][keep]), tuple(flat_powers[site][keep]), float(los_all[site]))
         pattern = (int(scope), int(d_f), int(shift), int(mask), int(period), int(slot), bool(shared))
         oscillator = (linewidth, offset, phase_mask)
-        bounded = comb_bound and rules.estimator == "lmmse" and channel[2] == 0 and _staggered(pattern, rules)
+        bounded = comb_bound and rules.estimator == "lmmse" and _staggered(pattern, rules)
         cache_key = (pattern, spacing, int(used), symbol_s, channel, float(doppler_hz[site]), spectrum, oscillator,
                      rules.estimator, rules.estimation_lookahead, rules.estimation_memory, bounded)
         found = _WEIGHTS_CACHE.get(cache_key)

@@ -455,10 +455,23 @@ def first_feasible(req: Requirements, environment: Environment, ignore=(), max_e
                 return None, None
             index = order[start:start + step]
             evaluated += index.size
-            passed = _passed(link.evaluate(part.take(index).designs(), environment, req), ignore)
-            if passed.any():
-                return True, part.take(index[np.flatnonzero(passed)[:1]])
+            passed = _passing(part.take(index), environment, req, ignore)
+            if passed.size:
+                return True, part.take(index[passed[:1]])
     return False, None
+
+
+def _passing(grid: cand.Grid, environment: Environment, req: Requirements, ignore=()) -> np.ndarray:
+    """Indices of the candidates of ``grid`` that pass every rule by the full model.
+
+    Each is first evaluated with the estimation error's lower bound for pilot symbols on different
+    combs (``link.evaluate(..., comb_bound=True)``, exact for the others): one that fails then fails
+    exactly too and costs no exact evaluation.
+    """
+    maybe = np.flatnonzero(_passed(link.evaluate(grid.designs(), environment, req, comb_bound=True), ignore))
+    if not maybe.size:
+        return maybe
+    return maybe[_passed(link.evaluate(grid.take(maybe).designs(), environment, req), ignore)]
 
 
 def transferred(req: Requirements, environment: Environment, row: cand.Grid, ignore=()):
@@ -489,7 +502,7 @@ def transferred(req: Requirements, environment: Environment, row: cand.Grid, ign
                                                           error_floor=True), ignore)))
     if grid.size == 0:
         return None
-    passed = np.flatnonzero(_passed(link.evaluate(grid.designs(), environment, req), ignore))
+    passed = _passing(grid, environment, req, ignore)
     return grid.take(passed[:1]) if passed.size else None
 
 

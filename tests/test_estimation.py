@@ -328,3 +328,19 @@ def test_comb_bound_never_exceeds_the_exact_error_of_candidates(example):
     exact = link.evaluate(designs, environment, req).terms["estimation"]
     assert np.all(bound <= exact * (1 + 1e-9) + 1e-12)
     assert np.count_nonzero(bound == exact) > 0 and np.count_nonzero(bound < exact) > 0
+
+
+@pytest.mark.parametrize("spectrum", ["rician", "tracked"])
+def test_staggered_bound_with_a_line_of_sight_is_below_the_brute_force_error(spectrum):
+    """As above with a line of sight (K = 6 dB at the first arrival of the invented six taps) and LTE's
+    staggered port-0 pattern (TS 36.211 sect. 6.10.1.2): below the brute force, and close to it."""
+    plan = arrangement.schedule("stream", arrangement.mask_from_symbols([0, 4]), 7, 3, 6, 7, True, 3, 7,
+                                estimation.MAX_PILOT_SYMBOLS)
+    powers, los, _, _ = line_of_sight(SIX_TAPS_S, 10 ** (SIX_TAPS_DB / 10), "six", spectrum, 6.0, None)
+    for noise in (0.002, 0.02, 0.2):
+        args = (plan, 300, 30e3, 35.7 * US, SIX_TAPS_S, powers, 800.0, noise, los, spectrum)
+        band = estimation.Band(SIX_TAPS_S, powers, los, 30e3, 300)
+        weights = estimation.staggered_bound(plan, band, [35.7 * US], 800.0, spectrum, los)[0]
+        bound, reference = float(weights.mse(noise)), brute_force_mse(*args)
+        assert bound <= reference * (1 + 1e-9)
+        assert _db(reference) - _db(bound) < 1.0
