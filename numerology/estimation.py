@@ -362,10 +362,14 @@ class Band:
         return self._gram[key]
 
     def comb_eigen(self, step, offset, subset):
-        """Eigenvalues and vectors of the comb Gram matrix restricted to a subset of the components."""
+        """Eigenvalues and vectors of the comb Gram matrix restricted to a subset of the components.
+
+        ``offset`` may be a tuple of offsets: then the :meth:`dominating_gram` of those combs.
+        """
         key = (step, offset, subset.tobytes())
         if key not in self._eigen:
-            g = self.comb_gram(step, offset)[np.ix_(subset, subset)]
+            g = self.dominating_gram(step, offset) if isinstance(offset, tuple) else self.comb_gram(step, offset)
+            g = g[np.ix_(subset, subset)]
             self._eigen[key] = hermitian_eigen(0.5 * (g + g.conj().T))
         return self._eigen[key]
 
@@ -401,6 +405,26 @@ class Band:
                 by_size.setdefault(len(members), []).append(members)
             self._clusters[key] = [np.array(rows) for _, rows in sorted(by_size.items())]
         return self._clusters[key]
+
+    def dominating_gram(self, step, offsets):
+        """A Gram matrix at least each comb's (Loewner order): the mean of the combs' plus their excess over it.
+
+        With G_o the Gram matrix of the comb at offset o and A their mean,
+        ``A + sum_o (G_o - A)_+`` (positive parts) exceeds every G_o, since
+        each positive part exceeds G_o - A and the others add positive
+        semidefinite terms. Where the combs sample the channel alike (delays
+        well within the comb's alias-free span), the excess is small.
+        """
+        key = ("dominating", step, tuple(offsets))
+        if key not in self._gram:
+            grams = [self.comb_gram(step, o) for o in offsets]
+            mean = sum(grams) / len(grams)
+            excess = np.zeros_like(mean)
+            for g in grams:
+                value, vector = hermitian_eigen(0.5 * ((g - mean) + (g - mean).conj().T))
+                excess = excess + (vector * np.clip(value, 0.0, None)) @ vector.conj().T
+            self._gram[key] = mean + excess
+        return self._gram[key]
 
     def comb_root(self, step, offset):
         """The Hermitian square root of :meth:`comb_gram`."""
@@ -566,14 +590,47 @@ def spectral_weights(schedule: arrangement.Schedule, band: Band, symbol_s, max_d
     return [SpectralWeights("lmmse", lam[i], beta[i], total) for i in range(n)]
 
 
+def staggered_bound(schedule: arrangement.Schedule, band: Band, symbol_s, max_doppler_hz, spectrum: str,
+                    los_fraction: float, oscillator=None) -> list[SpectralWeights] | None:
+    """Weights of a lower bound of the LMMSE error when pilot symbols sit on different combs (screening).
+
+    Pilot symbol i observes the channel's components a_i through its comb:
+    in white noise of power s2, the observation is worth the information
+    ``G_i / s2``, G_i the comb's Gram matrix (:meth:`Band.comb_gram`). A
+    receiver that observed every pilot symbol through one matrix G at least
+    each G_i (:meth:`Band.dominating_gram`) has more information, so its
+    LMMSE error is no larger, at every noise level; and one comb for all pilot
+    symbols separates into the time and frequency eigenproblems (the
+    separable form), a few times cheaper than the coupled one of
+    :func:`spectral_weights`. Where the combs sample the channel alike (the
+    common case: echoes well within the comb's alias-free span), the bound is
+    close to the exact error. A single comb: the exact weights (the separable
+    form is then exact). None where a line of sight meets a randomly
+    wandering oscillator phase (the separable form's rank-one line of sight
+    cannot follow it; use :func:`spectral_weights`).
+    """
+    offsets = sorted({o for t in schedule.targets for o in t.pilot_offsets})
+    if (band.components.kind == LINE_OF_SIGHT).any() and _random_phase(oscillator):
+        return None
+    symbol_s = np.atleast_1d(np.asarray(symbol_s, dtype=float))
+    doppler = np.broadcast_to(np.asarray(max_doppler_hz, dtype=float), symbol_s.shape)
+    offset = tuple(offsets) if len(offsets) > 1 else (offsets[0] if offsets else 0)
+    return _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, offset, oscillator)
+
+
 def _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, offset, oscillator=None):
-    """Weights when every pilot symbol has the same comb (:class:`SeparableWeights`, or plain without LOS)."""
+    """Weights when every pilot symbol has the same comb (:class:`SeparableWeights`, or plain without LOS).
+
+    ``offset`` a tuple of offsets: every pilot symbol observes the channel
+    through the :meth:`Band.dominating_gram` of those combs (a lower bound, see
+    :func:`staggered_bound`).
+    """
     comps = band.components
     d_f, used, n = schedule.freq_spacing, band.used, symbol_s.size
     los = comps.kind == LINE_OF_SIGHT
     scattered = ~los
     total = float(sum(data_count(used, d_f, t) for t in schedule.targets))
-    g_comb = band.comb_gram(d_f, offset)
+    g_comb = band.dominating_gram(d_f, offset) if isinstance(offset, tuple) else band.comb_gram(d_f, offset)
     m, vectors = band.comb_eigen(d_f, offset, scattered)  # scattered comb Gram = V diag(m) V^H
     tol = 1e-12 * max(m.max(), 1e-300) if m.size else 0.0
     m = np.where(m > tol, m, 0.0)

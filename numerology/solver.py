@@ -178,7 +178,9 @@ def search(req: Requirements, environment: Environment | None = None, objective:
         spacings_hz = family[window.contains(family)] if not window.empty else family[:0]
     full_size = _space_size(req, environment, family)
     grid, bound, rejected = _screen(req, environment, spacings_hz, ignore)
-    order = np.argsort(-bound[objective], kind="stable")
+    key_bound = np.array(bound[objective], dtype=float)  # tightened in place as candidates are refined
+    refined = np.zeros(key_bound.size, dtype=bool)
+    order = np.argsort(-key_bound, kind="stable")
     numerology = distinct_rows(np.stack([grid.spacing_hz, grid.fft_size, grid.cp_samples], axis=1))[0]
     best = np.full(int(numerology.max()) + 1 if numerology.size else 0, -np.inf)  # best exact key per numerology
     settled = np.zeros(best.size, dtype=bool)
@@ -208,6 +210,11 @@ def search(req: Requirements, environment: Environment | None = None, objective:
         else:  # breadth first: the best few of every open numerology, so that each is settled early
             batch, pending = _breadth_first(pending, numerology, per_numerology, batch_size)
             per_numerology *= 2
+        if not exhaustive:
+            batch, pending = _refine(batch, pending, key_bound, refined, best, numerology, grid, environment, req,
+                                     objective, ignore)
+            if not batch.size:
+                continue
         designs = grid.take(batch).designs()
         evaluation = link.evaluate(designs, environment, req)
         evaluated += batch.size
@@ -228,15 +235,15 @@ def search(req: Requirements, environment: Environment | None = None, objective:
             # Only the best keys are wanted (no Pareto front): a candidate whose bound is below the top-th
             # numerology's best exact key can neither enter the top nor change a key in it.
             kth = np.sort(best)[-top]
-            pending = pending[bound[objective][pending] >= kth - KEY_RTOL * abs(kth)]
-        next_bound = bound[objective][pending[0]] if pending.size else -np.inf
+            pending = pending[key_bound[pending] >= kth - KEY_RTOL * abs(kth)]
+        next_bound = key_bound[pending[0]] if pending.size else -np.inf
         reached = best >= next_bound - KEY_RTOL * abs(next_bound)
         if np.count_nonzero(reached) >= top:
             break  # no unevaluated candidate can change the best `top` numerologies
         if not exhaustive and pending.size:
             # a numerology is settled once its best exact key reaches the best bound it has left
             left = np.full(best.size, -np.inf)
-            np.maximum.at(left, numerology[pending], bound[objective][pending])
+            np.maximum.at(left, numerology[pending], key_bound[pending])
             settled |= best >= left - KEY_RTOL * np.abs(left)
             pending = pending[~settled[numerology[pending]]]
     found = {k: np.concatenate(v) if v else np.empty(0) for k, v in records.items()}
@@ -300,6 +307,39 @@ def tie_tiers(objective: str, keys) -> np.ndarray:
             tier, top = tier + 1, keys[position]
         tiers[position] = tier
     return tiers
+
+
+def _refine(batch, pending, key_bound, refined, best, numerology, grid, environment, req, objective, ignore):
+    """(batch, pending): the batch's candidates worth an exact evaluation now, the others back in the queue.
+
+    A candidate whose pilot symbols sit on different combs costs an exact
+    evaluation many times that of the others (a coupled eigenproblem over
+    its pilot symbols); its bound from the screening leaves the estimation
+    error out, or holds only its time-interpolation floor. Before its exact
+    evaluation it is evaluated once with the estimation error's lower bound
+    (``link.evaluate(..., comb_bound=True)``, exact for every other
+    arrangement). Its key bound becomes that tighter bound (``key_bound`` and
+    ``refined`` are updated in place). It is dropped when it then fails a
+    rule or cannot raise its numerology's best exact key, and goes back to
+    the queue when the tighter bound falls below the best bound left in its
+    numerology (the queue stays in decreasing order of bound).
+    """
+    fresh = batch[~refined[batch]]
+    if fresh.size:
+        designs = grid.take(fresh).designs()
+        evaluation = link.evaluate(designs, environment, req, comb_bound=True)
+        tight = np.where(_passed(evaluation, ignore), objective_key(objective, evaluation, designs), -np.inf)
+        key_bound[fresh] = np.minimum(key_bound[fresh], tight)
+        refined[fresh] = True
+    b = key_bound[batch]
+    useful = (b > -np.inf) & ~(best[numerology[batch]] >= b - KEY_RTOL * np.abs(b))
+    left = np.full(best.size, -np.inf)
+    np.maximum.at(left, numerology[pending], key_bound[pending])
+    later = useful & np.isin(batch, fresh) & (b < left[numerology[batch]])
+    if later.any():
+        pending = np.concatenate([pending, batch[later]])
+        pending = pending[np.argsort(-key_bound[pending], kind="stable")]
+    return batch[useful & ~later], pending
 
 
 def _breadth_first(pending, numerology, per_numerology: int, limit: int):
@@ -415,10 +455,23 @@ def first_feasible(req: Requirements, environment: Environment, ignore=(), max_e
                 return None, None
             index = order[start:start + step]
             evaluated += index.size
-            passed = _passed(link.evaluate(part.take(index).designs(), environment, req), ignore)
-            if passed.any():
-                return True, part.take(index[np.flatnonzero(passed)[:1]])
+            passed = _passing(part.take(index), environment, req, ignore)
+            if passed.size:
+                return True, part.take(index[passed[:1]])
     return False, None
+
+
+def _passing(grid: cand.Grid, environment: Environment, req: Requirements, ignore=()) -> np.ndarray:
+    """Indices of the candidates of ``grid`` that pass every rule by the full model.
+
+    Each is first evaluated with the estimation error's lower bound for pilot symbols on different
+    combs (``link.evaluate(..., comb_bound=True)``, exact for the others): one that fails then fails
+    exactly too and costs no exact evaluation.
+    """
+    maybe = np.flatnonzero(_passed(link.evaluate(grid.designs(), environment, req, comb_bound=True), ignore))
+    if not maybe.size:
+        return maybe
+    return maybe[_passed(link.evaluate(grid.take(maybe).designs(), environment, req), ignore)]
 
 
 def transferred(req: Requirements, environment: Environment, row: cand.Grid, ignore=()):
@@ -449,7 +502,7 @@ def transferred(req: Requirements, environment: Environment, row: cand.Grid, ign
                                                           error_floor=True), ignore)))
     if grid.size == 0:
         return None
-    passed = np.flatnonzero(_passed(link.evaluate(grid.designs(), environment, req), ignore))
+    passed = _passing(grid, environment, req, ignore)
     return grid.take(passed[:1]) if passed.size else None
 
 
