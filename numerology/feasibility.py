@@ -34,9 +34,11 @@ An anchor of its own takes the solver's ranked designs, whose search is
 exact: a channel that some design of the search space serves is served.
 
 **The matrix.** Every pair is first evaluated by ``link.evaluate`` with
-``estimation=False``: the rules that do not depend on the SINR are then
-exact, and the SINR rules, the throughput and the margins are upper bounds
-(the estimation error only lowers the SINR). A row (one candidate at every
+``estimation=False, error_floor=True`` (the estimation error replaced by its
+time-interpolation floor, ``link.estimation_floor``): the rules that do not
+depend on the SINR are then exact, and the SINR rules, the throughput and the
+margins are upper bounds (the exact estimation error is at least the floor
+and only lowers the SINR). A row (one candidate at every
 channel) is made exact by evaluating, with the full model, the pairs that
 passed the cheap rules. The planner asks for exact rows only for the
 candidates its optimisation picks (see ``numerology.plan``).
@@ -412,7 +414,7 @@ class Matrix:
             for c0 in range(0, d, cols):
                 c = np.arange(c0, min(d, c0 + cols))
                 ev = link.evaluate(_designs(grid, r[:, None]), self.channels.environment.take(c),
-                                   self.channels.requirements(self.req, c), estimation=False)
+                                   self.channels.requirements(self.req, c), estimation=False, error_floor=True)
                 block = np.ix_(r, c)
                 passed[block], rate[block], margin[block], binding[block] = self._figures(ev, (r.size, c.size))
                 overhead[r] = np.broadcast_to(ev.overhead, (r.size, c.size))[:, 0]
