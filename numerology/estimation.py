@@ -43,7 +43,12 @@ Estimators
     so one eigen-decomposition per distinct pilot set serves every pilot SINR
     (the candidates of a search differ mostly in it). Everything has the size
     of (pilot symbols) x (components), never of the band: a full-band
-    estimate over 1272 subcarriers costs as little as over 12.
+    estimate over 1272 subcarriers costs as little as over 12. The same sum
+    is ``sum over targets of tr(x^H (M + s2 I)^-1 x G_d)`` (``M`` that
+    matrix, ``x = D^(1/2) S_Un``): where the pilot symbols sit on different
+    combs, a search asks each pilot set for about one pilot SINR, and a
+    Cholesky factorisation per SINR asked is cheaper than the eigenvectors
+    (:class:`DirectWeights`).
 ``linear``
     A practical receiver: least-squares values at the pilots, linear
     interpolation across frequency inside each pilot-bearing symbol (the
