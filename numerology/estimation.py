@@ -43,7 +43,12 @@ Estimators
     so one eigen-decomposition per distinct pilot set serves every pilot SINR
     (the candidates of a search differ mostly in it). Everything has the size
     of (pilot symbols) x (components), never of the band: a full-band
-    estimate over 1272 subcarriers costs as little as over 12.
+    estimate over 1272 subcarriers costs as little as over 12. The same sum
+    is ``sum over targets of tr(x^H (M + s2 I)^-1 x G_d)`` (``M`` that
+    matrix, ``x = D^(1/2) S_Un``): where the pilot symbols sit on different
+    combs, a search asks each pilot set for about one pilot SINR, and a
+    Cholesky factorisation per SINR asked is cheaper than the eigenvectors
+    (:class:`DirectWeights`).
 ``linear``
     A practical receiver: least-squares values at the pilots, linear
     interpolation across frequency inside each pilot-bearing symbol (the
@@ -426,6 +431,21 @@ class Band:
             self._gram[key] = mean + excess
         return self._gram[key]
 
+    def cluster_roots(self, step, offsets, members):
+        """Hermitian square roots of the combs' Gram matrices restricted to clusters: (u, k, c, c).
+
+        ``offsets`` the comb of each pilot symbol (u), ``members`` the (k, c) component indices of
+        :meth:`clusters`; kept per band.
+        """
+        key = ("clusters", step, tuple(offsets), members.shape, members.tobytes())
+        if key not in self._root:
+            grams = np.stack([self.comb_gram(step, o) for o in offsets])  # (u, C, C)
+            sub = grams[:, members[:, :, None], members[:, None, :]]  # (u, k, c, c)
+            value, vector = hermitian_eigen(sub)
+            self._root[key] = ((vector * np.sqrt(np.clip(value, 0.0, None))[..., None, :])
+                               @ np.conj(np.swapaxes(vector, -1, -2)))
+        return self._root[key]
+
     def comb_root(self, step, offset):
         """The Hermitian square root of :meth:`comb_gram`."""
         key = (step, offset)
@@ -511,7 +531,7 @@ def data_count(used: int, freq_spacing: int, target: arrangement.Target) -> int:
 
 
 def spectral_weights(schedule: arrangement.Schedule, band: Band, symbol_s, max_doppler_hz, spectrum: str,
-                     los_fraction: float, estimator: str = "lmmse", oscillator=None) -> list[SpectralWeights]:
+                     los_fraction: float, estimator: str = "lmmse", oscillator=None, coupled: str = "direct") -> list:
     """The s2-free part of the estimation error of designs sharing a pattern and a band (module docstring).
 
     Parameters
@@ -527,10 +547,14 @@ def spectral_weights(schedule: arrangement.Schedule, band: Band, symbol_s, max_d
     estimator : {"lmmse", "linear"}
     oscillator : (linewidth Hz, offset Hz, mask), optional
         The oscillator's phase variation, common to the designs (see :func:`time_correlation`).
+    coupled : {"direct", "eigen"}
+        Pilot symbols on different combs (the coupled problem): ``direct`` gives :class:`DirectWeights`
+        (a Cholesky factorisation per noise level asked for), ``eigen`` the spectral weights of one
+        eigendecomposition per design (the reference; the same values to round-off).
 
     Returns
     -------
-    list of SpectralWeights
+    list of SpectralWeights, SeparableWeights or DirectWeights
         One per design, in order.
     """
     symbol_s = np.atleast_1d(np.asarray(symbol_s, dtype=float))
@@ -543,13 +567,45 @@ def spectral_weights(schedule: arrangement.Schedule, band: Band, symbol_s, max_d
     if len(offsets) <= 1 and los_follows:  # a rank-one line of sight, or none: the separable path is exact
         return _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction,
                                   offsets.pop() if offsets else 0, oscillator)
+    total = float(sum(data_count(band.used, schedule.freq_spacing, t) for t in schedule.targets))
+    n = symbol_s.size
+    if coupled == "direct":
+        problem = _CoupledProblem(schedule, band, symbol_s.copy(), np.array(doppler), spectrum, los_fraction,
+                                  oscillator, total)
+        return [DirectWeights(problem, i) for i in range(n)]
+    lams, betas = [], []
+    for m, x, g_sub in _coupled_parts(schedule, band, symbol_s, doppler, spectrum, los_fraction, oscillator):
+        lam, beta = _eigen_terms(m, x, g_sub)
+        betas.append(beta.reshape(n, -1))
+        lams.append(lam.reshape(n, -1))
+    lam = np.concatenate(lams, axis=1) if lams else np.zeros((n, 0))
+    beta = np.concatenate(betas, axis=1) if betas else np.zeros((n, 0))
+    return [SpectralWeights("lmmse", lam[i], beta[i], total) for i in range(n)]
+
+
+def _coupled_parts(schedule, band, symbol_s, doppler, spectrum, los_fraction, oscillator):
+    """The coupled LMMSE problem of n designs, one piece per (group of targets, size of cluster).
+
+    Targets with the same pilot-set shape, pilot offsets and data offset form a group; components the
+    combs couple form clusters (:meth:`Band.clusters`), k clusters of c components each. Yields
+
+    ``m`` (n, k, uc, uc)
+        ``D^(1/2) S_UU D^(1/2)`` of each cluster (u pilot symbols), made exactly Hermitian;
+    ``x`` (n, T, k, uc, c)
+        ``D^(1/2) S_Un`` of each of the group's T targets;
+    ``g_sub`` (k, c, c)
+        the data's Gram matrix of each cluster;
+
+    so that the group's explained energy at noise s2 is ``sum_T tr(x^H (m + s2 I)^-1 x g_sub)``.
+    """
     comps = band.components
-    d_f, used, n = schedule.freq_spacing, band.used, symbol_s.size
-    n_comp = comps.basis.shape[1]
-    total = float(sum(data_count(used, d_f, t) for t in schedule.targets))
+    d_f, n = schedule.freq_spacing, symbol_s.size
+    if not comps.basis.shape[1]:
+        return
+    offsets = {o for t in schedule.targets for o in t.pilot_offsets}
     groups: dict = {}  # (pilot-set shape, offsets, data offset) -> targets
     for target in schedule.targets:
-        if target.pilot_lags and n_comp:
+        if target.pilot_lags:
             lags = target.pilot_lags
             groups.setdefault((tuple(l - lags[0] for l in lags), target.pilot_offsets, target.data_offset),
                               []).append(target)
@@ -559,7 +615,6 @@ def spectral_weights(schedule: arrangement.Schedule, band: Band, symbol_s, max_d
                                  los_fraction, oscillator)  # (n, 4 reach + 1, C): row l + 2 reach
     clusters = band.clusters(d_f, sorted(offsets))
     g_all = band.comb_gram(d_f, -1)
-    lams, betas = [], []
     for (shape, pilot_offsets, data_offset), targets in groups.items():
         shape_lags = np.asarray(shape)
         u = shape_lags.size
@@ -569,25 +624,190 @@ def spectral_weights(schedule: arrangement.Schedule, band: Band, symbol_s, max_d
         g_data = g_all - (band.comb_gram(d_f, data_offset) if data_offset >= 0 else 0.0)
         for members in clusters:  # (k, c): k clusters of c components each
             k, c = members.shape
-            grams = np.stack([band.comb_gram(d_f, o) for o in pilot_offsets])  # (u, C, C)
-            sub = grams[:, members[:, :, None], members[:, None, :]]  # (u, k, c, c)
-            value, vector = hermitian_eigen(sub)
-            halves = (vector * np.sqrt(np.clip(value, 0.0, None))[..., None, :]) @ np.conj(np.swapaxes(vector, -1, -2))
+            halves = band.cluster_roots(d_f, pilot_offsets, members)  # (u, k, c, c)
             r = rho[..., members]  # (n, u, u, k, c)
             # block (i, j) of D^(1/2) S D^(1/2) per cluster: H_i diag(rho_ij) H_j
             blocks = ((halves[None, :, None] * r[..., None, :]) @ halves[None, None, :])  # (n, u, u, k, c, c)
             m = blocks.transpose(0, 3, 1, 4, 2, 5).reshape(n, k, u * c, u * c)
-            lam, w = hermitian_eigen(0.5 * (m + np.conj(np.swapaxes(m, -1, -2))))  # (n, k, uc), (n, k, uc, uc)
             x = halves[None, None] * cross[..., members][..., None, :]  # (n, T, u, k, c, c)
             x = x.transpose(0, 1, 3, 2, 4, 5).reshape(n, len(targets), k, u * c, c)
-            b = np.conj(np.swapaxes(w, -1, -2))[:, None] @ x  # (n, T, k, uc, c): rows w_j^H D^(1/2) S_Un
             g_sub = g_data[members[:, :, None], members[:, None, :]]  # (k, c, c)
-            beta = np.sum((b @ g_sub) * np.conj(b), axis=-1).real  # (n, T, k, uc)
-            betas.append(beta.reshape(n, -1))
-            lams.append(np.broadcast_to(lam[:, None], beta.shape).reshape(n, -1))
-    lam = np.concatenate(lams, axis=1) if lams else np.zeros((n, 0))
-    beta = np.concatenate(betas, axis=1) if betas else np.zeros((n, 0))
-    return [SpectralWeights("lmmse", lam[i], beta[i], total) for i in range(n)]
+            yield 0.5 * (m + np.conj(np.swapaxes(m, -1, -2))), x, g_sub
+
+
+def _eigen_terms(m, x, g_sub):
+    """Eigenvalues lambda_j and weights beta_j of :func:`_coupled_parts`' pieces: both (n, T, k, uc).
+
+    With ``m = W diag(lambda) W^H`` and ``b = W^H x``, ``beta_j = (b g_sub b^H)_jj``: the explained
+    energy at noise s2 is ``sum_j beta_j / (lambda_j + s2)`` (positive beta_j only).
+    """
+    lam, w = hermitian_eigen(m)  # (n, k, uc), (n, k, uc, uc)
+    b = np.conj(np.swapaxes(w, -1, -2))[:, None] @ x  # (n, T, k, uc, c): rows w_j^H D^(1/2) S_Un
+    beta = np.sum((b @ g_sub) * np.conj(b), axis=-1).real  # (n, T, k, uc)
+    return np.broadcast_to(lam[:, None], beta.shape), beta
+
+
+def _eigen_explained(m, x, g_sub, s2):
+    """The explained energy of pieces (p, ...) at noise levels s2 (p,) through :func:`_eigen_terms`: (p,)."""
+    lam, beta = _eigen_terms(m, x, g_sub)
+    flat = s2.reshape((-1,) + (1,) * (beta.ndim - 1))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        terms = np.where(beta > 0, beta / (lam + flat), 0.0)
+    return terms.reshape(terms.shape[0], -1).sum(axis=1)
+
+
+#: Noise levels at most this small relative to the largest diagonal entry of a piece's matrix go to the
+#: eigendecomposition rather than a Cholesky factorisation (``m + s2 I`` is then close to singular).
+DIRECT_MIN_NOISE = 1e-10
+#: From this size on (u c rows) the factor's triangular solves; below it one stacked LU solve.
+DIRECT_TRIANGULAR = 32
+#: Distinct noise levels one :class:`DirectWeights` answers by factorisations; past this many it takes
+#: the eigendecomposition once (a Cholesky factorisation and its solves cost a fifth to a tenth of one
+#: at 84 to 168 rows, but each new batch of levels builds the matrices again).
+DIRECT_NOISE_LEVELS = 4
+
+
+def _direct_explained(m, x, g_sub, s2):
+    """The explained energy ``sum_T tr(x^H (m + s2 I)^-1 x g_sub)`` of pieces (p, ...) at noise s2 (p,): (p,).
+
+    Cholesky ``m + s2 I = L L^H`` and ``y = L^-1 x`` give ``tr(y g_sub y^H)``. Pairs whose noise is tiny
+    against the matrix's scale (:data:`DIRECT_MIN_NOISE`), a failed factorisation or a result that is
+    not finite: the eigendecomposition (:func:`_eigen_explained`).
+    """
+    import scipy.linalg
+
+    scale = np.max(np.diagonal(m, axis1=-2, axis2=-1).real, axis=-1)  # (p, k)
+    direct = np.all(s2[:, None] > DIRECT_MIN_NOISE * scale, axis=1)
+    out = np.zeros(s2.shape)
+    if direct.any():
+        every = bool(direct.all())
+        try:
+            a = (m if every else m[direct]) + (s2 if every else s2[direct])[:, None, None, None] * np.eye(m.shape[-1])
+            low = np.linalg.cholesky(a)  # (p, k, uc, uc); fails unless positive definite
+            p, t, k, uc, c = a.shape[0], *x.shape[1:]
+            right = (x if every else x[direct]).transpose(0, 2, 3, 1, 4).reshape(p, k, uc, t * c)  # targets side by side
+            if uc >= DIRECT_TRIANGULAR:
+                y = scipy.linalg.solve_triangular(low, right, lower=True, check_finite=False)
+                y = y.reshape(p, k, uc * t, c)  # rows of L^-1 x for every target
+                value = np.sum(((y @ g_sub) * np.conj(y)).real.reshape(p, -1), axis=1)
+            else:  # small matrices, many of them: one stacked solve (scipy would loop over the stack)
+                z = np.linalg.solve(a, right).reshape(p, k, uc * t, c)  # rows of (m + s2 I)^-1 x
+                value = np.sum(((z @ g_sub) * np.conj(right.reshape(p, k, uc * t, c))).real.reshape(p, -1), axis=1)
+            if not np.all(np.isfinite(value)):
+                raise np.linalg.LinAlgError("not finite")
+            out[direct] = value
+        except np.linalg.LinAlgError:
+            direct[:] = False
+    if not direct.all():
+        out[~direct] = _eigen_explained(m[~direct], x[~direct], g_sub, s2[~direct])
+    return out
+
+
+class _CoupledProblem:
+    """What the coupled LMMSE of n designs sharing a pattern and a band is built from (:func:`_coupled_parts`).
+
+    Compact on purpose: the schedule, the band (shared by every structure on it, as ``link`` keeps its
+    bands), per design the symbol duration and the Doppler. The matrices (up to 168 x 168 complex per
+    cluster and group, ~0.5 MB) exist only while a batch of noise levels is answered
+    (:func:`prepare_direct`) and are built again for a later one; a cache of 20,000 structures thus holds
+    a few hundred bytes per structure and a few numbers per noise level asked, not the matrices.
+    """
+
+    def __init__(self, schedule, band, symbol_s, doppler, spectrum, los_fraction, oscillator, total):
+        self.schedule, self.band, self.symbol_s, self.doppler = schedule, band, symbol_s, doppler
+        self.spectrum, self.los_fraction, self.oscillator, self.total = spectrum, los_fraction, oscillator, total
+
+    def _parts(self, rows):
+        return _coupled_parts(self.schedule, self.band, self.symbol_s[rows], self.doppler[rows], self.spectrum,
+                              self.los_fraction, self.oscillator)
+
+    def explained(self, rows, s2):
+        """Explained energy of design ``rows[i]`` at noise ``s2[i]`` (pairs; rows may repeat): (p,)."""
+        distinct, pick = np.unique(rows, return_inverse=True)
+        same = distinct.size == rows.size  # one level per design, in order: no copies
+        out = np.zeros(s2.shape)
+        for m, x, g_sub in self._parts(distinct):
+            out += _direct_explained(m if same else m[pick], x if same else x[pick], g_sub, s2)
+        return out
+
+    def spectral(self, rows):
+        """The eigen form (:class:`SpectralWeights`) of the designs ``rows``."""
+        lams, betas = [], []
+        for m, x, g_sub in self._parts(rows):
+            lam, beta = _eigen_terms(m, x, g_sub)
+            lams.append(lam.reshape(len(rows), -1))
+            betas.append(beta.reshape(len(rows), -1))
+        lam = np.concatenate(lams, axis=1) if lams else np.zeros((len(rows), 0))
+        beta = np.concatenate(betas, axis=1) if betas else np.zeros((len(rows), 0))
+        return [SpectralWeights("lmmse", lam[i], beta[i], self.total) for i in range(len(rows))]
+
+
+class DirectWeights:
+    """The LMMSE error of one design whose pilot symbols sit on different combs, answered per noise level.
+
+    ``mse(s2) = 1 - sum_T tr(x^H (M + s2 I)^-1 x G) / data`` over the pieces of :func:`_coupled_parts`,
+    the same number as :class:`SpectralWeights`' ``1 - sum_j beta_j / (lambda_j + s2) / data`` from the
+    eigendecomposition of M (to round-off), for a Cholesky factorisation of ``M + s2 I`` per noise level
+    instead of an eigendecomposition with vectors (several times cheaper; a search asks nearly every
+    structure for one noise level). Each level's result is remembered; past
+    :data:`DIRECT_NOISE_LEVELS` distinct levels the design takes the eigen form once and answers every
+    further level from it. Memory: see :class:`_CoupledProblem`. Ask many designs at once through
+    :func:`prepare_direct` (one batch per problem, vectorised over its designs).
+    """
+
+    kind = "lmmse"
+
+    def __init__(self, problem: _CoupledProblem, index: int):
+        self.problem, self.index, self.data = problem, index, problem.total
+        self.known: dict = {}  # noise level -> explained energy
+        self.spectral: SpectralWeights | None = None
+
+    def mse(self, noise_to_pilot):
+        """Mean estimation error at the given noise-to-pilot power ratios (array)."""
+        s2 = np.asarray(noise_to_pilot, dtype=float)
+        if self.data <= 0:
+            return np.zeros(s2.shape)
+        prepare_direct([(self, s2)])
+        if self.spectral is not None:
+            return self.spectral.mse(s2)
+        # a NaN level gives NaN, as the eigen form's arithmetic does
+        explained = np.array([self.known.get(v, np.nan) for v in s2.ravel().tolist()]).reshape(s2.shape)
+        return np.clip(1.0 - explained / self.data, 0.0, 1.0)
+
+
+def prepare_direct(requests) -> None:
+    """Answer (weights, noise levels) requests of :class:`DirectWeights` together; other weights are skipped.
+
+    Per problem, the designs' new noise levels are computed in one batch (the matrices built once for
+    the designs asked, the factorisations stacked); designs past :data:`DIRECT_NOISE_LEVELS` levels take
+    their eigen form, also one batch per problem.
+    """
+    levels: dict = {}  # id -> (weights, new levels)
+    for weights, noise in requests:
+        if not isinstance(weights, DirectWeights) or weights.spectral is not None or weights.data <= 0:
+            continue
+        entry = levels.setdefault(id(weights), (weights, set()))
+        values = np.asarray(noise, dtype=float).ravel()
+        if np.isposinf(values).any():
+            weights.known[np.inf] = 0.0  # nothing explained, as the eigen form's beta / (lambda + inf)
+        entry[1].update(v for v in values[np.isfinite(values)].tolist() if v not in weights.known)
+    direct: dict = {}  # id(problem) -> (problem, [(weights, levels)])
+    spectral: dict = {}
+    for weights, new in levels.values():
+        if not new:
+            continue
+        target = spectral if len(weights.known) + len(new) > DIRECT_NOISE_LEVELS else direct
+        target.setdefault(id(weights.problem), (weights.problem, []))[1].append((weights, sorted(new)))
+    for problem, items in direct.values():
+        rows = np.concatenate([np.full(len(new), w.index) for w, new in items])
+        s2 = np.concatenate([np.asarray(new, dtype=float) for _, new in items])
+        explained = problem.explained(rows, s2).tolist()
+        for w, new in items:
+            w.known.update(zip(new, explained[:len(new)]))
+            explained = explained[len(new):]
+    for problem, items in spectral.values():
+        for (w, _), form in zip(items, problem.spectral(np.array([w.index for w, _ in items]))):
+            w.spectral, w.known = form, {}
 
 
 def staggered_bound(schedule: arrangement.Schedule, band: Band, symbol_s, max_doppler_hz, spectrum: str,

@@ -427,9 +427,11 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
                                  rules, mask, comb_bound)
     order = np.argsort(inverse, kind="stable")
     bounds = np.searchsorted(inverse[order], np.arange(unique.shape[0] + 1))
-    for row in range(unique.shape[0]):
-        members = order[bounds[row]:bounds[row + 1]]
-        out[members] = weights[row].mse(noise[members])
+    members = [order[bounds[row]:bounds[row + 1]] for row in range(unique.shape[0])]
+    # the coupled LMMSE is worked out per noise level: every structure's levels at once, one batch per problem
+    estimation.prepare_direct([(weights[row], noise[m]) for row, m in enumerate(members)])
+    for row, m in enumerate(members):
+        out[m] = weights[row].mse(noise[m])
     return out.reshape(shape)
 
 

@@ -344,3 +344,89 @@ def test_staggered_bound_with_a_line_of_sight_is_below_the_brute_force_error(spe
         bound, reference = float(weights.mse(noise)), brute_force_mse(*args)
         assert bound <= reference * (1 + 1e-9)
         assert _db(reference) - _db(bound) < 1.0
+
+
+def _staggered_cases():
+    """Staggered schedules for the direct form against the eigen form: LTE port 0 in ETU (TS 36.211
+    sect. 6.10.1.2, TS 36.101 Annex B), DVB-T's scattered pilots in two rays 200 us apart (EN 300 744
+    sect. 4.5.3), and the LTE pattern on the invented six taps with a line of sight (K = 6 dB) and a
+    wandering oscillator phase (an invented 200 Hz linewidth; the rank-one line of sight cannot follow it)."""
+    lte = arrangement.schedule("stream", arrangement.mask_from_symbols([0, 4]), 7, 3, 6, 7, True, 3, 7,
+                               estimation.MAX_PILOT_SYMBOLS)
+    dvbt = arrangement.schedule("stream", 1, 1, 3, 12, 68, True, 3, 7, estimation.MAX_PILOT_SYMBOLS)
+    powers, los, _, _ = line_of_sight(SIX_TAPS_S, 10 ** (SIX_TAPS_DB / 10), "six", "rician", 6.0, None)
+    return [
+        (lte, estimation.Band(ETU_S, 10 ** (ETU_DB / 10), 0.0, 15e3, 1200), 0.5 * MS / 7 * np.array([1, 1.2]),
+         np.array([300.0, 30.0]), "classical", 0.0, None),
+        (dvbt, estimation.Band(np.array([0, 200 * US]), np.array([1.0, 1.0]), 0.0, 1 / (896 * US), 1705),
+         np.array([1120, 1008]) * US, 55.6, "classical", 0.0, None),
+        (lte, estimation.Band(SIX_TAPS_S, powers, los, 30e3, 300), np.array([35.7, 33.3]) * US, 800.0, "rician", los,
+         (200.0, 0.0, None)),
+    ]
+
+
+#: Noise levels for the comparisons: near-zero errors are 1 - (a number close to 1) on both routes, so they
+#: agree in absolute terms (ATOL) rather than relative ones.
+NOISES = [1e-5, 1e-3, 0.1, 10.0]
+ATOL = 1e-14
+
+
+@pytest.mark.parametrize("case", range(3))
+def test_direct_weights_agree_with_the_eigen_form(case):
+    """Pilot symbols on different combs: the Cholesky route per noise level (the default) gives the
+    eigendecomposition's values, design by design and level by level."""
+    plan, band, symbol_s, doppler, spectrum, los, oscillator = _staggered_cases()[case]
+    args = (plan, band, symbol_s, doppler, spectrum, los, "lmmse", oscillator)
+    eigen = estimation.spectral_weights(*args, coupled="eigen")
+    direct = estimation.spectral_weights(*args)
+    assert all(isinstance(w, estimation.DirectWeights) for w in direct)
+    assert all(isinstance(w, estimation.SpectralWeights) for w in eigen)
+    for e, d in zip(eigen, direct):
+        for noise in NOISES:
+            assert_allclose(d.mse(noise), e.mse(noise), rtol=1e-9, atol=ATOL)
+    # every level at once, through the batch entry point, and levels past DIRECT_NOISE_LEVELS (eigen form)
+    fresh = estimation.spectral_weights(*args)
+    estimation.prepare_direct([(w, np.array(NOISES)) for w in fresh])
+    many = np.geomspace(1e-4, 1e2, estimation.DIRECT_NOISE_LEVELS + 3)
+    for e, f in zip(eigen, fresh):
+        assert len(f.known) == len(NOISES) and f.spectral is None
+        assert_allclose(f.mse(np.array(NOISES)), e.mse(np.array(NOISES)), rtol=1e-9, atol=ATOL)
+        assert_allclose(f.mse(many), e.mse(many), rtol=1e-9, atol=ATOL)
+        assert f.spectral is not None and not f.known
+
+
+def test_direct_weights_of_an_array_of_noise_levels_match_scalar_calls():
+    """An array of noise levels (repeated values, two dimensions) gives what one call per level gives,
+    in the array's shape; repeated levels are worked out once."""
+    plan, band, symbol_s, doppler, spectrum, los, oscillator = _staggered_cases()[0]
+    args = (plan, band, symbol_s, doppler, spectrum, los, "lmmse", oscillator)
+    noise = np.array([[0.01, 0.1, 0.01], [1.0, 0.1, 0.01]])
+    for together, alone in zip(estimation.spectral_weights(*args), estimation.spectral_weights(*args)):
+        got = together.mse(noise)
+        assert got.shape == noise.shape and len(together.known) == 3
+        expected = np.array([[float(alone.mse(v)) for v in row] for row in noise])
+        assert_allclose(got, expected, rtol=1e-12, atol=0)
+        assert np.ndim(alone.mse(0.01)) == 0
+
+
+def test_direct_weights_fall_back_to_the_eigen_route(monkeypatch):
+    """Noise levels tiny against the matrices' scale, or a failed factorisation: the eigendecomposition
+    answers, with the eigen form's values."""
+    plan, band, symbol_s, doppler, spectrum, los, oscillator = _staggered_cases()[1]
+    args = (plan, band, symbol_s, doppler, spectrum, los, "lmmse", oscillator)
+    eigen = estimation.spectral_weights(*args, coupled="eigen")
+    calls = []
+    original = estimation._eigen_explained
+    monkeypatch.setattr(estimation, "_eigen_explained", lambda *a: calls.append(1) or original(*a))
+    tiny = [w.mse(1e-13) for w in estimation.spectral_weights(*args)]
+    assert calls
+    assert_allclose(tiny, [e.mse(1e-13) for e in eigen], rtol=1e-9, atol=ATOL)
+
+    def failing(a):
+        raise np.linalg.LinAlgError("not positive definite")
+
+    monkeypatch.setattr(np.linalg, "cholesky", failing)
+    calls.clear()
+    got = [w.mse(0.01) for w in estimation.spectral_weights(*args)]
+    assert calls
+    assert_allclose(got, [e.mse(0.01) for e in eigen], rtol=1e-9, atol=ATOL)
