@@ -661,19 +661,28 @@ def _eigen_explained(m, x, g_sub, s2):
 DIRECT_MIN_NOISE = 1e-10
 #: From this size on (u c rows) the factor's triangular solves; below it one stacked LU solve.
 DIRECT_TRIANGULAR = 32
-#: Distinct noise levels one :class:`DirectWeights` answers by factorisations; past this many it takes
-#: the eigendecomposition once (a Cholesky factorisation and its solves cost a fifth to a tenth of one
-#: at 84 to 168 rows, but each new batch of levels builds the matrices again).
-DIRECT_NOISE_LEVELS = 4
-
-
 def _direct_explained(m, x, g_sub, s2):
     """The explained energy ``sum_T tr(x^H (m + s2 I)^-1 x g_sub)`` of pieces (p, ...) at noise s2 (p,): (p,).
 
     Cholesky ``m + s2 I = L L^H`` and ``y = L^-1 x`` give ``tr(y g_sub y^H)``. Pairs whose noise is tiny
     against the matrix's scale (:data:`DIRECT_MIN_NOISE`), a failed factorisation or a result that is
-    not finite: the eigendecomposition (:func:`_eigen_explained`).
+    not finite: the eigendecomposition (:func:`_eigen_explained`), for those pieces alone, so that a
+    piece's value never depends on the others asked with it (the same input gives the same JSON).
     """
+    if s2.size > 1:
+        try:
+            return _direct_batch(m, x, g_sub, s2)
+        except np.linalg.LinAlgError:  # some piece failed: each on its own
+            return np.concatenate([_direct_explained(m[i:i + 1], x[i:i + 1], g_sub, s2[i:i + 1])
+                                   for i in range(s2.size)])
+    try:
+        return _direct_batch(m, x, g_sub, s2)
+    except np.linalg.LinAlgError:
+        return _eigen_explained(m, x, g_sub, s2)
+
+
+def _direct_batch(m, x, g_sub, s2):
+    """:func:`_direct_explained` for a batch; raises LinAlgError if any piece's factorisation fails."""
     import scipy.linalg
 
     scale = np.max(np.diagonal(m, axis1=-2, axis2=-1).real, axis=-1)  # (p, k)
@@ -681,23 +690,20 @@ def _direct_explained(m, x, g_sub, s2):
     out = np.zeros(s2.shape)
     if direct.any():
         every = bool(direct.all())
-        try:
-            a = (m if every else m[direct]) + (s2 if every else s2[direct])[:, None, None, None] * np.eye(m.shape[-1])
-            low = np.linalg.cholesky(a)  # (p, k, uc, uc); fails unless positive definite
-            p, t, k, uc, c = a.shape[0], *x.shape[1:]
-            right = (x if every else x[direct]).transpose(0, 2, 3, 1, 4).reshape(p, k, uc, t * c)  # targets side by side
-            if uc >= DIRECT_TRIANGULAR:
-                y = scipy.linalg.solve_triangular(low, right, lower=True, check_finite=False)
-                y = y.reshape(p, k, uc * t, c)  # rows of L^-1 x for every target
-                value = np.sum(((y @ g_sub) * np.conj(y)).real.reshape(p, -1), axis=1)
-            else:  # small matrices, many of them: one stacked solve (scipy would loop over the stack)
-                z = np.linalg.solve(a, right).reshape(p, k, uc * t, c)  # rows of (m + s2 I)^-1 x
-                value = np.sum(((z @ g_sub) * np.conj(right.reshape(p, k, uc * t, c))).real.reshape(p, -1), axis=1)
-            if not np.all(np.isfinite(value)):
-                raise np.linalg.LinAlgError("not finite")
-            out[direct] = value
-        except np.linalg.LinAlgError:
-            direct[:] = False
+        a = (m if every else m[direct]) + (s2 if every else s2[direct])[:, None, None, None] * np.eye(m.shape[-1])
+        low = np.linalg.cholesky(a)  # (p, k, uc, uc); fails unless positive definite
+        p, t, k, uc, c = a.shape[0], *x.shape[1:]
+        right = (x if every else x[direct]).transpose(0, 2, 3, 1, 4).reshape(p, k, uc, t * c)  # targets side by side
+        if uc >= DIRECT_TRIANGULAR:
+            y = scipy.linalg.solve_triangular(low, right, lower=True, check_finite=False)
+            y = y.reshape(p, k, uc * t, c)  # rows of L^-1 x for every target
+            value = np.sum(((y @ g_sub) * np.conj(y)).real.reshape(p, -1), axis=1)
+        else:  # small matrices, many of them: one stacked solve (scipy would loop over the stack)
+            z = np.linalg.solve(a, right).reshape(p, k, uc * t, c)  # rows of (m + s2 I)^-1 x
+            value = np.sum(((z @ g_sub) * np.conj(right.reshape(p, k, uc * t, c))).real.reshape(p, -1), axis=1)
+        if not np.all(np.isfinite(value)):
+            raise np.linalg.LinAlgError("not finite")
+        out[direct] = value
     if not direct.all():
         out[~direct] = _eigen_explained(m[~direct], x[~direct], g_sub, s2[~direct])
     return out
@@ -749,9 +755,9 @@ class DirectWeights:
     the same number as :class:`SpectralWeights`' ``1 - sum_j beta_j / (lambda_j + s2) / data`` from the
     eigendecomposition of M (to round-off), for a Cholesky factorisation of ``M + s2 I`` per noise level
     instead of an eigendecomposition with vectors (several times cheaper; a search asks nearly every
-    structure for one noise level). Each level's result is remembered; past
-    :data:`DIRECT_NOISE_LEVELS` distinct levels the design takes the eigen form once and answers every
-    further level from it. Memory: see :class:`_CoupledProblem`. Ask many designs at once through
+    structure for one noise level). Each level's result is remembered, and always computed the same way
+    (never from another form once many levels were asked: a warm cache gives the same digits as a cold
+    one). Memory: see :class:`_CoupledProblem`. Ask many designs at once through
     :func:`prepare_direct` (one batch per problem, vectorised over its designs).
     """
 
@@ -760,7 +766,6 @@ class DirectWeights:
     def __init__(self, problem: _CoupledProblem, index: int):
         self.problem, self.index, self.data = problem, index, problem.total
         self.known: dict = {}  # noise level -> explained energy
-        self.spectral: SpectralWeights | None = None
 
     def mse(self, noise_to_pilot):
         """Mean estimation error at the given noise-to-pilot power ratios (array)."""
@@ -768,8 +773,6 @@ class DirectWeights:
         if self.data <= 0:
             return np.zeros(s2.shape)
         prepare_direct([(self, s2)])
-        if self.spectral is not None:
-            return self.spectral.mse(s2)
         # a NaN level gives NaN, as the eigen form's arithmetic does
         explained = np.array([self.known.get(v, np.nan) for v in s2.ravel().tolist()]).reshape(s2.shape)
         return np.clip(1.0 - explained / self.data, 0.0, 1.0)
@@ -779,12 +782,11 @@ def prepare_direct(requests) -> None:
     """Answer (weights, noise levels) requests of :class:`DirectWeights` together; other weights are skipped.
 
     Per problem, the designs' new noise levels are computed in one batch (the matrices built once for
-    the designs asked, the factorisations stacked); designs past :data:`DIRECT_NOISE_LEVELS` levels take
-    their eigen form, also one batch per problem.
+    the designs asked, the factorisations stacked).
     """
     levels: dict = {}  # id -> (weights, new levels)
     for weights, noise in requests:
-        if not isinstance(weights, DirectWeights) or weights.spectral is not None or weights.data <= 0:
+        if not isinstance(weights, DirectWeights) or weights.data <= 0:
             continue
         entry = levels.setdefault(id(weights), (weights, set()))
         values = np.asarray(noise, dtype=float).ravel()
@@ -792,12 +794,10 @@ def prepare_direct(requests) -> None:
             weights.known[np.inf] = 0.0  # nothing explained, as the eigen form's beta / (lambda + inf)
         entry[1].update(v for v in values[np.isfinite(values)].tolist() if v not in weights.known)
     direct: dict = {}  # id(problem) -> (problem, [(weights, levels)])
-    spectral: dict = {}
     for weights, new in levels.values():
         if not new:
             continue
-        target = spectral if len(weights.known) + len(new) > DIRECT_NOISE_LEVELS else direct
-        target.setdefault(id(weights.problem), (weights.problem, []))[1].append((weights, sorted(new)))
+        direct.setdefault(id(weights.problem), (weights.problem, []))[1].append((weights, sorted(new)))
     for problem, items in direct.values():
         rows = np.concatenate([np.full(len(new), w.index) for w, new in items])
         s2 = np.concatenate([np.asarray(new, dtype=float) for _, new in items])
@@ -805,9 +805,6 @@ def prepare_direct(requests) -> None:
         for w, new in items:
             w.known.update(zip(new, explained[:len(new)]))
             explained = explained[len(new):]
-    for problem, items in spectral.values():
-        for (w, _), form in zip(items, problem.spectral(np.array([w.index for w, _ in items]))):
-            w.spectral, w.known = form, {}
 
 
 def staggered_bound(schedule: arrangement.Schedule, band: Band, symbol_s, max_doppler_hz, spectrum: str,
