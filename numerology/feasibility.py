@@ -138,6 +138,7 @@ class Anchor:
     frequency_error_hz: float
     channels: np.ndarray  # the channels it stands for
     ranked: bool = False  # also take the designs the solver ranks best here (exactly evaluated)
+    own: bool = False  # one channel's own anchor: the solver's best design of each objective there
 
     def requirements(self, req: Requirements) -> Requirements:
         return req.replace("radio.snr", self.snr_db).replace("radio.frequency_error", self.frequency_error_hz)
@@ -192,14 +193,16 @@ def group_anchors(channels: Channels) -> list[Anchor]:
 
 
 def own_anchors(channels: Channels, index) -> list[Anchor]:
-    """Each channel at ``index`` as its own anchor, ranked: the solver's own best designs there are taken.
+    """Each channel at ``index`` as its own anchor: the solver's best design of each objective there is taken.
 
     These channels are those no first-round candidate passes; the bounded
     exact ladder of :func:`anchor_designs` looks only at a few numerologies
     and can miss the one design that serves such a channel, while the
-    solver's search is exact (any feasible design there is found).
+    solver's search is exact (any feasible design there is found). One
+    design per objective (a search for the best key alone, no Pareto front):
+    a channel of its own needs a design that serves it, not a ranking.
     """
-    return [dataclasses.replace(corner(channels, [i]), ranked=True) for i in np.asarray(index, dtype=np.intp)]
+    return [dataclasses.replace(corner(channels, [i]), own=True) for i in np.asarray(index, dtype=np.intp)]
 
 
 GRID_FIELDS = tuple(f.name for f in dataclasses.fields(cand.Grid))
@@ -228,11 +231,12 @@ def candidate_designs(req: Requirements, anchors) -> cand.Grid:
         anchor_req = anchor.requirements(req)
         grid, bound, _ = solver._screen(anchor_req, anchor.environment, family, ())
         parts.append(anchor_designs(anchor_req, anchor.environment, grid, bound))
-        if anchor.ranked:
+        if anchor.ranked or anchor.own:
             for objective in ("throughput", "robustness"):
-                found = solver.search(anchor_req, anchor.environment, objective=objective)
+                found = solver.search(anchor_req, anchor.environment, objective=objective,
+                                      **({"top": 1, "pareto": False} if anchor.own else {}))
                 if found.feasible:
-                    parts.append(_grid_of(found.ranked.designs))
+                    parts.append(found.witness if anchor.own else _grid_of(found.ranked.designs))
     if not parts:
         return cand.Grid.empty()
     grid = cand.Grid(*(np.concatenate([getattr(p, f) for p in parts]) for f in GRID_FIELDS))
@@ -489,7 +493,7 @@ def with_own_anchors(req: Requirements, space: Space, bare) -> Space:
     """
     bare = np.asarray(bare, dtype=np.intp)
     bare = bare[~np.isin(bare, list(space.ruled_out))]
-    tried = [int(a.channels[0]) for a in space.anchors if a.ranked and a.channels.size == 1]
+    tried = [int(a.channels[0]) for a in space.anchors if a.own]
     bare = bare[~np.isin(bare, tried)]
     if not bare.size:
         return space
