@@ -835,6 +835,36 @@ def staggered_bound(schedule: arrangement.Schedule, band: Band, symbol_s, max_do
     return _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, offset, oscillator)
 
 
+def _plain_separable(targets, z_of, m, table, reach, total) -> list[SpectralWeights]:
+    """:func:`_separable_weights` without a line of sight, vectorised over the designs and the targets.
+
+    Per target and design the weights are the outer products of the time eigenvalues (of the pilot
+    symbols' correlation, which depends on their lag differences only) with the comb's eigenvalues m,
+    and of the target's projections |U^H rho|^2 with its data's frequency part z.
+    """
+    n = table.shape[0]
+    groups: dict = {}  # lag differences -> targets (the same time eigenproblem)
+    for target in targets:
+        if target.pilot_lags and m.size:
+            lags = target.pilot_lags
+            groups.setdefault(tuple(l - lags[0] for l in lags), []).append(target)
+    lams, betas = [], []
+    for shape, group in groups.items():
+        shape = np.asarray(shape)
+        r_s = table[:, (shape[:, None] - shape[None, :]) + 2 * reach, 0]  # (n, u, u)
+        l_t, u_t = hermitian_eigen(0.5 * (r_s + np.conj(np.swapaxes(r_s, -1, -2))))  # (n, u), (n, u, u)
+        l_t = np.where(l_t > 1e-12 * np.maximum(l_t.max(axis=-1, keepdims=True), 1e-300), l_t, 0.0)
+        lags = np.array([t.pilot_lags for t in group])  # (T, u)
+        rho = table[:, lags + 2 * reach, 0]  # (n, T, u): E h(t_i) h(n)^*
+        a = np.abs(np.einsum("nij,nti->ntj", np.conj(u_t), rho)) ** 2  # (n, T, u)
+        z = np.stack([z_of[t.data_offset] for t in group])  # (T, C)
+        lams.append(np.broadcast_to(l_t[:, None, :, None] * m, a.shape + m.shape).reshape(n, -1))
+        betas.append((a[..., None] * z[None, :, None, :]).reshape(n, -1))
+    lam = np.concatenate(lams, axis=1) if lams else np.zeros((n, 0))
+    beta = np.concatenate(betas, axis=1) if betas else np.zeros((n, 0))
+    return [SpectralWeights("lmmse", lam[i], beta[i], total) for i in range(n)]
+
+
 def _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, offset, oscillator=None):
     """Weights when every pilot symbol has the same comb (:class:`SeparableWeights`, or plain without LOS).
 
@@ -864,10 +894,12 @@ def _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction
         if target.data_offset not in z_of:
             g_d = g_all - (band.comb_gram(d_f, target.data_offset) if target.data_offset >= 0 else 0.0)
             g_data_of[target.data_offset] = g_d
-            z_of[target.data_offset] = m * np.einsum("cj,cd,dj->j", np.conj(vectors), g_d[np.ix_(scattered, scattered)],
-                                                     vectors).real
-    results = []
+            z_of[target.data_offset] = m * np.sum(np.conj(vectors) * (g_d[np.ix_(scattered, scattered)] @ vectors),
+                                                  axis=0).real
     has_los = bool(los.any())
+    if not has_los:
+        return _plain_separable(targets, z_of, m, table, reach, total)
+    results = []
     if has_los:
         v_los = vectors.conj().T @ g_comb[np.ix_(scattered, los)][:, 0]
         live = m > 0
