@@ -19,10 +19,20 @@ CAUTION = ("Caution: spectrum use is regulated. Check carrier, bandwidth and pow
            "regulator; safety-relevant links need certified equipment and review by a licensed engineer.")
 
 
+class _Console(Console):
+    """rich's console, except that a reader who has gone (``numerology ... | head``) is reported as the
+    BrokenPipeError it is, which the command line turns into exit status 141; rich itself exits with 1,
+    the status of "the answer is no"."""
+
+    def on_broken_pipe(self) -> None:
+        self.quiet = True
+        raise BrokenPipeError
+
+
 def console(stderr: bool = False) -> Console:
     """The report's console. Markup and emoji codes are off: names come from users' files, and a site called
     "[/x]" or ":fire:" is printed as written (markup in it made rich raise, or printed something else)."""
-    con = Console(highlight=False, soft_wrap=False, markup=False, emoji=False, stderr=stderr)
+    con = _Console(highlight=False, soft_wrap=False, markup=False, emoji=False, stderr=stderr)
     if not con.is_terminal:
         con.width = 110  # piped into a file or a pager: tables need not wrap at 80
     return con

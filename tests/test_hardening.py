@@ -618,15 +618,18 @@ def test_the_sweep_csv_is_read_by_standard_readers_without_options(capsys, tmp_p
     assert meta["csv"] == "o.csv" and meta["summary"]["sites"] == 13
 
 
-def test_a_closed_stdout_pipe_is_not_exit_1(tmp_path):
-    """'numerology presets --json | head -c 1' exited 1 silently; now 141, as a shell reports SIGPIPE."""
+@pytest.mark.parametrize("argv", [["profiles", "--json"], ["profiles"], ["env", str(RAIL)]],
+                         ids=["json", "table", "terminal report"])
+def test_a_closed_stdout_pipe_is_not_exit_1(tmp_path, argv):
+    """'numerology presets --json | head -c 1' exited 1 silently; now 141, as a shell reports SIGPIPE. The
+    terminal reports too: rich's console exits with 1 on a broken pipe unless told otherwise."""
     import os
     import subprocess
     import sys
 
     reader, writer = os.pipe()
     os.close(reader)  # nobody reads: the first write fails with EPIPE
-    done = subprocess.run([sys.executable, "-m", "numerology", "profiles", "--json"], stdout=writer,
+    done = subprocess.run([sys.executable, "-m", "numerology", *argv], stdout=writer,
                           stderr=subprocess.PIPE, text=True, timeout=120)
     os.close(writer)
     assert done.returncode == 141
