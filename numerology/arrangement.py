@@ -238,6 +238,11 @@ class Schedule:
     targets: tuple[Target, ...]
     span: int  # symbols in the span
 
+    @property
+    def comb_offsets(self) -> tuple[int, ...]:
+        """The distinct comb offsets of the pilots the targets use, ascending (more than one: staggered)."""
+        return tuple(sorted({o for t in self.targets for o in t.pilot_offsets}))
+
 
 def _offset(j: int, shift: int, freq_spacing: int) -> int:
     return (j * shift) % freq_spacing

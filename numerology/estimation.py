@@ -562,11 +562,11 @@ def spectral_weights(schedule: arrangement.Schedule, band: Band, symbol_s, max_d
     if estimator == "linear":
         return [_linear_weights(schedule, band, t, f, spectrum, los_fraction, oscillator)
                 for t, f in zip(symbol_s, doppler)]
-    offsets = {o for t in schedule.targets for o in t.pilot_offsets}
+    offsets = schedule.comb_offsets
     los_follows = not (band.components.kind == LINE_OF_SIGHT).any() or not _random_phase(oscillator)
     if len(offsets) <= 1 and los_follows:  # a rank-one line of sight, or none: the separable path is exact
         return _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction,
-                                  offsets.pop() if offsets else 0, oscillator)
+                                  offsets[0] if offsets else 0, oscillator)
     total = float(sum(data_count(band.used, schedule.freq_spacing, t) for t in schedule.targets))
     n = symbol_s.size
     if coupled == "direct":
@@ -602,7 +602,7 @@ def _coupled_parts(schedule, band, symbol_s, doppler, spectrum, los_fraction, os
     d_f, n = schedule.freq_spacing, symbol_s.size
     if not comps.basis.shape[1]:
         return
-    offsets = {o for t in schedule.targets for o in t.pilot_offsets}
+    offsets = schedule.comb_offsets
     groups: dict = {}  # (pilot-set shape, offsets, data offset) -> targets
     for target in schedule.targets:
         if target.pilot_lags:
@@ -613,7 +613,7 @@ def _coupled_parts(schedule, band, symbol_s, doppler, spectrum, los_fraction, os
     lags_all = np.arange(-2 * reach, 2 * reach + 1)
     lag_table = time_correlation(comps.kind, lags_all[None, :] * symbol_s[:, None], doppler[:, None], spectrum,
                                  los_fraction, oscillator)  # (n, 4 reach + 1, C): row l + 2 reach
-    clusters = band.clusters(d_f, sorted(offsets))
+    clusters = band.clusters(d_f, offsets)
     g_all = band.comb_gram(d_f, -1)
     for (shape, pilot_offsets, data_offset), targets in groups.items():
         shape_lags = np.asarray(shape)
@@ -826,12 +826,12 @@ def staggered_bound(schedule: arrangement.Schedule, band: Band, symbol_s, max_do
     wandering oscillator phase (the separable form's rank-one line of sight
     cannot follow it; use :func:`spectral_weights`).
     """
-    offsets = sorted({o for t in schedule.targets for o in t.pilot_offsets})
+    offsets = schedule.comb_offsets
     if (band.components.kind == LINE_OF_SIGHT).any() and _random_phase(oscillator):
         return None
     symbol_s = np.atleast_1d(np.asarray(symbol_s, dtype=float))
     doppler = np.broadcast_to(np.asarray(max_doppler_hz, dtype=float), symbol_s.shape)
-    offset = tuple(offsets) if len(offsets) > 1 else (offsets[0] if offsets else 0)
+    offset = offsets if len(offsets) > 1 else (offsets[0] if offsets else 0)
     return _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, offset, oscillator)
 
 

@@ -510,7 +510,7 @@ def _staggered(pattern, rules) -> bool:
         return False
     plan = _schedule(SCOPES[scope], mask, period, shift, d_f, slot, shared, rules.estimation_lookahead,
                      rules.estimation_memory)
-    return len({o for t in plan.targets for o in t.pilot_offsets}) > 1
+    return len(plan.comb_offsets) > 1
 
 
 @lru_cache(maxsize=4096)
