@@ -896,25 +896,22 @@ def _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction
             g_data_of[target.data_offset] = g_d
             z_of[target.data_offset] = m * np.sum(np.conj(vectors) * (g_d[np.ix_(scattered, scattered)] @ vectors),
                                                   axis=0).real
-    has_los = bool(los.any())
-    if not has_los:
+    if not los.any():
         return _plain_separable(targets, z_of, m, table, reach, total)
+    # a line of sight: its rank-one update on top of the scattered part, design by design
+    v_los = vectors.conj().T @ g_comb[np.ix_(scattered, los)][:, 0]
+    live = m > 0
+    schur = max(float(g_comb[np.ix_(los, los)][0, 0].real - np.sum(np.abs(v_los[live]) ** 2 / m[live])), 0.0)
+    order = np.concatenate([np.flatnonzero(los), np.flatnonzero(scattered)])
     results = []
-    if has_los:
-        v_los = vectors.conj().T @ g_comb[np.ix_(scattered, los)][:, 0]
-        live = m > 0
-        schur = max(float(g_comb[np.ix_(los, los)][0, 0].real - np.sum(np.abs(v_los[live]) ** 2 / m[live])), 0.0)
-        order = np.concatenate([np.flatnonzero(los), np.flatnonzero(scattered)])
     for k in range(n):
         lam, beta, ls, ul, kap, gd, cnt = [], [], [], [], [], [], []
         eigen_cache = {}
         for target in targets:
             z = z_of[target.data_offset]
             if not target.pilot_lags or not m.size:
-                if has_los:
-                    u_pad = 1
-                    ls.append(np.zeros(u_pad)), ul.append(np.zeros(u_pad, complex)), kap.append(np.zeros(u_pad, complex))
-                    gd.append(g_data_of[target.data_offset][np.ix_(order, order)]), cnt.append(0)
+                ls.append(np.zeros(1)), ul.append(np.zeros(1, complex)), kap.append(np.zeros(1, complex))
+                gd.append(g_data_of[target.data_offset][np.ix_(order, order)]), cnt.append(0)
                 continue
             lags = np.asarray(target.pilot_lags)
             key = tuple(lags - lags[0])
@@ -927,19 +924,15 @@ def _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction
             a = np.abs(u_t.conj().T @ rho) ** 2
             lam.append(np.outer(l_t, m).ravel())
             beta.append(np.outer(a, z).ravel())
-            if has_los:
-                phi = table[k, lags + 2 * reach, 1]  # the line of sight at the pilots, relative to the target
-                u_phi = u_t.conj().T @ phi
-                ls.append(l_t)
-                ul.append(u_phi)
-                kap.append(np.conj(u_t.conj().T @ rho) * u_phi)
-                gd.append(g_data_of[target.data_offset][np.ix_(order, order)])
-                cnt.append(lags.size)
+            phi = table[k, lags + 2 * reach, 1]  # the line of sight at the pilots, relative to the target
+            u_phi = u_t.conj().T @ phi
+            ls.append(l_t)
+            ul.append(u_phi)
+            kap.append(np.conj(u_t.conj().T @ rho) * u_phi)
+            gd.append(g_data_of[target.data_offset][np.ix_(order, order)])
+            cnt.append(lags.size)
         base = SpectralWeights("lmmse", np.concatenate(lam) if lam else np.zeros(0),
                                np.concatenate(beta) if beta else np.zeros(0), total)
-        if not has_los:
-            results.append(base)
-            continue
         width = max(x.size for x in ls)
         pad = lambda rows, fill=0.0: np.array([np.pad(r, (0, width - r.size), constant_values=fill) for r in rows])
         results.append(SeparableWeights(base, pad(ls), pad(ul), pad(kap), m, v_los, vectors, schur, np.array(gd),
