@@ -48,7 +48,10 @@ Estimators
     matrix, ``x = D^(1/2) S_Un``): where the pilot symbols sit on different
     combs, a search asks each pilot set for about one pilot SINR, and a
     Cholesky factorisation per SINR asked is cheaper than the eigenvectors
-    (:class:`DirectWeights`).
+    (:class:`DirectWeights`). Pilot symbols on one comb with a line of sight
+    whose phase wanders (an oscillator's phase noise) make ``M`` a separable
+    matrix plus an update of rank u, solved exactly by the Woodbury identity
+    (:class:`WanderingWeights`).
 ``linear``
     A practical receiver: least-squares values at the pilots, linear
     interpolation across frequency inside each pilot-bearing symbol (the
@@ -446,6 +449,24 @@ class Band:
                                @ np.conj(np.swapaxes(vector, -1, -2)))
         return self._root[key]
 
+    def los_frame(self, step, offset, data_offsets):
+        """The band's part of :class:`WanderingWeights` for the comb (step, offset) (a tuple: the
+        :meth:`dominating_gram` of those combs) and the data offsets given: gamma, eta, g_hat, b, g_ll."""
+        key = ("los", step, offset, data_offsets)
+        if key not in self._root:
+            los_index = int(np.flatnonzero(self.components.kind == LINE_OF_SIGHT)[0])
+            gamma, vectors = self.comb_eigen(step, offset, np.arange(self.components.kind.size))
+            gamma = np.where(gamma > 1e-12 * max(gamma.max(), 1e-300), gamma, 0.0)
+            root = np.sqrt(gamma)
+            rows = root[:, None] * vectors.conj().T  # (J, C): diag(gamma^1/2) V^H
+            g_all = self.comb_gram(step, -1)
+            g_data = [g_all - (self.comb_gram(step, o) if o >= 0 else 0.0) for o in data_offsets]
+            self._root[key] = (gamma, root * np.conj(vectors[los_index]),
+                               np.stack([rows @ g @ rows.conj().T for g in g_data]),
+                               np.stack([(rows @ g)[:, los_index] for g in g_data]),
+                               np.array([g[los_index, los_index].real for g in g_data]))
+        return self._root[key]
+
     def comb_root(self, step, offset):
         """The Hermitian square root of :meth:`comb_gram`."""
         key = (step, offset)
@@ -566,6 +587,9 @@ def spectral_weights(schedule: arrangement.Schedule, band: Band, symbol_s, max_d
     los_follows = not (band.components.kind == LINE_OF_SIGHT).any() or not _random_phase(oscillator)
     if len(offsets) <= 1 and los_follows:  # a rank-one line of sight, or none: the separable path is exact
         return _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction,
+                                  offsets[0] if offsets else 0, oscillator)
+    if len(offsets) <= 1 and coupled == "direct":  # one comb, a wandering line of sight: a rank-u update
+        return _wandering_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction,
                                   offsets[0] if offsets else 0, oscillator)
     total = float(sum(data_count(band.used, schedule.freq_spacing, t) for t in schedule.targets))
     n = symbol_s.size
@@ -808,7 +832,7 @@ def prepare_direct(requests) -> None:
 
 
 def staggered_bound(schedule: arrangement.Schedule, band: Band, symbol_s, max_doppler_hz, spectrum: str,
-                    los_fraction: float, oscillator=None) -> list[SpectralWeights] | None:
+                    los_fraction: float, oscillator=None) -> list:
     """Weights of a lower bound of the LMMSE error when pilot symbols sit on different combs (screening).
 
     Pilot symbol i observes the channel's components a_i through its comb:
@@ -822,16 +846,16 @@ def staggered_bound(schedule: arrangement.Schedule, band: Band, symbol_s, max_do
     :func:`spectral_weights`. Where the combs sample the channel alike (the
     common case: echoes well within the comb's alias-free span), the bound is
     close to the exact error. A single comb: the exact weights (the separable
-    form is then exact). None where a line of sight meets a randomly
-    wandering oscillator phase (the separable form's rank-one line of sight
-    cannot follow it; use :func:`spectral_weights`).
+    form is then exact). Where a line of sight meets a randomly wandering
+    oscillator phase (which the separable form's rank-one line of sight
+    cannot follow), the same one comb in :class:`WanderingWeights`.
     """
     offsets = schedule.comb_offsets
-    if (band.components.kind == LINE_OF_SIGHT).any() and _random_phase(oscillator):
-        return None
     symbol_s = np.atleast_1d(np.asarray(symbol_s, dtype=float))
     doppler = np.broadcast_to(np.asarray(max_doppler_hz, dtype=float), symbol_s.shape)
     offset = offsets if len(offsets) > 1 else (offsets[0] if offsets else 0)
+    if (band.components.kind == LINE_OF_SIGHT).any() and _random_phase(oscillator):
+        return _wandering_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, offset, oscillator)
     return _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, offset, oscillator)
 
 
@@ -938,6 +962,115 @@ def _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction
         results.append(SeparableWeights(base, pad(ls), pad(ul), pad(kap), m, v_los, vectors, schur, np.array(gd),
                                         np.array(cnt, dtype=float), total))
     return results
+
+
+@dataclass(frozen=True)
+class WanderingWeights:
+    """Estimation error of a pattern whose pilot symbols share one comb, with a line of sight whose phase wanders.
+
+    An oscillator's random phase gives the line of sight a time correlation
+    ``R_L`` that no rank-one phasor follows (:class:`SeparableWeights` needs
+    one), but every pilot symbol still sees the channel through the same comb
+    (Gram matrix ``G = H^2``). With ``R_S`` the scattered components' time
+    correlation between the pilot symbols, ``h = H e_L`` the line of sight's
+    column and ``Delta = R_L - R_S``, the coupled matrix of
+    :func:`_coupled_parts` is::
+
+        M = R_S (x) G + Delta (x) h h^H,
+
+    a separable matrix plus an update of rank u (pilot symbols), and each
+    target's ``x = s (x) H + (l - s) (x) h e_L^T`` (``s``, ``l``: the scattered
+    and line-of-sight correlations from the pilot symbols to the target). In
+    the eigenbases ``R_S = Q diag(a) Q^H`` and ``G = V diag(gamma) V^H`` the
+    separable part is diagonal, ``kappa_ij = 1 / (a_i gamma_j + s2)``, and the
+    Woodbury identity in the form without ``Delta^-1``,
+    ``(K^-1 + U Delta U^H)^-1 = K - K U Delta (I + U^H K U Delta)^-1 U^H K``,
+    leaves a u x u solve per noise level and target (Golub and Van Loan,
+    Matrix Computations, sect. 2.1.4). The explained energy of a target is::
+
+        sum_ij kappa_ij |x_ij|_G^2 - tr(Delta' (I + diag(z) Delta')^-1 F),
+
+    ``Delta' = Q^H Delta Q``, ``z_i = sum_j kappa_ij |eta_j|^2``, ``eta = V^H h``
+    and ``F = P G_d P^H`` with ``P`` the rows ``sum_j kappa_ij conj(eta_j) x_ij``
+    (``mse`` writes the terms out). The whole problem, without the clusters
+    of :meth:`Band.clusters`: O(u c^2) per level instead of a factorisation of
+    size u c.
+    """
+
+    groups: tuple  # per pilot-set shape: (a (u,), Delta' (u, u), sigma (T, u), delta (T, u), data index (T,))
+    gamma: np.ndarray  # (J,) eigenvalues of the comb's Gram matrix
+    eta: np.ndarray  # (J,) V^H h
+    g_hat: np.ndarray  # (O, J, J) diag(gamma^1/2) V^H G_d V diag(gamma^1/2) of each data offset
+    b: np.ndarray  # (O, J) diag(gamma^1/2) V^H G_d e_L
+    g_ll: np.ndarray  # (O,) the line of sight's entry of G_d
+    data: float
+    kind = "lmmse"
+
+    def mse(self, noise_to_pilot):
+        """Mean estimation error at the given noise-to-pilot power ratios (array)."""
+        s2 = np.asarray(noise_to_pilot, dtype=float)
+        if self.data <= 0:
+            return np.zeros(s2.shape)
+        flat = s2.reshape(-1)
+        explained = np.zeros(flat.size)
+        eta2 = np.abs(self.eta) ** 2
+        alpha = np.diagonal(self.g_hat, axis1=-2, axis2=-1).real  # (O, J)
+        for a, delta, sigma, diff, index in self.groups:
+            with np.errstate(divide="ignore"):
+                kappa = 1.0 / (a[None, :, None] * self.gamma[None, None, :] + flat[:, None, None])  # (S, u, J)
+            z = kappa @ eta2  # (S, u)
+            w = kappa * np.conj(self.eta)  # (S, u, J)
+            wgw = np.einsum("suj,ojk,svk->souv", w, self.g_hat, np.conj(w))[:, index]  # (S, T, u, u)
+            wb = np.einsum("suj,oj->sou", w, self.b)[:, index]  # (S, T, u)
+            ka = np.einsum("suj,oj->sou", kappa, alpha)[:, index]  # (S, T, u)
+            g_ll = self.g_ll[index][None, :]  # (1, T)
+            d = diff[None] * z[:, None, :]  # (S, T, u)
+            c = sigma[None] * wb
+            first = np.sum(np.abs(sigma) ** 2 * ka + 2 * (sigma * np.conj(diff) * wb).real
+                           + np.abs(diff) ** 2 * z[:, None, :] * g_ll[..., None], axis=-1)  # (S, T)
+            f = (sigma[None, :, :, None] * np.conj(sigma)[None, :, None, :] * wgw
+                 + c[..., :, None] * np.conj(d)[..., None, :] + d[..., :, None] * np.conj(c)[..., None, :]
+                 + g_ll[..., None, None] * d[..., :, None] * np.conj(d)[..., None, :])
+            core = np.eye(a.size) + z[:, :, None] * delta[None]  # (S, u, u): I + diag(z) Delta'
+            solved = np.linalg.solve(core[:, None], f)  # (S, T, u, u)
+            second = np.einsum("pq,stqp->st", delta, solved).real
+            explained += np.sum(first - second, axis=1)
+        return np.clip(1.0 - explained.reshape(s2.shape) / self.data, 0.0, 1.0)
+
+
+def _wandering_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, offset, oscillator):
+    """:class:`WanderingWeights` of n designs sharing a single-comb pattern and a band with a line of sight."""
+    comps = band.components
+    d_f, used, n = schedule.freq_spacing, band.used, symbol_s.size
+    total = float(sum(data_count(used, d_f, t) for t in schedule.targets))
+    data_offsets = sorted({t.data_offset for t in schedule.targets})
+    gamma, eta, g_hat, b, g_ll = band.los_frame(d_f, offset, tuple(data_offsets))
+    targets = [t for t in schedule.targets if t.pilot_lags]
+    reach = max((max(abs(l) for l in t.pilot_lags) for t in targets), default=0)
+    lags_all = np.arange(-2 * reach, 2 * reach + 1)
+    kinds = np.array([SCATTERED, LINE_OF_SIGHT])
+    table = time_correlation(kinds, lags_all[None, :] * symbol_s[:, None], doppler[:, None], spectrum,
+                             los_fraction, oscillator)  # (n, 4 reach + 1, 2)
+    shapes: dict = {}  # lag differences -> targets (the same time eigenproblem)
+    for target in targets:
+        lags = target.pilot_lags
+        shapes.setdefault(tuple(l - lags[0] for l in lags), []).append(target)
+    per_group = []
+    for shape, group in shapes.items():
+        shape = np.asarray(shape)
+        pair = table[:, (shape[:, None] - shape[None, :]) + 2 * reach]  # (n, u, u, 2)
+        pair = 0.5 * (pair + np.conj(np.swapaxes(pair, 1, 2)))
+        a, q = hermitian_eigen(pair[..., 0])  # (n, u), (n, u, u)
+        a = np.where(a > 1e-12 * np.maximum(a.max(axis=-1, keepdims=True), 1e-300), a, 0.0)
+        delta = np.conj(np.swapaxes(q, -1, -2)) @ (pair[..., 1] - pair[..., 0]) @ q
+        lags = np.array([t.pilot_lags for t in group])  # (T, u)
+        cross = table[:, lags + 2 * reach]  # (n, T, u, 2)
+        sigma = np.einsum("nij,nti->ntj", np.conj(q), cross[..., 0])
+        diff = np.einsum("nij,nti->ntj", np.conj(q), cross[..., 1] - cross[..., 0])
+        index = np.array([data_offsets.index(t.data_offset) for t in group])
+        per_group.append((a, 0.5 * (delta + np.conj(np.swapaxes(delta, -1, -2))), sigma, diff, index))
+    return [WanderingWeights(tuple((a[i], dl[i], sg[i], df[i], ix) for a, dl, sg, df, ix in per_group),
+                             gamma, eta, g_hat, b, g_ll, total) for i in range(n)]
 
 
 def _linear_weights(schedule, band, symbol_s, max_doppler_hz, spectrum, los_fraction, oscillator=None):

@@ -395,8 +395,7 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
     ``comb_bound``: an arrangement whose pilot symbols sit on different combs
     gets a lower bound of its LMMSE error instead (``estimation.staggered_bound``,
     a few times cheaper; the solver's refinement before exact evaluation).
-    Other arrangements, the linear estimator, or a line of sight with a wandering oscillator phase: the
-    exact error.
+    Other arrangements or the linear estimator: the exact error.
     """
     delays, powers = environment.taps
     batch = np.ndim(delays) > 1

@@ -32,14 +32,16 @@ def _db(x):
 
 
 def brute_force_mse(schedule, used, spacing_hz, symbol_s, delays_s, powers, doppler_hz, noise_to_pilot,
-                    los_fraction=0.0, spectrum="classical"):
+                    los_fraction=0.0, spectrum="classical", oscillator=None):
     """The mean LMMSE error over the data of a schedule, by one direct solve per data symbol.
 
     Covariance of H(t, k) and H(t', k'), unit channel power: the scattered taps' frequency correlation
     sum_m p_m exp(-j 2 pi (k - k') df tau_m) times J0(2 pi f_D (t - t') T_s) (Clarke 1968); a line of
     sight of power P at the first tap turns as exp(j 2 pi nu (t - t') T_s), nu = f_D (rician) or, after
     the mean Doppler P f_D is removed from the whole channel, f_D (1 - P) with the scattered part
-    turning by -P f_D (tracked).
+    turning by -P f_D (tracked). ``oscillator`` (linewidth beta, offset f_o; Hz): the whole channel
+    times the oscillator's phase, whose correlation is exp(j 2 pi f_o dt - pi beta |dt|) (Wiener phase
+    noise of 3-dB linewidth beta: a Lorentzian spectrum; common practice).
     """
     powers = np.asarray(powers, float) / np.sum(powers)
     delays_s = np.asarray(delays_s, float)
@@ -56,6 +58,9 @@ def brute_force_mse(schedule, used, spacing_hz, symbol_s, delays_s, powers, dopp
             first = delays_s[np.argmin(delays_s)]
             out = out + los_fraction * np.exp(-2j * np.pi * dk * spacing_hz * first) \
                 * np.exp(2j * np.pi * (doppler_hz - mu) * dt)
+        if oscillator is not None:
+            linewidth, offset = oscillator
+            out = out * np.exp(2j * np.pi * offset * dt - np.pi * linewidth * np.abs(dt))
         return out
 
     total, count = 0.0, 0
@@ -431,3 +436,63 @@ def test_direct_weights_fall_back_to_the_eigen_route(monkeypatch):
     got = [w.mse(0.01) for w in estimation.spectral_weights(*args)]
     assert calls
     assert_allclose(got, [e.mse(0.01) for e in eigen], rtol=1e-9, atol=ATOL)
+
+
+#: An invented oscillator for the wandering line of sight: 200 Hz Wiener linewidth, 30 Hz residual offset.
+WANDERING = (200.0, 30.0)
+
+
+@pytest.mark.parametrize("spectrum", ["rician", "tracked"])
+@pytest.mark.parametrize("pattern", [("slot", [2, 11], 14, 0, 2), ("stream", [0], 4, 0, 3),
+                                     ("slot", [0, 3, 7, 10], 14, 0, 4)])
+def test_wandering_line_of_sight_on_one_comb_against_brute_force(spectrum, pattern):
+    """A line of sight (K = 6 dB) whose phase wanders with the oscillator, pilots on one comb: the
+    rank-u update of the separable problem (WanderingWeights) is the exact LMMSE error."""
+    scope, symbols, period, shift, step = pattern
+    plan = arrangement.schedule(scope, arrangement.mask_from_symbols(symbols), period, shift, step,
+                                14 if scope == "slot" else period, True, 3, 7, estimation.MAX_PILOT_SYMBOLS)
+    powers, los, _, _ = line_of_sight(SIX_TAPS_S, 10 ** (SIX_TAPS_DB / 10), "six", spectrum, 6.0, None)
+    band = estimation.Band(SIX_TAPS_S, powers, los, 30e3, 300)
+    weights = estimation.spectral_weights(plan, band, [35.7 * US], 800.0, spectrum, los, "lmmse",
+                                          (*WANDERING, None))[0]
+    assert isinstance(weights, estimation.WanderingWeights)
+    for noise in (0.001, 0.02, 0.5):
+        reference = brute_force_mse(plan, 300, 30e3, 35.7 * US, SIX_TAPS_S, powers, 800.0, noise, los, spectrum,
+                                    WANDERING)
+        assert_allclose(float(weights.mse(noise)), reference, rtol=1e-6)
+
+
+def test_wandering_weights_agree_with_the_whole_coupled_problem(monkeypatch):
+    """The same at many noise levels and two designs against the eigendecomposition of the whole coupled
+    matrix (every component in one cluster: COUPLING = 0), to round-off."""
+    plan = arrangement.schedule("slot", arrangement.mask_from_symbols([2, 11]), 14, 0, 2, 14, False, 0, 0,
+                                estimation.MAX_PILOT_SYMBOLS)
+    powers, los, _, _ = line_of_sight(SIX_TAPS_S, 10 ** (SIX_TAPS_DB / 10), "six", "rician", 6.0, None)
+    args = ([35.7 * US, 33.3 * US], np.array([800.0, 300.0]), "rician", los, "lmmse", (*WANDERING, None))
+    fast = estimation.spectral_weights(plan, estimation.Band(SIX_TAPS_S, powers, los, 30e3, 300), *args)
+    monkeypatch.setattr(estimation, "COUPLING", 0.0)
+    whole = estimation.spectral_weights(plan, estimation.Band(SIX_TAPS_S, powers, los, 30e3, 300), *args,
+                                        coupled="eigen")
+    noise = np.geomspace(1e-5, 1e2, 8)
+    for f, w in zip(fast, whole):
+        assert_allclose(f.mse(noise), w.mse(noise), rtol=1e-9, atol=ATOL)
+        assert f.mse(noise).shape == noise.shape
+
+
+@pytest.mark.parametrize("spectrum", ["rician", "tracked"])
+def test_staggered_bound_with_a_wandering_line_of_sight_is_below_the_brute_force_error(spectrum):
+    """LTE's staggered port-0 pattern (TS 36.211 sect. 6.10.1.2) with a line of sight (K = 6 dB) and the
+    oscillator above: the comb bound (one dominating comb, WanderingWeights) is below the brute force
+    and within 1 dB of it."""
+    plan = arrangement.schedule("stream", arrangement.mask_from_symbols([0, 4]), 7, 3, 6, 7, True, 3, 7,
+                                estimation.MAX_PILOT_SYMBOLS)
+    powers, los, _, _ = line_of_sight(SIX_TAPS_S, 10 ** (SIX_TAPS_DB / 10), "six", spectrum, 6.0, None)
+    band = estimation.Band(SIX_TAPS_S, powers, los, 30e3, 300)
+    weights = estimation.staggered_bound(plan, band, [35.7 * US], 800.0, spectrum, los, (*WANDERING, None))[0]
+    assert isinstance(weights, estimation.WanderingWeights)
+    for noise in (0.002, 0.02, 0.2):
+        reference = brute_force_mse(plan, 300, 30e3, 35.7 * US, SIX_TAPS_S, powers, 800.0, noise, los, spectrum,
+                                    WANDERING)
+        bound = float(weights.mse(noise))
+        assert bound <= reference * (1 + 1e-9)
+        assert _db(reference) - _db(bound) < 1.0
