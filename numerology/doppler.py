@@ -328,6 +328,23 @@ def _crossing_limit_x(spectrum: str, p_los: np.ndarray) -> np.ndarray:
     return np.where(p_los > 0, np.maximum(0.5 * k_plus_1, _J0_FIRST_ZERO_X), _J0_FIRST_ZERO_X)
 
 
+#: (spectrum, P_los, rho) -> the crossing of :func:`_first_crossing_x`, kept within a process (each pair's root
+#: is worked out on its own, so a remembered one has the same digits).
+_CROSSINGS: dict = {}
+
+
+def _crossings(spectrum: str, pairs: np.ndarray) -> np.ndarray:
+    """:func:`_first_crossing_x` of (P_los, rho) rows, each pair solved once within a process."""
+    keys = [(spectrum, p, r) for p, r in pairs.tolist()]
+    missing = [i for i, key in enumerate(keys) if key not in _CROSSINGS]
+    if missing:
+        if len(_CROSSINGS) + len(missing) > 100_000:
+            _CROSSINGS.clear()
+        roots = _first_crossing_x(spectrum, pairs[missing, 0], pairs[missing, 1])
+        _CROSSINGS.update(zip((keys[i] for i in missing), roots.tolist()))
+    return np.array([_CROSSINGS[key] for key in keys], dtype=float)
+
+
 def _first_crossing_x(spectrum: str, p_los: np.ndarray, rho: np.ndarray) -> np.ndarray:
     """First ``x = f_D tau`` with ``Re R(x) = rho``, per (p_los, rho) pair (1-D arrays).
 
@@ -427,7 +444,7 @@ def coherence_time_s(max_doppler_hz, spectrum="classical", k_factor=0.0, correla
     # (a sweep: one K and one level for every site, so one root for all, whatever the number of sites)
     p_los, rho = np.broadcast_arrays(p_los, rho)
     pairs, inverse = np.unique(np.stack([p_los.ravel(), rho.ravel()], axis=1), axis=0, return_inverse=True)
-    x_c = _first_crossing_x(spectrum, pairs[:, 0], pairs[:, 1])[inverse.ravel()].reshape(p_los.shape)
+    x_c = _crossings(spectrum, pairs)[inverse.ravel()].reshape(p_los.shape)
     f_d, x_c = np.broadcast_arrays(f_d, x_c)
     with np.errstate(divide="ignore", over="ignore"):  # a denormal f_D gives an infinite coherence time
         t_c = np.where(f_d > 0, x_c / np.where(f_d > 0, f_d, 1.0), np.inf)

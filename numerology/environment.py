@@ -476,9 +476,20 @@ def bounded_profile(max_excess_delay_s: float, rms_delay_spread_s: float):
     -----
     The shape depends on the ratio rms / span only: see :func:`bounded_shapes`.
     """
-    unit, powers, flat = bounded_shapes(np.array([rms_delay_spread_s / max_excess_delay_s]))
-    description = "a flat profile with two equal rays at its ends" if flat[0] else "an exponential profile"
-    return unit * max_excess_delay_s, powers[0], description
+    ratio = float(rms_delay_spread_s / max_excess_delay_s)
+    found = _SHAPES.get(ratio)
+    if found is None:  # the bisection per ratio, once within a process (a diagnosis derives dozens of copies)
+        if len(_SHAPES) >= 4096:
+            _SHAPES.clear()
+        unit, powers, flat = bounded_shapes(np.array([ratio]))
+        found = _SHAPES[ratio] = (unit, powers[0], bool(flat[0]))
+    unit, powers, flat = found
+    description = "a flat profile with two equal rays at its ends" if flat else "an exponential profile"
+    return unit * max_excess_delay_s, powers.copy(), description
+
+
+#: rms / span ratio -> (unit delays, powers, flat) of :func:`bounded_shapes`, kept within a process.
+_SHAPES: dict = {}
 
 
 def bounded_shapes(ratio):
