@@ -56,29 +56,42 @@ def spacing_family(req: Requirements, environment: Environment | None = None, ig
     allowed. The lattice does not depend on the window's edges, so a spacing
     that stays allowed stays in the family.
     """
+    return family_allowed(req, environment, ignore)[0]
+
+
+def family_allowed(req: Requirements, environment: Environment | None = None, ignore=()):
+    """(:func:`spacing_family`, where its relaxed margins all pass or None where they were not worked out).
+
+    The mask comes free when the automatic family had to ask the rules (the scalable family, allowed
+    somewhere); a caller that needs it then does not ask them again.
+    """
     search = req.search
     if search.spacing_family == "auto":
         scalable = _scalable(req)
-        if environment is None or _allowed(scalable, environment, req, ignore).any():
-            return scalable
+        if environment is None:
+            return scalable, None
+        allowed = _allowed(scalable, environment, req, ignore)
+        if allowed.any():
+            return scalable, allowed
         low, high = account_range(req)
         step = 1.0 / AUTO_STEPS_PER_OCTAVE
         base = search.spacing_base_hz
         k = np.arange(np.ceil(np.log2(low / base) / step), np.floor(np.log2(high / base) / step) + 1)
         lattice = base * 2.0 ** (k * step)
-        allowed = _allowed(lattice, environment, req, ignore)
-        if not allowed.any():
-            return scalable
-        k = k[allowed]
+        fine = _allowed(lattice, environment, req, ignore)
+        if not fine.any():
+            return scalable, allowed
+        k = k[fine]
         # At most spacing_steps spacings; a stride of a power of two keeps the points of a wider window's
         # family that a narrower window still allows.
         stride = 2 ** max(0, int(np.ceil(np.log2(k.size / search.spacing_steps))))
-        return lattice[allowed][k % stride == 0]
+        keep = k % stride == 0
+        return lattice[fine][keep], np.ones(int(np.count_nonzero(keep)), dtype=bool)
     if search.spacing_family == "scalable":
-        return _scalable(req)
+        return _scalable(req), None
     if search.spacing_family == "range":
-        return np.geomspace(search.spacing_min_hz, search.spacing_max_hz, search.spacing_steps)
-    return np.unique(np.asarray(search.spacings_hz, dtype=float))
+        return np.geomspace(search.spacing_min_hz, search.spacing_max_hz, search.spacing_steps), None
+    return np.unique(np.asarray(search.spacings_hz, dtype=float)), None
 
 
 def _scalable(req: Requirements) -> np.ndarray:

@@ -512,9 +512,11 @@ def screened_spacings(req: Requirements, environment: Environment, ignore=()) ->
     Only the family's own spacings matter here, not the window's edges: one evaluation instead of the edge
     refinement of ``spacing_window``.
     """
-    family = cand.spacing_family(req, environment, ignore)
-    margins = cand.relaxed_margins(family, environment, req, ignore)
-    return family[np.all([m >= 0 for m in margins.values()], axis=0)] if margins else family
+    family, allowed = cand.family_allowed(req, environment, ignore)
+    if allowed is None:
+        margins = cand.relaxed_margins(family, environment, req, ignore)
+        allowed = np.all([m >= 0 for m in margins.values()], axis=0) if margins else np.ones(family.shape, bool)
+    return family[allowed]
 
 
 def numerologies_pass(req: Requirements, environment: Environment, ignore=()) -> bool:
