@@ -160,6 +160,10 @@ def max_gap(mask, period) -> np.ndarray:
     """
     mask = np.asarray(mask, dtype=np.int64)
     period = np.asarray(period, dtype=np.int64)
+    if mask.ndim == 0 and period.ndim == 0:  # one pattern (the search space is built pattern by pattern)
+        bits = [b for b in symbols_of(int(mask)) if b < int(period)]
+        gaps = [b - a for a, b in zip(bits, bits[1:])] + [bits[0] + int(period) - bits[-1] if bits else int(period)]
+        return np.int64(max(gaps))
     mask, period = np.broadcast_arrays(mask, period)
     first = np.full(mask.shape, -1, dtype=np.int64)
     last = np.full(mask.shape, -1, dtype=np.int64)
