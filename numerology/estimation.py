@@ -1016,8 +1016,9 @@ class WanderingWeights:
         eta2 = np.abs(self.eta) ** 2
         alpha = np.diagonal(self.g_hat, axis1=-2, axis2=-1).real  # (O, J)
         for a, delta, sigma, diff, index in self.groups:
-            with np.errstate(divide="ignore"):
-                kappa = 1.0 / (a[None, :, None] * self.gamma[None, None, :] + flat[:, None, None])  # (S, u, J)
+            # a noiseless pilot (s2 = 0) as the limit s2 -> 0+ (the error is continuous there)
+            level = np.maximum(flat, 1e-12 * max(float(a.max()) * float(self.gamma.max()), 1e-300))
+            kappa = 1.0 / (a[None, :, None] * self.gamma[None, None, :] + level[:, None, None])  # (S, u, J)
             z = kappa @ eta2  # (S, u)
             w = kappa * np.conj(self.eta)  # (S, u, J)
             wgw = np.einsum("suj,ojk,svk->souv", w, self.g_hat, np.conj(w))[:, index]  # (S, T, u, u)

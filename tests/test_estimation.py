@@ -477,6 +477,9 @@ def test_wandering_weights_agree_with_the_whole_coupled_problem(monkeypatch):
     for f, w in zip(fast, whole):
         assert_allclose(f.mse(noise), w.mse(noise), rtol=1e-9, atol=ATOL)
         assert f.mse(noise).shape == noise.shape
+        # noiseless pilots: the limit s2 -> 0+, without a warning (the tests treat warnings as errors)
+        assert_allclose(f.mse(0.0), w.mse(1e-9), rtol=1e-6)
+        assert np.isnan(f.mse(np.nan)) and f.mse(np.inf) == 1.0
 
 
 @pytest.mark.parametrize("spectrum", ["rician", "tracked"])
