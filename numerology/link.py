@@ -123,8 +123,12 @@ def applicable_rules(req: Requirements) -> tuple[Rule, ...]:
 
 def guard_echo(delays_s, powers, cp_s, useful_symbol_s, allowance_s):
     """Echo interference over useful power with the prefix less the allowance (the guard rule's demand)."""
-    useful, interference = delay.echo_interference(delays_s, powers, np.maximum(cp_s - allowance_s, 0.0),
-                                                   useful_symbol_s)
+    return _guard_echo(delay.echo_interference_of(delays_s, powers), cp_s, useful_symbol_s, allowance_s)
+
+
+def _guard_echo(fractions, cp_s, useful_symbol_s, allowance_s):
+    """:func:`guard_echo` of a profile prepared by ``delay.echo_interference_of``."""
+    useful, interference = fractions(np.maximum(cp_s - allowance_s, 0.0), useful_symbol_s)
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.where(useful > 0, interference / useful, np.inf)
 
@@ -167,9 +171,10 @@ def _energy_guard_s(delays, powers, budget, t_u):
     """The shortest guard whose echo interference meets the budget: bisection, 60 halvings of [0, last tap]."""
     lo = np.zeros(t_u.shape)
     hi = np.full(t_u.shape, float(np.max(delays)) if np.size(delays) else 0.0)
+    fractions = delay.echo_interference_of(delays, powers)  # the profile sorted and summed once
     for _ in range(60):
         mid = 0.5 * (lo + hi)
-        ok = guard_echo(delays, powers, mid, t_u, 0.0) <= budget
+        ok = _guard_echo(fractions, mid, t_u, 0.0) <= budget
         hi = np.where(ok, mid, hi)
         lo = np.where(ok, lo, mid)
     return hi
@@ -675,9 +680,10 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
         ns.update(overrides)
     ns = evaluate_derived({**ns, "sinr_eff": np.nan})  # time and overhead quantities first
     delays, powers = environment.taps
-    useful, interference = delay.echo_interference(delays, powers, ns["T_cp"], ns["T_u"])
+    fractions = delay.echo_interference_of(delays, powers)
+    useful, interference = fractions(ns["T_cp"], ns["T_u"])
     if "echo_guard" not in ns and req.rules.guard_rule == "energy":
-        ns["echo_guard"] = guard_echo(delays, powers, ns["T_cp"], ns["T_u"], ns["T_allow"])
+        ns["echo_guard"] = _guard_echo(fractions, ns["T_cp"], ns["T_u"], ns["T_allow"])
     pn, cfo = oscillator_terms(req, ns["T_u"], ns["df"])
     ns["oscillator_ici"] = lambda _df: pn + cfo  # the rule sees the same spacings: computed once
     # An environment batch and a per-site SNR (arrays) broadcast against the designs.
