@@ -486,10 +486,15 @@ def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, sp
             if found is None:
                 found = estimation.spectral_weights(plan, band, symbol_s, doppler, spectrum, los, rules.estimator,
                                                     oscillator)
-        if len(_WEIGHTS_CACHE) + len(found) > _WEIGHTS_CACHE_SIZE:
+                bounded = False  # no bound applies here (see staggered_bound): these are the exact weights
+        if len(_WEIGHTS_CACHE) + 2 * len(found) > _WEIGHTS_CACHE_SIZE:
             _WEIGHTS_CACHE.clear()
         for (row, _, _, cache_key), weights in zip(rows, found):
             out[row] = _WEIGHTS_CACHE[cache_key] = weights
+            if cache_key[-1] and not bounded:
+                # asked for the bound but given the exact weights: the exact evaluation that follows (the
+                # solver's) finds them, with the noise levels they have answered, instead of a second copy
+                _WEIGHTS_CACHE.setdefault(cache_key[:-1] + (False,), weights)
     return out
 
 
