@@ -69,6 +69,9 @@ class Evaluation:
     slot_s: np.ndarray = field(repr=False, default=None)  # mean slot duration
     step_margin_db: np.ndarray = field(repr=False, default=None)  # SINR above the threshold of the MCS in use
     goal_margin_db: np.ndarray = field(repr=False, default=None)  # SINR above what the throughput goal needs
+    #: True where the estimation error is the comb bound, not the exact error (``evaluate(..., comb_bound=True)``);
+    #: None: exact everywhere
+    bounded: np.ndarray = field(repr=False, default=None)
 
     @property
     def sinr_eff_db(self):
@@ -403,6 +406,12 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
     Other arrangements, the linear estimator, or a line of sight with a wandering oscillator phase: the
     exact error.
     """
+    return _estimation_error(designs, environment, req, pilot_sinr, comb_bound)[0]
+
+
+def _estimation_error(designs: DesignArrays, environment: Environment, req: Requirements, pilot_sinr,
+                      comb_bound: bool = False):
+    """(:func:`estimation_error`, True for each design whose error is the comb bound rather than exact)."""
     delays, powers = environment.taps
     batch = np.ndim(delays) > 1
     shape = np.broadcast_shapes(designs.shape, np.shape(pilot_sinr), np.shape(environment.max_doppler_hz))
@@ -428,8 +437,8 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
     los_all = np.broadcast_to(environment.los_fraction, environment.shape if batch else ()).ravel()
     rules = req.rules
     mask = None if radio.phase_noise is None else (tuple(radio.phase_noise[0]), tuple(radio.phase_noise[1]))
-    weights = _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, environment.doppler_spectrum,
-                                 rules, mask, comb_bound)
+    weights, bounded = _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all,
+                                          environment.doppler_spectrum, rules, mask, comb_bound)
     order = np.argsort(inverse, kind="stable")
     bounds = np.searchsorted(inverse[order], np.arange(unique.shape[0] + 1))
     members = [order[bounds[row]:bounds[row + 1]] for row in range(unique.shape[0])]
@@ -437,17 +446,19 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
     estimation.prepare_direct([(weights[row], noise[m]) for row, m in enumerate(members)])
     for row, m in enumerate(members):
         out[m] = weights[row].mse(noise[m])
-    return out.reshape(shape)
+    return out.reshape(shape), bounded[inverse].reshape(shape)
 
 
 def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, spectrum, rules, phase_mask,
                        comb_bound: bool = False) -> list:
-    """Estimation weights of each distinct structure (a row of ``unique``), from the cache or computed.
+    """(estimation weights of each distinct structure (a row of ``unique``), from the cache or computed,
+    True for each row whose weights are the comb bound).
 
     Rows that share everything but the symbol duration and the Doppler (a pattern, a numerology's band, a
     channel, an oscillator) are computed together. ``comb_bound``: see :func:`estimation_error`.
     """
     out = [None] * unique.shape[0]
+    bound_rows = np.zeros(unique.shape[0], dtype=bool)
     todo: dict = {}
     for row, key in enumerate(unique):
         scope, d_f, shift, mask, period, slot, shared, spacing, used, symbol_s, site, _, linewidth, offset = \
@@ -463,6 +474,8 @@ def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, sp
         found = _WEIGHTS_CACHE.get(cache_key)
         if found is not None:
             out[row] = found
+            # a bounded key holds the exact weights where no bound applies, as its exact twin then does
+            bound_rows[row] = bounded and _WEIGHTS_CACHE.get(cache_key[:-1] + (False,)) is not found
             continue
         todo.setdefault((pattern, spacing, int(used), channel, oscillator, bounded), []).append(
             (row, symbol_s, float(doppler_hz[site]), cache_key))
@@ -491,11 +504,12 @@ def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, sp
             _WEIGHTS_CACHE.clear()
         for (row, _, _, cache_key), weights in zip(rows, found):
             out[row] = _WEIGHTS_CACHE[cache_key] = weights
+            bound_rows[row] = bounded
             if cache_key[-1] and not bounded:
                 # asked for the bound but given the exact weights: the exact evaluation that follows (the
                 # solver's) finds them, with the noise levels they have answered, instead of a second copy
                 _WEIGHTS_CACHE.setdefault(cache_key[:-1] + (False,), weights)
-    return out
+    return out, bound_rows
 
 
 #: Bands (channel x spacing x used subcarriers) kept within a process: see ``estimation.Band``.
@@ -708,10 +722,12 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
     # the whole signal (ICI -> 1: an infinite term) leaves the pilots an SINR of 0, where the estimate knows
     # nothing (error 1, its limit); the floor keeps the estimators' arithmetic finite.
     pilot_sinr = np.maximum(1.0 / impairments, PILOT_SINR_FLOOR)
+    bounded = None
     if given_error is not None:
         mse = np.broadcast_to(np.asarray(given_error, dtype=float), shape)
     elif estimation:
-        mse = np.broadcast_to(estimation_error(designs, environment, req, pilot_sinr, comb_bound), shape)
+        mse, bounded = _estimation_error(designs, environment, req, pilot_sinr, comb_bound)
+        mse, bounded = np.broadcast_to(mse, shape), np.broadcast_to(bounded, shape) if comb_bound else None
     else:
         mse = np.zeros(shape) if not error_floor else estimation_floor(designs, environment, req, shape)
     with np.errstate(divide="ignore"):
@@ -734,7 +750,7 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
                       rate_bps=np.broadcast_to(ns["rate"], shape), overhead=np.broadcast_to(ns["overhead"], shape),
                       rules=applicable, capacity=capacity, demand=demand, margin=margin, normalised=normalised,
                       slot_s=np.broadcast_to(ns["T_slot"], shape), step_margin_db=step_margin_db(req, sinr_eff),
-                      goal_margin_db=_shaped(goal_margin_db(req, sinr_eff, ns), shape))
+                      goal_margin_db=_shaped(goal_margin_db(req, sinr_eff, ns), shape), bounded=bounded)
 
 
 def _shaped(values, shape):
