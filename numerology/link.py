@@ -741,16 +741,25 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
     capacity, demand, margin, normalised = {}, {}, {}, {}
     for rule in applicable:
         cap, dem, mar = evaluate_rule(rule, ns)
-        capacity[rule.name] = np.broadcast_to(cap, shape)
-        demand[rule.name] = np.broadcast_to(dem, shape)
-        margin[rule.name] = np.broadcast_to(mar, shape)
-        normalised[rule.name] = np.broadcast_to(normalised_margin(rule, cap, dem), shape)
+        capacity[rule.name] = _read_only(cap, shape)
+        demand[rule.name] = _read_only(dem, shape)
+        margin[rule.name] = _read_only(mar, shape)
+        normalised[rule.name] = _read_only(normalised_margin(rule, cap, dem), shape)
     efficiency = ns["efficiency"](sinr_eff)
     return Evaluation(terms=terms, sinr_eff=sinr_eff, efficiency=np.asarray(efficiency, float),
                       rate_bps=np.broadcast_to(ns["rate"], shape), overhead=np.broadcast_to(ns["overhead"], shape),
                       rules=applicable, capacity=capacity, demand=demand, margin=margin, normalised=normalised,
                       slot_s=np.broadcast_to(ns["T_slot"], shape), step_margin_db=step_margin_db(req, sinr_eff),
                       goal_margin_db=_shaped(goal_margin_db(req, sinr_eff, ns), shape), bounded=bounded)
+
+
+def _read_only(values, shape):
+    """``np.broadcast_to(values, shape)`` (a read-only view), cheaper for an array that has the shape already."""
+    if type(values) is np.ndarray and values.shape == shape:
+        view = values.view()
+        view.flags.writeable = False
+        return view
+    return np.broadcast_to(values, shape)
 
 
 def _shaped(values, shape):
