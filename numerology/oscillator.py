@@ -396,15 +396,31 @@ def phase_autocorrelation(lag_s, linewidth_hz=0.0, offset_hz=0.0, mask=None):
     offset = np.asarray(offset_hz, dtype=float)
     out = np.exp(-np.pi * beta * np.abs(tau) + 2j * np.pi * offset * tau)
     if mask is not None:
-        offsets, levels = _check_mask(*mask)
+        out = out * np.exp(-0.5 * _mask_phase_variance(*_check_mask(*mask), np.abs(tau)))
+    return out
+
+
+#: (mask, |lag|) -> the mask's phase-difference variance, within a process: the estimators ask for a few
+#: hundred distinct lags (multiples of the symbol durations) tens of thousands of times.
+_VARIANCE_CACHE: dict = {}
+
+
+def _mask_phase_variance(offsets, levels, lag_s):
+    """``sigma^2(tau)`` of :func:`phase_autocorrelation` at lags >= 0, once per distinct lag (each on its own)."""
+    known = _VARIANCE_CACHE.setdefault((tuple(offsets.tolist()), tuple(levels.tolist())), {})
+    if len(_VARIANCE_CACHE) > 64 or len(known) > 100_000:
+        _VARIANCE_CACHE.clear()
+        known = _VARIANCE_CACHE.setdefault((tuple(offsets.tolist()), tuple(levels.tolist())), {})
+    flat = lag_s.ravel().tolist()
+    missing = sorted({t for t in flat if t not in known})
+    if missing:
         f = np.logspace(np.log10(offsets[0]), np.log10(offsets[-1]),
                         int(np.ceil(np.log10(offsets[-1] / offsets[0]) * MASK_POINTS_PER_DECADE)) + 1)
         level = 10.0 ** (np.interp(np.log(f), np.log(offsets), levels) / 10.0)
-        flat = np.abs(tau).reshape(-1, 1)
-        integrand = 8.0 * level * np.sin(np.pi * f * flat) ** 2 * f  # d/dln f
+        integrand = 8.0 * level * np.sin(np.pi * f * np.array(missing).reshape(-1, 1)) ** 2 * f  # d/dln f
         variance = np.sum(0.5 * (integrand[:, 1:] + integrand[:, :-1]) * np.diff(np.log(f)), axis=1)
-        out = out * np.exp(-0.5 * variance).reshape(tau.shape)
-    return out
+        known.update(zip(missing, variance.tolist()))
+    return np.array([known[t] for t in flat], dtype=float).reshape(lag_s.shape)
 
 
 def linewidth_for_ici(max_ici, useful_symbol_s):
