@@ -140,7 +140,9 @@ def popcount(mask) -> np.ndarray:
     x = x - ((x >> np.uint64(1)) & np.uint64(0x5555555555555555))
     x = (x & np.uint64(0x3333333333333333)) + ((x >> np.uint64(2)) & np.uint64(0x3333333333333333))
     x = (x + (x >> np.uint64(4))) & np.uint64(0x0F0F0F0F0F0F0F0F)
-    return np.asarray((x * np.uint64(0x0101010101010101)) >> np.uint64(56), dtype=np.int64)
+    for shift in (8, 16, 32):  # the bytes' counts summed into the lowest byte (no carry: each is at most 8)
+        x = x + (x >> np.uint64(shift))
+    return np.asarray(x & np.uint64(0x7F), dtype=np.int64)
 
 
 def max_gap(mask, period) -> np.ndarray:
