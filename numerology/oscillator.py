@@ -323,7 +323,7 @@ def mask_phase_noise_ici(offsets_hz, levels_dbc_hz, useful_symbol_s):
     shape = t_u.shape
     if t_u.size == 0:
         return np.zeros(shape)
-    # Designs share few symbol lengths: integrate once per distinct T_u (rows x grid nodes in memory).
+    # Designs share few symbol lengths: integrate once per distinct T_u.
     t_unique, inverse = np.unique(t_u.ravel(), return_inverse=True)
     t = t_unique.reshape(-1, 1)
     y_lo, y_hi = offsets[0] * t.min(), offsets[-1] * t.max()
@@ -331,6 +331,19 @@ def mask_phase_noise_ici(offsets_hz, levels_dbc_hz, useful_symbol_s):
     log_nodes = np.logspace(np.log10(y_lo), np.log10(y_hi), int(np.ceil(decades * MASK_POINTS_PER_DECADE)) + 1)
     lin_nodes = np.arange(1, int(_MASK_LOBE_LIMIT / _MASK_LINEAR_STEP) + 1) * _MASK_LINEAR_STEP
     nodes = np.union1d(log_nodes, lin_nodes)
+    # A block of rows at a time: the rows are independent, and small blocks reuse memory the allocator
+    # holds (fresh arrays of tens of MB cost more in page faults than in arithmetic).
+    step = max(1, _MASK_BLOCK // nodes.size)
+    ici = np.concatenate([_mask_rows(nodes, t[i:i + step], offsets, levels) for i in range(0, t.shape[0], step)])
+    return _result(ici[inverse.ravel()].reshape(shape))
+
+
+#: Elements (rows x grid nodes) of the mask integral worked out at once.
+_MASK_BLOCK = 1 << 14
+
+
+def _mask_rows(nodes, t, offsets, levels):
+    """:func:`mask_phase_noise_ici` of the symbol lengths ``t`` (rows, 1) on the grid ``nodes`` (in y = f T_u)."""
     # Clipping to each row's range keeps the nodes sorted and puts nodes exactly on both mask ends;
     # the intervals outside collapse to zero width.
     y = np.clip(nodes[None, :], offsets[0] * t, offsets[-1] * t)
@@ -352,7 +365,7 @@ def mask_phase_noise_ici(offsets_hz, levels_dbc_hz, useful_symbol_s):
     u[fresh] = np.log(y_fresh)
     integrand, u = np.take_along_axis(integrand, source, axis=1), np.take_along_axis(u, source, axis=1)
     ici = np.sum(0.5 * (integrand[:, 1:] + integrand[:, :-1]) * np.diff(u, axis=1), axis=1)
-    return _result(ici[inverse.ravel()].reshape(shape))
+    return ici
 
 
 def phase_autocorrelation(lag_s, linewidth_hz=0.0, offset_hz=0.0, mask=None):
