@@ -135,11 +135,14 @@ def symbols_of(mask: int) -> tuple[int, ...]:
 
 def popcount(mask) -> np.ndarray:
     """Pilot-bearing symbols per period, vectorised over int64 masks."""
-    mask = np.asarray(mask, dtype=np.int64)
-    count = np.zeros(mask.shape, dtype=np.int64)
-    for bit in range(MAX_PATTERN_BITS):
-        count += (mask >> bit) & 1
-    return count
+    # the bits below MAX_PATTERN_BITS, counted in parallel within each word (SWAR): a few passes, not one per bit
+    x = (np.asarray(mask, dtype=np.int64) & ((1 << MAX_PATTERN_BITS) - 1)).astype(np.uint64)
+    x = x - ((x >> np.uint64(1)) & np.uint64(0x5555555555555555))
+    x = (x & np.uint64(0x3333333333333333)) + ((x >> np.uint64(2)) & np.uint64(0x3333333333333333))
+    x = (x + (x >> np.uint64(4))) & np.uint64(0x0F0F0F0F0F0F0F0F)
+    for shift in (8, 16, 32):  # the bytes' counts summed into the lowest byte (no carry: each is at most 8)
+        x = x + (x >> np.uint64(shift))
+    return np.asarray(x & np.uint64(0x7F), dtype=np.int64)
 
 
 def max_gap(mask, period) -> np.ndarray:
@@ -160,10 +163,10 @@ def max_gap(mask, period) -> np.ndarray:
     """
     mask = np.asarray(mask, dtype=np.int64)
     period = np.asarray(period, dtype=np.int64)
-    if mask.ndim == 0 and period.ndim == 0:  # one pattern (the search space is built pattern by pattern)
-        bits = [b for b in symbols_of(int(mask)) if b < int(period)]
-        gaps = [b - a for a, b in zip(bits, bits[1:])] + [bits[0] + int(period) - bits[-1] if bits else int(period)]
-        return np.int64(max(gaps))
+    if mask.ndim == 0 and period.ndim == 0:  # one pattern (a design's check): plain integers
+        bits = [bit for bit in symbols_of(int(mask)) if bit < period]
+        gaps = [b - a for a, b in zip(bits, bits[1:])]
+        return np.int64(max(max(gaps, default=0), bits[0] + int(period) - bits[-1]) if bits else max(int(period), 0))
     mask, period = np.broadcast_arrays(mask, period)
     first = np.full(mask.shape, -1, dtype=np.int64)
     last = np.full(mask.shape, -1, dtype=np.int64)

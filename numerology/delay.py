@@ -37,6 +37,7 @@ __all__ = [
     "two_ray_profile",
     "echo_weight",
     "echo_interference",
+    "echo_interference_of",
     "path_difference_delay_s",
 ]
 
@@ -596,35 +597,50 @@ def echo_interference(delays_s, powers, guard_s, useful_symbol_s):
     >>> round(u, 5), round(i, 5)
     (0.78125, 0.21875)
     """
+    return echo_interference_of(delays_s, powers)(guard_s, useful_symbol_s)
+
+
+def echo_interference_of(delays_s, powers):
+    """:func:`echo_interference` of one profile as a function of (guard_s, useful_symbol_s).
+
+    The profile is checked, normalised, sorted and summed once: a caller that asks the same profile
+    about many guards in turn (the guard rule's bisection) pays for that once. Same arithmetic, same
+    values as :func:`echo_interference`.
+    """
     d, p = _profile(delays_s, powers)
-    g = np.asarray(guard_s, dtype=float)
-    tu = np.asarray(useful_symbol_s, dtype=float)
-    if not np.all(tu > 0):
-        raise ValueError("useful_symbol_s must be > 0")
-    if not np.all(g >= 0):
-        raise ValueError("guard_s must be >= 0")
-    if d.ndim > 1:
-        # Every tap with power lies at or after the first arrival, where 1 - w = 2u - u^2 with
-        # u = (tau - T_g)/T_u clipped to [0, 1] (no pre-echo branch; taps before it have no power).
-        u = np.clip((d - g[..., None]) / tu[..., None], 0.0, 1.0)
-        interference = np.einsum("...k,...k->...", u * (2.0 - u), p)
-    else:
-        g, tu = np.broadcast_arrays(g, tu)
+    if d.ndim == 1:
         order = np.argsort(d, kind="stable")
         d, p = d[order], p[order]
         zero = np.zeros(1)
         c0 = np.concatenate([zero, np.cumsum(p)])  # prefix sums of p, p tau, p tau^2
         c1 = np.concatenate([zero, np.cumsum(p * d)])
         c2 = np.concatenate([zero, np.cumsum(p * d * d)])
-        lo = np.searchsorted(d, g, side="right")  # first tap with tau > T_g
-        hi = np.searchsorted(d, g + tu, side="right")  # first tap with tau > T_g + T_u
-        s0 = c0[hi] - c0[lo]
-        s1 = c1[hi] - c1[lo] - g * s0  # sum p x over T_g < tau <= T_g + T_u
-        s2 = (c2[hi] - c2[lo]) - 2.0 * g * (c1[hi] - c1[lo]) + g * g * s0  # sum p x^2
-        interference = 2.0 * s1 / tu - s2 / tu**2 + (c0[-1] - c0[hi])  # 1 - w = 2u - u^2
-        interference = np.clip(interference, 0.0, 1.0)
-    useful = 1.0 - interference
-    return _scalar_or_array(useful), _scalar_or_array(interference)
+
+    def fractions(guard_s, useful_symbol_s):
+        g = np.asarray(guard_s, dtype=float)
+        tu = np.asarray(useful_symbol_s, dtype=float)
+        if not np.all(tu > 0):
+            raise ValueError("useful_symbol_s must be > 0")
+        if not np.all(g >= 0):
+            raise ValueError("guard_s must be >= 0")
+        if d.ndim > 1:
+            # Every tap with power lies at or after the first arrival, where 1 - w = 2u - u^2 with
+            # u = (tau - T_g)/T_u clipped to [0, 1] (no pre-echo branch; taps before it have no power).
+            u = np.clip((d - g[..., None]) / tu[..., None], 0.0, 1.0)
+            interference = np.einsum("...k,...k->...", u * (2.0 - u), p)
+        else:
+            g, tu = np.broadcast_arrays(g, tu)
+            lo = np.searchsorted(d, g, side="right")  # first tap with tau > T_g
+            hi = np.searchsorted(d, g + tu, side="right")  # first tap with tau > T_g + T_u
+            s0 = c0[hi] - c0[lo]
+            s1 = c1[hi] - c1[lo] - g * s0  # sum p x over T_g < tau <= T_g + T_u
+            s2 = (c2[hi] - c2[lo]) - 2.0 * g * (c1[hi] - c1[lo]) + g * g * s0  # sum p x^2
+            interference = 2.0 * s1 / tu - s2 / tu**2 + (c0[-1] - c0[hi])  # 1 - w = 2u - u^2
+            interference = np.clip(interference, 0.0, 1.0)
+        useful = 1.0 - interference
+        return _scalar_or_array(useful), _scalar_or_array(interference)
+
+    return fractions
 
 
 def path_difference_delay_s(path_difference_m, propagation_speed_mps=SPEED_OF_LIGHT_MPS):

@@ -69,6 +69,9 @@ class Evaluation:
     slot_s: np.ndarray = field(repr=False, default=None)  # mean slot duration
     step_margin_db: np.ndarray = field(repr=False, default=None)  # SINR above the threshold of the MCS in use
     goal_margin_db: np.ndarray = field(repr=False, default=None)  # SINR above what the throughput goal needs
+    #: True where the estimation error is the comb bound, not the exact error (``evaluate(..., comb_bound=True)``);
+    #: None: exact everywhere
+    bounded: np.ndarray = field(repr=False, default=None)
 
     @property
     def sinr_eff_db(self):
@@ -123,8 +126,12 @@ def applicable_rules(req: Requirements) -> tuple[Rule, ...]:
 
 def guard_echo(delays_s, powers, cp_s, useful_symbol_s, allowance_s):
     """Echo interference over useful power with the prefix less the allowance (the guard rule's demand)."""
-    useful, interference = delay.echo_interference(delays_s, powers, np.maximum(cp_s - allowance_s, 0.0),
-                                                   useful_symbol_s)
+    return _guard_echo(delay.echo_interference_of(delays_s, powers), cp_s, useful_symbol_s, allowance_s)
+
+
+def _guard_echo(fractions, cp_s, useful_symbol_s, allowance_s):
+    """:func:`guard_echo` of a profile prepared by ``delay.echo_interference_of``."""
+    useful, interference = fractions(np.maximum(cp_s - allowance_s, 0.0), useful_symbol_s)
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.where(useful > 0, interference / useful, np.inf)
 
@@ -167,9 +174,10 @@ def _energy_guard_s(delays, powers, budget, t_u):
     """The shortest guard whose echo interference meets the budget: bisection, 60 halvings of [0, last tap]."""
     lo = np.zeros(t_u.shape)
     hi = np.full(t_u.shape, float(np.max(delays)) if np.size(delays) else 0.0)
+    fractions = delay.echo_interference_of(delays, powers)  # the profile sorted and summed once
     for _ in range(60):
         mid = 0.5 * (lo + hi)
-        ok = guard_echo(delays, powers, mid, t_u, 0.0) <= budget
+        ok = _guard_echo(fractions, mid, t_u, 0.0) <= budget
         hi = np.where(ok, mid, hi)
         lo = np.where(ok, lo, mid)
     return hi
@@ -397,6 +405,12 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
     a few times cheaper; the solver's refinement before exact evaluation).
     Other arrangements or the linear estimator: the exact error.
     """
+    return _estimation_error(designs, environment, req, pilot_sinr, comb_bound)[0]
+
+
+def _estimation_error(designs: DesignArrays, environment: Environment, req: Requirements, pilot_sinr,
+                      comb_bound: bool = False):
+    """(:func:`estimation_error`, True for each design whose error is the comb bound rather than exact)."""
     delays, powers = environment.taps
     batch = np.ndim(delays) > 1
     shape = np.broadcast_shapes(designs.shape, np.shape(pilot_sinr), np.shape(environment.max_doppler_hz))
@@ -422,8 +436,8 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
     los_all = np.broadcast_to(environment.los_fraction, environment.shape if batch else ()).ravel()
     rules = req.rules
     mask = None if radio.phase_noise is None else (tuple(radio.phase_noise[0]), tuple(radio.phase_noise[1]))
-    weights = _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, environment.doppler_spectrum,
-                                 rules, mask, comb_bound)
+    weights, bounded = _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all,
+                                          environment.doppler_spectrum, rules, mask, comb_bound)
     order = np.argsort(inverse, kind="stable")
     bounds = np.searchsorted(inverse[order], np.arange(unique.shape[0] + 1))
     members = [order[bounds[row]:bounds[row + 1]] for row in range(unique.shape[0])]
@@ -431,17 +445,19 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
     estimation.prepare_direct([(weights[row], noise[m]) for row, m in enumerate(members)])
     for row, m in enumerate(members):
         out[m] = weights[row].mse(noise[m])
-    return out.reshape(shape)
+    return out.reshape(shape), bounded[inverse].reshape(shape)
 
 
 def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, spectrum, rules, phase_mask,
                        comb_bound: bool = False) -> list:
-    """Estimation weights of each distinct structure (a row of ``unique``), from the cache or computed.
+    """(estimation weights of each distinct structure (a row of ``unique``), from the cache or computed,
+    True for each row whose weights are the comb bound).
 
     Rows that share everything but the symbol duration and the Doppler (a pattern, a numerology's band, a
     channel, an oscillator) are computed together. ``comb_bound``: see :func:`estimation_error`.
     """
     out = [None] * unique.shape[0]
+    bound_rows = np.zeros(unique.shape[0], dtype=bool)
     todo: dict = {}
     for row, key in enumerate(unique):
         scope, d_f, shift, mask, period, slot, shared, spacing, used, symbol_s, site, _, linewidth, offset = \
@@ -457,6 +473,8 @@ def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, sp
         found = _WEIGHTS_CACHE.get(cache_key)
         if found is not None:
             out[row] = found
+            # a bounded key holds the exact weights where no bound applies, as its exact twin then does
+            bound_rows[row] = bounded and _WEIGHTS_CACHE.get(cache_key[:-1] + (False,)) is not found
             continue
         todo.setdefault((pattern, spacing, int(used), channel, oscillator, bounded), []).append(
             (row, symbol_s, float(doppler_hz[site]), cache_key))
@@ -480,11 +498,17 @@ def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, sp
             if found is None:
                 found = estimation.spectral_weights(plan, band, symbol_s, doppler, spectrum, los, rules.estimator,
                                                     oscillator)
-        if len(_WEIGHTS_CACHE) + len(found) > _WEIGHTS_CACHE_SIZE:
+                bounded = False  # no bound applies here (see staggered_bound): these are the exact weights
+        if len(_WEIGHTS_CACHE) + 2 * len(found) > _WEIGHTS_CACHE_SIZE:
             _WEIGHTS_CACHE.clear()
         for (row, _, _, cache_key), weights in zip(rows, found):
             out[row] = _WEIGHTS_CACHE[cache_key] = weights
-    return out
+            bound_rows[row] = bounded
+            if cache_key[-1] and not bounded:
+                # asked for the bound but given the exact weights: the exact evaluation that follows (the
+                # solver's) finds them, with the noise levels they have answered, instead of a second copy
+                _WEIGHTS_CACHE.setdefault(cache_key[:-1] + (False,), weights)
+    return out, bound_rows
 
 
 #: Bands (channel x spacing x used subcarriers) kept within a process: see ``estimation.Band``.
@@ -674,9 +698,10 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
         ns.update(overrides)
     ns = evaluate_derived({**ns, "sinr_eff": np.nan})  # time and overhead quantities first
     delays, powers = environment.taps
-    useful, interference = delay.echo_interference(delays, powers, ns["T_cp"], ns["T_u"])
+    fractions = delay.echo_interference_of(delays, powers)
+    useful, interference = fractions(ns["T_cp"], ns["T_u"])
     if "echo_guard" not in ns and req.rules.guard_rule == "energy":
-        ns["echo_guard"] = guard_echo(delays, powers, ns["T_cp"], ns["T_u"], ns["T_allow"])
+        ns["echo_guard"] = _guard_echo(fractions, ns["T_cp"], ns["T_u"], ns["T_allow"])
     pn, cfo = oscillator_terms(req, ns["T_u"], ns["df"])
     ns["oscillator_ici"] = lambda _df: pn + cfo  # the rule sees the same spacings: computed once
     # An environment batch and a per-site SNR (arrays) broadcast against the designs.
@@ -696,10 +721,12 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
     # the whole signal (ICI -> 1: an infinite term) leaves the pilots an SINR of 0, where the estimate knows
     # nothing (error 1, its limit); the floor keeps the estimators' arithmetic finite.
     pilot_sinr = np.maximum(1.0 / impairments, PILOT_SINR_FLOOR)
+    bounded = None
     if given_error is not None:
         mse = np.broadcast_to(np.asarray(given_error, dtype=float), shape)
     elif estimation:
-        mse = np.broadcast_to(estimation_error(designs, environment, req, pilot_sinr, comb_bound), shape)
+        mse, bounded = _estimation_error(designs, environment, req, pilot_sinr, comb_bound)
+        mse, bounded = np.broadcast_to(mse, shape), np.broadcast_to(bounded, shape) if comb_bound else None
     else:
         mse = np.zeros(shape) if not error_floor else estimation_floor(designs, environment, req, shape)
     with np.errstate(divide="ignore"):
@@ -713,16 +740,25 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
     capacity, demand, margin, normalised = {}, {}, {}, {}
     for rule in applicable:
         cap, dem, mar = evaluate_rule(rule, ns)
-        capacity[rule.name] = np.broadcast_to(cap, shape)
-        demand[rule.name] = np.broadcast_to(dem, shape)
-        margin[rule.name] = np.broadcast_to(mar, shape)
-        normalised[rule.name] = np.broadcast_to(normalised_margin(rule, cap, dem), shape)
+        capacity[rule.name] = _read_only(cap, shape)
+        demand[rule.name] = _read_only(dem, shape)
+        margin[rule.name] = _read_only(mar, shape)
+        normalised[rule.name] = _read_only(normalised_margin(rule, cap, dem), shape)
     efficiency = ns["efficiency"](sinr_eff)
     return Evaluation(terms=terms, sinr_eff=sinr_eff, efficiency=np.asarray(efficiency, float),
                       rate_bps=np.broadcast_to(ns["rate"], shape), overhead=np.broadcast_to(ns["overhead"], shape),
                       rules=applicable, capacity=capacity, demand=demand, margin=margin, normalised=normalised,
                       slot_s=np.broadcast_to(ns["T_slot"], shape), step_margin_db=step_margin_db(req, sinr_eff),
-                      goal_margin_db=_shaped(goal_margin_db(req, sinr_eff, ns), shape))
+                      goal_margin_db=_shaped(goal_margin_db(req, sinr_eff, ns), shape), bounded=bounded)
+
+
+def _read_only(values, shape):
+    """``np.broadcast_to(values, shape)`` (a read-only view), cheaper for an array that has the shape already."""
+    if type(values) is np.ndarray and values.shape == shape:
+        view = values.view()
+        view.flags.writeable = False
+        return view
+    return np.broadcast_to(values, shape)
 
 
 def _shaped(values, shape):

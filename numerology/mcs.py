@@ -249,8 +249,10 @@ def required_sinr_for_db(efficiency, table: tuple[McsEntry, ...] = DEFAULT_TABLE
     thresholds = np.array([entry.required_sinr_db for entry in table])
     efficiencies = np.array([entry.efficiency for entry in table])
     wanted = np.asarray(efficiency, dtype=float)
-    enough = efficiencies[None, :] >= wanted.reshape(-1, 1)
-    result = np.min(np.where(enough, thresholds[None, :], np.inf), axis=1).reshape(wanted.shape)
+    # the entries by efficiency: those giving at least w are a suffix, and its least threshold the answer
+    order = np.argsort(efficiencies, kind="stable")
+    least = np.concatenate([np.minimum.accumulate(thresholds[order][::-1])[::-1], [np.inf]])
+    result = least[np.searchsorted(efficiencies[order], wanted, side="left")]
     return float(result) if result.ndim == 0 else result
 
 

@@ -323,7 +323,7 @@ def mask_phase_noise_ici(offsets_hz, levels_dbc_hz, useful_symbol_s):
     shape = t_u.shape
     if t_u.size == 0:
         return np.zeros(shape)
-    # Designs share few symbol lengths: integrate once per distinct T_u (rows x grid nodes in memory).
+    # Designs share few symbol lengths: integrate once per distinct T_u.
     t_unique, inverse = np.unique(t_u.ravel(), return_inverse=True)
     t = t_unique.reshape(-1, 1)
     y_lo, y_hi = offsets[0] * t.min(), offsets[-1] * t.max()
@@ -331,19 +331,41 @@ def mask_phase_noise_ici(offsets_hz, levels_dbc_hz, useful_symbol_s):
     log_nodes = np.logspace(np.log10(y_lo), np.log10(y_hi), int(np.ceil(decades * MASK_POINTS_PER_DECADE)) + 1)
     lin_nodes = np.arange(1, int(_MASK_LOBE_LIMIT / _MASK_LINEAR_STEP) + 1) * _MASK_LINEAR_STEP
     nodes = np.union1d(log_nodes, lin_nodes)
+    # A block of rows at a time: the rows are independent, and small blocks reuse memory the allocator
+    # holds (fresh arrays of tens of MB cost more in page faults than in arithmetic).
+    step = max(1, _MASK_BLOCK // nodes.size)
+    ici = np.concatenate([_mask_rows(nodes, t[i:i + step], offsets, levels) for i in range(0, t.shape[0], step)])
+    return _result(ici[inverse.ravel()].reshape(shape))
+
+
+#: Elements (rows x grid nodes) of the mask integral worked out at once.
+_MASK_BLOCK = 1 << 14
+
+
+def _mask_rows(nodes, t, offsets, levels):
+    """:func:`mask_phase_noise_ici` of the symbol lengths ``t`` (rows, 1) on the grid ``nodes`` (in y = f T_u)."""
     # Clipping to each row's range keeps the nodes sorted and puts nodes exactly on both mask ends;
     # the intervals outside collapse to zero width.
     y = np.clip(nodes[None, :], offsets[0] * t, offsets[-1] * t)
-    level_db = np.interp(np.log(y / t), np.log(offsets), levels)
+    # A row's clipped nodes repeat its end values (the rows ascend, so repeats are neighbours): the integrand
+    # is worked out once per distinct point and copied to the repeats, the same numbers at a fraction of the
+    # cost when the symbol lengths span decades (a spacing axis).
+    fresh = np.ones(y.shape, dtype=bool)
+    fresh[:, 1:] = y[:, 1:] != y[:, :-1]
+    source = np.maximum.accumulate(np.where(fresh, np.arange(y.shape[1]), 0), axis=1)
+    y_fresh, t_fresh = y[fresh], np.broadcast_to(t, y.shape)[fresh]
+    level_db = np.interp(np.log(y_fresh / t_fresh), np.log(offsets), levels)
     weight = np.where(
-        y <= _MASK_LOBE_LIMIT,
-        _one_minus_sinc_squared(np.minimum(y, _MASK_LOBE_LIMIT)),
-        1.0 - 0.5 / (np.pi * np.maximum(y, _MASK_LOBE_LIMIT)) ** 2,  # side lobes replaced by their mean
+        y_fresh <= _MASK_LOBE_LIMIT,
+        _one_minus_sinc_squared(np.minimum(y_fresh, _MASK_LOBE_LIMIT)),
+        1.0 - 0.5 / (np.pi * np.maximum(y_fresh, _MASK_LOBE_LIMIT)) ** 2,  # side lobes replaced by their mean
     )
-    integrand = 2.0 * 10.0 ** (level_db / 10.0) * weight * (y / t)  # 2 L(f) (1 - sinc^2) df/dln(f)
-    u = np.log(y)
+    integrand, u = np.empty(y.shape), np.empty(y.shape)
+    integrand[fresh] = 2.0 * 10.0 ** (level_db / 10.0) * weight * (y_fresh / t_fresh)  # 2 L(f) (1 - sinc^2) df/dln(f)
+    u[fresh] = np.log(y_fresh)
+    integrand, u = np.take_along_axis(integrand, source, axis=1), np.take_along_axis(u, source, axis=1)
     ici = np.sum(0.5 * (integrand[:, 1:] + integrand[:, :-1]) * np.diff(u, axis=1), axis=1)
-    return _result(ici[inverse.ravel()].reshape(shape))
+    return ici
 
 
 def phase_autocorrelation(lag_s, linewidth_hz=0.0, offset_hz=0.0, mask=None):
@@ -387,15 +409,31 @@ def phase_autocorrelation(lag_s, linewidth_hz=0.0, offset_hz=0.0, mask=None):
     offset = np.asarray(offset_hz, dtype=float)
     out = np.exp(-np.pi * beta * np.abs(tau) + 2j * np.pi * offset * tau)
     if mask is not None:
-        offsets, levels = _check_mask(*mask)
+        out = out * np.exp(-0.5 * _mask_phase_variance(*_check_mask(*mask), np.abs(tau)))
+    return out
+
+
+#: (mask, |lag|) -> the mask's phase-difference variance, within a process: the estimators ask for a few
+#: hundred distinct lags (multiples of the symbol durations) tens of thousands of times.
+_VARIANCE_CACHE: dict = {}
+
+
+def _mask_phase_variance(offsets, levels, lag_s):
+    """``sigma^2(tau)`` of :func:`phase_autocorrelation` at lags >= 0, once per distinct lag (each on its own)."""
+    known = _VARIANCE_CACHE.setdefault((tuple(offsets.tolist()), tuple(levels.tolist())), {})
+    if len(_VARIANCE_CACHE) > 64 or len(known) > 100_000:
+        _VARIANCE_CACHE.clear()
+        known = _VARIANCE_CACHE.setdefault((tuple(offsets.tolist()), tuple(levels.tolist())), {})
+    flat = lag_s.ravel().tolist()
+    missing = sorted({t for t in flat if t not in known})
+    if missing:
         f = np.logspace(np.log10(offsets[0]), np.log10(offsets[-1]),
                         int(np.ceil(np.log10(offsets[-1] / offsets[0]) * MASK_POINTS_PER_DECADE)) + 1)
         level = 10.0 ** (np.interp(np.log(f), np.log(offsets), levels) / 10.0)
-        flat = np.abs(tau).reshape(-1, 1)
-        integrand = 8.0 * level * np.sin(np.pi * f * flat) ** 2 * f  # d/dln f
+        integrand = 8.0 * level * np.sin(np.pi * f * np.array(missing).reshape(-1, 1)) ** 2 * f  # d/dln f
         variance = np.sum(0.5 * (integrand[:, 1:] + integrand[:, :-1]) * np.diff(np.log(f)), axis=1)
-        out = out * np.exp(-0.5 * variance).reshape(tau.shape)
-    return out
+        known.update(zip(missing, variance.tolist()))
+    return np.array([known[t] for t in flat], dtype=float).reshape(lag_s.shape)
 
 
 def linewidth_for_ici(max_ici, useful_symbol_s):

@@ -466,12 +466,16 @@ def _passing(grid: cand.Grid, environment: Environment, req: Requirements, ignor
 
     Each is first evaluated with the estimation error's lower bound for pilot symbols on different
     combs (``link.evaluate(..., comb_bound=True)``, exact for the others): one that fails then fails
-    exactly too and costs no exact evaluation.
+    exactly too and costs no exact evaluation, and one that passes needs an exact evaluation only if its
+    error was the bound.
     """
-    maybe = np.flatnonzero(_passed(link.evaluate(grid.designs(), environment, req, comb_bound=True), ignore))
-    if not maybe.size:
+    evaluation = link.evaluate(grid.designs(), environment, req, comb_bound=True)
+    maybe = np.flatnonzero(_passed(evaluation, ignore))
+    bounded = maybe[evaluation.bounded[maybe]]
+    if not bounded.size:
         return maybe
-    return maybe[_passed(link.evaluate(grid.take(maybe).designs(), environment, req), ignore)]
+    fails = bounded[~_passed(link.evaluate(grid.take(bounded).designs(), environment, req), ignore)]
+    return maybe[~np.isin(maybe, fails)]
 
 
 def transferred(req: Requirements, environment: Environment, row: cand.Grid, ignore=()):
