@@ -473,8 +473,7 @@ def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, sp
         found = _WEIGHTS_CACHE.get(cache_key)
         if found is not None:
             out[row] = found
-            # a bounded key holds the exact weights where no bound applies, as its exact twin then does
-            bound_rows[row] = bounded and _WEIGHTS_CACHE.get(cache_key[:-1] + (False,)) is not found
+            bound_rows[row] = bounded
             continue
         todo.setdefault((pattern, spacing, int(used), channel, oscillator, bounded), []).append(
             (row, symbol_s, float(doppler_hz[site]), cache_key))
@@ -493,21 +492,16 @@ def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, sp
             plan = _schedule(SCOPES[scope], mask, period, shift, d_f, slot, shared, rules.estimation_lookahead,
                              rules.estimation_memory)
             band = _band(channel, spacing, used)
-            found = estimation.staggered_bound(plan, band, symbol_s, doppler, spectrum, los, oscillator) \
-                if bounded else None
-            if found is None:
+            if bounded:
+                found = estimation.staggered_bound(plan, band, symbol_s, doppler, spectrum, los, oscillator)
+            else:
                 found = estimation.spectral_weights(plan, band, symbol_s, doppler, spectrum, los, rules.estimator,
                                                     oscillator)
-                bounded = False  # no bound applies here (see staggered_bound): these are the exact weights
-        if len(_WEIGHTS_CACHE) + 2 * len(found) > _WEIGHTS_CACHE_SIZE:
+        if len(_WEIGHTS_CACHE) + len(found) > _WEIGHTS_CACHE_SIZE:
             _WEIGHTS_CACHE.clear()
         for (row, _, _, cache_key), weights in zip(rows, found):
             out[row] = _WEIGHTS_CACHE[cache_key] = weights
             bound_rows[row] = bounded
-            if cache_key[-1] and not bounded:
-                # asked for the bound but given the exact weights: the exact evaluation that follows (the
-                # solver's) finds them, with the noise levels they have answered, instead of a second copy
-                _WEIGHTS_CACHE.setdefault(cache_key[:-1] + (False,), weights)
     return out, bound_rows
 
 
