@@ -684,7 +684,7 @@ def _eigen_explained(m, x, g_sub, s2):
 #: eigendecomposition rather than a Cholesky factorisation (``m + s2 I`` is then close to singular).
 DIRECT_MIN_NOISE = 1e-10
 #: From this size on (u c rows) the factor's triangular solves; below it one stacked LU solve.
-DIRECT_TRIANGULAR = 32
+DIRECT_TRIANGULAR = 64
 def _direct_explained(m, x, g_sub, s2):
     """The explained energy ``sum_T tr(x^H (m + s2 I)^-1 x g_sub)`` of pieces (p, ...) at noise s2 (p,): (p,).
 
@@ -964,8 +964,7 @@ def _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction
     return results
 
 
-@dataclass(frozen=True)
-class WanderingWeights:
+class WanderingWeights(DirectWeights):
     """Estimation error of a pattern whose pilot symbols share one comb, with a line of sight whose phase wanders.
 
     An oscillator's random phase gives the line of sight a time correlation
@@ -992,51 +991,57 @@ class WanderingWeights:
 
     ``Delta' = Q^H Delta Q``, ``z_i = sum_j kappa_ij |eta_j|^2``, ``eta = V^H h``
     and ``F = P G_d P^H`` with ``P`` the rows ``sum_j kappa_ij conj(eta_j) x_ij``
-    (``mse`` writes the terms out). The whole problem, without the clusters
-    of :meth:`Band.clusters`: O(u c^2) per level instead of a factorisation of
-    size u c.
+    (:meth:`_WanderingProblem.explained` writes the terms out). The whole
+    problem, without the clusters of :meth:`Band.clusters`: O(u c^2) per level
+    instead of a factorisation of size u c. Answered per noise level and
+    remembered, as :class:`DirectWeights` (whose ``mse`` it shares): the levels
+    of many designs go together through :func:`prepare_direct`, and a level's
+    value does not depend on what is asked with it (matrix products and solves
+    matrix by matrix, sums over axes of fixed length).
     """
 
-    groups: tuple  # per pilot-set shape: (a (u,), Delta' (u, u), sigma (T, u), delta (T, u), data index (T,))
-    gamma: np.ndarray  # (J,) eigenvalues of the comb's Gram matrix
-    eta: np.ndarray  # (J,) V^H h
-    g_hat: np.ndarray  # (O, J, J) diag(gamma^1/2) V^H G_d V diag(gamma^1/2) of each data offset
-    b: np.ndarray  # (O, J) diag(gamma^1/2) V^H G_d e_L
-    g_ll: np.ndarray  # (O,) the line of sight's entry of G_d
-    data: float
-    kind = "lmmse"
 
-    def mse(self, noise_to_pilot):
-        """Mean estimation error at the given noise-to-pilot power ratios (array)."""
-        s2 = np.asarray(noise_to_pilot, dtype=float)
-        if self.data <= 0:
-            return np.zeros(s2.shape)
-        flat = s2.reshape(-1)
-        explained = np.zeros(flat.size)
+class _WanderingProblem:
+    """What the :class:`WanderingWeights` of n designs sharing a pattern and a band are built from.
+
+    ``groups``: per pilot-set shape, ``a`` (n, u) and ``delta`` (n, u, u) (R_S's eigenvalues and Delta in
+    its eigenbasis), ``sigma`` and ``diff`` (n, T, u) (the targets' scattered correlations and the line of
+    sight's excess over them, in that basis) and each target's data-offset index (T,); the band's part
+    (:meth:`Band.los_frame`): gamma, eta (J,), g_hat (O, J, J), b (O, J), g_ll (O,).
+    """
+
+    def __init__(self, groups, gamma, eta, g_hat, b, g_ll, total):
+        self.groups, self.gamma, self.eta, self.g_hat, self.b, self.g_ll = groups, gamma, eta, g_hat, b, g_ll
+        self.total = total
+
+    def explained(self, rows, s2):
+        """Explained energy of design ``rows[i]`` at noise ``s2[i]`` (pairs): (p,)."""
         eta2 = np.abs(self.eta) ** 2
         alpha = np.diagonal(self.g_hat, axis1=-2, axis2=-1).real  # (O, J)
+        out = np.zeros(s2.shape)
         for a, delta, sigma, diff, index in self.groups:
+            a, delta, sigma, diff = a[rows], delta[rows], sigma[rows], diff[rows]
             # a noiseless pilot (s2 = 0) as the limit s2 -> 0+ (the error is continuous there)
-            level = np.maximum(flat, 1e-12 * max(float(a.max()) * float(self.gamma.max()), 1e-300))
-            kappa = 1.0 / (a[None, :, None] * self.gamma[None, None, :] + level[:, None, None])  # (S, u, J)
-            z = kappa @ eta2  # (S, u)
-            w = kappa * np.conj(self.eta)  # (S, u, J)
-            wgw = np.einsum("suj,ojk,svk->souv", w, self.g_hat, np.conj(w))[:, index]  # (S, T, u, u)
-            wb = np.einsum("suj,oj->sou", w, self.b)[:, index]  # (S, T, u)
-            ka = np.einsum("suj,oj->sou", kappa, alpha)[:, index]  # (S, T, u)
-            g_ll = self.g_ll[index][None, :]  # (1, T)
-            d = diff[None] * z[:, None, :]  # (S, T, u)
-            c = sigma[None] * wb
+            level = np.maximum(s2, 1e-12 * np.maximum(a.max(axis=-1) * self.gamma.max(), 1e-300))
+            kappa = 1.0 / (a[:, :, None] * self.gamma + level[:, None, None])  # (p, u, J)
+            z = kappa @ eta2  # (p, u)
+            w = kappa * np.conj(self.eta)  # (p, u, J)
+            wgw = ((w[:, None] @ self.g_hat) @ np.conj(np.swapaxes(w, -1, -2))[:, None])[:, index]  # (p, T, u, u)
+            wb = np.swapaxes(w @ self.b.T, 1, 2)[:, index]  # (p, T, u)
+            ka = np.swapaxes(kappa @ alpha.T, 1, 2)[:, index]  # (p, T, u)
+            g_ll = self.g_ll[index][None, :, None]  # (1, T, 1)
+            d = diff * z[:, None, :]
+            c = sigma * wb
             first = np.sum(np.abs(sigma) ** 2 * ka + 2 * (sigma * np.conj(diff) * wb).real
-                           + np.abs(diff) ** 2 * z[:, None, :] * g_ll[..., None], axis=-1)  # (S, T)
-            f = (sigma[None, :, :, None] * np.conj(sigma)[None, :, None, :] * wgw
+                           + np.abs(diff) ** 2 * z[:, None, :] * g_ll, axis=-1)  # (p, T)
+            f = (sigma[..., :, None] * np.conj(sigma)[..., None, :] * wgw
                  + c[..., :, None] * np.conj(d)[..., None, :] + d[..., :, None] * np.conj(c)[..., None, :]
-                 + g_ll[..., None, None] * d[..., :, None] * np.conj(d)[..., None, :])
-            core = np.eye(a.size) + z[:, :, None] * delta[None]  # (S, u, u): I + diag(z) Delta'
-            solved = np.linalg.solve(core[:, None], f)  # (S, T, u, u)
-            second = np.einsum("pq,stqp->st", delta, solved).real
-            explained += np.sum(first - second, axis=1)
-        return np.clip(1.0 - explained.reshape(s2.shape) / self.data, 0.0, 1.0)
+                 + g_ll[..., None] * d[..., :, None] * np.conj(d)[..., None, :])
+            core = np.eye(a.shape[1]) + z[:, :, None] * delta  # (p, u, u): I + diag(z) Delta'
+            solved = np.linalg.solve(core[:, None], f)  # (p, T, u, u)
+            second = np.trace(delta[:, None] @ solved, axis1=-2, axis2=-1).real
+            out += np.sum(first - second, axis=1)
+        return out
 
 
 def _wandering_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, offset, oscillator):
@@ -1070,8 +1075,8 @@ def _wandering_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction
         diff = np.einsum("nij,nti->ntj", np.conj(q), cross[..., 1] - cross[..., 0])
         index = np.array([data_offsets.index(t.data_offset) for t in group])
         per_group.append((a, 0.5 * (delta + np.conj(np.swapaxes(delta, -1, -2))), sigma, diff, index))
-    return [WanderingWeights(tuple((a[i], dl[i], sg[i], df[i], ix) for a, dl, sg, df, ix in per_group),
-                             gamma, eta, g_hat, b, g_ll, total) for i in range(n)]
+    problem = _WanderingProblem(tuple(per_group), gamma, eta, g_hat, b, g_ll, total)
+    return [WanderingWeights(problem, i) for i in range(n)]
 
 
 def _linear_weights(schedule, band, symbol_s, max_doppler_hz, spectrum, los_fraction, oscillator=None):
