@@ -25,7 +25,7 @@ import sys
 import tempfile
 from pathlib import Path
 
-from timing import one_core, timed
+from timing import cold, one_core, timed
 
 one_core()  # before numpy is imported
 import numpy as np  # noqa: E402
@@ -62,18 +62,6 @@ def write_sites(path: Path, rows: int, seed: int = 11) -> None:
             r = np.minimum(np.round(rng.uniform(*rms, n), -2), np.floor(d * 4) * 100)  # at most 0.4 of the span
             s = np.round(rng.uniform(*snr, n))
             writer.writerows(zip((f"{zone} {i}" for i in range(n)), v.tolist(), d.tolist(), r.tolist(), s.tolist()))
-
-
-def cold(fn):
-    """``fn`` with the model's in-process caches emptied first, as a command run starts."""
-    from numerology import link
-
-    def run():
-        for cache in (link._WEIGHTS_CACHE, link._GUARD_CACHE, link._MASK_CACHE, link._BANDS):
-            cache.clear()
-        link._schedule.cache_clear()
-        return fn()
-    return run
 
 
 def main():
