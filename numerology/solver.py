@@ -215,6 +215,13 @@ def search(req: Requirements, environment: Environment | None = None, objective:
                                      objective, ignore)
             if not batch.size:
                 continue
+            if what_if and batch.size > WHAT_IF_FIRST_BATCH:
+                # Only the best key is wanted: the refined candidates with the best bounds first, the rest back
+                # in the queue, where those the best exact key then beats are dropped unevaluated.
+                batch = batch[np.argsort(-key_bound[batch], kind="stable")]
+                batch, rest = batch[:WHAT_IF_FIRST_BATCH], batch[WHAT_IF_FIRST_BATCH:]
+                pending = np.concatenate([rest, pending])
+                pending = pending[np.argsort(-key_bound[pending], kind="stable")]
         designs = grid.take(batch).designs()
         evaluation = link.evaluate(designs, environment, req)
         evaluated += batch.size
