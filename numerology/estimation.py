@@ -607,6 +607,28 @@ def spectral_weights(schedule: arrangement.Schedule, band: Band, symbol_s, max_d
     return [SpectralWeights("lmmse", lam[i], beta[i], total) for i in range(n)]
 
 
+def _lag_table(kinds, targets, symbol_s, doppler, spectrum, los_fraction, oscillator):
+    """Each kind's time correlation, per design, at every lag the targets' pilots need: (table, reach).
+
+    ``table`` (n, 4 reach + 1, K): row ``l + 2 reach`` is the lag of ``l`` symbols (differences between
+    pilot symbols and lags from them to a target); ``reach`` the farthest pilot lag of any target.
+    """
+    reach = max((max(abs(l) for l in t.pilot_lags) for t in targets if t.pilot_lags), default=0)
+    lags = np.arange(-2 * reach, 2 * reach + 1)
+    return time_correlation(kinds, lags[None, :] * symbol_s[:, None], doppler[:, None], spectrum, los_fraction,
+                            oscillator), reach
+
+
+def _by_shape(targets) -> dict:
+    """The targets with pilots, grouped by their pilot set's lag differences (one time eigenproblem each)."""
+    groups: dict = {}
+    for target in targets:
+        if target.pilot_lags:
+            lags = target.pilot_lags
+            groups.setdefault(tuple(l - lags[0] for l in lags), []).append(target)
+    return groups
+
+
 def _coupled_parts(schedule, band, symbol_s, doppler, spectrum, los_fraction, oscillator):
     """The coupled LMMSE problem of n designs, one piece per (group of targets, size of cluster).
 
@@ -633,10 +655,8 @@ def _coupled_parts(schedule, band, symbol_s, doppler, spectrum, los_fraction, os
             lags = target.pilot_lags
             groups.setdefault((tuple(l - lags[0] for l in lags), target.pilot_offsets, target.data_offset),
                               []).append(target)
-    reach = max((max(abs(l) for l in t.pilot_lags) for t in schedule.targets if t.pilot_lags), default=0)
-    lags_all = np.arange(-2 * reach, 2 * reach + 1)
-    lag_table = time_correlation(comps.kind, lags_all[None, :] * symbol_s[:, None], doppler[:, None], spectrum,
-                                 los_fraction, oscillator)  # (n, 4 reach + 1, C): row l + 2 reach
+    lag_table, reach = _lag_table(comps.kind, schedule.targets, symbol_s, doppler, spectrum, los_fraction,
+                                  oscillator)  # (n, 4 reach + 1, C)
     clusters = band.clusters(d_f, offsets)
     g_all = band.comb_gram(d_f, -1)
     for (shape, pilot_offsets, data_offset), targets in groups.items():
@@ -867,11 +887,7 @@ def _plain_separable(targets, z_of, m, table, reach, total) -> list[SpectralWeig
     and of the target's projections |U^H rho|^2 with its data's frequency part z.
     """
     n = table.shape[0]
-    groups: dict = {}  # lag differences -> targets (the same time eigenproblem)
-    for target in targets:
-        if target.pilot_lags and m.size:
-            lags = target.pilot_lags
-            groups.setdefault(tuple(l - lags[0] for l in lags), []).append(target)
+    groups = _by_shape(targets) if m.size else {}
     lams, betas = [], []
     for shape, group in groups.items():
         shape = np.asarray(shape)
@@ -907,11 +923,8 @@ def _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction
     m = np.where(m > tol, m, 0.0)
     g_all = band.comb_gram(d_f, -1)
     targets = [t for t in schedule.targets]
-    reach = max((max(abs(l) for l in t.pilot_lags) for t in targets if t.pilot_lags), default=0)
-    lags_all = np.arange(-2 * reach, 2 * reach + 1)
-    kinds = np.array([SCATTERED, LINE_OF_SIGHT])
-    table = time_correlation(kinds, lags_all[None, :] * symbol_s[:, None], doppler[:, None], spectrum,
-                             los_fraction, oscillator)  # (n, 4 reach + 1, 2)
+    table, reach = _lag_table(np.array([SCATTERED, LINE_OF_SIGHT]), targets, symbol_s, doppler, spectrum,
+                              los_fraction, oscillator)  # (n, 4 reach + 1, 2)
     # the frequency part of each target's data: z_j = m_j (V^H G_d V)_jj over the scattered components
     z_of, g_data_of = {}, {}
     for target in targets:
@@ -1046,23 +1059,14 @@ class _WanderingProblem:
 
 def _wandering_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, offset, oscillator):
     """:class:`WanderingWeights` of n designs sharing a single-comb pattern and a band with a line of sight."""
-    comps = band.components
     d_f, used, n = schedule.freq_spacing, band.used, symbol_s.size
     total = float(sum(data_count(used, d_f, t) for t in schedule.targets))
     data_offsets = sorted({t.data_offset for t in schedule.targets})
     gamma, eta, g_hat, b, g_ll = band.los_frame(d_f, offset, tuple(data_offsets))
-    targets = [t for t in schedule.targets if t.pilot_lags]
-    reach = max((max(abs(l) for l in t.pilot_lags) for t in targets), default=0)
-    lags_all = np.arange(-2 * reach, 2 * reach + 1)
-    kinds = np.array([SCATTERED, LINE_OF_SIGHT])
-    table = time_correlation(kinds, lags_all[None, :] * symbol_s[:, None], doppler[:, None], spectrum,
-                             los_fraction, oscillator)  # (n, 4 reach + 1, 2)
-    shapes: dict = {}  # lag differences -> targets (the same time eigenproblem)
-    for target in targets:
-        lags = target.pilot_lags
-        shapes.setdefault(tuple(l - lags[0] for l in lags), []).append(target)
+    table, reach = _lag_table(np.array([SCATTERED, LINE_OF_SIGHT]), schedule.targets, symbol_s, doppler, spectrum,
+                              los_fraction, oscillator)  # (n, 4 reach + 1, 2)
     per_group = []
-    for shape, group in shapes.items():
+    for shape, group in _by_shape(schedule.targets).items():
         shape = np.asarray(shape)
         pair = table[:, (shape[:, None] - shape[None, :]) + 2 * reach]  # (n, u, u, 2)
         pair = 0.5 * (pair + np.conj(np.swapaxes(pair, 1, 2)))
