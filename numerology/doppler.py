@@ -58,6 +58,7 @@ import numpy as np
 import scipy.special as sp
 
 from .errors import InputError
+from .grouping import remembered
 from .oscillator import _floats, _one_minus_sinc_squared, _require, _result
 
 __all__ = [
@@ -335,14 +336,12 @@ _CROSSINGS: dict = {}
 
 def _crossings(spectrum: str, pairs: np.ndarray) -> np.ndarray:
     """:func:`_first_crossing_x` of (P_los, rho) rows, each pair solved once within a process."""
+    def solve(missing):
+        rows = np.array([key[1:] for key in missing], dtype=float)
+        return _first_crossing_x(spectrum, rows[:, 0], rows[:, 1]).tolist()
+
     keys = [(spectrum, p, r) for p, r in pairs.tolist()]
-    missing = [i for i, key in enumerate(keys) if key not in _CROSSINGS]
-    if missing:
-        if len(_CROSSINGS) + len(missing) > 100_000:
-            _CROSSINGS.clear()
-        roots = _first_crossing_x(spectrum, pairs[missing, 0], pairs[missing, 1])
-        _CROSSINGS.update(zip((keys[i] for i in missing), roots.tolist()))
-    return np.array([_CROSSINGS[key] for key in keys], dtype=float)
+    return np.array(remembered(_CROSSINGS, keys, solve), dtype=float)
 
 
 def _first_crossing_x(spectrum: str, p_los: np.ndarray, rho: np.ndarray) -> np.ndarray:

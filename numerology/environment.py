@@ -31,6 +31,7 @@ import numpy as np
 
 from . import delay, doppler
 from .errors import InputError
+from .grouping import remembered
 from .requirements import Requirements
 
 #: Fractional bandwidth above which Doppler is a time scaling across the band
@@ -476,14 +477,12 @@ def bounded_profile(max_excess_delay_s: float, rms_delay_spread_s: float):
     -----
     The shape depends on the ratio rms / span only: see :func:`bounded_shapes`.
     """
-    ratio = float(rms_delay_spread_s / max_excess_delay_s)
-    found = _SHAPES.get(ratio)
-    if found is None:  # the bisection per ratio, once within a process (a diagnosis derives dozens of copies)
-        if len(_SHAPES) >= 4096:
-            _SHAPES.clear()
-        unit, powers, flat = bounded_shapes(np.array([ratio]))
-        found = _SHAPES[ratio] = (unit, powers[0], bool(flat[0]))
-    unit, powers, flat = found
+    def shapes(ratios):
+        unit, powers, flat = bounded_shapes(np.array(ratios))
+        return [(unit, p, bool(f)) for p, f in zip(powers, flat)]
+
+    # the bisection per ratio, once within a process (a diagnosis derives dozens of copies)
+    [(unit, powers, flat)] = remembered(_SHAPES, [float(rms_delay_spread_s / max_excess_delay_s)], shapes, 4096)
     description = "a flat profile with two equal rays at its ends" if flat else "an exponential profile"
     return unit * max_excess_delay_s, powers.copy(), description
 

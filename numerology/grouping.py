@@ -37,3 +37,28 @@ def distinct_rows(rows):
         _, first, inverse = np.unique(keys, return_index=True, return_inverse=True)
         inverse = np.ravel(inverse)
     return inverse.reshape(rows.shape[:-1]), first
+
+
+def remembered(store: dict, keys, compute, limit: int = 100_000) -> list:
+    """The values of ``keys`` kept in ``store``, the missing ones worked out by one call of ``compute``.
+
+    ``compute(missing)`` gets the distinct missing keys in first-seen order and returns their values in
+    that order, each worked out on its own (so a remembered value has the digits a fresh one would have:
+    the same input gives the same output whatever was asked before). ``store`` is emptied first when it
+    would hold more than ``limit`` values.
+
+    Examples
+    --------
+    >>> store = {}
+    >>> remembered(store, [2, 3, 2], lambda missing: [k * k for k in missing])
+    [4, 9, 4]
+    >>> remembered(store, [3], lambda missing: 1 / 0)  # known: not worked out again
+    [9]
+    """
+    missing = [k for k in dict.fromkeys(keys) if k not in store]
+    if missing and len(store) + len(missing) > limit:
+        store.clear()
+        missing = list(dict.fromkeys(keys))
+    if missing:
+        store.update(zip(missing, compute(missing)))
+    return [store[k] for k in keys]

@@ -45,7 +45,7 @@ from . import arrangement, delay, doppler, estimation, mcs, oscillator, pilots
 from .arrangement import SCOPE_CODE, SCOPES
 from .design import DesignArrays
 from .environment import Environment
-from .grouping import distinct_rows
+from .grouping import distinct_rows, remembered
 from .requirements import Requirements
 from .rules import RULES, Rule, evaluate as evaluate_rule, evaluate_derived, normalised_margin
 
@@ -552,15 +552,11 @@ _MASK_CACHE: dict = {}  # (offsets, levels) -> {useful symbol s: ICI}; the mask 
 
 def _mask_ici(offsets, levels, useful_symbol_s):
     """oscillator.mask_phase_noise_ici, remembered per mask and symbol duration within a process."""
-    known = _MASK_CACHE.setdefault((tuple(offsets), tuple(levels)), {})
-    if len(known) > 100_000:
-        known.clear()
     t_u = np.asarray(useful_symbol_s, dtype=float)
-    missing = [t for t in t_u.ravel().tolist() if t not in known]
-    if missing:
-        values = np.atleast_1d(oscillator.mask_phase_noise_ici(offsets, levels, np.array(missing)))
-        known.update(zip(missing, values.tolist()))
-    return np.array([known[t] for t in t_u.ravel().tolist()]).reshape(t_u.shape)
+    values = remembered(_MASK_CACHE.setdefault((tuple(offsets), tuple(levels)), {}), t_u.ravel().tolist(),
+                        lambda missing: np.atleast_1d(oscillator.mask_phase_noise_ici(offsets, levels,
+                                                                                    np.array(missing))).tolist())
+    return np.array(values, dtype=float).reshape(t_u.shape)
 
 
 def _doppler_ici(x, spectrum, k_factor):

@@ -30,6 +30,7 @@ import math
 import numpy as np
 
 from .errors import InputError
+from .grouping import remembered
 
 __all__ = [
     "cfo_ici",
@@ -420,20 +421,19 @@ _VARIANCE_CACHE: dict = {}
 
 def _mask_phase_variance(offsets, levels, lag_s):
     """``sigma^2(tau)`` of :func:`phase_autocorrelation` at lags >= 0, once per distinct lag (each on its own)."""
-    known = _VARIANCE_CACHE.setdefault((tuple(offsets.tolist()), tuple(levels.tolist())), {})
-    if len(_VARIANCE_CACHE) > 64 or len(known) > 100_000:
+    mask = (tuple(offsets.tolist()), tuple(levels.tolist()))
+    if mask not in _VARIANCE_CACHE and len(_VARIANCE_CACHE) >= 64:
         _VARIANCE_CACHE.clear()
-        known = _VARIANCE_CACHE.setdefault((tuple(offsets.tolist()), tuple(levels.tolist())), {})
-    flat = lag_s.ravel().tolist()
-    missing = sorted({t for t in flat if t not in known})
-    if missing:
+    known = _VARIANCE_CACHE.setdefault(mask, {})
+
+    def integrate(missing):
         f = np.logspace(np.log10(offsets[0]), np.log10(offsets[-1]),
                         int(np.ceil(np.log10(offsets[-1] / offsets[0]) * MASK_POINTS_PER_DECADE)) + 1)
         level = 10.0 ** (np.interp(np.log(f), np.log(offsets), levels) / 10.0)
         integrand = 8.0 * level * np.sin(np.pi * f * np.array(missing).reshape(-1, 1)) ** 2 * f  # d/dln f
-        variance = np.sum(0.5 * (integrand[:, 1:] + integrand[:, :-1]) * np.diff(np.log(f)), axis=1)
-        known.update(zip(missing, variance.tolist()))
-    return np.array([known[t] for t in flat], dtype=float).reshape(lag_s.shape)
+        return np.sum(0.5 * (integrand[:, 1:] + integrand[:, :-1]) * np.diff(np.log(f)), axis=1).tolist()
+
+    return np.array(remembered(known, lag_s.ravel().tolist(), integrate), dtype=float).reshape(lag_s.shape)
 
 
 def linewidth_for_ici(max_ici, useful_symbol_s):
