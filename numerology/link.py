@@ -41,7 +41,7 @@ from functools import lru_cache
 
 import numpy as np
 
-from . import arrangement, delay, doppler, estimation, mcs, oscillator, pilots
+from . import arrangement, delay, doppler, error_table, estimation, mcs, oscillator, pilots
 from .arrangement import SCOPE_CODE, SCOPES
 from .design import DesignArrays
 from .environment import Environment
@@ -72,6 +72,8 @@ class Evaluation:
     #: True where the estimation error is the comb bound, not the exact error (``evaluate(..., comb_bound=True)``);
     #: None: exact everywhere
     bounded: np.ndarray = field(repr=False, default=None)
+    #: How the estimation error was obtained where a table gave part of it (``evaluate(..., tabulate=True)``)
+    table: "error_table.Tabulated | None" = field(repr=False, default=None)
 
     @property
     def sinr_eff_db(self):
@@ -409,8 +411,13 @@ def estimation_error(designs: DesignArrays, environment: Environment, req: Requi
 
 
 def _estimation_error(designs: DesignArrays, environment: Environment, req: Requirements, pilot_sinr,
-                      comb_bound: bool = False):
-    """(:func:`estimation_error`, True for each design whose error is the comb bound rather than exact)."""
+                      comb_bound: bool = False, tabulate: bool = False):
+    """(:func:`estimation_error`, True for each design whose error is the comb bound rather than exact,
+    the ``error_table.Tabulated`` account when ``tabulate`` (else None)).
+
+    ``tabulate`` (an environment batch, no comb bound): groups of many sites sharing a profile shape take their
+    error from a table of exact evaluations (``numerology.error_table``).
+    """
     delays, powers = environment.taps
     batch = np.ndim(delays) > 1
     shape = np.broadcast_shapes(designs.shape, np.shape(pilot_sinr), np.shape(environment.max_doppler_hz))
@@ -436,25 +443,81 @@ def _estimation_error(designs: DesignArrays, environment: Environment, req: Requ
     los_all = np.broadcast_to(environment.los_fraction, environment.shape if batch else ()).ravel()
     rules = req.rules
     mask = None if radio.phase_noise is None else (tuple(radio.phase_noise[0]), tuple(radio.phase_noise[1]))
-    weights, bounded = _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all,
-                                          environment.doppler_spectrum, rules, mask, comb_bound)
     order = np.argsort(inverse, kind="stable")
     bounds = np.searchsorted(inverse[order], np.arange(unique.shape[0] + 1))
     members = [order[bounds[row]:bounds[row + 1]] for row in range(unique.shape[0])]
+    tabled, account = np.zeros(unique.shape[0], dtype=bool), None
+    if tabulate and batch and not comb_bound:
+        tabled, account = _tabulated(unique, members, noise, out, flat_delays, flat_powers, doppler_hz, los_all,
+                                     environment.doppler_spectrum, rules, mask)
+    rows = np.flatnonzero(~tabled)
+    weights, bounded = _structure_weights(unique[rows], flat_delays, flat_powers, doppler_hz, los_all,
+                                          environment.doppler_spectrum, rules, mask, comb_bound)
     # the coupled LMMSE is worked out per noise level: every structure's levels at once, one batch per problem
-    estimation.prepare_direct([(weights[row], noise[m]) for row, m in enumerate(members)])
-    for row, m in enumerate(members):
-        out[m] = weights[row].mse(noise[m])
-    return out.reshape(shape), bounded[inverse].reshape(shape)
+    estimation.prepare_direct([(w, noise[members[row]]) for w, row in zip(weights, rows)])
+    for w, row in zip(weights, rows):
+        out[members[row]] = w.mse(noise[members[row]])
+    flags = np.zeros(unique.shape[0], dtype=bool)
+    flags[rows] = bounded
+    if account is not None:
+        account = error_table.Tabulated(account, tabled[inverse].reshape(shape)) if account.nodes else None
+    return out.reshape(shape), flags[inverse].reshape(shape), account
+
+
+#: Column of the site index in ``_estimation_error``'s table of structures.
+_SITE_COLUMN = 10
+
+
+def _tabulated(unique, members, noise, out, flat_delays, flat_powers, doppler_hz, los_all, spectrum, rules, mask):
+    """The structures (rows of ``unique``) whose error a table gives (``numerology.error_table``): (mask, report).
+
+    Rows that differ only in their site, whose sites share one channel (taps and line of sight), form a
+    group; a group with many distinct Dopplers gets a table over the Doppler, its nodes evaluated exactly
+    as structures of their own (the eigen form: every noise level in closed form). The errors go into
+    ``out``; a row is in the mask when all its elements were interpolated.
+    """
+    site = unique[:, _SITE_COLUMN].astype(np.int64)
+    channel, _ = distinct_rows(np.ascontiguousarray(np.concatenate(
+        [flat_delays * (flat_powers > 0), flat_powers, np.reshape(los_all, (-1, 1))], axis=1)))
+    key = unique.copy()
+    key[:, _SITE_COLUMN] = channel[site]
+    group, first = distinct_rows(np.ascontiguousarray(key))
+    done = np.zeros(unique.shape[0], dtype=bool)
+    report = error_table.TableReport(0, 0, 0, 0, 0.0)
+    for g, head in enumerate(first):
+        if SCOPES[int(unique[head, 0])] == "differential":
+            continue  # a closed form per site already
+        rows = np.flatnonzero(group == g)
+        if np.unique(doppler_hz[site[rows]]).size < error_table.MIN_POINTS:
+            continue
+        counts = np.array([members[r].size for r in rows])
+        elements = np.concatenate([members[r] for r in rows])
+
+        def weights_at(dopplers, head=head):
+            n, ref = len(dopplers), site[head]
+            template = np.repeat(unique[head:head + 1], n, axis=0)
+            template[:, _SITE_COLUMN] = np.arange(n)  # node i: the group's channel at its own Doppler
+            found, _ = _structure_weights(template, np.repeat(flat_delays[ref:ref + 1], n, axis=0),
+                                          np.repeat(flat_powers[ref:ref + 1], n, axis=0), np.array(dopplers),
+                                          np.full(n, los_all[ref]), spectrum, rules, mask, coupled="eigen")
+            return found
+
+        error, part = error_table.tabulate(np.repeat(doppler_hz[site[rows]], counts), noise[elements], weights_at)
+        out[elements] = error
+        row_given_up = np.add.reduceat(np.isnan(error), np.r_[0, np.cumsum(counts)[:-1]]) > 0
+        done[rows[~row_given_up]] = True
+        report = report.merged(part)
+    return done, report
 
 
 def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, spectrum, rules, phase_mask,
-                       comb_bound: bool = False) -> list:
+                       comb_bound: bool = False, coupled: str = "direct") -> list:
     """(estimation weights of each distinct structure (a row of ``unique``), from the cache or computed,
     True for each row whose weights are the comb bound).
 
     Rows that share everything but the symbol duration and the Doppler (a pattern, a numerology's band, a
-    channel, an oscillator) are computed together. ``comb_bound``: see :func:`estimation_error`.
+    channel, an oscillator) are computed together. ``comb_bound``: see :func:`estimation_error`; ``coupled``:
+    see ``estimation.spectral_weights`` ("eigen": weights that answer every noise level in closed form).
     """
     out = [None] * unique.shape[0]
     bound_rows = np.zeros(unique.shape[0], dtype=bool)
@@ -469,7 +532,7 @@ def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, sp
         oscillator = (linewidth, offset, phase_mask)
         bounded = comb_bound and rules.estimator == "lmmse" and _staggered(pattern, rules)
         cache_key = (pattern, spacing, int(used), symbol_s, channel, float(doppler_hz[site]), spectrum, oscillator,
-                     rules.estimator, rules.estimation_lookahead, rules.estimation_memory, bounded)
+                     rules.estimator, rules.estimation_lookahead, rules.estimation_memory, bounded, coupled)
         found = _WEIGHTS_CACHE.get(cache_key)
         if found is not None:
             out[row] = found
@@ -496,7 +559,7 @@ def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, sp
                 found = estimation.staggered_bound(plan, band, symbol_s, doppler, spectrum, los, oscillator)
             else:
                 found = estimation.spectral_weights(plan, band, symbol_s, doppler, spectrum, los, rules.estimator,
-                                                    oscillator)
+                                                    oscillator, coupled)
         if len(_WEIGHTS_CACHE) + len(found) > _WEIGHTS_CACHE_SIZE:
             _WEIGHTS_CACHE.clear()
         for (row, _, _, cache_key), weights in zip(rows, found):
@@ -638,7 +701,7 @@ def _alias_scale_for(designs: DesignArrays):
 
 def evaluate(designs: DesignArrays, environment: Environment, req: Requirements, *, estimation: bool = True,
              overrides: dict | None = None, given_error=None, error_floor: bool = False,
-             comb_bound: bool = False) -> Evaluation:
+             comb_bound: bool = False, tabulate: bool = False) -> Evaluation:
     """Evaluate designs against an environment and a requirement set.
 
     Parameters
@@ -671,6 +734,11 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
         The channel-estimation error (a fraction of the channel power) to use
         instead of computing it, broadcasting with the result (a picture that
         knows it from nearby points: ``numerology.plots``).
+    tabulate : bool
+        With an environment batch: groups of many sites sharing a profile
+        shape take the estimation error from a table of exact evaluations
+        (``numerology.error_table``; within its tolerance, not exact).
+        ``Evaluation.table`` then says which elements were interpolated.
 
     Returns
     -------
@@ -711,11 +779,11 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
     # the whole signal (ICI -> 1: an infinite term) leaves the pilots an SINR of 0, where the estimate knows
     # nothing (error 1, its limit); the floor keeps the estimators' arithmetic finite.
     pilot_sinr = np.maximum(1.0 / impairments, PILOT_SINR_FLOOR)
-    bounded = None
+    bounded = table = None
     if given_error is not None:
         mse = np.broadcast_to(np.asarray(given_error, dtype=float), shape)
     elif estimation:
-        mse, bounded = _estimation_error(designs, environment, req, pilot_sinr, comb_bound)
+        mse, bounded, table = _estimation_error(designs, environment, req, pilot_sinr, comb_bound, tabulate)
         mse, bounded = np.broadcast_to(mse, shape), np.broadcast_to(bounded, shape) if comb_bound else None
     else:
         mse = np.zeros(shape) if not error_floor else estimation_floor(designs, environment, req, shape)
@@ -739,7 +807,8 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
                       rate_bps=np.broadcast_to(ns["rate"], shape), overhead=np.broadcast_to(ns["overhead"], shape),
                       rules=applicable, capacity=capacity, demand=demand, margin=margin, normalised=normalised,
                       slot_s=np.broadcast_to(ns["T_slot"], shape), step_margin_db=step_margin_db(req, sinr_eff),
-                      goal_margin_db=_shaped(goal_margin_db(req, sinr_eff, ns), shape), bounded=bounded)
+                      goal_margin_db=_shaped(goal_margin_db(req, sinr_eff, ns), shape), bounded=bounded,
+                      table=table)
 
 
 def _read_only(values, shape):

@@ -533,6 +533,12 @@ def sweep(con: Console, design, result, out) -> None:
         con.print("Rules failing most: " + ", ".join(f"{k} at {v} site{'s' if v != 1 else ''}" for k, v in summary.failures.items()))
     if summary.worst_site is not None:
         con.print(f"Worst site: {plain(summary.worst_site)} (line {summary.worst_line}), binding {summary.worst_rule}")
+    table_report = result.estimation_table
+    if table_report is not None:
+        con.print(f"Estimation error of {_count(table_report.interpolated, 'site')} interpolated over the Doppler from "
+                  f"{_count(table_report.nodes, 'exact evaluation')} (checked within {table_report.tolerance_db:g} dB); "
+                  f"{table_report.exact} exact, {table_report.settled} of them because their verdict or rate was "
+                  f"within {table_report.guard_db:g} dB", style="dim")
     if out is not None:
         con.print(f"Per-site results written to {out} (columns, units and rows not evaluated in {out}.json)")
     con.print(Text(CAUTION, style="dim"))

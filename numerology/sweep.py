@@ -45,13 +45,13 @@ import itertools
 import math
 import operator
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, fields, replace
 from functools import lru_cache
 from pathlib import Path
 
 import numpy as np
 
-from . import budget, delay, doppler, link, profiles
+from . import budget, delay, doppler, error_table, link, profiles
 from .design import Design, DesignArrays
 from .environment import WIDEBAND_FRACTION, EnvironmentBatch, derive_environment, line_of_sight_rows
 from .errors import InputError, read_text
@@ -846,6 +846,8 @@ class SweepResult:
     net_throughput_bps: np.ndarray
     effective_sinr_db: np.ndarray
     requirements_path: str = field(default="<memory>")
+    #: Where the estimation error of sites sharing a channel came from a table (``numerology.error_table``)
+    estimation_table: "error_table.TableReport | None" = None
 
     @property
     def binding_rule(self) -> np.ndarray:
@@ -915,6 +917,7 @@ class SweepResult:
             "summary": self.summary().to_json(),
             "problems": [{"line": line, "message": message} for line, message in self.sites.problems],
             "notes": list(self.sites.notes),
+            "estimation_table": None if self.estimation_table is None else self.estimation_table.to_json(),
         }
 
 
@@ -962,7 +965,14 @@ def sweep(req: Requirements, design: Design, sites: Sites) -> SweepResult:
         return SweepResult(design, sites, environment, rules, {r.name: empty for r in rules},
                            {r.name: empty for r in rules}, np.zeros(0, dtype=bool), np.zeros(0, dtype=np.int64),
                            empty, empty, req.path)
-    evaluation = link.evaluate(DesignArrays.from_designs([design]), environment, site_requirements(req, sites))
+    designs = DesignArrays.from_designs([design])
+    evaluation = link.evaluate(designs, environment, site_requirements(req, sites), tabulate=True)
+    table = evaluation.table
+    report = None if table is None else table.report
+    if table is not None and table.interpolated.any():
+        evaluation, settled = _settled(designs, environment, req, sites, evaluation)
+        report = replace(report, interpolated=report.interpolated - settled, exact=report.exact + settled,
+                         settled=settled)
 
     def per_site(x):
         return np.broadcast_to(np.asarray(x, dtype=float), (n,)).copy()
@@ -974,7 +984,47 @@ def sweep(req: Requirements, design: Design, sites: Sites) -> SweepResult:
         passed=np.broadcast_to(evaluation.passed, (n,)).copy(),
         binding=np.broadcast_to(evaluation.binding, (n,)).astype(np.int64),
         net_throughput_bps=per_site(evaluation.rate_bps), effective_sinr_db=per_site(evaluation.sinr_eff_db),
-        requirements_path=req.path)
+        requirements_path=req.path, estimation_table=report)
+
+
+def _error_of(evaluation, n: int) -> np.ndarray:
+    """The estimation error (fraction of the channel power) behind an evaluation's estimation term, per site."""
+    term = np.broadcast_to(evaluation.terms["estimation"], (n,))
+    with np.errstate(invalid="ignore"):
+        return np.where(np.isfinite(term), term / (1.0 + term), 1.0)
+
+
+def _settled(designs, environment, req, sites, evaluation):
+    """(The evaluation again, with the exact estimation error wherever the table's could change a verdict,
+    the number of sites so re-evaluated).
+
+    The interpolated errors are trusted to ``error_table.GUARD_DB`` (a multiple of the table's tolerance).
+    Every interpolated site whose verdict, binding rule or rate differs between its error lowered and
+    raised by that much is evaluated exactly; then all sites once more with the errors so settled (the
+    pass/fail, binding rules and rates are then those of the exact errors, the SINRs within the guard).
+    """
+    n = sites.size
+    site_req = site_requirements(req, sites)
+    error = _error_of(evaluation, n).copy()
+    factor = 10 ** (error_table.GUARD_DB / 10)
+    low = link.evaluate(designs, environment, site_req, given_error=np.clip(error / factor, 0.0, 1.0))
+    high = link.evaluate(designs, environment, site_req, given_error=np.clip(error * factor, 0.0, 1.0))
+    doubtful = np.broadcast_to(evaluation.table.interpolated, (n,)) & (
+        (np.broadcast_to(low.passed, (n,)) != np.broadcast_to(high.passed, (n,)))
+        | (np.broadcast_to(low.binding, (n,)) != np.broadcast_to(high.binding, (n,)))
+        | (np.broadcast_to(low.rate_bps, (n,)) != np.broadcast_to(high.rate_bps, (n,))))
+    index = np.flatnonzero(doubtful)
+    if index.size:
+        exact = link.evaluate(designs, environment.take(index), site_requirements(req, _take_sites(sites, index)))
+        error[index] = _error_of(exact, index.size)
+    return link.evaluate(designs, environment, site_req, given_error=error), int(index.size)
+
+
+def _take_sites(sites: Sites, index) -> Sites:
+    """The sites at ``index`` (every per-site array indexed)."""
+    n = sites.size
+    return replace(sites, **{f.name: getattr(sites, f.name)[index] for f in fields(sites)
+                             if isinstance(getattr(sites, f.name), np.ndarray) and getattr(sites, f.name).shape[:1] == (n,)})
 
 
 def site_requirements(req: Requirements, sites: Sites) -> Requirements:
@@ -1072,6 +1122,7 @@ def sweep_csv_metadata(result: SweepResult, csv_name: str, sites_file: str | Non
         "summary": result.summary().to_json(),
         "problems": [{"line": line, "message": message} for line, message in result.sites.problems],
         "notes": list(result.sites.notes),
+        "estimation_table": None if result.estimation_table is None else result.estimation_table.to_json(),
     }
 
 

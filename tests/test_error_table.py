@@ -1,0 +1,87 @@
+"""The sweep's table of estimation errors over the Doppler (numerology.error_table).
+
+These tests compare the table with the project's own exact evaluation (no outside source is involved):
+the table may only change a site's SINR within its guard, never its verdict, binding rule or rate.
+"""
+
+import json
+
+import numpy as np
+import pytest
+
+from numerology import api, error_table, sweep
+from numerology.render_json import document
+from numerology.estimation import SpectralWeights
+
+EXAMPLES = "requirements_examples"
+
+
+@pytest.fixture(scope="module")
+def corridor():
+    """The rail example's best design at 400 invented sites of one channel: unrounded speeds and SNRs."""
+    req = api.load(f"{EXAMPLES}/rail_corridor.toml")
+    design = api.solve(req, explain=False, with_limits=False, top=1).designs[0].check.design
+    rng = np.random.default_rng(5)
+    sites = sweep.sites_from_values(req, max_speed_mps=rng.uniform(0, 3 * req.environment.max_speed_mps, 400),
+                                    snr_db=rng.uniform(5, 30, 400))
+    return req, design, sites
+
+
+def test_table_keeps_every_verdict_binding_rule_and_rate(corridor, monkeypatch):
+    req, design, sites = corridor
+    tabled = sweep.sweep(req, design, sites)
+    report = tabled.estimation_table
+    assert report is not None and report.interpolated > 300 and report.nodes < 40
+    assert report.max_deviation_db <= error_table.TOLERANCE_DB
+    monkeypatch.setattr(error_table, "MIN_POINTS", 10 ** 9)  # every site exact
+    exact = sweep.sweep(req, design, sites)
+    assert exact.estimation_table is None
+    np.testing.assert_array_equal(tabled.passed, exact.passed)
+    np.testing.assert_array_equal(tabled.binding, exact.binding)
+    np.testing.assert_array_equal(tabled.net_throughput_bps, exact.net_throughput_bps)
+    # the SINR moves at most as much as the error's guard (the error is one of its terms)
+    assert np.max(np.abs(tabled.effective_sinr_db - exact.effective_sinr_db)) <= error_table.GUARD_DB
+
+
+def test_sites_of_different_channels_are_not_interpolated_across():
+    req = api.load(f"{EXAMPLES}/rail_corridor.toml")
+    design = api.solve(req, explain=False, with_limits=False, top=1).designs[0].check.design
+    n = 60
+    sites = sweep.sites_from_values(req, max_speed_mps=np.linspace(10, 80, n),
+                                    rms_delay_spread_s=np.linspace(100e-9, 300e-9, n))  # a channel per site
+    assert sweep.sweep(req, design, sites).estimation_table is None
+
+
+def _weights(f_d, law):
+    """Eigen-form weights of one mode whose error at s2 is law(f_d) + s2 / (1 + s2) times (1 - law)."""
+    lam = np.array([1.0])
+    return SpectralWeights("lmmse", lam, np.array([1.0 - law(f_d)]), 1.0)
+
+
+def test_smooth_error_is_interpolated_within_the_tolerance():
+    law = lambda f: 0.01 + 1e-6 * f ** 2  # noqa: E731  (smooth in the Doppler)
+    rng = np.random.default_rng(0)
+    f_d, s2 = rng.uniform(0, 300, 5000), 10 ** rng.uniform(-3, -1, 5000)
+    error, report = error_table.tabulate(f_d, s2, lambda ds: [_weights(d, law) for d in ds])
+    exact = np.array([_weights(f, law).mse(np.array([s]))[0] for f, s in zip(f_d, s2)])
+    assert not np.isnan(error).any() and report.nodes < 50
+    assert np.max(np.abs(10 * np.log10(error / exact))) <= 2 * error_table.TOLERANCE_DB
+
+
+def test_a_jump_is_left_to_the_exact_evaluation():
+    law = lambda f: 0.01 if f < 123.4 else 0.2  # noqa: E731  (no interpolation can follow a step)
+    f_d = np.linspace(0, 300, 2000)
+    error, report = error_table.tabulate(f_d, np.full(f_d.size, 1e-2), lambda ds: [_weights(d, law) for d in ds])
+    given_up = np.isnan(error)
+    assert given_up.any() and report.exact == np.count_nonzero(given_up)
+    assert np.all(np.abs(f_d[given_up] - 123.4) < 300 / 2 ** error_table.MAX_DEPTH)  # only around the step
+    exact = np.where(f_d < 123.4, 0.01, 0.2) + 1e-2 / (1 + 1e-2) * np.where(f_d < 123.4, 0.99, 0.8)
+    np.testing.assert_allclose(error[~given_up], exact[~given_up], rtol=1e-9)
+
+
+def test_sweep_json_says_how_the_error_was_obtained(corridor):
+    req, design, sites = corridor
+    doc = json.loads(document("numerology.sweep", sweep.sweep(req, design, sites).to_json()))
+    assert doc["schema_version"] == "2.1"
+    table = doc["estimation_table"]
+    assert table["interpolated"] + table["exact"] == sites.size and table["tolerance_db"] == error_table.TOLERANCE_DB
