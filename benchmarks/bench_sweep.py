@@ -9,7 +9,13 @@ temporary folder, then times on one core
     (as a command starts; the weights cache would otherwise make every run after the first warm),
 
 and prints both with their ratio and the target (10^5 sites under 2 s), with
-``load_sites`` and ``site_environments`` alone as ratios to (a).
+``load_sites`` and ``site_environments`` alone as ratios to (a); then
+
+(c) ``sweep`` at as many sites of *one* channel (the example's profile),
+    with unrounded speeds and SNRs (a corridor's speed profile): the
+    estimation error comes from a table over the Doppler
+    (``numerology.error_table``), against the same sweep evaluated exactly
+    (at a tenth of the sites, scaled: the exact sweep is linear in the sites).
 
 Run: python benchmarks/bench_sweep.py [rows]
 """
@@ -87,6 +93,26 @@ def main():
     print(f"(b) load_sites + sweep:  {total_s:8.3f} s   (target: {TARGET_ROWS:,} sites under {TARGET_S:g} s"
           f"{'' if rows == TARGET_ROWS else f'; {TARGET_S * rows / TARGET_ROWS:.3g} s at this size'})")
     print(f"ratio (b)/(a): {total_s / parse_s:.1f}; ratio (b)/target: {total_s / (TARGET_S * rows / TARGET_ROWS):.2f}")
+    corridor(req, design, rows)
+
+
+def corridor(req, design, rows: int) -> None:
+    """(c): one channel, unrounded speeds and SNRs; the table against the exact sweep."""
+    from numerology import error_table
+
+    rng = np.random.default_rng(3)
+    sites = sweep.sites_from_values(req, max_speed_mps=rng.uniform(0, 60 / 3.6, rows), snr_db=rng.uniform(12, 30, rows))
+    tabled_s = best_of(cold(lambda: sweep.sweep(req, design, sites)), 3)
+    report = sweep.sweep(req, design, sites).estimation_table
+    tenth = sweep.sites_from_values(req, max_speed_mps=sites.speed_mps[: rows // 10], snr_db=sites.snr_db[: rows // 10])
+    saved, error_table.MIN_POINTS = error_table.MIN_POINTS, 10 ** 12
+    try:
+        exact_s = 10 * best_of(cold(lambda: sweep.sweep(req, design, tenth)), 1)
+    finally:
+        error_table.MIN_POINTS = saved
+    print(f"(c) one channel, {rows:,} unrounded speeds: {tabled_s:8.3f} s with the table ({report.nodes} nodes, "
+          f"{report.settled} sites settled exactly); exact about {exact_s:.1f} s; ratio exact/table "
+          f"{exact_s / tabled_s:.0f}; ratio (c)/target: {tabled_s / (TARGET_S * rows / TARGET_ROWS):.2f}")
 
 
 if __name__ == "__main__":
