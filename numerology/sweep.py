@@ -921,7 +921,7 @@ class SweepResult:
         }
 
 
-def sweep(req: Requirements, design: Design, sites: Sites) -> SweepResult:
+def sweep(req: Requirements, design: Design, sites: Sites, tabulate: bool = True) -> SweepResult:
     """Evaluate one design at every site.
 
     Parameters
@@ -931,6 +931,10 @@ def sweep(req: Requirements, design: Design, sites: Sites) -> SweepResult:
     design : Design
     sites : Sites
         From :func:`load_sites` or :func:`sites_from_values`.
+    tabulate : bool
+        Sites sharing a channel may take their estimation error from a table over the Doppler
+        (``numerology.error_table``: verdicts, binding rules and rates as the exact error gives them, SINRs
+        within ``error_table.GUARD_DB``). False: every site exact (the stretch limits' bisection).
 
     Returns
     -------
@@ -966,7 +970,7 @@ def sweep(req: Requirements, design: Design, sites: Sites) -> SweepResult:
                            {r.name: empty for r in rules}, np.zeros(0, dtype=bool), np.zeros(0, dtype=np.int64),
                            empty, empty, req.path)
     designs = DesignArrays.from_designs([design])
-    evaluation = link.evaluate(designs, environment, site_requirements(req, sites), tabulate=True)
+    evaluation = link.evaluate(designs, environment, site_requirements(req, sites), tabulate=tabulate)
     table = evaluation.table
     report = None if table is None else table.report
     if table is not None and table.interpolated.any():
