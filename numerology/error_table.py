@@ -31,7 +31,8 @@ smooth function, linear interpolation errs most midway between the nodes
 (common practice: the error term of linear interpolation), so the midpoint
 check estimates the error of the interval. It is an estimate, not a proof;
 :func:`numerology.sweep.sweep` therefore evaluates exactly every site whose
-verdict, binding rule or rate could change within the tolerance.
+verdict, binding rule or rate could change within a guard of several times
+its interval's check.
 
 Sites whose channels differ are not interpolated across: the error is not a
 smooth function of the delays. A profile stretched by a few per cent moves
@@ -52,10 +53,11 @@ import numpy as np
 
 
 #: An interval is accepted when the interpolated error at its midpoint is within this many dB of the exact error.
-TOLERANCE_DB = 0.02
-#: The interpolated errors are trusted to this many dB (five times the tolerance: the midpoint check estimates
-#: the interval's error, it does not bound it; the largest error seen was 1.8 times the check, DEVELOPERS.md).
-GUARD_DB = 0.1
+TOLERANCE_DB = 0.01
+#: An interval's interpolated errors are trusted to GUARD_FACTOR times its midpoint check, and never closer than
+#: MIN_GUARD_DB (the check estimates the interval's error, it does not bound it; the largest error seen was 1.8
+#: times its check, DEVELOPERS.md).
+GUARD_FACTOR, MIN_GUARD_DB = 5.0, 0.01
 #: Channels with fewer distinct Dopplers than this are evaluated site by site.
 MIN_POINTS = 32
 #: The most halvings of the Doppler range.
@@ -75,7 +77,7 @@ class TableReport:
     max_deviation_db: float  # largest midpoint check of an accepted interval
     tolerance_db: float = TOLERANCE_DB
     settled: int = 0  # interpolated elements evaluated exactly after all, their verdict or rate in doubt
-    guard_db: float = GUARD_DB
+    guard_db: float = 0.0  # the widest guard of an interval (GUARD_FACTOR times its check, at least MIN_GUARD_DB)
 
 
     def to_json(self) -> dict:
@@ -86,7 +88,7 @@ class TableReport:
     def merged(self, other: "TableReport") -> "TableReport":
         return TableReport(self.interpolated + other.interpolated, self.exact + other.exact, self.nodes + other.nodes,
                            self.intervals + other.intervals, max(self.max_deviation_db, other.max_deviation_db),
-                           self.tolerance_db, self.settled + other.settled)
+                           self.tolerance_db, self.settled + other.settled, max(self.guard_db, other.guard_db))
 
 
 @dataclass(frozen=True)
@@ -95,6 +97,7 @@ class Tabulated:
 
     report: TableReport
     interpolated: np.ndarray  # bool, the evaluation's shape
+    guard_db: np.ndarray  # how far each interpolated error is trusted (dB); NaN where exact
 
 
 def _mse_at(weights, s2):
@@ -124,9 +127,12 @@ def tabulate(f_d, s2, weights_at):
     -------
     error : (p,) array
         Interpolated error; NaN where the table gave up.
+    guard : (p,) array
+        How far each interpolated error is trusted, in dB (GUARD_FACTOR times its interval's midpoint check,
+        at least MIN_GUARD_DB); NaN where the table gave up.
     report : TableReport
     """
-    error = np.full(f_d.size, np.nan)
+    error, guard = np.full(f_d.size, np.nan), np.full(f_d.size, np.nan)
     nodes: dict = {}
     intervals = [(float(f_d.min()), float(f_d.max()), np.arange(f_d.size))]
     accepted, worst = 0, 0.0
@@ -147,10 +153,12 @@ def tabulate(f_d, s2, weights_at):
                 a = (f_d[idx] - low) / (high - low) if high > low else np.zeros(idx.size)
                 error[idx] = np.exp((1 - a) * _log(_mse_at(nodes[low], s2[idx]))
                                     + a * _log(_mse_at(nodes[high], s2[idx])))
+                guard[idx] = max(GUARD_FACTOR * deviation, MIN_GUARD_DB)
                 accepted, worst = accepted + 1, max(worst, deviation)
                 continue
             upper = f_d[idx] >= middle
             halves += [(low, middle, idx[~upper]), (middle, high, idx[upper])]
         intervals = [h for h in halves if h[2].size]
     exact = int(np.count_nonzero(np.isnan(error)))
-    return error, TableReport(int(f_d.size - exact), exact, len(nodes), accepted, worst)
+    return error, guard, TableReport(int(f_d.size - exact), exact, len(nodes), accepted, worst,
+                                     guard_db=float(np.nanmax(guard)) if exact < f_d.size else 0.0)

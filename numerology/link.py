@@ -446,10 +446,10 @@ def _estimation_error(designs: DesignArrays, environment: Environment, req: Requ
     order = np.argsort(inverse, kind="stable")
     bounds = np.searchsorted(inverse[order], np.arange(unique.shape[0] + 1))
     members = [order[bounds[row]:bounds[row + 1]] for row in range(unique.shape[0])]
-    tabled, account = np.zeros(unique.shape[0], dtype=bool), None
+    tabled, account, guard = np.zeros(unique.shape[0], dtype=bool), None, np.full(noise.size, np.nan)
     if tabulate and batch and not comb_bound:
-        tabled, account = _tabulated(unique, members, noise, out, flat_delays, flat_powers, doppler_hz, los_all,
-                                     environment.doppler_spectrum, rules, mask)
+        tabled, account = _tabulated(unique, members, noise, out, guard, flat_delays, flat_powers, doppler_hz,
+                                     los_all, environment.doppler_spectrum, rules, mask)
     rows = np.flatnonzero(~tabled)
     weights, bounded = _structure_weights(unique[rows], flat_delays, flat_powers, doppler_hz, los_all,
                                           environment.doppler_spectrum, rules, mask, comb_bound)
@@ -460,7 +460,9 @@ def _estimation_error(designs: DesignArrays, environment: Environment, req: Requ
     flags = np.zeros(unique.shape[0], dtype=bool)
     flags[rows] = bounded
     if account is not None:
-        account = error_table.Tabulated(account, tabled[inverse].reshape(shape)) if account.nodes else None
+        interpolated = tabled[inverse]
+        account = error_table.Tabulated(account, interpolated.reshape(shape),
+                                        np.where(interpolated, guard, np.nan).reshape(shape)) if account.nodes else None
     return out.reshape(shape), flags[inverse].reshape(shape), account
 
 
@@ -468,13 +470,15 @@ def _estimation_error(designs: DesignArrays, environment: Environment, req: Requ
 _SITE_COLUMN = 10
 
 
-def _tabulated(unique, members, noise, out, flat_delays, flat_powers, doppler_hz, los_all, spectrum, rules, mask):
+def _tabulated(unique, members, noise, out, guard, flat_delays, flat_powers, doppler_hz, los_all, spectrum, rules,
+               mask):
     """The structures (rows of ``unique``) whose error a table gives (``numerology.error_table``): (mask, report).
 
     Rows that differ only in their site, whose sites share one channel (taps and line of sight), form a
     group; a group with many distinct Dopplers gets a table over the Doppler, its nodes evaluated exactly
     as structures of their own (the eigen form: every noise level in closed form). The errors go into
-    ``out``; a row is in the mask when all its elements were interpolated.
+    ``out`` and their guards (``error_table.tabulate``) into ``guard``; a row is in the mask when all its
+    elements were interpolated.
     """
     site = unique[:, _SITE_COLUMN].astype(np.int64)
     channel, _ = distinct_rows(np.ascontiguousarray(np.concatenate(
@@ -502,7 +506,8 @@ def _tabulated(unique, members, noise, out, flat_delays, flat_powers, doppler_hz
                                           np.full(n, los_all[ref]), spectrum, rules, mask, coupled="eigen")
             return found
 
-        error, part = error_table.tabulate(np.repeat(doppler_hz[site[rows]], counts), noise[elements], weights_at)
+        error, guard[elements], part = error_table.tabulate(np.repeat(doppler_hz[site[rows]], counts),
+                                                            noise[elements], weights_at)
         out[elements] = error
         row_given_up = np.add.reduceat(np.isnan(error), np.r_[0, np.cumsum(counts)[:-1]]) > 0
         done[rows[~row_given_up]] = True

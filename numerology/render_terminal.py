@@ -538,7 +538,7 @@ def sweep(con: Console, design, result, out) -> None:
         con.print(f"Estimation error of {_count(table_report.interpolated, 'site')} interpolated over the Doppler from "
                   f"{_count(table_report.nodes, 'exact evaluation')} (checked within {table_report.tolerance_db:g} dB); "
                   f"{table_report.exact} exact, {table_report.settled} of them because their verdict or rate was "
-                  f"within {table_report.guard_db:g} dB", style="dim")
+                  f"within the table's guard (at most {table_report.guard_db:.2g} dB)", style="dim")
     if out is not None:
         con.print(f"Per-site results written to {out} (columns, units and rows not evaluated in {out}.json)")
     con.print(Text(CAUTION, style="dim"))

@@ -934,7 +934,7 @@ def sweep(req: Requirements, design: Design, sites: Sites, tabulate: bool = True
     tabulate : bool
         Sites sharing a channel may take their estimation error from a table over the Doppler
         (``numerology.error_table``: verdicts, binding rules and rates as the exact error gives them, SINRs
-        within ``error_table.GUARD_DB``). False: every site exact (the stretch limits' bisection).
+        within the table's guard). False: every site exact (the stretch limits' bisection).
 
     Returns
     -------
@@ -1002,15 +1002,16 @@ def _settled(designs, environment, req, sites, evaluation):
     """(The evaluation again, with the exact estimation error wherever the table's could change a verdict,
     the number of sites so re-evaluated).
 
-    The interpolated errors are trusted to ``error_table.GUARD_DB`` (a multiple of the table's tolerance).
-    Every interpolated site whose verdict, binding rule or rate differs between its error lowered and
-    raised by that much is evaluated exactly; then all sites once more with the errors so settled (the
-    pass/fail, binding rules and rates are then those of the exact errors, the SINRs within the guard).
+    Each interpolated error is trusted to its guard (``error_table.tabulate``: several times its interval's
+    midpoint check). Every interpolated site whose verdict, binding rule or rate differs between its error
+    lowered and raised by its guard is evaluated exactly; then all sites once more with the errors so settled
+    (the pass/fail, binding rules and rates are then those of the exact errors, the SINRs within the guard).
     """
     n = sites.size
     site_req = site_requirements(req, sites)
     error = _error_of(evaluation, n).copy()
-    factor = 10 ** (error_table.GUARD_DB / 10)
+    guard = np.broadcast_to(evaluation.table.guard_db, (n,))
+    factor = 10 ** (np.where(np.isnan(guard), 0.0, guard) / 10)
     low = link.evaluate(designs, environment, site_req, given_error=np.clip(error / factor, 0.0, 1.0))
     high = link.evaluate(designs, environment, site_req, given_error=np.clip(error * factor, 0.0, 1.0))
     doubtful = np.broadcast_to(evaluation.table.interpolated, (n,)) & (

@@ -40,7 +40,7 @@ def test_table_keeps_every_verdict_binding_rule_and_rate(corridor, monkeypatch):
     np.testing.assert_array_equal(tabled.binding, exact.binding)
     np.testing.assert_array_equal(tabled.net_throughput_bps, exact.net_throughput_bps)
     # the SINR moves at most as much as the error's guard (the error is one of its terms)
-    assert np.max(np.abs(tabled.effective_sinr_db - exact.effective_sinr_db)) <= error_table.GUARD_DB
+    assert np.max(np.abs(tabled.effective_sinr_db - exact.effective_sinr_db)) <= report.guard_db
 
 
 def test_sites_of_different_channels_are_not_interpolated_across():
@@ -62,17 +62,19 @@ def test_smooth_error_is_interpolated_within_the_tolerance():
     law = lambda f: 0.01 + 1e-6 * f ** 2  # noqa: E731  (smooth in the Doppler)
     rng = np.random.default_rng(0)
     f_d, s2 = rng.uniform(0, 300, 5000), 10 ** rng.uniform(-3, -1, 5000)
-    error, report = error_table.tabulate(f_d, s2, lambda ds: [_weights(d, law) for d in ds])
+    error, guard, report = error_table.tabulate(f_d, s2, lambda ds: [_weights(d, law) for d in ds])
     exact = np.array([_weights(f, law).mse(np.array([s]))[0] for f, s in zip(f_d, s2)])
     assert not np.isnan(error).any() and report.nodes < 50
-    assert np.max(np.abs(10 * np.log10(error / exact))) <= 2 * error_table.TOLERANCE_DB
+    assert np.all(np.abs(10 * np.log10(error / exact)) <= guard)  # each error within its own guard
 
 
 def test_a_jump_is_left_to_the_exact_evaluation():
     law = lambda f: 0.01 if f < 123.4 else 0.2  # noqa: E731  (no interpolation can follow a step)
     f_d = np.linspace(0, 300, 2000)
-    error, report = error_table.tabulate(f_d, np.full(f_d.size, 1e-2), lambda ds: [_weights(d, law) for d in ds])
+    error, guard, report = error_table.tabulate(f_d, np.full(f_d.size, 1e-2),
+                                                lambda ds: [_weights(d, law) for d in ds])
     given_up = np.isnan(error)
+    np.testing.assert_array_equal(np.isnan(guard), given_up)
     assert given_up.any() and report.exact == np.count_nonzero(given_up)
     assert np.all(np.abs(f_d[given_up] - 123.4) < 300 / 2 ** error_table.MAX_DEPTH)  # only around the step
     exact = np.where(f_d < 123.4, 0.01, 0.2) + 1e-2 / (1 + 1e-2) * np.where(f_d < 123.4, 0.99, 0.8)
@@ -85,3 +87,5 @@ def test_sweep_json_says_how_the_error_was_obtained(corridor):
     assert doc["schema_version"] == "2.1"
     table = doc["estimation_table"]
     assert table["interpolated"] + table["exact"] == sites.size and table["tolerance_db"] == error_table.TOLERANCE_DB
+    assert error_table.MIN_GUARD_DB <= table["guard_db"] <= error_table.GUARD_FACTOR * table["max_check_deviation_db"] + 1e-12 \
+        or table["guard_db"] == error_table.MIN_GUARD_DB
