@@ -24,8 +24,9 @@ SCHEMA_VERSION = "2.0"
 #: window says whether it is "empty" and gives "lower_bound_hz" and "upper_bound_hz" (the crossing values of an
 #: empty window); "diagnosis" {"cause", "statement", "bounds"}; each relaxation gives "toml_value", "current",
 #: "direction" and "also" (its value_si is null for a choice); "relaxation_pairs" where no single change does.
-#: numerology.sweep and numerology.sweep_csv 2.1 (key added): "estimation_table", how the estimation error of sites
-#: sharing a channel was tabulated over the Doppler (null when no table was used).
+#: numerology.sweep and numerology.sweep_csv 2.1 (keys added): "estimation_table", how the estimation error of sites
+#: sharing a channel was tabulated over the Doppler (null when no table was used); each sweep site's
+#: "estimation_interpolated".
 SCHEMA_VERSIONS: dict = {"numerology.solve": "2.1", "numerology.plan": "1.0", "numerology.sweep": "2.1",
                          "numerology.sweep_csv": "2.1"}
 

@@ -848,6 +848,8 @@ class SweepResult:
     requirements_path: str = field(default="<memory>")
     #: Where the estimation error of sites sharing a channel came from a table (``numerology.error_table``)
     estimation_table: "error_table.TableReport | None" = None
+    #: True for each site whose estimation error was interpolated (its SINR within the table's guard)
+    interpolated: np.ndarray | None = None
 
     @property
     def binding_rule(self) -> np.ndarray:
@@ -891,6 +893,7 @@ class SweepResult:
         }
         margin_lists = {key: values.tolist() for key, values in margins.items()}
         note_lists = [[] for _ in range(self.sites.size)]
+        interpolated = np.zeros(self.sites.size, dtype=bool) if self.interpolated is None else self.interpolated
         for text, mask in env.notes:
             for i in np.flatnonzero(mask):
                 note_lists[i].append(text)
@@ -906,6 +909,7 @@ class SweepResult:
                 "coherence_time_s": _finite(columns["coherence_time_s"][i]),
                 "coherence_bandwidth_hz": _finite(columns["coherence_bandwidth_hz"][i]),
                 "notes": note_lists[i],
+                "estimation_interpolated": bool(interpolated[i]),
             })
         return {
             "design": self.design.to_json(),
@@ -973,8 +977,10 @@ def sweep(req: Requirements, design: Design, sites: Sites, tabulate: bool = True
     evaluation = link.evaluate(designs, environment, site_requirements(req, sites), tabulate=tabulate)
     table = evaluation.table
     report = None if table is None else table.report
+    interpolated = np.zeros(n, dtype=bool)
     if table is not None and table.interpolated.any():
-        evaluation, settled = _settled(designs, environment, req, sites, evaluation)
+        evaluation, interpolated = _settled(designs, environment, req, sites, evaluation)
+        settled = report.interpolated - int(np.count_nonzero(interpolated))
         report = replace(report, interpolated=report.interpolated - settled, exact=report.exact + settled,
                          settled=settled)
 
@@ -988,7 +994,7 @@ def sweep(req: Requirements, design: Design, sites: Sites, tabulate: bool = True
         passed=np.broadcast_to(evaluation.passed, (n,)).copy(),
         binding=np.broadcast_to(evaluation.binding, (n,)).astype(np.int64),
         net_throughput_bps=per_site(evaluation.rate_bps), effective_sinr_db=per_site(evaluation.sinr_eff_db),
-        requirements_path=req.path, estimation_table=report)
+        requirements_path=req.path, estimation_table=report, interpolated=interpolated)
 
 
 def _error_of(evaluation, n: int) -> np.ndarray:
@@ -1000,7 +1006,7 @@ def _error_of(evaluation, n: int) -> np.ndarray:
 
 def _settled(designs, environment, req, sites, evaluation):
     """(The evaluation again, with the exact estimation error wherever the table's could change a verdict,
-    the number of sites so re-evaluated).
+    True for each site whose error stays interpolated).
 
     Each interpolated error is trusted to its guard (``error_table.tabulate``: several times its interval's
     midpoint check). Every interpolated site whose verdict, binding rule or rate differs between its error
@@ -1014,7 +1020,8 @@ def _settled(designs, environment, req, sites, evaluation):
     factor = 10 ** (np.where(np.isnan(guard), 0.0, guard) / 10)
     low = link.evaluate(designs, environment, site_req, given_error=np.clip(error / factor, 0.0, 1.0))
     high = link.evaluate(designs, environment, site_req, given_error=np.clip(error * factor, 0.0, 1.0))
-    doubtful = np.broadcast_to(evaluation.table.interpolated, (n,)) & (
+    interpolated = np.broadcast_to(evaluation.table.interpolated, (n,))
+    doubtful = interpolated & (
         (np.broadcast_to(low.passed, (n,)) != np.broadcast_to(high.passed, (n,)))
         | (np.broadcast_to(low.binding, (n,)) != np.broadcast_to(high.binding, (n,)))
         | (np.broadcast_to(low.rate_bps, (n,)) != np.broadcast_to(high.rate_bps, (n,))))
@@ -1022,7 +1029,7 @@ def _settled(designs, environment, req, sites, evaluation):
     if index.size:
         exact = link.evaluate(designs, environment.take(index), site_requirements(req, _take_sites(sites, index)))
         error[index] = _error_of(exact, index.size)
-    return link.evaluate(designs, environment, site_req, given_error=error), int(index.size)
+    return link.evaluate(designs, environment, site_req, given_error=error), interpolated & ~doubtful
 
 
 def _take_sites(sites: Sites, index) -> Sites:

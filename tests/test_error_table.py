@@ -87,5 +87,6 @@ def test_sweep_json_says_how_the_error_was_obtained(corridor):
     assert doc["schema_version"] == "2.1"
     table = doc["estimation_table"]
     assert table["interpolated"] + table["exact"] == sites.size and table["tolerance_db"] == error_table.TOLERANCE_DB
+    assert sum(site["estimation_interpolated"] for site in doc["sites"]) == table["interpolated"]
     assert error_table.MIN_GUARD_DB <= table["guard_db"] <= error_table.GUARD_FACTOR * table["max_check_deviation_db"] + 1e-12 \
         or table["guard_db"] == error_table.MIN_GUARD_DB
