@@ -355,7 +355,10 @@ class Band:
     def __init__(self, delays_s, powers, los_fraction, spacing_hz, used):
         self.spacing_hz, self.used = float(spacing_hz), int(used)
         self.components, self.dropped = components(delays_s, powers, los_fraction, spacing_hz, used)
+        self.kinds = np.unique(self.components.kind)  # the component kinds present, ascending
         self._gram, self._root, self._eigen, self._clusters = {}, {}, {}, {}
+        #: explained energies of coupled targets, per setting, target and design (:func:`_coupled_explained`)
+        self.explained: dict = {}
 
     def comb_gram(self, step, offset):
         """Gram matrix of the components over the comb (step, offset); offset -1: the whole band."""
@@ -447,6 +450,24 @@ class Band:
             value, vector = hermitian_eigen(sub)
             self._root[key] = ((vector * np.sqrt(np.clip(value, 0.0, None))[..., None, :])
                                @ np.conj(np.swapaxes(vector, -1, -2)))
+        return self._root[key]
+
+    def cluster_products(self, step, offsets, members):
+        """The blocks of the coupled matrix per component kind: (Q, k, u, c, u, c), Q the kinds present.
+
+        With ``H_i`` the cluster roots of :meth:`cluster_roots` and ``E_q`` the diagonal selecting the
+        components of kind q (``kinds``, ascending), entry ``[q, :, i, :, j, :]`` is ``H_i E_q H_j``.
+        The components of one kind share one time correlation, so block (i, j) of the coupled matrix
+        ``H_i diag(rho_ij) H_j`` of :func:`_coupled_parts` is ``sum_q rho_ij,q H_i E_q H_j``: the
+        products are the band's, a design only weights them (no c x c products per design).
+        """
+        key = ("products", step, tuple(offsets), members.shape, members.tobytes())
+        if key not in self._root:
+            halves = self.cluster_roots(step, offsets, members)  # (u, k, c, c)
+            kind = self.components.kind[members]  # (k, c)
+            self._root[key] = np.stack([
+                ((halves[:, None] * (kind == q)[:, None, :]) @ halves[None, :]).transpose(2, 0, 3, 1, 4)
+                for q in self.kinds])
         return self._root[key]
 
     def los_frame(self, step, offset, data_offsets):
@@ -682,6 +703,8 @@ def _coupled_parts(schedule, band, symbol_s, doppler, spectrum, los_fraction, os
 def _eigen_terms(m, x, g_sub):
     """Eigenvalues lambda_j and weights beta_j of :func:`_coupled_parts`' pieces: both (n, T, k, uc).
 
+    ``g_sub`` (k, c, c), or (T, k, c, c): a data Gram matrix per target.
+
     With ``m = W diag(lambda) W^H`` and ``b = W^H x``, ``beta_j = (b g_sub b^H)_jj``: the explained
     energy at noise s2 is ``sum_j beta_j / (lambda_j + s2)`` (positive beta_j only).
     """
@@ -691,13 +714,14 @@ def _eigen_terms(m, x, g_sub):
     return np.broadcast_to(lam[:, None], beta.shape), beta
 
 
-def _eigen_explained(m, x, g_sub, s2):
-    """The explained energy of pieces (p, ...) at noise levels s2 (p,) through :func:`_eigen_terms`: (p,)."""
-    lam, beta = _eigen_terms(m, x, g_sub)
+def _eigen_explained(m, x, g, s2):
+    """The explained energy of each target of pieces (p, ...) at noise levels s2 (p,) through
+    :func:`_eigen_terms` (``g`` (T, k, c, c): each target's data Gram matrix): (p, T)."""
+    lam, beta = _eigen_terms(m, x, g)
     flat = s2.reshape((-1,) + (1,) * (beta.ndim - 1))
     with np.errstate(divide="ignore", invalid="ignore"):
         terms = np.where(beta > 0, beta / (lam + flat), 0.0)
-    return terms.reshape(terms.shape[0], -1).sum(axis=1)
+    return terms.reshape(terms.shape[:2] + (-1,)).sum(axis=2)
 
 
 #: Noise levels at most this small relative to the largest diagonal entry of a piece's matrix go to the
@@ -705,51 +729,147 @@ def _eigen_explained(m, x, g_sub, s2):
 DIRECT_MIN_NOISE = 1e-10
 #: From this size on (u c rows) the factor's triangular solves; below it one stacked LU solve.
 DIRECT_TRIANGULAR = 64
-def _direct_explained(m, x, g_sub, s2):
-    """The explained energy ``sum_T tr(x^H (m + s2 I)^-1 x g_sub)`` of pieces (p, ...) at noise s2 (p,): (p,).
+def _direct_explained(m, x, g, s2):
+    """The explained energy ``tr(x_T^H (m + s2 I)^-1 x_T g_T)`` of each target T of pieces (p, ...): (p, T).
 
-    Cholesky ``m + s2 I = L L^H`` and ``y = L^-1 x`` give ``tr(y g_sub y^H)``. Pairs whose noise is tiny
-    against the matrix's scale (:data:`DIRECT_MIN_NOISE`), a failed factorisation or a result that is
-    not finite: the eigendecomposition (:func:`_eigen_explained`), for those pieces alone, so that a
-    piece's value never depends on the others asked with it (the same input gives the same JSON).
+    ``m`` (p, k, uc, uc), ``x`` (p, T, k, uc, c), ``g`` (T, k, c, c), ``s2`` (p,). Cholesky
+    ``m + s2 I = L L^H`` and ``y = L^-1 x`` give ``tr(y g y^H)``, one factorisation for every target
+    of the piece. Pairs whose noise is tiny against the matrix's scale (:data:`DIRECT_MIN_NOISE`), a
+    failed factorisation or a result that is not finite: the eigendecomposition
+    (:func:`_eigen_explained`), for those pieces alone, so that a piece's value never depends on the
+    others asked with it (the same input gives the same JSON).
     """
     if s2.size > 1:
         try:
-            return _direct_batch(m, x, g_sub, s2)
+            return _direct_batch(m, x, g, s2)
         except np.linalg.LinAlgError:  # some piece failed: each on its own
-            return np.concatenate([_direct_explained(m[i:i + 1], x[i:i + 1], g_sub, s2[i:i + 1])
+            return np.concatenate([_direct_explained(m[i:i + 1], x[i:i + 1], g, s2[i:i + 1])
                                    for i in range(s2.size)])
     try:
-        return _direct_batch(m, x, g_sub, s2)
+        return _direct_batch(m, x, g, s2)
     except np.linalg.LinAlgError:
-        return _eigen_explained(m, x, g_sub, s2)
+        return _eigen_explained(m, x, g, s2)
 
 
-def _direct_batch(m, x, g_sub, s2):
+def _direct_batch(m, x, g, s2):
     """:func:`_direct_explained` for a batch; raises LinAlgError if any piece's factorisation fails."""
     import scipy.linalg
 
     scale = np.max(np.diagonal(m, axis1=-2, axis2=-1).real, axis=-1)  # (p, k)
     direct = np.all(s2[:, None] > DIRECT_MIN_NOISE * scale, axis=1)
-    out = np.zeros(s2.shape)
+    out = np.zeros(s2.shape + x.shape[1:2])
     if direct.any():
         every = bool(direct.all())
         a = (m if every else m[direct]) + (s2 if every else s2[direct])[:, None, None, None] * np.eye(m.shape[-1])
         low = np.linalg.cholesky(a)  # (p, k, uc, uc); fails unless positive definite
         p, t, k, uc, c = a.shape[0], *x.shape[1:]
         right = (x if every else x[direct]).transpose(0, 2, 3, 1, 4).reshape(p, k, uc, t * c)  # targets side by side
+
+        def per_target(rows):  # (p, k, uc, t c) -> (p, t, k, uc, c)
+            return rows.reshape(p, k, uc, t, c).transpose(0, 3, 1, 2, 4)
+
         if uc >= DIRECT_TRIANGULAR:
-            y = scipy.linalg.solve_triangular(low, right, lower=True, check_finite=False)
-            y = y.reshape(p, k, uc * t, c)  # rows of L^-1 x for every target
-            value = np.sum(((y @ g_sub) * np.conj(y)).real.reshape(p, -1), axis=1)
+            y = per_target(scipy.linalg.solve_triangular(low, right, lower=True, check_finite=False))  # L^-1 x
+            value = np.sum(((y @ g) * np.conj(y)).real.reshape(p, t, -1), axis=2)
         else:  # small matrices, many of them: one stacked solve (scipy would loop over the stack)
-            z = np.linalg.solve(a, right).reshape(p, k, uc * t, c)  # rows of (m + s2 I)^-1 x
-            value = np.sum(((z @ g_sub) * np.conj(right.reshape(p, k, uc * t, c))).real.reshape(p, -1), axis=1)
+            z = per_target(np.linalg.solve(a, right))  # (m + s2 I)^-1 x
+            value = np.sum(((z @ g) * np.conj(per_target(right))).real.reshape(p, t, -1), axis=2)
         if not np.all(np.isfinite(value)):
             raise np.linalg.LinAlgError("not finite")
         out[direct] = value
     if not direct.all():
-        out[~direct] = _eigen_explained(m[~direct], x[~direct], g_sub, s2[~direct])
+        out[~direct] = _eigen_explained(m[~direct], x[~direct], g, s2[~direct])
+    return out
+
+
+def _pilot_set(target) -> tuple:
+    """The pilot set of a target, as the coupled matrix depends on it: (lag differences, comb offsets)."""
+    lags = target.pilot_lags
+    return tuple(l - lags[0] for l in lags), target.pilot_offsets
+
+
+def _pilot_set_explained(band, setting, pilot_set, designs, targets):
+    """The explained energy of each target sharing one pilot set, per design: (D, T).
+
+    ``setting`` (comb step, comb offsets of the schedule, spectrum, line-of-sight fraction, oscillator);
+    ``designs`` D triples (symbol duration, Doppler, noise level); ``targets`` T triples (pilot lags,
+    pilot offsets, data offset) of the pilot set. The coupled matrix of a cluster (:func:`_coupled_parts`)
+    is built from the band's :meth:`Band.cluster_products` weighted by each kind's time correlation,
+    ``M_ij = sum_q rho_ij,q H_i E_q H_j``, and factorised once for all the targets.
+    """
+    d_f, comb_offsets, spectrum, los_fraction, oscillator = setting
+    shape, pilot_offsets = np.asarray(pilot_set[0]), pilot_set[1]
+    symbol_s, doppler, s2 = (np.array(v, dtype=float) for v in zip(*designs))
+    kinds = band.kinds
+    lags = np.array([t[0] for t in targets])  # (T, u)
+    reach = int(np.abs(lags).max())
+    table = time_correlation(kinds, np.arange(-2 * reach, 2 * reach + 1)[None, :] * symbol_s[:, None],
+                             doppler[:, None], spectrum, los_fraction, oscillator)  # (D, 4 reach + 1, Q)
+    rho = table[:, (shape[:, None] - shape[None, :]) + 2 * reach]  # (D, u, u, Q)
+    cross = table[:, lags + 2 * reach]  # (D, T, u, Q)
+    g_all = band.comb_gram(d_f, -1)
+    g_data = {o: g_all - (band.comb_gram(d_f, o) if o >= 0 else 0.0) for o in {t[2] for t in targets}}
+    out = np.zeros((len(designs), len(targets)))
+    u = shape.size
+    for members in band.clusters(d_f, comb_offsets):  # (k, c): k clusters of c components each
+        k, c = members.shape
+        products = band.cluster_products(d_f, pilot_offsets, members)  # (Q, k, u, c, u, c)
+        m = sum(rho[:, None, :, None, :, None, q] * products[q] for q in range(kinds.size))
+        m = m.reshape(len(designs), k, u * c, u * c)
+        halves = band.cluster_roots(d_f, pilot_offsets, members)  # (u, k, c, c)
+        kind = np.searchsorted(kinds, band.components.kind[members])  # (k, c)
+        x = halves[None, None] * cross[..., kind][..., None, :]  # (D, T, u, k, c, c): H_i diag(rho_i)
+        x = x.transpose(0, 1, 3, 2, 4, 5).reshape(len(designs), len(targets), k, u * c, c)
+        g = np.stack([g_data[t[2]][members[:, :, None], members[:, None, :]] for t in targets])  # (T, k, c, c)
+        out += _direct_explained(0.5 * (m + np.conj(np.swapaxes(m, -1, -2))), x, g, s2)
+    return out
+
+
+#: Explained energies a band keeps (:attr:`Band.explained`), at most; emptied beyond.
+EXPLAINED_KEPT = 20_000
+
+
+def _coupled_explained(asks) -> list:
+    """Explained energies of coupled problems: for each (problem, rows, s2) of ``asks``, that of design
+    ``rows[i]`` at noise ``s2[i]`` (p,).
+
+    A design's energy is the sum over its targets with pilots of each target's
+    ``tr(x^H (M + s2 I)^-1 x G_d)``, which depends only on the band, the setting (comb step and offsets,
+    time variation, oscillator), the target's pilots and data offset and the design's symbol duration,
+    Doppler and noise level. Each such value is worked out once and kept by the band: many structures
+    (slot lengths, scopes, the comb bound's later exact evaluation) share targets. The missing ones are
+    computed together per pilot set across every problem asked (one factorisation of M per design for
+    all targets on that pilot set); a value depends on what is asked with it only through round-off.
+    """
+    values: dict = {}  # (band id, setting, target, design) -> explained energy
+    work: dict = {}  # (band id, setting, pilot set) -> (band, {design: None}, {target: None})
+    for problem, rows, s2 in asks:
+        band, setting = problem.band, problem.setting
+        for design in zip(problem.symbol_s[rows].tolist(), problem.doppler[rows].tolist(), s2.tolist()):
+            for pilot_set, target in problem.targets:
+                key = (setting, target, design)
+                if (id(band),) + key in values:
+                    continue
+                known = band.explained.get(key)
+                if known is not None:
+                    values[(id(band),) + key] = known
+                    continue
+                _, designs, targets = work.setdefault((id(band), setting, pilot_set), (band, {}, {}))
+                designs[design], targets[target] = None, None
+    for (_, setting, pilot_set), (band, designs, targets) in work.items():
+        designs, targets = list(designs), list(targets)
+        energy = _pilot_set_explained(band, setting, pilot_set, designs, targets).tolist()
+        if len(band.explained) + len(designs) * len(targets) > EXPLAINED_KEPT:
+            band.explained.clear()
+        for design, row in zip(designs, energy):
+            for target, value in zip(targets, row):
+                band.explained[(setting, target, design)] = values[(id(band), setting, target, design)] = value
+    out = []
+    for problem, rows, s2 in asks:
+        head = (id(problem.band), problem.setting)
+        out.append(np.array([sum(values[head + (target, design)] for _, target in problem.targets)
+                             for design in zip(problem.symbol_s[rows].tolist(), problem.doppler[rows].tolist(),
+                                               s2.tolist())]))
     return out
 
 
@@ -758,38 +878,23 @@ class _CoupledProblem:
 
     Compact on purpose: the schedule, the band (shared by every structure on it, as ``link`` keeps its
     bands), per design the symbol duration and the Doppler. The matrices (up to 168 x 168 complex per
-    cluster and group, ~0.5 MB) exist only while a batch of noise levels is answered
-    (:func:`prepare_direct`) and are built again for a later one; a cache of 20,000 structures thus holds
-    a few hundred bytes per structure and a few numbers per noise level asked, not the matrices.
+    cluster and pilot set, ~0.5 MB) exist only while a batch of noise levels is answered
+    (:func:`prepare_direct`); the targets' explained energies are kept by the band
+    (:func:`_coupled_explained`), a few numbers per noise level asked, not the matrices.
     """
 
     def __init__(self, schedule, band, symbol_s, doppler, spectrum, los_fraction, oscillator, total):
         self.schedule, self.band, self.symbol_s, self.doppler = schedule, band, symbol_s, doppler
         self.spectrum, self.los_fraction, self.oscillator, self.total = spectrum, los_fraction, oscillator, total
-
-    def _parts(self, rows):
-        return _coupled_parts(self.schedule, self.band, self.symbol_s[rows], self.doppler[rows], self.spectrum,
-                              self.los_fraction, self.oscillator)
+        #: what a target's explained energy depends on beyond the band, its pilots and the design
+        self.setting = (schedule.freq_spacing, schedule.comb_offsets, spectrum, los_fraction, oscillator)
+        #: (pilot set, (pilot lags, pilot offsets, data offset)) of each target with pilots, in order
+        self.targets = [(_pilot_set(t), (t.pilot_lags, t.pilot_offsets, t.data_offset))
+                        for t in schedule.targets if t.pilot_lags and band.components.basis.shape[1]]
 
     def explained(self, rows, s2):
         """Explained energy of design ``rows[i]`` at noise ``s2[i]`` (pairs; rows may repeat): (p,)."""
-        distinct, pick = np.unique(rows, return_inverse=True)
-        same = distinct.size == rows.size  # one level per design, in order: no copies
-        out = np.zeros(s2.shape)
-        for m, x, g_sub in self._parts(distinct):
-            out += _direct_explained(m if same else m[pick], x if same else x[pick], g_sub, s2)
-        return out
-
-    def spectral(self, rows):
-        """The eigen form (:class:`SpectralWeights`) of the designs ``rows``."""
-        lams, betas = [], []
-        for m, x, g_sub in self._parts(rows):
-            lam, beta = _eigen_terms(m, x, g_sub)
-            lams.append(lam.reshape(len(rows), -1))
-            betas.append(beta.reshape(len(rows), -1))
-        lam = np.concatenate(lams, axis=1) if lams else np.zeros((len(rows), 0))
-        beta = np.concatenate(betas, axis=1) if betas else np.zeros((len(rows), 0))
-        return [SpectralWeights("lmmse", lam[i], beta[i], self.total) for i in range(len(rows))]
+        return _coupled_explained([(self, rows, s2)])[0]
 
 
 class DirectWeights:
@@ -801,8 +906,8 @@ class DirectWeights:
     instead of an eigendecomposition with vectors (several times cheaper; a search asks nearly every
     structure for one noise level). Each level's result is remembered, and always computed the same way
     (never from another form once many levels were asked: a warm cache gives the same digits as a cold
-    one). Memory: see :class:`_CoupledProblem`. Ask many designs at once through
-    :func:`prepare_direct` (one batch per problem, vectorised over its designs).
+    one, to round-off). Memory: see :class:`_CoupledProblem`. Ask many designs at once through
+    :func:`prepare_direct` (one batch per pilot set, vectorised over the designs of every problem).
     """
 
     kind = "lmmse"
@@ -825,8 +930,8 @@ class DirectWeights:
 def prepare_direct(requests) -> None:
     """Answer (weights, noise levels) requests of :class:`DirectWeights` together; other weights are skipped.
 
-    Per problem, the designs' new noise levels are computed in one batch (the matrices built once for
-    the designs asked, the factorisations stacked).
+    Per problem, the designs' new noise levels are gathered; the coupled problems are then answered
+    together (:func:`_coupled_explained`), the wandering ones problem by problem.
     """
     levels: dict = {}  # id -> (weights, new levels)
     for weights, noise in requests:
@@ -842,10 +947,13 @@ def prepare_direct(requests) -> None:
         if not new:
             continue
         direct.setdefault(id(weights.problem), (weights.problem, []))[1].append((weights, sorted(new)))
-    for problem, items in direct.values():
-        rows = np.concatenate([np.full(len(new), w.index) for w, new in items])
-        s2 = np.concatenate([np.asarray(new, dtype=float) for _, new in items])
-        explained = problem.explained(rows, s2).tolist()
+    asks = [(problem, np.concatenate([np.full(len(new), w.index) for w, new in items]),
+             np.concatenate([np.asarray(new, dtype=float) for _, new in items])) for problem, items in direct.values()]
+    coupled = [ask for ask in asks if isinstance(ask[0], _CoupledProblem)]
+    answers = dict(zip([id(ask[0]) for ask in coupled], _coupled_explained(coupled)))
+    for (problem, items), (_, rows, s2) in zip(direct.values(), asks):
+        found = answers[id(problem)] if id(problem) in answers else problem.explained(rows, s2)
+        explained = found.tolist()
         for w, new in items:
             w.known.update(zip(new, explained[:len(new)]))
             explained = explained[len(new):]

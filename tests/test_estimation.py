@@ -401,6 +401,35 @@ def test_direct_weights_agree_with_the_eigen_form(case):
         assert np.array_equal(f.mse(np.array(NOISES)), np.array([d.mse(v) for v in NOISES]))
 
 
+def test_coupled_targets_asked_together_across_patterns():
+    """Two staggered patterns on one band (LTE port 0 read as a stream and slot by slot, TS 36.211
+    sect. 6.10.1.2, in ETU, TS 36.101 Annex B) with an oscillator's phase on every component (an invented
+    10 Hz linewidth and 190 Hz offset): asked through one batch, their targets' energies are worked out per
+    pilot set across both; each design agrees with the eigendecomposition of its own coupled matrix, and
+    with what it gives asked alone on a fresh band."""
+    mask = arrangement.mask_from_symbols([0, 4])
+    plans = [arrangement.schedule("stream", mask, 7, 3, 6, 7, True, 3, 7, estimation.MAX_PILOT_SYMBOLS),
+             arrangement.schedule("slot", mask, 7, 3, 6, 14, True, 0, 0, estimation.MAX_PILOT_SYMBOLS)]
+    oscillator = (10.0, 190.0, None)
+    symbol_s, doppler = 0.5 * MS / 7 * np.array([1, 1.2]), np.array([300.0, 30.0])
+
+    def weights(band, plan, coupled="direct"):
+        return estimation.spectral_weights(plan, band, symbol_s, doppler, "classical", 0.0, "lmmse", oscillator,
+                                           coupled)
+
+    def fresh_band():
+        return estimation.Band(ETU_S, 10 ** (ETU_DB / 10), 0.0, 15e3, 1200)
+
+    shared = fresh_band()
+    together = [weights(shared, plan) for plan in plans]
+    estimation.prepare_direct([(w, np.array(NOISES)) for ws in together for w in ws])
+    for plan, ws in zip(plans, together):
+        eigen, alone = weights(fresh_band(), plan, "eigen"), weights(fresh_band(), plan)
+        for w, e, a in zip(ws, eigen, alone):
+            assert_allclose(w.mse(np.array(NOISES)), e.mse(np.array(NOISES)), rtol=1e-9, atol=ATOL)
+            assert_allclose(w.mse(np.array(NOISES)), a.mse(np.array(NOISES)), rtol=1e-12, atol=ATOL)
+
+
 def test_direct_weights_of_an_array_of_noise_levels_match_scalar_calls():
     """An array of noise levels (repeated values, two dimensions) gives what one call per level gives,
     in the array's shape; repeated levels are worked out once."""
