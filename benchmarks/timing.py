@@ -40,7 +40,7 @@ def empty_model_caches() -> None:
     for cache in (link._WEIGHTS_CACHE, link._GUARD_CACHE, link._MASK_CACHE, link._BANDS, doppler._CROSSINGS,
                   environment._SHAPES, oscillator._VARIANCE_CACHE, pilots._STEPS):
         cache.clear()
-    for cached in (link._schedule, sweep._unit_profile, sweep._template):
+    for cached in (link._schedule, link._staggered_schedule, sweep._unit_profile, sweep._template):
         cached.cache_clear()
 
 

@@ -384,6 +384,31 @@ class Band:
             self._eigen[key] = hermitian_eigen(0.5 * (g + g.conj().T))
         return self._eigen[key]
 
+    def scattered_comb(self, step, offset):
+        """(m, V): :meth:`comb_eigen` of the scattered components, eigenvalues below 1e-12 of the largest as 0."""
+        key = ("scattered", step, offset)
+        if key not in self._eigen:
+            m, vectors = self.comb_eigen(step, offset, self.components.kind != LINE_OF_SIGHT)
+            tol = 1e-12 * max(m.max(), 1e-300) if m.size else 0.0
+            self._eigen[key] = (np.where(m > tol, m, 0.0), vectors)
+        return self._eigen[key]
+
+    def data_frequency_part(self, step, offset, data_offset):
+        """The frequency part of a target's data in the separable form: ``z_j = m_j (V^H G_d V)_jj``.
+
+        ``(m, V)`` of :meth:`scattered_comb` (step, offset), ``G_d`` the data's Gram matrix over the
+        scattered components (the whole band less the comb at ``data_offset``; -1: the whole band).
+        """
+        key = ("data", step, offset, data_offset)
+        if key not in self._eigen:
+            m, vectors = self.scattered_comb(step, offset)
+            scattered = self.components.kind != LINE_OF_SIGHT
+            g_all = self.comb_gram(step, -1)
+            g_d = g_all - (self.comb_gram(step, data_offset) if data_offset >= 0 else 0.0)
+            self._eigen[key] = m * np.sum(np.conj(vectors) * (g_d[np.ix_(scattered, scattered)] @ vectors),
+                                          axis=0).real
+        return self._eigen[key]
+
     def clusters(self, step, offsets):
         """Components the combs couple, grouped: a list of (k, c) index arrays, k clusters of c components.
 
@@ -978,39 +1003,97 @@ def staggered_bound(schedule: arrangement.Schedule, band: Band, symbol_s, max_do
     oscillator phase (which the separable form's rank-one line of sight
     cannot follow), the same one comb in :class:`WanderingWeights`.
     """
-    offsets = schedule.comb_offsets
     symbol_s = np.atleast_1d(np.asarray(symbol_s, dtype=float))
     doppler = np.broadcast_to(np.asarray(max_doppler_hz, dtype=float), symbol_s.shape)
-    offset = offsets if len(offsets) > 1 else (offsets[0] if offsets else 0)
+    offset = _bound_comb(schedule.comb_offsets)
     if (band.components.kind == LINE_OF_SIGHT).any() and _random_phase(oscillator):
         return _wandering_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, offset, oscillator)
     return _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, offset, oscillator)
 
 
-def _plain_separable(targets, z_of, m, table, reach, total) -> list[SpectralWeights]:
-    """:func:`_separable_weights` without a line of sight, vectorised over the designs and the targets.
+def _bound_comb(offsets):
+    """The comb of :func:`staggered_bound`: the offsets' dominating comb (a tuple), or the one comb there is."""
+    return offsets if len(offsets) > 1 else (offsets[0] if offsets else 0)
 
+
+def pattern_weights(jobs, band: Band, spectrum: str, los_fraction: float, estimator: str = "lmmse",
+                    oscillator=None) -> list:
+    """The weights of several patterns on one band: per job, :func:`staggered_bound` or :func:`spectral_weights`.
+
+    ``jobs``: (schedule, symbol durations (n,), Dopplers (n,), bounded), ``bounded`` asking for the comb
+    bound. Jobs whose weights are the plain separable ones (no line of sight in the band, the LMMSE, one
+    comb or the comb bound) are worked out together (:func:`_plain_separable`), the others one by one;
+    either way each design gets the weights it would get alone.
+    """
+    out = [None] * len(jobs)
+    plain = []
+    no_los = not (band.components.kind == LINE_OF_SIGHT).any()
+    for index, (schedule, symbol_s, doppler, bounded) in enumerate(jobs):
+        offsets = schedule.comb_offsets
+        if estimator == "lmmse" and no_los and (bounded or len(offsets) <= 1):
+            plain.append((index, (schedule, _bound_comb(offsets), np.atleast_1d(np.asarray(symbol_s, dtype=float)),
+                                  np.atleast_1d(np.asarray(doppler, dtype=float)))))
+        elif bounded:
+            out[index] = staggered_bound(schedule, band, symbol_s, doppler, spectrum, los_fraction, oscillator)
+        else:
+            out[index] = spectral_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, estimator,
+                                          oscillator)
+    if plain:
+        for (index, _), found in zip(plain, _plain_separable(band, [job for _, job in plain], spectrum, los_fraction,
+                                                             oscillator)):
+            out[index] = found
+    return out
+
+
+def _plain_separable(band, jobs, spectrum, los_fraction, oscillator) -> list[list[SpectralWeights]]:
+    """:func:`_separable_weights` without a line of sight, for several patterns on one band at once.
+
+    ``jobs``: (schedule, comb offset (a tuple: the dominating comb), symbol durations (n,), Dopplers (n,)).
     Per target and design the weights are the outer products of the time eigenvalues (of the pilot
     symbols' correlation, which depends on their lag differences only) with the comb's eigenvalues m,
-    and of the target's projections |U^H rho|^2 with its data's frequency part z.
+    and of the target's projections |U^H rho|^2 with its data's frequency part z. The time correlations
+    of every job's designs come from one lag table, and each pilot-set shape's time eigenproblems are
+    solved in one stack over every job that has it (the search asks many patterns of one band together).
+    Returns, per job, one :class:`SpectralWeights` per design.
     """
-    n = table.shape[0]
-    groups = _by_shape(targets) if m.size else {}
-    lams, betas = [], []
-    for shape, group in groups.items():
-        shape = np.asarray(shape)
-        r_s = table[:, (shape[:, None] - shape[None, :]) + 2 * reach, 0]  # (n, u, u)
-        l_t, u_t = hermitian_eigen(0.5 * (r_s + np.conj(np.swapaxes(r_s, -1, -2))))  # (n, u), (n, u, u)
+    sizes = [job[2].size for job in jobs]
+    starts = np.concatenate([[0], np.cumsum(sizes)])
+    table, reach = _lag_table(np.array([SCATTERED, LINE_OF_SIGHT]), [t for job in jobs for t in job[0].targets],
+                              np.concatenate([job[2] for job in jobs]), np.concatenate([job[3] for job in jobs]),
+                              spectrum, los_fraction, oscillator)  # (designs, 4 reach + 1, 2)
+    combs = [band.scattered_comb(schedule.freq_spacing, offset)[0] for schedule, offset, _, _ in jobs]
+    groups = [_by_shape(job[0].targets) if m.size else {} for job, m in zip(jobs, combs)]
+    users: dict = {}  # pilot-set shape -> the jobs that have it
+    for index, by_shape in enumerate(groups):
+        for shape in by_shape:
+            users.setdefault(shape, []).append(index)
+    time_eigen = {}  # (shape, job) -> time eigenvalues (n, u) and vectors (n, u, u) of the job's designs
+    for shape, indices in users.items():
+        shape_lags = np.asarray(shape)
+        rows = np.concatenate([np.arange(starts[i], starts[i + 1]) for i in indices])
+        r_s = table[rows][:, (shape_lags[:, None] - shape_lags[None, :]) + 2 * reach, 0]  # (rows, u, u)
+        l_t, u_t = hermitian_eigen(0.5 * (r_s + np.conj(np.swapaxes(r_s, -1, -2))))  # (rows, u), (rows, u, u)
         l_t = np.where(l_t > 1e-12 * np.maximum(l_t.max(axis=-1, keepdims=True), 1e-300), l_t, 0.0)
-        lags = np.array([t.pilot_lags for t in group])  # (T, u)
-        rho = table[:, lags + 2 * reach, 0]  # (n, T, u): E h(t_i) h(n)^*
-        a = np.abs(np.einsum("nij,nti->ntj", np.conj(u_t), rho)) ** 2  # (n, T, u)
-        z = np.stack([z_of[t.data_offset] for t in group])  # (T, C)
-        lams.append(np.broadcast_to(l_t[:, None, :, None] * m, a.shape + m.shape).reshape(n, -1))
-        betas.append((a[..., None] * z[None, :, None, :]).reshape(n, -1))
-    lam = np.concatenate(lams, axis=1) if lams else np.zeros((n, 0))
-    beta = np.concatenate(betas, axis=1) if betas else np.zeros((n, 0))
-    return [SpectralWeights("lmmse", lam[i], beta[i], total) for i in range(n)]
+        ends = np.cumsum([sizes[i] for i in indices])
+        for i, end, size in zip(indices, ends, [sizes[i] for i in indices]):
+            time_eigen[(shape, i)] = (l_t[end - size:end], u_t[end - size:end])
+    out = []
+    for index, ((schedule, offset, _, _), m, by_shape) in enumerate(zip(jobs, combs, groups)):
+        n, own = sizes[index], table[starts[index]:starts[index + 1]]
+        total = float(sum(data_count(band.used, schedule.freq_spacing, t) for t in schedule.targets))
+        lams, betas = [], []
+        for shape, group in by_shape.items():
+            l_t, u_t = time_eigen[(shape, index)]
+            lags = np.array([t.pilot_lags for t in group])  # (T, u)
+            rho = own[:, lags + 2 * reach, 0]  # (n, T, u): E h(t_i) h(n)^*
+            a = np.abs(np.einsum("nij,nti->ntj", np.conj(u_t), rho)) ** 2  # (n, T, u)
+            z = np.stack([band.data_frequency_part(schedule.freq_spacing, offset, t.data_offset) for t in group])
+            lams.append(np.broadcast_to(l_t[:, None, :, None] * m, a.shape + m.shape).reshape(n, -1))
+            betas.append((a[..., None] * z[None, :, None, :]).reshape(n, -1))
+        lam = np.concatenate(lams, axis=1) if lams else np.zeros((n, 0))
+        beta = np.concatenate(betas, axis=1) if betas else np.zeros((n, 0))
+        out.append([SpectralWeights("lmmse", lam[i], beta[i], total) for i in range(n)])
+    return out
 
 
 def _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, offset, oscillator=None):
@@ -1023,27 +1106,19 @@ def _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction
     comps = band.components
     d_f, used, n = schedule.freq_spacing, band.used, symbol_s.size
     los = comps.kind == LINE_OF_SIGHT
+    if not los.any():
+        return _plain_separable(band, [(schedule, offset, symbol_s, doppler)], spectrum, los_fraction, oscillator)[0]
     scattered = ~los
     total = float(sum(data_count(used, d_f, t) for t in schedule.targets))
-    g_comb = band.dominating_gram(d_f, offset) if isinstance(offset, tuple) else band.comb_gram(d_f, offset)
-    m, vectors = band.comb_eigen(d_f, offset, scattered)  # scattered comb Gram = V diag(m) V^H
-    tol = 1e-12 * max(m.max(), 1e-300) if m.size else 0.0
-    m = np.where(m > tol, m, 0.0)
-    g_all = band.comb_gram(d_f, -1)
+    m, vectors = band.scattered_comb(d_f, offset)  # scattered comb Gram = V diag(m) V^H
     targets = [t for t in schedule.targets]
     table, reach = _lag_table(np.array([SCATTERED, LINE_OF_SIGHT]), targets, symbol_s, doppler, spectrum,
                               los_fraction, oscillator)  # (n, 4 reach + 1, 2)
-    # the frequency part of each target's data: z_j = m_j (V^H G_d V)_jj over the scattered components
-    z_of, g_data_of = {}, {}
-    for target in targets:
-        if target.data_offset not in z_of:
-            g_d = g_all - (band.comb_gram(d_f, target.data_offset) if target.data_offset >= 0 else 0.0)
-            g_data_of[target.data_offset] = g_d
-            z_of[target.data_offset] = m * np.sum(np.conj(vectors) * (g_d[np.ix_(scattered, scattered)] @ vectors),
-                                                  axis=0).real
-    if not los.any():
-        return _plain_separable(targets, z_of, m, table, reach, total)
+    z_of = {o: band.data_frequency_part(d_f, offset, o) for o in {t.data_offset for t in targets}}
     # a line of sight: its rank-one update on top of the scattered part, design by design
+    g_comb = band.dominating_gram(d_f, offset) if isinstance(offset, tuple) else band.comb_gram(d_f, offset)
+    g_all = band.comb_gram(d_f, -1)
+    g_data_of = {o: g_all - (band.comb_gram(d_f, o) if o >= 0 else 0.0) for o in z_of}
     v_los = vectors.conj().T @ g_comb[np.ix_(scattered, los)][:, 0]
     live = m > 0
     schur = max(float(g_comb[np.ix_(los, los)][0, 0].real - np.sum(np.abs(v_los[live]) ** 2 / m[live])), 0.0)

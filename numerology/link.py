@@ -477,31 +477,34 @@ def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, sp
             continue
         todo.setdefault((pattern, spacing, int(used), channel, oscillator, bounded), []).append(
             (row, symbol_s, float(doppler_hz[site]), cache_key))
-    for (pattern, spacing, used, channel, oscillator, bounded), rows in todo.items():
-        scope, d_f, shift, mask, period, slot, shared = pattern
-        symbol_s = np.array([r[1] for r in rows])
-        doppler = np.array([r[2] for r in rows])
-        los = channel[2]
-        if SCOPES[scope] == "differential":
-            kinds = np.array([estimation.SCATTERED, estimation.LINE_OF_SIGHT])
-            rho = estimation.time_correlation(kinds, symbol_s, doppler, spectrum, los, oscillator)
-            r = (1 - los) * rho[:, 0] + los * rho[:, 1]  # the whole channel's autocorrelation at one symbol
-            found = [estimation.SpectralWeights("differential", np.zeros(0), np.zeros(0), 1.0, bias=abs(v) ** 2)
-                     for v in r]
-        else:
-            plan = _schedule(SCOPES[scope], mask, period, shift, d_f, slot, shared, rules.estimation_lookahead,
-                             rules.estimation_memory)
-            band = _band(channel, spacing, used)
-            if bounded:
-                found = estimation.staggered_bound(plan, band, symbol_s, doppler, spectrum, los, oscillator)
-            else:
-                found = estimation.spectral_weights(plan, band, symbol_s, doppler, spectrum, los, rules.estimator,
-                                                    oscillator)
+    def keep(rows, found, bounded):
         if len(_WEIGHTS_CACHE) + len(found) > _WEIGHTS_CACHE_SIZE:
             _WEIGHTS_CACHE.clear()
         for (row, _, _, cache_key), weights in zip(rows, found):
             out[row] = _WEIGHTS_CACHE[cache_key] = weights
             bound_rows[row] = bounded
+
+    on_band: dict = {}  # (spacing, used, channel, oscillator) -> the patterns' jobs on that band
+    for (pattern, spacing, used, channel, oscillator, bounded), rows in todo.items():
+        scope, d_f, shift, mask, period, slot, shared = pattern
+        symbol_s = np.array([r[1] for r in rows])
+        doppler = np.array([r[2] for r in rows])
+        if SCOPES[scope] == "differential":
+            los = channel[2]
+            kinds = np.array([estimation.SCATTERED, estimation.LINE_OF_SIGHT])
+            rho = estimation.time_correlation(kinds, symbol_s, doppler, spectrum, los, oscillator)
+            r = (1 - los) * rho[:, 0] + los * rho[:, 1]  # the whole channel's autocorrelation at one symbol
+            keep(rows, [estimation.SpectralWeights("differential", np.zeros(0), np.zeros(0), 1.0, bias=abs(v) ** 2)
+                        for v in r], bounded)
+            continue
+        plan = _schedule(SCOPES[scope], mask, period, shift, d_f, slot, shared, rules.estimation_lookahead,
+                         rules.estimation_memory)
+        on_band.setdefault((spacing, used, channel, oscillator), []).append((plan, symbol_s, doppler, bounded, rows))
+    for (spacing, used, channel, oscillator), jobs in on_band.items():
+        found = estimation.pattern_weights([job[:4] for job in jobs], _band(channel, spacing, used), spectrum,
+                                           channel[2], rules.estimator, oscillator)
+        for (_, _, _, bounded, rows), weights in zip(jobs, found):
+            keep(rows, weights, bounded)
     return out, bound_rows
 
 
@@ -522,12 +525,15 @@ def _band(channel, spacing, used) -> estimation.Band:
 
 def _staggered(pattern, rules) -> bool:
     """Whether the pilot symbols of a pattern (as ``_structure_weights`` keys it) sit on more than one comb."""
+    return _staggered_schedule(pattern, rules.estimation_lookahead, rules.estimation_memory)
+
+
+@lru_cache(maxsize=4096)
+def _staggered_schedule(pattern, lookahead, memory) -> bool:
     scope, d_f, shift, mask, period, slot, shared = pattern
     if SCOPES[scope] == "differential":
         return False
-    plan = _schedule(SCOPES[scope], mask, period, shift, d_f, slot, shared, rules.estimation_lookahead,
-                     rules.estimation_memory)
-    return len(plan.comb_offsets) > 1
+    return len(_schedule(SCOPES[scope], mask, period, shift, d_f, slot, shared, lookahead, memory).comb_offsets) > 1
 
 
 @lru_cache(maxsize=4096)
