@@ -116,6 +116,10 @@ MAX_PILOT_SYMBOLS = 4
 #: The weakest band eigenmodes of the scattered taps are dropped while their energy together stays below
 #: this fraction of the channel power (-60 dB); it is counted as estimation error, never lost.
 MODE_ENERGY_TOL = 1e-6
+#: Eigenvalues of a comb's Gram matrix below this fraction of its largest are left out of its thin factor
+#: (``Band.cluster_factors``): a comb of fewer subcarriers than components has a Gram matrix of lower rank,
+#: whose other eigenvalues are round-off.
+FACTOR_TOL = 1e-12
 #: Comb Gram couplings below this fraction (of the geometric mean of the two diagonal entries) are
 #: dropped: the components then fall apart into independent clusters (``Band.clusters``).
 COUPLING = 0.02
@@ -477,21 +481,40 @@ class Band:
                                @ np.conj(np.swapaxes(vector, -1, -2)))
         return self._root[key]
 
-    def cluster_products(self, step, offsets, members):
-        """The blocks of the coupled matrix per component kind: (Q, k, u, c, u, c), Q the kinds present.
+    def cluster_factors(self, step, offsets, members):
+        """Thin factors of the combs' Gram matrices restricted to clusters: F (u, k, c, r), ``F F^H = G``.
 
-        With ``H_i`` the cluster roots of :meth:`cluster_roots` and ``E_q`` the diagonal selecting the
-        components of kind q (``kinds``, ascending), entry ``[q, :, i, :, j, :]`` is ``H_i E_q H_j``.
+        Per pilot symbol and cluster, the eigenvectors of the Gram matrix scaled by the square roots of
+        their eigenvalues, those below :data:`FACTOR_TOL` of the largest left out (a comb of fewer
+        subcarriers than components has a Gram matrix of lower rank), padded with zero columns to the
+        largest rank r of the stack. Kept per band.
+        """
+        key = ("factors", step, tuple(offsets), members.shape, members.tobytes())
+        if key not in self._root:
+            grams = np.stack([self.comb_gram(step, o) for o in offsets])  # (u, C, C)
+            value, vector = hermitian_eigen(grams[:, members[:, :, None], members[:, None, :]])  # ascending
+            kept = value > FACTOR_TOL * np.maximum(value.max(axis=-1, keepdims=True), 1e-300)
+            rank = max(int(kept.sum(axis=-1).max()), 1)
+            root = np.sqrt(np.where(kept, value, 0.0))
+            self._root[key] = vector[..., -rank:] * root[..., None, -rank:]
+        return self._root[key]
+
+    def cluster_products(self, step, offsets, members):
+        """The blocks of the coupled matrix per component kind: (Q, k, u, r, u, r), Q the kinds present.
+
+        With ``F_i`` the factors of :meth:`cluster_factors` and ``E_q`` the diagonal selecting the
+        components of kind q (``kinds``, ascending), entry ``[q, :, i, :, j, :]`` is ``F_i^H E_q F_j``.
         The components of one kind share one time correlation, so block (i, j) of the coupled matrix
-        ``H_i diag(rho_ij) H_j`` of :func:`_coupled_parts` is ``sum_q rho_ij,q H_i E_q H_j``: the
-        products are the band's, a design only weights them (no c x c products per design).
+        ``F_i^H diag(rho_ij) F_j`` (:func:`_pilot_set_explained`) is ``sum_q rho_ij,q F_i^H E_q F_j``: the
+        products are the band's, a design only weights them (no matrix products per design).
         """
         key = ("products", step, tuple(offsets), members.shape, members.tobytes())
         if key not in self._root:
-            halves = self.cluster_roots(step, offsets, members)  # (u, k, c, c)
+            factors = self.cluster_factors(step, offsets, members)  # (u, k, c, r)
+            rows = np.conj(np.swapaxes(factors, -1, -2))  # (u, k, r, c): F_i^H
             kind = self.components.kind[members]  # (k, c)
             self._root[key] = np.stack([
-                ((halves[:, None] * (kind == q)[:, None, :]) @ halves[None, :]).transpose(2, 0, 3, 1, 4)
+                ((rows[:, None] * (kind == q)[:, None, :]) @ factors[None, :]).transpose(2, 0, 3, 1, 4)
                 for q in self.kinds])
         return self._root[key]
 
@@ -838,13 +861,14 @@ def _pilot_set_explained(band, setting, pilot_set, designs, targets):
     u = shape.size
     for members in band.clusters(d_f, comb_offsets):  # (k, c): k clusters of c components each
         k, c = members.shape
-        products = band.cluster_products(d_f, pilot_offsets, members)  # (Q, k, u, c, u, c)
+        products = band.cluster_products(d_f, pilot_offsets, members)  # (Q, k, u, r, u, r)
+        r = products.shape[-1]
         m = sum(rho[:, None, :, None, :, None, q] * products[q] for q in range(kinds.size))
-        m = m.reshape(len(designs), k, u * c, u * c)
-        halves = band.cluster_roots(d_f, pilot_offsets, members)  # (u, k, c, c)
+        m = m.reshape(len(designs), k, u * r, u * r)
+        rows = np.conj(np.swapaxes(band.cluster_factors(d_f, pilot_offsets, members), -1, -2))  # (u, k, r, c)
         kind = np.searchsorted(kinds, band.components.kind[members])  # (k, c)
-        x = halves[None, None] * cross[..., kind][..., None, :]  # (D, T, u, k, c, c): H_i diag(rho_i)
-        x = x.transpose(0, 1, 3, 2, 4, 5).reshape(len(designs), len(targets), k, u * c, c)
+        x = rows[None, None] * cross[..., kind][..., None, :]  # (D, T, u, k, r, c): F_i^H diag(rho_i)
+        x = x.transpose(0, 1, 3, 2, 4, 5).reshape(len(designs), len(targets), k, u * r, c)
         g = np.stack([g_data[t[2]][members[:, :, None], members[:, None, :]] for t in targets])  # (T, k, c, c)
         out += _direct_explained(0.5 * (m + np.conj(np.swapaxes(m, -1, -2))), x, g, s2)
     return out
