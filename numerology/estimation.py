@@ -1008,6 +1008,46 @@ def prepare_direct(requests) -> None:
             explained = explained[len(new):]
 
 
+#: Elements of the stacked terms of :func:`estimation_errors` worked out at once, at most (memory).
+STACKED_TERMS = 1 << 22
+
+
+def estimation_errors(requests) -> list:
+    """``weights.mse(noise)`` of each (weights, noise levels) request, many requests at once.
+
+    The coupled problems' levels go together through :func:`prepare_direct`; the LMMSE spectral weights
+    with the same number of terms are stacked, one row per (request, level), with per row the arithmetic
+    of :meth:`SpectralWeights.mse` (the same digits); other weights are asked one by one.
+    """
+    prepare_direct(requests)
+    out = [None] * len(requests)
+    stacks: dict = {}  # number of terms -> requests
+    for index, (weights, noise) in enumerate(requests):
+        if type(weights) is SpectralWeights and weights.kind == "lmmse" and weights.data > 0:
+            stacks.setdefault(weights.lam.size, []).append(index)
+        else:
+            out[index] = weights.mse(noise)
+    for size, indices in stacks.items():
+        levels = [np.asarray(requests[i][1], dtype=float) for i in indices]
+        lam = np.stack([requests[i][0].lam for i in indices])
+        beta = np.stack([requests[i][0].beta for i in indices])
+        data = np.array([requests[i][0].data for i in indices])
+        row = np.repeat(np.arange(len(indices)), [level.size for level in levels])
+        s2 = np.concatenate([level.ravel() for level in levels])
+        error = np.empty(s2.size)
+        step = max(1, STACKED_TERMS // max(size, 1))
+        for start in range(0, s2.size, step):
+            part = row[start:start + step]
+            b = beta[part]
+            with np.errstate(divide="ignore", invalid="ignore"):
+                explained = np.sum(np.where(b > 0, b / (lam[part] + s2[start:start + step, None]), 0.0), axis=1)
+            error[start:start + step] = np.clip(1.0 - explained / data[part], 0.0, 1.0)
+        ends = np.cumsum([level.size for level in levels])
+        for i, level, end in zip(indices, levels, ends):
+            out[i] = error[end - level.size:end].reshape(level.shape)
+    return out
+
+
 def staggered_bound(schedule: arrangement.Schedule, band: Band, symbol_s, max_doppler_hz, spectrum: str,
                     los_fraction: float, oscillator=None) -> list:
     """Weights of a lower bound of the LMMSE error when pilot symbols sit on different combs (screening).

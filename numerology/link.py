@@ -441,10 +441,10 @@ def _estimation_error(designs: DesignArrays, environment: Environment, req: Requ
     order = np.argsort(inverse, kind="stable")
     bounds = np.searchsorted(inverse[order], np.arange(unique.shape[0] + 1))
     members = [order[bounds[row]:bounds[row + 1]] for row in range(unique.shape[0])]
-    # the coupled LMMSE is worked out per noise level: every structure's levels at once, one batch per problem
-    estimation.prepare_direct([(weights[row], noise[m]) for row, m in enumerate(members)])
-    for row, m in enumerate(members):
-        out[m] = weights[row].mse(noise[m])
+    # every structure's levels at once (the coupled LMMSE per noise level, spectral weights stacked)
+    for m, error in zip(members, estimation.estimation_errors([(weights[row], noise[m])
+                                                               for row, m in enumerate(members)])):
+        out[m] = error
     return out.reshape(shape), bounded[inverse].reshape(shape)
 
 
@@ -459,12 +459,15 @@ def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, sp
     out = [None] * unique.shape[0]
     bound_rows = np.zeros(unique.shape[0], dtype=bool)
     todo: dict = {}
-    for row, key in enumerate(unique):
-        scope, d_f, shift, mask, period, slot, shared, spacing, used, symbol_s, site, _, linewidth, offset = \
-            key.tolist()
+    channels: dict = {}  # site -> its channel (taps with power, line of sight) as a key
+    for row, key in enumerate(unique.tolist()):
+        scope, d_f, shift, mask, period, slot, shared, spacing, used, symbol_s, site, _, linewidth, offset = key
         site = int(site)
-        keep = flat_powers[site] > 0
-        channel = (tuple(flat_delays[site][keep]), tuple(flat_powers[site][keep]), float(los_all[site]))
+        channel = channels.get(site)
+        if channel is None:
+            keep = flat_powers[site] > 0
+            channel = channels[site] = (tuple(flat_delays[site][keep].tolist()),
+                                        tuple(flat_powers[site][keep].tolist()), float(los_all[site]))
         pattern = (int(scope), int(d_f), int(shift), int(mask), int(period), int(slot), bool(shared))
         oscillator = (linewidth, offset, phase_mask)
         bounded = comb_bound and rules.estimator == "lmmse" and _staggered(pattern, rules)

@@ -448,6 +448,26 @@ def test_thin_factors_of_a_comb_sparser_than_the_channel():
         assert_allclose(direct.mse(np.array(NOISES)), eigen.mse(np.array(NOISES)), rtol=1e-9, atol=ATOL)
 
 
+def test_estimation_errors_of_many_weights_at_once_match_their_own():
+    """Many requests at once (spectral weights of LTE's port 0 on one comb and staggered, TS 36.211 sect.
+    6.10.1.2, in ETU, TS 36.101 Annex B; a differential reference): the same digits as each weights' own
+    mse, in the shape of each request's levels."""
+    band = estimation.Band(ETU_S, 10 ** (ETU_DB / 10), 0.0, 15e3, 1200)
+    mask = arrangement.mask_from_symbols([0, 4])
+    one_comb = arrangement.schedule("slot", mask, 7, 0, 6, 14, True, 0, 0, estimation.MAX_PILOT_SYMBOLS)
+    staggered = arrangement.schedule("stream", mask, 7, 3, 6, 7, True, 3, 7, estimation.MAX_PILOT_SYMBOLS)
+    symbol_s = 0.5 * MS / 7 * np.array([1, 1.2, 1.5])
+    weights = [*estimation.spectral_weights(one_comb, band, symbol_s, 300.0, "classical", 0.0),
+               *estimation.staggered_bound(staggered, band, symbol_s, 300.0, "classical", 0.0),
+               *estimation.spectral_weights(staggered, band, symbol_s[:1], 300.0, "classical", 0.0),
+               estimation.SpectralWeights("differential", np.zeros(0), np.zeros(0), 1.0, bias=0.9)]
+    levels = [np.array([0.01, 0.1]), np.array([[1.0], [0.001]]), np.array(0.05), np.array([0.0, np.inf])] * 2
+    requests = list(zip(weights, levels))
+    for (w, noise), got in zip(requests, estimation.estimation_errors(requests)):
+        assert got.shape == noise.shape
+        assert np.array_equal(got, w.mse(noise))
+
+
 def test_direct_weights_of_an_array_of_noise_levels_match_scalar_calls():
     """An array of noise levels (repeated values, two dimensions) gives what one call per level gives,
     in the array's shape; repeated levels are worked out once."""
