@@ -82,6 +82,7 @@ spaced taps that the band cannot resolve collapse to a few modes.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 import scipy.special as sp
@@ -413,6 +414,13 @@ class Band:
                                           axis=0).real
         return self._eigen[key]
 
+    def data_frequency_parts(self, step, offset, data_offsets):
+        """:meth:`data_frequency_part` of each data offset of a tuple, stacked: (T, J)."""
+        key = ("data stack", step, offset, data_offsets)
+        if key not in self._eigen:
+            self._eigen[key] = np.stack([self.data_frequency_part(step, offset, o) for o in data_offsets])
+        return self._eigen[key]
+
     def clusters(self, step, offsets):
         """Components the combs couple, grouped: a list of (k, c) index arrays, k clusters of c components.
 
@@ -696,6 +704,14 @@ def _by_shape(targets) -> dict:
             lags = target.pilot_lags
             groups.setdefault(tuple(l - lags[0] for l in lags), []).append(target)
     return groups
+
+
+@lru_cache(maxsize=4096)
+def _shape_groups(schedule: arrangement.Schedule) -> tuple:
+    """:func:`_by_shape` of a schedule's targets as arrays, kept per schedule: per pilot-set shape
+    (shape, pilot lags (T, u), data offsets (T,) as a tuple)."""
+    return tuple((shape, np.array([t.pilot_lags for t in group]), tuple(t.data_offset for t in group))
+                 for shape, group in _by_shape(schedule.targets).items())
 
 
 def _coupled_parts(schedule, band, symbol_s, doppler, spectrum, los_fraction, oscillator):
@@ -1126,10 +1142,10 @@ def _plain_separable(band, jobs, spectrum, los_fraction, oscillator) -> list[lis
                               np.concatenate([job[2] for job in jobs]), np.concatenate([job[3] for job in jobs]),
                               spectrum, los_fraction, oscillator)  # (designs, 4 reach + 1, 2)
     combs = [band.scattered_comb(schedule.freq_spacing, offset)[0] for schedule, offset, _, _ in jobs]
-    groups = [_by_shape(job[0].targets) if m.size else {} for job, m in zip(jobs, combs)]
+    groups = [_shape_groups(job[0]) if m.size else () for job, m in zip(jobs, combs)]
     users: dict = {}  # pilot-set shape -> the jobs that have it
     for index, by_shape in enumerate(groups):
-        for shape in by_shape:
+        for shape, _, _ in by_shape:
             users.setdefault(shape, []).append(index)
     time_eigen = {}  # (shape, job) -> time eigenvalues (n, u) and vectors (n, u, u) of the job's designs
     for shape, indices in users.items():
@@ -1146,12 +1162,11 @@ def _plain_separable(band, jobs, spectrum, los_fraction, oscillator) -> list[lis
         n, own = sizes[index], table[starts[index]:starts[index + 1]]
         total = float(sum(data_count(band.used, schedule.freq_spacing, t) for t in schedule.targets))
         lams, betas = [], []
-        for shape, group in by_shape.items():
+        for shape, lags, data_offsets in by_shape:  # lags (T, u)
             l_t, u_t = time_eigen[(shape, index)]
-            lags = np.array([t.pilot_lags for t in group])  # (T, u)
             rho = own[:, lags + 2 * reach, 0]  # (n, T, u): E h(t_i) h(n)^*
             a = np.abs(np.einsum("nij,nti->ntj", np.conj(u_t), rho)) ** 2  # (n, T, u)
-            z = np.stack([band.data_frequency_part(schedule.freq_spacing, offset, t.data_offset) for t in group])
+            z = band.data_frequency_parts(schedule.freq_spacing, offset, data_offsets)  # (T, J)
             lams.append(np.broadcast_to(l_t[:, None, :, None] * m, a.shape + m.shape).reshape(n, -1))
             betas.append((a[..., None] * z[None, :, None, :]).reshape(n, -1))
         lam = np.concatenate(lams, axis=1) if lams else np.zeros((n, 0))
