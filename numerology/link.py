@@ -480,7 +480,8 @@ def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, sp
             continue
         todo.setdefault((pattern, spacing, int(used), channel, oscillator, bounded), []).append(
             (row, symbol_s, float(doppler_hz[site]), cache_key))
-    def keep(rows, found, bounded):
+
+    def remember(rows, found, bounded):
         if len(_WEIGHTS_CACHE) + len(found) > _WEIGHTS_CACHE_SIZE:
             _WEIGHTS_CACHE.clear()
         for (row, _, _, cache_key), weights in zip(rows, found):
@@ -497,8 +498,8 @@ def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, sp
             kinds = np.array([estimation.SCATTERED, estimation.LINE_OF_SIGHT])
             rho = estimation.time_correlation(kinds, symbol_s, doppler, spectrum, los, oscillator)
             r = (1 - los) * rho[:, 0] + los * rho[:, 1]  # the whole channel's autocorrelation at one symbol
-            keep(rows, [estimation.SpectralWeights("differential", np.zeros(0), np.zeros(0), 1.0, bias=abs(v) ** 2)
-                        for v in r], bounded)
+            remember(rows, [estimation.SpectralWeights("differential", np.zeros(0), np.zeros(0), 1.0,
+                                                       bias=abs(v) ** 2) for v in r], bounded)
             continue
         plan = _schedule(SCOPES[scope], mask, period, shift, d_f, slot, shared, rules.estimation_lookahead,
                          rules.estimation_memory)
@@ -507,7 +508,7 @@ def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, sp
         found = estimation.pattern_weights([job[:4] for job in jobs], _band(channel, spacing, used), spectrum,
                                            channel[2], rules.estimator, oscillator)
         for (_, _, _, bounded, rows), weights in zip(jobs, found):
-            keep(rows, weights, bounded)
+            remember(rows, weights, bounded)
     return out, bound_rows
 
 
@@ -533,6 +534,7 @@ def _staggered(pattern, rules) -> bool:
 
 @lru_cache(maxsize=4096)
 def _staggered_schedule(pattern, lookahead, memory) -> bool:
+    """:func:`_staggered` for a receiver's look-ahead and memory, remembered per pattern."""
     scope, d_f, shift, mask, period, slot, shared = pattern
     if SCOPES[scope] == "differential":
         return False
