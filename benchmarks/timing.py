@@ -35,12 +35,13 @@ def empty_model_caches() -> None:
     """Empty the model's in-process caches (estimation weights, bands, guard and mask figures, roots), as a
     command run starts with them empty; a best-of-several figure otherwise times every run after the first
     warm."""
-    from numerology import doppler, environment, link, oscillator, pilots, sweep
+    from numerology import doppler, environment, estimation, link, oscillator, pilots, sweep
 
     for cache in (link._WEIGHTS_CACHE, link._GUARD_CACHE, link._MASK_CACHE, link._BANDS, doppler._CROSSINGS,
                   environment._SHAPES, oscillator._VARIANCE_CACHE, pilots._STEPS):
         cache.clear()
-    for cached in (link._schedule, sweep._unit_profile, sweep._template):
+    for cached in (link._schedule, link._staggered_schedule, estimation._shape_groups, sweep._unit_profile,
+                   sweep._template):
         cached.cache_clear()
 
 

@@ -63,6 +63,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 
@@ -245,7 +246,7 @@ class Schedule:
     targets: tuple[Target, ...]
     span: int  # symbols in the span
 
-    @property
+    @cached_property
     def comb_offsets(self) -> tuple[int, ...]:
         """The distinct comb offsets of the pilots the targets use, ascending (more than one: staggered)."""
         return tuple(sorted({o for t in self.targets for o in t.pilot_offsets}))

@@ -82,6 +82,7 @@ spaced taps that the band cannot resolve collapse to a few modes.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 import scipy.special as sp
@@ -116,6 +117,10 @@ MAX_PILOT_SYMBOLS = 4
 #: The weakest band eigenmodes of the scattered taps are dropped while their energy together stays below
 #: this fraction of the channel power (-60 dB); it is counted as estimation error, never lost.
 MODE_ENERGY_TOL = 1e-6
+#: Eigenvalues of a comb's Gram matrix below this fraction of its largest are left out of its thin factor
+#: (``Band.cluster_factors``): a comb of fewer subcarriers than components has a Gram matrix of lower rank,
+#: whose other eigenvalues are round-off.
+FACTOR_TOL = 1e-12
 #: Comb Gram couplings below this fraction (of the geometric mean of the two diagonal entries) are
 #: dropped: the components then fall apart into independent clusters (``Band.clusters``).
 COUPLING = 0.02
@@ -355,7 +360,10 @@ class Band:
     def __init__(self, delays_s, powers, los_fraction, spacing_hz, used):
         self.spacing_hz, self.used = float(spacing_hz), int(used)
         self.components, self.dropped = components(delays_s, powers, los_fraction, spacing_hz, used)
+        self.kinds = np.unique(self.components.kind)  # the component kinds present, ascending
         self._gram, self._root, self._eigen, self._clusters = {}, {}, {}, {}
+        #: explained energies of coupled targets, per setting, target and design (:func:`_coupled_explained`)
+        self.explained: dict = {}
 
     def comb_gram(self, step, offset):
         """Gram matrix of the components over the comb (step, offset); offset -1: the whole band."""
@@ -379,6 +387,38 @@ class Band:
             g = self.dominating_gram(step, offset) if isinstance(offset, tuple) else self.comb_gram(step, offset)
             g = g[np.ix_(subset, subset)]
             self._eigen[key] = hermitian_eigen(0.5 * (g + g.conj().T))
+        return self._eigen[key]
+
+    def scattered_comb(self, step, offset):
+        """(m, V): :meth:`comb_eigen` of the scattered components, eigenvalues below 1e-12 of the largest as 0."""
+        key = ("scattered", step, offset)
+        if key not in self._eigen:
+            m, vectors = self.comb_eigen(step, offset, self.components.kind != LINE_OF_SIGHT)
+            tol = 1e-12 * max(m.max(), 1e-300) if m.size else 0.0
+            self._eigen[key] = (np.where(m > tol, m, 0.0), vectors)
+        return self._eigen[key]
+
+    def data_frequency_part(self, step, offset, data_offset):
+        """The frequency part of a target's data in the separable form: ``z_j = m_j (V^H G_d V)_jj``.
+
+        ``(m, V)`` of :meth:`scattered_comb` (step, offset), ``G_d`` the data's Gram matrix over the
+        scattered components (the whole band less the comb at ``data_offset``; -1: the whole band).
+        """
+        key = ("data", step, offset, data_offset)
+        if key not in self._eigen:
+            m, vectors = self.scattered_comb(step, offset)
+            scattered = self.components.kind != LINE_OF_SIGHT
+            g_all = self.comb_gram(step, -1)
+            g_d = g_all - (self.comb_gram(step, data_offset) if data_offset >= 0 else 0.0)
+            self._eigen[key] = m * np.sum(np.conj(vectors) * (g_d[np.ix_(scattered, scattered)] @ vectors),
+                                          axis=0).real
+        return self._eigen[key]
+
+    def data_frequency_parts(self, step, offset, data_offsets):
+        """:meth:`data_frequency_part` of each data offset of a tuple, stacked: (T, J)."""
+        key = ("data stack", step, offset, data_offsets)
+        if key not in self._eigen:
+            self._eigen[key] = np.stack([self.data_frequency_part(step, offset, o) for o in data_offsets])
         return self._eigen[key]
 
     def clusters(self, step, offsets):
@@ -447,6 +487,43 @@ class Band:
             value, vector = hermitian_eigen(sub)
             self._root[key] = ((vector * np.sqrt(np.clip(value, 0.0, None))[..., None, :])
                                @ np.conj(np.swapaxes(vector, -1, -2)))
+        return self._root[key]
+
+    def cluster_factors(self, step, offsets, members):
+        """Thin factors of the combs' Gram matrices restricted to clusters: F (u, k, c, r), ``F F^H = G``.
+
+        Per pilot symbol and cluster, the eigenvectors of the Gram matrix scaled by the square roots of
+        their eigenvalues, those below :data:`FACTOR_TOL` of the largest left out (a comb of fewer
+        subcarriers than components has a Gram matrix of lower rank), padded with zero columns to the
+        largest rank r of the stack. Kept per band.
+        """
+        key = ("factors", step, tuple(offsets), members.shape, members.tobytes())
+        if key not in self._root:
+            grams = np.stack([self.comb_gram(step, o) for o in offsets])  # (u, C, C)
+            value, vector = hermitian_eigen(grams[:, members[:, :, None], members[:, None, :]])  # ascending
+            kept = value > FACTOR_TOL * np.maximum(value.max(axis=-1, keepdims=True), 1e-300)
+            rank = max(int(kept.sum(axis=-1).max()), 1)
+            root = np.sqrt(np.where(kept, value, 0.0))
+            self._root[key] = vector[..., -rank:] * root[..., None, -rank:]
+        return self._root[key]
+
+    def cluster_products(self, step, offsets, members):
+        """The blocks of the coupled matrix per component kind: (Q, k, u, r, u, r), Q the kinds present.
+
+        With ``F_i`` the factors of :meth:`cluster_factors` and ``E_q`` the diagonal selecting the
+        components of kind q (``kinds``, ascending), entry ``[q, :, i, :, j, :]`` is ``F_i^H E_q F_j``.
+        The components of one kind share one time correlation, so block (i, j) of the coupled matrix
+        ``F_i^H diag(rho_ij) F_j`` (:func:`_pilot_set_explained`) is ``sum_q rho_ij,q F_i^H E_q F_j``: the
+        products are the band's, a design only weights them (no matrix products per design).
+        """
+        key = ("products", step, tuple(offsets), members.shape, members.tobytes())
+        if key not in self._root:
+            factors = self.cluster_factors(step, offsets, members)  # (u, k, c, r)
+            rows = np.conj(np.swapaxes(factors, -1, -2))  # (u, k, r, c): F_i^H
+            kind = self.components.kind[members]  # (k, c)
+            self._root[key] = np.stack([
+                ((rows[:, None] * (kind == q)[:, None, :]) @ factors[None, :]).transpose(2, 0, 3, 1, 4)
+                for q in self.kinds])
         return self._root[key]
 
     def los_frame(self, step, offset, data_offsets):
@@ -629,6 +706,14 @@ def _by_shape(targets) -> dict:
     return groups
 
 
+@lru_cache(maxsize=4096)
+def _shape_groups(schedule: arrangement.Schedule) -> tuple:
+    """:func:`_by_shape` of a schedule's targets as arrays, kept per schedule: per pilot-set shape
+    (shape, pilot lags (T, u), data offsets (T,) as a tuple)."""
+    return tuple((shape, np.array([t.pilot_lags for t in group]), tuple(t.data_offset for t in group))
+                 for shape, group in _by_shape(schedule.targets).items())
+
+
 def _coupled_parts(schedule, band, symbol_s, doppler, spectrum, los_fraction, oscillator):
     """The coupled LMMSE problem of n designs, one piece per (group of targets, size of cluster).
 
@@ -682,6 +767,8 @@ def _coupled_parts(schedule, band, symbol_s, doppler, spectrum, los_fraction, os
 def _eigen_terms(m, x, g_sub):
     """Eigenvalues lambda_j and weights beta_j of :func:`_coupled_parts`' pieces: both (n, T, k, uc).
 
+    ``g_sub`` (k, c, c), or (T, k, c, c): a data Gram matrix per target.
+
     With ``m = W diag(lambda) W^H`` and ``b = W^H x``, ``beta_j = (b g_sub b^H)_jj``: the explained
     energy at noise s2 is ``sum_j beta_j / (lambda_j + s2)`` (positive beta_j only).
     """
@@ -691,13 +778,14 @@ def _eigen_terms(m, x, g_sub):
     return np.broadcast_to(lam[:, None], beta.shape), beta
 
 
-def _eigen_explained(m, x, g_sub, s2):
-    """The explained energy of pieces (p, ...) at noise levels s2 (p,) through :func:`_eigen_terms`: (p,)."""
-    lam, beta = _eigen_terms(m, x, g_sub)
+def _eigen_explained(m, x, g, s2):
+    """The explained energy of each target of pieces (p, ...) at noise levels s2 (p,) through
+    :func:`_eigen_terms` (``g`` (T, k, c, c): each target's data Gram matrix): (p, T)."""
+    lam, beta = _eigen_terms(m, x, g)
     flat = s2.reshape((-1,) + (1,) * (beta.ndim - 1))
     with np.errstate(divide="ignore", invalid="ignore"):
         terms = np.where(beta > 0, beta / (lam + flat), 0.0)
-    return terms.reshape(terms.shape[0], -1).sum(axis=1)
+    return terms.reshape(terms.shape[:2] + (-1,)).sum(axis=2)
 
 
 #: Noise levels at most this small relative to the largest diagonal entry of a piece's matrix go to the
@@ -705,51 +793,148 @@ def _eigen_explained(m, x, g_sub, s2):
 DIRECT_MIN_NOISE = 1e-10
 #: From this size on (u c rows) the factor's triangular solves; below it one stacked LU solve.
 DIRECT_TRIANGULAR = 64
-def _direct_explained(m, x, g_sub, s2):
-    """The explained energy ``sum_T tr(x^H (m + s2 I)^-1 x g_sub)`` of pieces (p, ...) at noise s2 (p,): (p,).
+def _direct_explained(m, x, g, s2):
+    """The explained energy ``tr(x_T^H (m + s2 I)^-1 x_T g_T)`` of each target T of pieces (p, ...): (p, T).
 
-    Cholesky ``m + s2 I = L L^H`` and ``y = L^-1 x`` give ``tr(y g_sub y^H)``. Pairs whose noise is tiny
-    against the matrix's scale (:data:`DIRECT_MIN_NOISE`), a failed factorisation or a result that is
-    not finite: the eigendecomposition (:func:`_eigen_explained`), for those pieces alone, so that a
-    piece's value never depends on the others asked with it (the same input gives the same JSON).
+    ``m`` (p, k, uc, uc), ``x`` (p, T, k, uc, c), ``g`` (T, k, c, c), ``s2`` (p,). Cholesky
+    ``m + s2 I = L L^H`` and ``y = L^-1 x`` give ``tr(y g y^H)``, one factorisation for every target
+    of the piece. Pairs whose noise is tiny against the matrix's scale (:data:`DIRECT_MIN_NOISE`), a
+    failed factorisation or a result that is not finite: the eigendecomposition
+    (:func:`_eigen_explained`), for those pieces alone, so that a piece's value never depends on the
+    others asked with it (the same input gives the same JSON).
     """
     if s2.size > 1:
         try:
-            return _direct_batch(m, x, g_sub, s2)
+            return _direct_batch(m, x, g, s2)
         except np.linalg.LinAlgError:  # some piece failed: each on its own
-            return np.concatenate([_direct_explained(m[i:i + 1], x[i:i + 1], g_sub, s2[i:i + 1])
+            return np.concatenate([_direct_explained(m[i:i + 1], x[i:i + 1], g, s2[i:i + 1])
                                    for i in range(s2.size)])
     try:
-        return _direct_batch(m, x, g_sub, s2)
+        return _direct_batch(m, x, g, s2)
     except np.linalg.LinAlgError:
-        return _eigen_explained(m, x, g_sub, s2)
+        return _eigen_explained(m, x, g, s2)
 
 
-def _direct_batch(m, x, g_sub, s2):
+def _direct_batch(m, x, g, s2):
     """:func:`_direct_explained` for a batch; raises LinAlgError if any piece's factorisation fails."""
     import scipy.linalg
 
     scale = np.max(np.diagonal(m, axis1=-2, axis2=-1).real, axis=-1)  # (p, k)
     direct = np.all(s2[:, None] > DIRECT_MIN_NOISE * scale, axis=1)
-    out = np.zeros(s2.shape)
+    out = np.zeros(s2.shape + x.shape[1:2])
     if direct.any():
         every = bool(direct.all())
         a = (m if every else m[direct]) + (s2 if every else s2[direct])[:, None, None, None] * np.eye(m.shape[-1])
         low = np.linalg.cholesky(a)  # (p, k, uc, uc); fails unless positive definite
         p, t, k, uc, c = a.shape[0], *x.shape[1:]
         right = (x if every else x[direct]).transpose(0, 2, 3, 1, 4).reshape(p, k, uc, t * c)  # targets side by side
+
+        def per_target(rows):  # (p, k, uc, t c) -> (p, t, k, uc, c)
+            return rows.reshape(p, k, uc, t, c).transpose(0, 3, 1, 2, 4)
+
         if uc >= DIRECT_TRIANGULAR:
-            y = scipy.linalg.solve_triangular(low, right, lower=True, check_finite=False)
-            y = y.reshape(p, k, uc * t, c)  # rows of L^-1 x for every target
-            value = np.sum(((y @ g_sub) * np.conj(y)).real.reshape(p, -1), axis=1)
+            y = per_target(scipy.linalg.solve_triangular(low, right, lower=True, check_finite=False))  # L^-1 x
+            value = np.sum(((y @ g) * np.conj(y)).real.reshape(p, t, -1), axis=2)
         else:  # small matrices, many of them: one stacked solve (scipy would loop over the stack)
-            z = np.linalg.solve(a, right).reshape(p, k, uc * t, c)  # rows of (m + s2 I)^-1 x
-            value = np.sum(((z @ g_sub) * np.conj(right.reshape(p, k, uc * t, c))).real.reshape(p, -1), axis=1)
+            z = per_target(np.linalg.solve(a, right))  # (m + s2 I)^-1 x
+            value = np.sum(((z @ g) * np.conj(per_target(right))).real.reshape(p, t, -1), axis=2)
         if not np.all(np.isfinite(value)):
             raise np.linalg.LinAlgError("not finite")
         out[direct] = value
     if not direct.all():
-        out[~direct] = _eigen_explained(m[~direct], x[~direct], g_sub, s2[~direct])
+        out[~direct] = _eigen_explained(m[~direct], x[~direct], g, s2[~direct])
+    return out
+
+
+def _pilot_set(target) -> tuple:
+    """The pilot set of a target, as the coupled matrix depends on it: (lag differences, comb offsets)."""
+    lags = target.pilot_lags
+    return tuple(l - lags[0] for l in lags), target.pilot_offsets
+
+
+def _pilot_set_explained(band, setting, pilot_set, designs, targets):
+    """The explained energy of each target sharing one pilot set, per design: (D, T).
+
+    ``setting`` (comb step, comb offsets of the schedule, spectrum, line-of-sight fraction, oscillator);
+    ``designs`` D triples (symbol duration, Doppler, noise level); ``targets`` T triples (pilot lags,
+    pilot offsets, data offset) of the pilot set. The coupled matrix of a cluster (:func:`_coupled_parts`)
+    is built from the band's :meth:`Band.cluster_products` weighted by each kind's time correlation,
+    ``M_ij = sum_q rho_ij,q H_i E_q H_j``, and factorised once for all the targets.
+    """
+    d_f, comb_offsets, spectrum, los_fraction, oscillator = setting
+    shape, pilot_offsets = np.asarray(pilot_set[0]), pilot_set[1]
+    symbol_s, doppler, s2 = (np.array(v, dtype=float) for v in zip(*designs))
+    kinds = band.kinds
+    lags = np.array([t[0] for t in targets])  # (T, u)
+    reach = int(np.abs(lags).max())
+    table = time_correlation(kinds, np.arange(-2 * reach, 2 * reach + 1)[None, :] * symbol_s[:, None],
+                             doppler[:, None], spectrum, los_fraction, oscillator)  # (D, 4 reach + 1, Q)
+    rho = table[:, (shape[:, None] - shape[None, :]) + 2 * reach]  # (D, u, u, Q)
+    cross = table[:, lags + 2 * reach]  # (D, T, u, Q)
+    g_all = band.comb_gram(d_f, -1)
+    g_data = {o: g_all - (band.comb_gram(d_f, o) if o >= 0 else 0.0) for o in {t[2] for t in targets}}
+    out = np.zeros((len(designs), len(targets)))
+    u = shape.size
+    for members in band.clusters(d_f, comb_offsets):  # (k, c): k clusters of c components each
+        k, c = members.shape
+        products = band.cluster_products(d_f, pilot_offsets, members)  # (Q, k, u, r, u, r)
+        r = products.shape[-1]
+        m = sum(rho[:, None, :, None, :, None, q] * products[q] for q in range(kinds.size))
+        m = m.reshape(len(designs), k, u * r, u * r)
+        rows = np.conj(np.swapaxes(band.cluster_factors(d_f, pilot_offsets, members), -1, -2))  # (u, k, r, c)
+        kind = np.searchsorted(kinds, band.components.kind[members])  # (k, c)
+        x = rows[None, None] * cross[..., kind][..., None, :]  # (D, T, u, k, r, c): F_i^H diag(rho_i)
+        x = x.transpose(0, 1, 3, 2, 4, 5).reshape(len(designs), len(targets), k, u * r, c)
+        g = np.stack([g_data[t[2]][members[:, :, None], members[:, None, :]] for t in targets])  # (T, k, c, c)
+        out += _direct_explained(0.5 * (m + np.conj(np.swapaxes(m, -1, -2))), x, g, s2)
+    return out
+
+
+#: Explained energies a band keeps (:attr:`Band.explained`), at most; emptied beyond.
+EXPLAINED_KEPT = 20_000
+
+
+def _coupled_explained(asks) -> list:
+    """Explained energies of coupled problems: for each (problem, rows, s2) of ``asks``, that of design
+    ``rows[i]`` at noise ``s2[i]`` (p,).
+
+    A design's energy is the sum over its targets with pilots of each target's
+    ``tr(x^H (M + s2 I)^-1 x G_d)``, which depends only on the band, the setting (comb step and offsets,
+    time variation, oscillator), the target's pilots and data offset and the design's symbol duration,
+    Doppler and noise level. Each such value is worked out once and kept by the band: many structures
+    (slot lengths, scopes, the comb bound's later exact evaluation) share targets. The missing ones are
+    computed together per pilot set across every problem asked (one factorisation of M per design for
+    all targets on that pilot set); a value depends on what is asked with it only through round-off.
+    """
+    values: dict = {}  # (band id, setting, target, design) -> explained energy
+    work: dict = {}  # (band id, setting, pilot set) -> (band, {design: None}, {target: None})
+    for problem, rows, s2 in asks:
+        band, setting = problem.band, problem.setting
+        for design in zip(problem.symbol_s[rows].tolist(), problem.doppler[rows].tolist(), s2.tolist()):
+            for pilot_set, target in problem.targets:
+                key = (setting, target, design)
+                if (id(band),) + key in values:
+                    continue
+                known = band.explained.get(key)
+                if known is not None:
+                    values[(id(band),) + key] = known
+                    continue
+                _, designs, targets = work.setdefault((id(band), setting, pilot_set), (band, {}, {}))
+                designs[design], targets[target] = None, None
+    for (_, setting, pilot_set), (band, designs, targets) in work.items():
+        designs, targets = list(designs), list(targets)
+        energy = _pilot_set_explained(band, setting, pilot_set, designs, targets).tolist()
+        if len(band.explained) + len(designs) * len(targets) > EXPLAINED_KEPT:
+            band.explained.clear()
+        for design, row in zip(designs, energy):
+            for target, value in zip(targets, row):
+                band.explained[(setting, target, design)] = values[(id(band), setting, target, design)] = value
+    out = []
+    for problem, rows, s2 in asks:
+        head = (id(problem.band), problem.setting)
+        out.append(np.array([sum(values[head + (target, design)] for _, target in problem.targets)
+                             for design in zip(problem.symbol_s[rows].tolist(), problem.doppler[rows].tolist(),
+                                               s2.tolist())]))
     return out
 
 
@@ -758,38 +943,23 @@ class _CoupledProblem:
 
     Compact on purpose: the schedule, the band (shared by every structure on it, as ``link`` keeps its
     bands), per design the symbol duration and the Doppler. The matrices (up to 168 x 168 complex per
-    cluster and group, ~0.5 MB) exist only while a batch of noise levels is answered
-    (:func:`prepare_direct`) and are built again for a later one; a cache of 20,000 structures thus holds
-    a few hundred bytes per structure and a few numbers per noise level asked, not the matrices.
+    cluster and pilot set, ~0.5 MB) exist only while a batch of noise levels is answered
+    (:func:`prepare_direct`); the targets' explained energies are kept by the band
+    (:func:`_coupled_explained`), a few numbers per noise level asked, not the matrices.
     """
 
     def __init__(self, schedule, band, symbol_s, doppler, spectrum, los_fraction, oscillator, total):
         self.schedule, self.band, self.symbol_s, self.doppler = schedule, band, symbol_s, doppler
         self.spectrum, self.los_fraction, self.oscillator, self.total = spectrum, los_fraction, oscillator, total
-
-    def _parts(self, rows):
-        return _coupled_parts(self.schedule, self.band, self.symbol_s[rows], self.doppler[rows], self.spectrum,
-                              self.los_fraction, self.oscillator)
+        #: what a target's explained energy depends on beyond the band, its pilots and the design
+        self.setting = (schedule.freq_spacing, schedule.comb_offsets, spectrum, los_fraction, oscillator)
+        #: (pilot set, (pilot lags, pilot offsets, data offset)) of each target with pilots, in order
+        self.targets = [(_pilot_set(t), (t.pilot_lags, t.pilot_offsets, t.data_offset))
+                        for t in schedule.targets if t.pilot_lags and band.components.basis.shape[1]]
 
     def explained(self, rows, s2):
         """Explained energy of design ``rows[i]`` at noise ``s2[i]`` (pairs; rows may repeat): (p,)."""
-        distinct, pick = np.unique(rows, return_inverse=True)
-        same = distinct.size == rows.size  # one level per design, in order: no copies
-        out = np.zeros(s2.shape)
-        for m, x, g_sub in self._parts(distinct):
-            out += _direct_explained(m if same else m[pick], x if same else x[pick], g_sub, s2)
-        return out
-
-    def spectral(self, rows):
-        """The eigen form (:class:`SpectralWeights`) of the designs ``rows``."""
-        lams, betas = [], []
-        for m, x, g_sub in self._parts(rows):
-            lam, beta = _eigen_terms(m, x, g_sub)
-            lams.append(lam.reshape(len(rows), -1))
-            betas.append(beta.reshape(len(rows), -1))
-        lam = np.concatenate(lams, axis=1) if lams else np.zeros((len(rows), 0))
-        beta = np.concatenate(betas, axis=1) if betas else np.zeros((len(rows), 0))
-        return [SpectralWeights("lmmse", lam[i], beta[i], self.total) for i in range(len(rows))]
+        return _coupled_explained([(self, rows, s2)])[0]
 
 
 class DirectWeights:
@@ -801,8 +971,8 @@ class DirectWeights:
     instead of an eigendecomposition with vectors (several times cheaper; a search asks nearly every
     structure for one noise level). Each level's result is remembered, and always computed the same way
     (never from another form once many levels were asked: a warm cache gives the same digits as a cold
-    one). Memory: see :class:`_CoupledProblem`. Ask many designs at once through
-    :func:`prepare_direct` (one batch per problem, vectorised over its designs).
+    one, to round-off). Memory: see :class:`_CoupledProblem`. Ask many designs at once through
+    :func:`prepare_direct` (one batch per pilot set, vectorised over the designs of every problem).
     """
 
     kind = "lmmse"
@@ -825,8 +995,8 @@ class DirectWeights:
 def prepare_direct(requests) -> None:
     """Answer (weights, noise levels) requests of :class:`DirectWeights` together; other weights are skipped.
 
-    Per problem, the designs' new noise levels are computed in one batch (the matrices built once for
-    the designs asked, the factorisations stacked).
+    Per problem, the designs' new noise levels are gathered; the coupled problems are then answered
+    together (:func:`_coupled_explained`), the wandering ones problem by problem.
     """
     levels: dict = {}  # id -> (weights, new levels)
     for weights, noise in requests:
@@ -842,13 +1012,56 @@ def prepare_direct(requests) -> None:
         if not new:
             continue
         direct.setdefault(id(weights.problem), (weights.problem, []))[1].append((weights, sorted(new)))
-    for problem, items in direct.values():
-        rows = np.concatenate([np.full(len(new), w.index) for w, new in items])
-        s2 = np.concatenate([np.asarray(new, dtype=float) for _, new in items])
-        explained = problem.explained(rows, s2).tolist()
+    asks = [(problem, np.concatenate([np.full(len(new), w.index) for w, new in items]),
+             np.concatenate([np.asarray(new, dtype=float) for _, new in items])) for problem, items in direct.values()]
+    coupled = [ask for ask in asks if isinstance(ask[0], _CoupledProblem)]
+    answers = dict(zip([id(ask[0]) for ask in coupled], _coupled_explained(coupled)))
+    for (problem, items), (_, rows, s2) in zip(direct.values(), asks):
+        found = answers[id(problem)] if id(problem) in answers else problem.explained(rows, s2)
+        explained = found.tolist()
         for w, new in items:
             w.known.update(zip(new, explained[:len(new)]))
             explained = explained[len(new):]
+
+
+#: Elements of the stacked terms of :func:`estimation_errors` worked out at once, at most (memory).
+STACKED_TERMS = 1 << 22
+
+
+def estimation_errors(requests) -> list:
+    """``weights.mse(noise)`` of each (weights, noise levels) request, many requests at once.
+
+    The coupled problems' levels go together through :func:`prepare_direct`; the LMMSE spectral weights
+    with the same number of terms are stacked, one row per (request, level), with per row the arithmetic
+    of :meth:`SpectralWeights.mse` (the same digits); other weights are asked one by one.
+    """
+    prepare_direct(requests)
+    out = [None] * len(requests)
+    stacks: dict = {}  # number of terms -> requests
+    for index, (weights, noise) in enumerate(requests):
+        if type(weights) is SpectralWeights and weights.kind == "lmmse" and weights.data > 0:
+            stacks.setdefault(weights.lam.size, []).append(index)
+        else:
+            out[index] = weights.mse(noise)
+    for size, indices in stacks.items():
+        levels = [np.asarray(requests[i][1], dtype=float) for i in indices]
+        lam = np.stack([requests[i][0].lam for i in indices])
+        beta = np.stack([requests[i][0].beta for i in indices])
+        data = np.array([requests[i][0].data for i in indices])
+        row = np.repeat(np.arange(len(indices)), [level.size for level in levels])
+        s2 = np.concatenate([level.ravel() for level in levels])
+        error = np.empty(s2.size)
+        step = max(1, STACKED_TERMS // max(size, 1))
+        for start in range(0, s2.size, step):
+            part = row[start:start + step]
+            b = beta[part]
+            with np.errstate(divide="ignore", invalid="ignore"):
+                explained = np.sum(np.where(b > 0, b / (lam[part] + s2[start:start + step, None]), 0.0), axis=1)
+            error[start:start + step] = np.clip(1.0 - explained / data[part], 0.0, 1.0)
+        ends = np.cumsum([level.size for level in levels])
+        for i, level, end in zip(indices, levels, ends):
+            out[i] = error[end - level.size:end].reshape(level.shape)
+    return out
 
 
 def staggered_bound(schedule: arrangement.Schedule, band: Band, symbol_s, max_doppler_hz, spectrum: str,
@@ -870,39 +1083,97 @@ def staggered_bound(schedule: arrangement.Schedule, band: Band, symbol_s, max_do
     oscillator phase (which the separable form's rank-one line of sight
     cannot follow), the same one comb in :class:`WanderingWeights`.
     """
-    offsets = schedule.comb_offsets
     symbol_s = np.atleast_1d(np.asarray(symbol_s, dtype=float))
     doppler = np.broadcast_to(np.asarray(max_doppler_hz, dtype=float), symbol_s.shape)
-    offset = offsets if len(offsets) > 1 else (offsets[0] if offsets else 0)
+    offset = _bound_comb(schedule.comb_offsets)
     if (band.components.kind == LINE_OF_SIGHT).any() and _random_phase(oscillator):
         return _wandering_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, offset, oscillator)
     return _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, offset, oscillator)
 
 
-def _plain_separable(targets, z_of, m, table, reach, total) -> list[SpectralWeights]:
-    """:func:`_separable_weights` without a line of sight, vectorised over the designs and the targets.
+def _bound_comb(offsets):
+    """The comb of :func:`staggered_bound`: the offsets' dominating comb (a tuple), or the one comb there is."""
+    return offsets if len(offsets) > 1 else (offsets[0] if offsets else 0)
 
+
+def pattern_weights(jobs, band: Band, spectrum: str, los_fraction: float, estimator: str = "lmmse",
+                    oscillator=None, coupled: str = "direct") -> list:
+    """The weights of several patterns on one band: per job, :func:`staggered_bound` or :func:`spectral_weights`
+    (``coupled`` as there).
+
+    ``jobs``: (schedule, symbol durations (n,), Dopplers (n,), bounded), ``bounded`` asking for the comb
+    bound. Jobs whose weights are the plain separable ones (no line of sight in the band, the LMMSE, one
+    comb or the comb bound) are worked out together (:func:`_plain_separable`), the others one by one;
+    either way each design gets the weights it would get alone.
+    """
+    out = [None] * len(jobs)
+    plain = []
+    no_los = not (band.components.kind == LINE_OF_SIGHT).any()
+    for index, (schedule, symbol_s, doppler, bounded) in enumerate(jobs):
+        offsets = schedule.comb_offsets
+        if estimator == "lmmse" and no_los and (bounded or len(offsets) <= 1):
+            plain.append((index, (schedule, _bound_comb(offsets), np.atleast_1d(np.asarray(symbol_s, dtype=float)),
+                                  np.atleast_1d(np.asarray(doppler, dtype=float)))))
+        elif bounded:
+            out[index] = staggered_bound(schedule, band, symbol_s, doppler, spectrum, los_fraction, oscillator)
+        else:
+            out[index] = spectral_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, estimator,
+                                          oscillator, coupled)
+    if plain:
+        for (index, _), found in zip(plain, _plain_separable(band, [job for _, job in plain], spectrum, los_fraction,
+                                                             oscillator)):
+            out[index] = found
+    return out
+
+
+def _plain_separable(band, jobs, spectrum, los_fraction, oscillator) -> list[list[SpectralWeights]]:
+    """:func:`_separable_weights` without a line of sight, for several patterns on one band at once.
+
+    ``jobs``: (schedule, comb offset (a tuple: the dominating comb), symbol durations (n,), Dopplers (n,)).
     Per target and design the weights are the outer products of the time eigenvalues (of the pilot
     symbols' correlation, which depends on their lag differences only) with the comb's eigenvalues m,
-    and of the target's projections |U^H rho|^2 with its data's frequency part z.
+    and of the target's projections |U^H rho|^2 with its data's frequency part z. The time correlations
+    of every job's designs come from one lag table, and each pilot-set shape's time eigenproblems are
+    solved in one stack over every job that has it (the search asks many patterns of one band together).
+    Returns, per job, one :class:`SpectralWeights` per design.
     """
-    n = table.shape[0]
-    groups = _by_shape(targets) if m.size else {}
-    lams, betas = [], []
-    for shape, group in groups.items():
-        shape = np.asarray(shape)
-        r_s = table[:, (shape[:, None] - shape[None, :]) + 2 * reach, 0]  # (n, u, u)
-        l_t, u_t = hermitian_eigen(0.5 * (r_s + np.conj(np.swapaxes(r_s, -1, -2))))  # (n, u), (n, u, u)
+    sizes = [job[2].size for job in jobs]
+    starts = np.concatenate([[0], np.cumsum(sizes)])
+    table, reach = _lag_table(np.array([SCATTERED, LINE_OF_SIGHT]), [t for job in jobs for t in job[0].targets],
+                              np.concatenate([job[2] for job in jobs]), np.concatenate([job[3] for job in jobs]),
+                              spectrum, los_fraction, oscillator)  # (designs, 4 reach + 1, 2)
+    combs = [band.scattered_comb(schedule.freq_spacing, offset)[0] for schedule, offset, _, _ in jobs]
+    groups = [_shape_groups(job[0]) if m.size else () for job, m in zip(jobs, combs)]
+    users: dict = {}  # pilot-set shape -> the jobs that have it
+    for index, by_shape in enumerate(groups):
+        for shape, _, _ in by_shape:
+            users.setdefault(shape, []).append(index)
+    time_eigen = {}  # (shape, job) -> time eigenvalues (n, u) and vectors (n, u, u) of the job's designs
+    for shape, indices in users.items():
+        shape_lags = np.asarray(shape)
+        rows = np.concatenate([np.arange(starts[i], starts[i + 1]) for i in indices])
+        r_s = table[rows][:, (shape_lags[:, None] - shape_lags[None, :]) + 2 * reach, 0]  # (rows, u, u)
+        l_t, u_t = hermitian_eigen(0.5 * (r_s + np.conj(np.swapaxes(r_s, -1, -2))))  # (rows, u), (rows, u, u)
         l_t = np.where(l_t > 1e-12 * np.maximum(l_t.max(axis=-1, keepdims=True), 1e-300), l_t, 0.0)
-        lags = np.array([t.pilot_lags for t in group])  # (T, u)
-        rho = table[:, lags + 2 * reach, 0]  # (n, T, u): E h(t_i) h(n)^*
-        a = np.abs(np.einsum("nij,nti->ntj", np.conj(u_t), rho)) ** 2  # (n, T, u)
-        z = np.stack([z_of[t.data_offset] for t in group])  # (T, C)
-        lams.append(np.broadcast_to(l_t[:, None, :, None] * m, a.shape + m.shape).reshape(n, -1))
-        betas.append((a[..., None] * z[None, :, None, :]).reshape(n, -1))
-    lam = np.concatenate(lams, axis=1) if lams else np.zeros((n, 0))
-    beta = np.concatenate(betas, axis=1) if betas else np.zeros((n, 0))
-    return [SpectralWeights("lmmse", lam[i], beta[i], total) for i in range(n)]
+        ends = np.cumsum([sizes[i] for i in indices])
+        for i, end, size in zip(indices, ends, [sizes[i] for i in indices]):
+            time_eigen[(shape, i)] = (l_t[end - size:end], u_t[end - size:end])
+    out = []
+    for index, ((schedule, offset, _, _), m, by_shape) in enumerate(zip(jobs, combs, groups)):
+        n, own = sizes[index], table[starts[index]:starts[index + 1]]
+        total = float(sum(data_count(band.used, schedule.freq_spacing, t) for t in schedule.targets))
+        lams, betas = [], []
+        for shape, lags, data_offsets in by_shape:  # lags (T, u)
+            l_t, u_t = time_eigen[(shape, index)]
+            rho = own[:, lags + 2 * reach, 0]  # (n, T, u): E h(t_i) h(n)^*
+            a = np.abs(np.einsum("nij,nti->ntj", np.conj(u_t), rho)) ** 2  # (n, T, u)
+            z = band.data_frequency_parts(schedule.freq_spacing, offset, data_offsets)  # (T, J)
+            lams.append(np.broadcast_to(l_t[:, None, :, None] * m, a.shape + m.shape).reshape(n, -1))
+            betas.append((a[..., None] * z[None, :, None, :]).reshape(n, -1))
+        lam = np.concatenate(lams, axis=1) if lams else np.zeros((n, 0))
+        beta = np.concatenate(betas, axis=1) if betas else np.zeros((n, 0))
+        out.append([SpectralWeights("lmmse", lam[i], beta[i], total) for i in range(n)])
+    return out
 
 
 def _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction, offset, oscillator=None):
@@ -915,27 +1186,19 @@ def _separable_weights(schedule, band, symbol_s, doppler, spectrum, los_fraction
     comps = band.components
     d_f, used, n = schedule.freq_spacing, band.used, symbol_s.size
     los = comps.kind == LINE_OF_SIGHT
+    if not los.any():
+        return _plain_separable(band, [(schedule, offset, symbol_s, doppler)], spectrum, los_fraction, oscillator)[0]
     scattered = ~los
     total = float(sum(data_count(used, d_f, t) for t in schedule.targets))
-    g_comb = band.dominating_gram(d_f, offset) if isinstance(offset, tuple) else band.comb_gram(d_f, offset)
-    m, vectors = band.comb_eigen(d_f, offset, scattered)  # scattered comb Gram = V diag(m) V^H
-    tol = 1e-12 * max(m.max(), 1e-300) if m.size else 0.0
-    m = np.where(m > tol, m, 0.0)
-    g_all = band.comb_gram(d_f, -1)
+    m, vectors = band.scattered_comb(d_f, offset)  # scattered comb Gram = V diag(m) V^H
     targets = [t for t in schedule.targets]
     table, reach = _lag_table(np.array([SCATTERED, LINE_OF_SIGHT]), targets, symbol_s, doppler, spectrum,
                               los_fraction, oscillator)  # (n, 4 reach + 1, 2)
-    # the frequency part of each target's data: z_j = m_j (V^H G_d V)_jj over the scattered components
-    z_of, g_data_of = {}, {}
-    for target in targets:
-        if target.data_offset not in z_of:
-            g_d = g_all - (band.comb_gram(d_f, target.data_offset) if target.data_offset >= 0 else 0.0)
-            g_data_of[target.data_offset] = g_d
-            z_of[target.data_offset] = m * np.sum(np.conj(vectors) * (g_d[np.ix_(scattered, scattered)] @ vectors),
-                                                  axis=0).real
-    if not los.any():
-        return _plain_separable(targets, z_of, m, table, reach, total)
+    z_of = {o: band.data_frequency_part(d_f, offset, o) for o in {t.data_offset for t in targets}}
     # a line of sight: its rank-one update on top of the scattered part, design by design
+    g_comb = band.dominating_gram(d_f, offset) if isinstance(offset, tuple) else band.comb_gram(d_f, offset)
+    g_all = band.comb_gram(d_f, -1)
+    g_data_of = {o: g_all - (band.comb_gram(d_f, o) if o >= 0 else 0.0) for o in z_of}
     v_los = vectors.conj().T @ g_comb[np.ix_(scattered, los)][:, 0]
     live = m > 0
     schur = max(float(g_comb[np.ix_(los, los)][0, 0].real - np.sum(np.abs(v_los[live]) ** 2 / m[live])), 0.0)

@@ -453,10 +453,10 @@ def _estimation_error(designs: DesignArrays, environment: Environment, req: Requ
     rows = np.flatnonzero(~tabled)
     weights, bounded = _structure_weights(unique[rows], flat_delays, flat_powers, doppler_hz, los_all,
                                           environment.doppler_spectrum, rules, mask, comb_bound)
-    # the coupled LMMSE is worked out per noise level: every structure's levels at once, one batch per problem
-    estimation.prepare_direct([(w, noise[members[row]]) for w, row in zip(weights, rows)])
-    for w, row in zip(weights, rows):
-        out[members[row]] = w.mse(noise[members[row]])
+    # every structure's levels at once (the coupled LMMSE per noise level, spectral weights stacked)
+    for row, error in zip(rows, estimation.estimation_errors([(w, noise[members[row]])
+                                                              for w, row in zip(weights, rows)])):
+        out[members[row]] = error
     flags = np.zeros(unique.shape[0], dtype=bool)
     flags[rows] = bounded
     if account is not None:
@@ -527,12 +527,15 @@ def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, sp
     out = [None] * unique.shape[0]
     bound_rows = np.zeros(unique.shape[0], dtype=bool)
     todo: dict = {}
-    for row, key in enumerate(unique):
-        scope, d_f, shift, mask, period, slot, shared, spacing, used, symbol_s, site, _, linewidth, offset = \
-            key.tolist()
+    channels: dict = {}  # site -> its channel (taps with power, line of sight) as a key
+    for row, key in enumerate(unique.tolist()):
+        scope, d_f, shift, mask, period, slot, shared, spacing, used, symbol_s, site, _, linewidth, offset = key
         site = int(site)
-        keep = flat_powers[site] > 0
-        channel = (tuple(flat_delays[site][keep]), tuple(flat_powers[site][keep]), float(los_all[site]))
+        channel = channels.get(site)
+        if channel is None:
+            keep = flat_powers[site] > 0
+            channel = channels[site] = (tuple(flat_delays[site][keep].tolist()),
+                                        tuple(flat_powers[site][keep].tolist()), float(los_all[site]))
         pattern = (int(scope), int(d_f), int(shift), int(mask), int(period), int(slot), bool(shared))
         oscillator = (linewidth, offset, phase_mask)
         bounded = comb_bound and rules.estimator == "lmmse" and _staggered(pattern, rules)
@@ -545,31 +548,35 @@ def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, sp
             continue
         todo.setdefault((pattern, spacing, int(used), channel, oscillator, bounded), []).append(
             (row, symbol_s, float(doppler_hz[site]), cache_key))
-    for (pattern, spacing, used, channel, oscillator, bounded), rows in todo.items():
-        scope, d_f, shift, mask, period, slot, shared = pattern
-        symbol_s = np.array([r[1] for r in rows])
-        doppler = np.array([r[2] for r in rows])
-        los = channel[2]
-        if SCOPES[scope] == "differential":
-            kinds = np.array([estimation.SCATTERED, estimation.LINE_OF_SIGHT])
-            rho = estimation.time_correlation(kinds, symbol_s, doppler, spectrum, los, oscillator)
-            r = (1 - los) * rho[:, 0] + los * rho[:, 1]  # the whole channel's autocorrelation at one symbol
-            found = [estimation.SpectralWeights("differential", np.zeros(0), np.zeros(0), 1.0, bias=abs(v) ** 2)
-                     for v in r]
-        else:
-            plan = _schedule(SCOPES[scope], mask, period, shift, d_f, slot, shared, rules.estimation_lookahead,
-                             rules.estimation_memory)
-            band = _band(channel, spacing, used)
-            if bounded:
-                found = estimation.staggered_bound(plan, band, symbol_s, doppler, spectrum, los, oscillator)
-            else:
-                found = estimation.spectral_weights(plan, band, symbol_s, doppler, spectrum, los, rules.estimator,
-                                                    oscillator, coupled)
+
+    def remember(rows, found, bounded):
         if len(_WEIGHTS_CACHE) + len(found) > _WEIGHTS_CACHE_SIZE:
             _WEIGHTS_CACHE.clear()
         for (row, _, _, cache_key), weights in zip(rows, found):
             out[row] = _WEIGHTS_CACHE[cache_key] = weights
             bound_rows[row] = bounded
+
+    on_band: dict = {}  # (spacing, used, channel, oscillator) -> the patterns' jobs on that band
+    for (pattern, spacing, used, channel, oscillator, bounded), rows in todo.items():
+        scope, d_f, shift, mask, period, slot, shared = pattern
+        symbol_s = np.array([r[1] for r in rows])
+        doppler = np.array([r[2] for r in rows])
+        if SCOPES[scope] == "differential":
+            los = channel[2]
+            kinds = np.array([estimation.SCATTERED, estimation.LINE_OF_SIGHT])
+            rho = estimation.time_correlation(kinds, symbol_s, doppler, spectrum, los, oscillator)
+            r = (1 - los) * rho[:, 0] + los * rho[:, 1]  # the whole channel's autocorrelation at one symbol
+            remember(rows, [estimation.SpectralWeights("differential", np.zeros(0), np.zeros(0), 1.0,
+                                                       bias=abs(v) ** 2) for v in r], bounded)
+            continue
+        plan = _schedule(SCOPES[scope], mask, period, shift, d_f, slot, shared, rules.estimation_lookahead,
+                         rules.estimation_memory)
+        on_band.setdefault((spacing, used, channel, oscillator), []).append((plan, symbol_s, doppler, bounded, rows))
+    for (spacing, used, channel, oscillator), jobs in on_band.items():
+        found = estimation.pattern_weights([job[:4] for job in jobs], _band(channel, spacing, used), spectrum,
+                                           channel[2], rules.estimator, oscillator, coupled)
+        for (_, _, _, bounded, rows), weights in zip(jobs, found):
+            remember(rows, weights, bounded)
     return out, bound_rows
 
 
@@ -590,12 +597,16 @@ def _band(channel, spacing, used) -> estimation.Band:
 
 def _staggered(pattern, rules) -> bool:
     """Whether the pilot symbols of a pattern (as ``_structure_weights`` keys it) sit on more than one comb."""
+    return _staggered_schedule(pattern, rules.estimation_lookahead, rules.estimation_memory)
+
+
+@lru_cache(maxsize=4096)
+def _staggered_schedule(pattern, lookahead, memory) -> bool:
+    """:func:`_staggered` for a receiver's look-ahead and memory, remembered per pattern."""
     scope, d_f, shift, mask, period, slot, shared = pattern
     if SCOPES[scope] == "differential":
         return False
-    plan = _schedule(SCOPES[scope], mask, period, shift, d_f, slot, shared, rules.estimation_lookahead,
-                     rules.estimation_memory)
-    return len(plan.comb_offsets) > 1
+    return len(_schedule(SCOPES[scope], mask, period, shift, d_f, slot, shared, lookahead, memory).comb_offsets) > 1
 
 
 @lru_cache(maxsize=4096)

@@ -401,6 +401,73 @@ def test_direct_weights_agree_with_the_eigen_form(case):
         assert np.array_equal(f.mse(np.array(NOISES)), np.array([d.mse(v) for v in NOISES]))
 
 
+def test_coupled_targets_asked_together_across_patterns():
+    """Two staggered patterns on one band (LTE port 0 read as a stream and slot by slot, TS 36.211
+    sect. 6.10.1.2, in ETU, TS 36.101 Annex B) with an oscillator's phase on every component (an invented
+    10 Hz linewidth and 190 Hz offset): asked through one batch, their targets' energies are worked out per
+    pilot set across both; each design agrees with the eigendecomposition of its own coupled matrix, and
+    with what it gives asked alone on a fresh band."""
+    mask = arrangement.mask_from_symbols([0, 4])
+    plans = [arrangement.schedule("stream", mask, 7, 3, 6, 7, True, 3, 7, estimation.MAX_PILOT_SYMBOLS),
+             arrangement.schedule("slot", mask, 7, 3, 6, 14, True, 0, 0, estimation.MAX_PILOT_SYMBOLS)]
+    oscillator = (10.0, 190.0, None)
+    symbol_s, doppler = 0.5 * MS / 7 * np.array([1, 1.2]), np.array([300.0, 30.0])
+
+    def weights(band, plan, coupled="direct"):
+        return estimation.spectral_weights(plan, band, symbol_s, doppler, "classical", 0.0, "lmmse", oscillator,
+                                           coupled)
+
+    def fresh_band():
+        return estimation.Band(ETU_S, 10 ** (ETU_DB / 10), 0.0, 15e3, 1200)
+
+    shared = fresh_band()
+    together = [weights(shared, plan) for plan in plans]
+    estimation.prepare_direct([(w, np.array(NOISES)) for ws in together for w in ws])
+    for plan, ws in zip(plans, together):
+        eigen, alone = weights(fresh_band(), plan, "eigen"), weights(fresh_band(), plan)
+        for w, e, a in zip(ws, eigen, alone):
+            assert_allclose(w.mse(np.array(NOISES)), e.mse(np.array(NOISES)), rtol=1e-9, atol=ATOL)
+            assert_allclose(w.mse(np.array(NOISES)), a.mse(np.array(NOISES)), rtol=1e-12, atol=ATOL)
+
+
+def test_thin_factors_of_a_comb_sparser_than_the_channel():
+    """A comb of fewer subcarriers than the channel has components (an invented exponential profile of 64
+    taps over 2 us, 400 ns rms, on 600 subcarriers of 30 kHz: about 40 components; LTE's port-0 timing
+    with every 24th subcarrier, 25 per comb): the thin factors keep the combs' rank, and the coupled error
+    agrees with the eigendecomposition of the whole square-root form to 1e-9."""
+    delays = np.linspace(0.0, 2 * US, 64)
+    band = estimation.Band(delays, np.exp(-delays / (400 * NS)), 0.0, 30e3, 600)
+    plan = arrangement.schedule("stream", arrangement.mask_from_symbols([0, 4]), 7, 12, 24, 7, True, 3, 7,
+                                estimation.MAX_PILOT_SYMBOLS)
+    members = band.clusters(24, plan.comb_offsets)[-1]
+    factors = band.cluster_factors(24, plan.comb_offsets, members)
+    assert factors.shape[-1] == 25 < members.shape[1]
+    args = (plan, band, 35.7 * US * np.array([1, 1.1]), np.array([50.0, 300.0]), "classical", 0.0, "lmmse",
+            (10.0, 190.0, None))
+    for direct, eigen in zip(estimation.spectral_weights(*args), estimation.spectral_weights(*args, coupled="eigen")):
+        assert_allclose(direct.mse(np.array(NOISES)), eigen.mse(np.array(NOISES)), rtol=1e-9, atol=ATOL)
+
+
+def test_estimation_errors_of_many_weights_at_once_match_their_own():
+    """Many requests at once (spectral weights of LTE's port 0 on one comb and staggered, TS 36.211 sect.
+    6.10.1.2, in ETU, TS 36.101 Annex B; a differential reference): the same digits as each weights' own
+    mse, in the shape of each request's levels."""
+    band = estimation.Band(ETU_S, 10 ** (ETU_DB / 10), 0.0, 15e3, 1200)
+    mask = arrangement.mask_from_symbols([0, 4])
+    one_comb = arrangement.schedule("slot", mask, 7, 0, 6, 14, True, 0, 0, estimation.MAX_PILOT_SYMBOLS)
+    staggered = arrangement.schedule("stream", mask, 7, 3, 6, 7, True, 3, 7, estimation.MAX_PILOT_SYMBOLS)
+    symbol_s = 0.5 * MS / 7 * np.array([1, 1.2, 1.5])
+    weights = [*estimation.spectral_weights(one_comb, band, symbol_s, 300.0, "classical", 0.0),
+               *estimation.staggered_bound(staggered, band, symbol_s, 300.0, "classical", 0.0),
+               *estimation.spectral_weights(staggered, band, symbol_s[:1], 300.0, "classical", 0.0),
+               estimation.SpectralWeights("differential", np.zeros(0), np.zeros(0), 1.0, bias=0.9)]
+    levels = [np.array([0.01, 0.1]), np.array([[1.0], [0.001]]), np.array(0.05), np.array([0.0, np.inf])] * 2
+    requests = list(zip(weights, levels))
+    for (w, noise), got in zip(requests, estimation.estimation_errors(requests)):
+        assert got.shape == noise.shape
+        assert np.array_equal(got, w.mse(noise))
+
+
 def test_direct_weights_of_an_array_of_noise_levels_match_scalar_calls():
     """An array of noise levels (repeated values, two dimensions) gives what one call per level gives,
     in the array's shape; repeated levels are worked out once."""
