@@ -37,6 +37,9 @@ BATCH = 4096
 #: The first round of a what-if search (one best key): its best-bound candidates usually settle it, and
 #: with the estimation floor in the bounds they are usually the answer.
 WHAT_IF_FIRST_BATCH = 16
+#: Unrefined candidates given their comb bound together in a what-if search, at most (the best bounds first):
+#: one call for many, where each round's exact evaluations take only the best few.
+WHAT_IF_REFINE = 512
 #: Objective values this close (relative) count as equal: a bound and the exact value of the same design
 #: may differ in the last bits, as they are computed along different paths.
 KEY_RTOL = 1e-9
@@ -205,6 +208,18 @@ def search(req: Requirements, environment: Environment | None = None, objective:
             break
         if records["index"]:
             batch_size = min(batch_size, max(MAX_EXACT_EVALUATIONS - evaluated, FIRST_BATCH))
+        if what_if:
+            # the best bounds first, each refined before it is evaluated: the unrefined among the best bounds
+            # in blocks (one call), until the round's candidates all carry their tighter bound
+            while pending.size and not refined[pending[:WHAT_IF_FIRST_BATCH]].all():
+                fresh = pending[~refined[pending]][:WHAT_IF_REFINE]
+                _tighten(fresh, key_bound, refined, grid, environment, req, objective, ignore)
+                pending = pending[(key_bound[pending] > -np.inf)
+                                  & ~(best[numerology[pending]] >= key_bound[pending]
+                                      - KEY_RTOL * np.abs(key_bound[pending]))]
+                pending = pending[np.argsort(-key_bound[pending], kind="stable")]
+            if not pending.size:
+                break
         if best_first:
             batch, pending = pending[:batch_size], pending[batch_size:]
         else:  # breadth first: the best few of every open numerology, so that each is settled early
@@ -332,12 +347,7 @@ def _refine(batch, pending, key_bound, refined, best, numerology, grid, environm
     numerology (the queue stays in decreasing order of bound).
     """
     fresh = batch[~refined[batch]]
-    if fresh.size:
-        designs = grid.take(fresh).designs()
-        evaluation = link.evaluate(designs, environment, req, comb_bound=True)
-        tight = np.where(_passed(evaluation, ignore), objective_key(objective, evaluation, designs), -np.inf)
-        key_bound[fresh] = np.minimum(key_bound[fresh], tight)
-        refined[fresh] = True
+    _tighten(fresh, key_bound, refined, grid, environment, req, objective, ignore)
     b = key_bound[batch]
     useful = (b > -np.inf) & ~(best[numerology[batch]] >= b - KEY_RTOL * np.abs(b))
     left = np.full(best.size, -np.inf)
@@ -347,6 +357,21 @@ def _refine(batch, pending, key_bound, refined, best, numerology, grid, environm
         pending = np.concatenate([pending, batch[later]])
         pending = pending[np.argsort(-key_bound[pending], kind="stable")]
     return batch[useful & ~later], pending
+
+
+def _tighten(fresh, key_bound, refined, grid, environment, req, objective, ignore) -> None:
+    """Give the candidates ``fresh`` their key bound with the estimation error's lower bound (in place).
+
+    ``link.evaluate(..., comb_bound=True)``: the comb bound for pilot symbols on different combs, the exact
+    error otherwise; a candidate that then fails a rule gets -inf.
+    """
+    if not fresh.size:
+        return
+    designs = grid.take(fresh).designs()
+    evaluation = link.evaluate(designs, environment, req, comb_bound=True)
+    tight = np.where(_passed(evaluation, ignore), objective_key(objective, evaluation, designs), -np.inf)
+    key_bound[fresh] = np.minimum(key_bound[fresh], tight)
+    refined[fresh] = True
 
 
 def _breadth_first(pending, numerology, per_numerology: int, limit: int):
