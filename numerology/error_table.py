@@ -51,7 +51,6 @@ from dataclasses import dataclass
 
 import numpy as np
 
-
 #: An interval is accepted when the interpolated error at its midpoint is within this many dB of the exact error.
 TOLERANCE_DB = 0.01
 #: An interval's interpolated errors are trusted to GUARD_FACTOR times its midpoint check, and never closer than
@@ -78,7 +77,6 @@ class TableReport:
     tolerance_db: float = TOLERANCE_DB
     settled: int = 0  # interpolated elements evaluated exactly after all, their verdict or rate in doubt
     guard_db: float = 0.0  # the widest guard of an interval (GUARD_FACTOR times its check, at least MIN_GUARD_DB)
-
 
     def to_json(self) -> dict:
         return {"interpolated": self.interpolated, "exact": self.exact, "table_nodes": self.nodes,
