@@ -80,6 +80,13 @@ class Evaluation:
         return _sinr_db(self.sinr_eff)
 
     @property
+    def estimation_error(self) -> np.ndarray:
+        """The channel-estimation error behind the estimation term (a fraction of the channel power)."""
+        term = self.terms["estimation"]
+        with np.errstate(invalid="ignore"):
+            return np.where(np.isfinite(term), term / (1.0 + term), 1.0)
+
+    @property
     def passed(self) -> np.ndarray:
         """True where every applicable rule passes."""
         ok = np.ones(np.shape(self.sinr_eff), dtype=bool)
@@ -415,8 +422,8 @@ def _estimation_error(designs: DesignArrays, environment: Environment, req: Requ
     """(:func:`estimation_error`, True for each design whose error is the comb bound rather than exact,
     the ``error_table.Tabulated`` account when ``tabulate`` (else None)).
 
-    ``tabulate`` (an environment batch, no comb bound): groups of many sites sharing a profile shape take their
-    error from a table of exact evaluations (``numerology.error_table``).
+    ``tabulate`` (an environment batch, no comb bound): sites sharing a channel, many Dopplers of it, take their
+    error from a table over the Doppler (``numerology.error_table``).
     """
     delays, powers = environment.taps
     batch = np.ndim(delays) > 1
@@ -486,12 +493,14 @@ def _tabulated(unique, members, noise, out, guard, flat_delays, flat_powers, dop
     key = unique.copy()
     key[:, _SITE_COLUMN] = channel[site]
     group, first = distinct_rows(np.ascontiguousarray(key))
+    by_group = np.argsort(group, kind="stable")
+    edges = np.searchsorted(group[by_group], np.arange(first.size + 1))
     done = np.zeros(unique.shape[0], dtype=bool)
     report = error_table.TableReport(0, 0, 0, 0, 0.0)
     for g, head in enumerate(first):
         if SCOPES[int(unique[head, 0])] == "differential":
             continue  # a closed form per site already
-        rows = np.flatnonzero(group == g)
+        rows = by_group[edges[g]:edges[g + 1]]
         if np.unique(doppler_hz[site[rows]]).size < error_table.MIN_POINTS:
             continue
         counts = np.array([members[r].size for r in rows])
@@ -751,9 +760,9 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
         instead of computing it, broadcasting with the result (a picture that
         knows it from nearby points: ``numerology.plots``).
     tabulate : bool
-        With an environment batch: groups of many sites sharing a profile
-        shape take the estimation error from a table of exact evaluations
-        (``numerology.error_table``; within its tolerance, not exact).
+        With an environment batch: sites sharing a channel, many Dopplers of
+        it, take the estimation error from a table over the Doppler
+        (``numerology.error_table``; within its guard, not exact).
         ``Evaluation.table`` then says which elements were interpolated.
 
     Returns

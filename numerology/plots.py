@@ -116,10 +116,7 @@ def _evaluate(req: Requirements, design: Design, speeds_mps, axis: DelayAxis, de
                for rule in evaluation.rules}
     if not with_error:
         return margins
-    term = np.broadcast_to(evaluation.terms["estimation"], (sites.size,)).reshape(shape)
-    with np.errstate(invalid="ignore"):
-        error = np.where(np.isfinite(term), term / (1.0 + term), 1.0)
-    return margins, error
+    return margins, np.broadcast_to(evaluation.estimation_error, (sites.size,)).reshape(shape)
 
 
 #: The operating map computes the channel-estimation error (most of its cost) exactly on every COARSE-th grid

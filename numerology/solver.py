@@ -215,8 +215,7 @@ def search(req: Requirements, environment: Environment | None = None, objective:
                 fresh = pending[~refined[pending]][:WHAT_IF_REFINE]
                 _tighten(fresh, key_bound, refined, grid, environment, req, objective, ignore)
                 pending = pending[(key_bound[pending] > -np.inf)
-                                  & ~(best[numerology[pending]] >= key_bound[pending]
-                                      - KEY_RTOL * np.abs(key_bound[pending]))]
+                                  & ~_reaches(best[numerology[pending]], key_bound[pending])]
                 pending = pending[np.argsort(-key_bound[pending], kind="stable")]
             if not pending.size:
                 break
@@ -257,16 +256,16 @@ def search(req: Requirements, environment: Environment | None = None, objective:
             # Only the best keys are wanted (no Pareto front): a candidate whose bound is below the top-th
             # numerology's best exact key can neither enter the top nor change a key in it.
             kth = np.sort(best)[-top]
-            pending = pending[key_bound[pending] >= kth - KEY_RTOL * abs(kth)]
+            pending = pending[_reaches(key_bound[pending], kth)]
         next_bound = key_bound[pending[0]] if pending.size else -np.inf
-        reached = best >= next_bound - KEY_RTOL * abs(next_bound)
+        reached = _reaches(best, next_bound)
         if np.count_nonzero(reached) >= top:
             break  # no unevaluated candidate can change the best `top` numerologies
         if not exhaustive and pending.size:
             # a numerology is settled once its best exact key reaches the best bound it has left
             left = np.full(best.size, -np.inf)
             np.maximum.at(left, numerology[pending], key_bound[pending])
-            settled |= best >= left - KEY_RTOL * np.abs(left)
+            settled |= _reaches(best, left)
             pending = pending[~settled[numerology[pending]]]
     found = {k: np.concatenate(v) if v else np.empty(0) for k, v in records.items()}
     stats = SearchStats(family.size, int(len(spacings_hz)), full_size, int(grid.size), evaluated,
@@ -349,7 +348,7 @@ def _refine(batch, pending, key_bound, refined, best, numerology, grid, environm
     fresh = batch[~refined[batch]]
     _tighten(fresh, key_bound, refined, grid, environment, req, objective, ignore)
     b = key_bound[batch]
-    useful = (b > -np.inf) & ~(best[numerology[batch]] >= b - KEY_RTOL * np.abs(b))
+    useful = (b > -np.inf) & ~_reaches(best[numerology[batch]], b)
     left = np.full(best.size, -np.inf)
     np.maximum.at(left, numerology[pending], key_bound[pending])
     later = useful & np.isin(batch, fresh) & (b < left[numerology[batch]])
@@ -357,6 +356,11 @@ def _refine(batch, pending, key_bound, refined, best, numerology, grid, environm
         pending = np.concatenate([pending, batch[later]])
         pending = pending[np.argsort(-key_bound[pending], kind="stable")]
     return batch[useful & ~later], pending
+
+
+def _reaches(key, bound):
+    """Whether an exact key reaches a bound, to the tie tolerance between them (:data:`KEY_RTOL`)."""
+    return key >= bound - KEY_RTOL * np.abs(bound)
 
 
 def _tighten(fresh, key_bound, refined, grid, environment, req, objective, ignore) -> None:

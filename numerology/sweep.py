@@ -107,6 +107,12 @@ class Sites:
     def size(self) -> int:
         return int(self.names.size)
 
+    def take(self, index) -> "Sites":
+        """The sites at ``index`` (an integer array), every per-site array indexed."""
+        n = self.size
+        return replace(self, **{f.name: getattr(self, f.name)[index] for f in fields(self)
+                                if isinstance(getattr(self, f.name), np.ndarray) and getattr(self, f.name).shape[:1] == (n,)})
+
     def requirements_for(self, req: Requirements, index: int) -> Requirements:
         """The requirement set edited to the values of the site at ``index``.
 
@@ -974,12 +980,13 @@ def sweep(req: Requirements, design: Design, sites: Sites, tabulate: bool = True
                            {r.name: empty for r in rules}, np.zeros(0, dtype=bool), np.zeros(0, dtype=np.int64),
                            empty, empty, req.path)
     designs = DesignArrays.from_designs([design])
-    evaluation = link.evaluate(designs, environment, site_requirements(req, sites), tabulate=tabulate)
+    site_req = site_requirements(req, sites)
+    evaluation = link.evaluate(designs, environment, site_req, tabulate=tabulate)
     table = evaluation.table
     report = None if table is None else table.report
     interpolated = np.zeros(n, dtype=bool)
     if table is not None and table.interpolated.any():
-        evaluation, interpolated = _settled(designs, environment, req, sites, evaluation)
+        evaluation, interpolated = _settled(designs, environment, req, site_req, sites, evaluation)
         settled = report.interpolated - int(np.count_nonzero(interpolated))
         report = replace(report, interpolated=report.interpolated - settled, exact=report.exact + settled,
                          settled=settled)
@@ -997,14 +1004,7 @@ def sweep(req: Requirements, design: Design, sites: Sites, tabulate: bool = True
         requirements_path=req.path, estimation_table=report, interpolated=interpolated)
 
 
-def _error_of(evaluation, n: int) -> np.ndarray:
-    """The estimation error (fraction of the channel power) behind an evaluation's estimation term, per site."""
-    term = np.broadcast_to(evaluation.terms["estimation"], (n,))
-    with np.errstate(invalid="ignore"):
-        return np.where(np.isfinite(term), term / (1.0 + term), 1.0)
-
-
-def _settled(designs, environment, req, sites, evaluation):
+def _settled(designs, environment, req, site_req, sites, evaluation):
     """(The evaluation again, with the exact estimation error wherever the table's could change a verdict,
     True for each site whose error stays interpolated).
 
@@ -1014,8 +1014,7 @@ def _settled(designs, environment, req, sites, evaluation):
     (the pass/fail, binding rules and rates are then those of the exact errors, the SINRs within the guard).
     """
     n = sites.size
-    site_req = site_requirements(req, sites)
-    error = _error_of(evaluation, n).copy()
+    error = np.broadcast_to(evaluation.estimation_error, (n,)).copy()
     guard = np.broadcast_to(evaluation.table.guard_db, (n,))
     factor = 10 ** (np.where(np.isnan(guard), 0.0, guard) / 10)
     low = link.evaluate(designs, environment, site_req, given_error=np.clip(error / factor, 0.0, 1.0))
@@ -1027,16 +1026,9 @@ def _settled(designs, environment, req, sites, evaluation):
         | (np.broadcast_to(low.rate_bps, (n,)) != np.broadcast_to(high.rate_bps, (n,))))
     index = np.flatnonzero(doubtful)
     if index.size:
-        exact = link.evaluate(designs, environment.take(index), site_requirements(req, _take_sites(sites, index)))
-        error[index] = _error_of(exact, index.size)
+        exact = link.evaluate(designs, environment.take(index), site_requirements(req, sites.take(index)))
+        error[index] = np.broadcast_to(exact.estimation_error, (index.size,))
     return link.evaluate(designs, environment, site_req, given_error=error), interpolated & ~doubtful
-
-
-def _take_sites(sites: Sites, index) -> Sites:
-    """The sites at ``index`` (every per-site array indexed)."""
-    n = sites.size
-    return replace(sites, **{f.name: getattr(sites, f.name)[index] for f in fields(sites)
-                             if isinstance(getattr(sites, f.name), np.ndarray) and getattr(sites, f.name).shape[:1] == (n,)})
 
 
 def site_requirements(req: Requirements, sites: Sites) -> Requirements:
