@@ -791,58 +791,150 @@ def _eigen_explained(m, x, g, s2):
 #: Noise levels at most this small relative to the largest diagonal entry of a piece's matrix go to the
 #: eigendecomposition rather than a Cholesky factorisation (``m + s2 I`` is then close to singular).
 DIRECT_MIN_NOISE = 1e-10
-#: From this size on (u c rows) the factor's triangular solves; below it one stacked LU solve.
+#: From this size on (u r rows) the factor's triangular solves; below it one stacked LU solve.
 DIRECT_TRIANGULAR = 64
-def _direct_explained(m, x, g, s2):
-    """The explained energy ``tr(x_T^H (m + s2 I)^-1 x_T g_T)`` of each target T of pieces (p, ...): (p, T).
 
-    ``m`` (p, k, uc, uc), ``x`` (p, T, k, uc, c), ``g`` (T, k, c, c), ``s2`` (p,). Cholesky
-    ``m + s2 I = L L^H`` and ``y = L^-1 x`` give ``tr(y g y^H)``, one factorisation for every target
-    of the piece. Pairs whose noise is tiny against the matrix's scale (:data:`DIRECT_MIN_NOISE`), a
+
+@dataclass(frozen=True)
+class _Cluster:
+    """One cluster size of a pilot set's coupled problem, for D designs and T targets.
+
+    ``m`` (D, k, ur, ur) the coupled matrices ``M_ij = F_i^H diag(rho_ij) F_j`` (exactly Hermitian);
+    ``rows`` (u, k, r, c) the factors' ``F_i^H``; ``onehot`` (k, c, Q) each component's kind;
+    ``basis`` (D, Q, u, u) per design and kind, the eigenvectors of the pilot symbols' time correlation;
+    ``beta`` (D, T, u, Q) each target's time cross-correlation with the pilot symbols in that basis;
+    ``grams`` (O, k, c, c) the data Gram matrices of the targets' data offsets, ``which`` (T,) a target's.
+
+    A target's right-hand side is ``x_T = F^H diag(rho_T) = sum_l beta_T,l R_l`` (per component's
+    kind), ``R_l`` the pilot symbols' factors combined by basis vector l. The solves take whichever
+    is narrower: every target's own ``x_T`` (T c columns), or the ``R_l`` (u c columns) read by each
+    target with its own coefficients (:meth:`explained`).
+    """
+
+    m: np.ndarray
+    rows: np.ndarray
+    onehot: np.ndarray
+    basis: np.ndarray
+    beta: np.ndarray
+    grams: np.ndarray
+    which: np.ndarray
+
+    @property
+    def per_target(self) -> bool:
+        """Whether the targets' own right-hand sides are no wider than the basis's."""
+        return self.which.size <= self.basis.shape[-1]
+
+    def take(self, keep):
+        """The same cluster for the designs ``keep`` (an index or a mask)."""
+        return _Cluster(self.m[keep], self.rows, self.onehot, self.basis[keep], self.beta[keep], self.grams,
+                        self.which)
+
+    def right(self):
+        """The right-hand sides of the solves, (D, k, ur, T c) or (D, k, ur, u c) (:attr:`per_target`).
+
+        Basis column (l, c) is ``sum_i B[q(c)][i, l] F_i^H e_c`` in block i of the rows.
+        """
+        if self.per_target:
+            x = self.targets()  # (D, T, k, ur, c)
+            return x.transpose(0, 2, 3, 1, 4).reshape(x.shape[0], x.shape[2], x.shape[3], -1)
+        u, k, r, c = self.rows.shape
+        spread = np.einsum("kcq,dqil->dkilc", self.onehot, self.basis)  # (D, k, i, l, c): B[q(c)][i, l]
+        rhs = self.rows.transpose(1, 0, 2, 3)[None, :, :, :, None, :] * spread[:, :, :, None]  # (D, k, i, r, l, c)
+        return rhs.reshape(self.m.shape[0], k, u * r, u * c)
+
+    def targets(self):
+        """Each target's right-hand side ``x_T = F^H diag(rho_T)``: (D, T, k, ur, c)."""
+        u, k, r, c = self.rows.shape
+        cross = np.einsum("dqil,dtlq->dtiq", self.basis, self.beta)  # back from the basis: rho_T (D, T, u, Q)
+        per = np.einsum("dtiq,kcq->dtikc", cross, self.onehot)  # rho_T of each component's kind
+        x = self.rows[None, None] * per[:, :, :, :, None, :]  # (D, T, u, k, r, c)
+        return x.transpose(0, 1, 3, 2, 4, 5).reshape(x.shape[0], x.shape[1], k, u * r, c)
+
+    def explained(self, left, right):
+        """Each target's explained energy ``tr(x_T^H (M + s2 I)^-1 x_T G_T)`` from ``left = (M + s2 I)^-1 R``
+        and ``right = R`` (or both ``L^-1 R`` for a factor ``L``), R :meth:`right`: (D, T).
+
+        Per target: ``tr(right_T^H left_T G_T)``. From the basis: ``sum beta_l conj(beta_m) S[l, m]`` with
+        ``S[l, m] = tr(right_m^H left_l G)`` per kind and data offset. In the basis of the time
+        correlation's eigenvectors a direction of small correlation, where ``left`` grows as 1/s2, is
+        weighed by the target's own small coefficient along it: no two large terms cancel.
+        """
+        d, k, rows = left.shape[:3]
+        c = self.rows.shape[-1]
+        if self.per_target:
+            t = self.which.size
+
+            def each(a):  # (D, k, ur, T c) -> (D, T, k, ur, c)
+                return a.reshape(d, k, rows, t, c).transpose(0, 3, 1, 2, 4)
+
+            value = (each(left) @ self.grams[self.which]) * np.conj(each(right))
+            return np.sum(value.real.reshape(d, t, -1), axis=2)
+        u, q = self.basis.shape[-1], self.onehot.shape[-1]
+        mask = self.onehot.transpose(0, 2, 1)[:, None, None]  # (k, 1, 1, Q, c)
+
+        def by_kind(a):  # (D, k, ur, u c) -> (D, k, ur, u, Q, c): the columns of each kind
+            return a.reshape(d, k, rows, u, 1, c) * mask
+
+        def flat(a):  # (D, k, ur, u, Q, c) -> (D, u Q, k ur c)
+            return a.transpose(0, 3, 4, 1, 2, 5).reshape(d, u * q, -1)
+
+        far = np.swapaxes(np.conj(flat(by_kind(right))), -1, -2)
+        near = by_kind(left).reshape(d, k, -1, c)
+        s = np.stack([flat((near @ g).reshape(d, k, rows, u, q, c)) @ far for g in self.grams])
+        s = s[self.which].transpose(1, 0, 2, 3).reshape(d, self.which.size, u, q, u, q)  # (D, T, u, Q, u, Q)
+        return np.einsum("dtlq,dtlqmp,dtmp->dt", self.beta, s, np.conj(self.beta)).real
+
+
+def _direct_explained(piece: _Cluster, s2):
+    """The explained energy ``tr(x_T^H (m + s2 I)^-1 x_T g_T)`` of each target T of a cluster: (D, T).
+
+    A Cholesky factorisation ``m + s2 I = L L^H`` per design serves every target: the right-hand sides
+    are the pilot symbols' factors in the eigenbasis of the time correlation (:meth:`_Cluster.right`,
+    u c columns however many targets), whose Gram matrix ``Y^H Y`` (``Y = L^-1 R``) each target reads
+    with its own weights (:meth:`_Cluster.explained`). In that basis a term weighs a direction of
+    small time correlation by the target's own small coefficient along it, so no two large terms
+    cancel (the per-symbol basis would: its blocks grow as 1/s2 where the time correlation is nearly
+    singular). Pairs whose noise is tiny against the matrix's scale (:data:`DIRECT_MIN_NOISE`), a
     failed factorisation or a result that is not finite: the eigendecomposition
-    (:func:`_eigen_explained`), for those pieces alone, so that a piece's value never depends on the
+    (:func:`_eigen_explained`), for those designs alone, so that a design's value never depends on the
     others asked with it (the same input gives the same JSON).
     """
     if s2.size > 1:
         try:
-            return _direct_batch(m, x, g, s2)
-        except np.linalg.LinAlgError:  # some piece failed: each on its own
-            return np.concatenate([_direct_explained(m[i:i + 1], x[i:i + 1], g, s2[i:i + 1])
+            return _direct_batch(piece, s2)
+        except np.linalg.LinAlgError:  # some design failed: each on its own
+            return np.concatenate([_direct_explained(piece.take(slice(i, i + 1)), s2[i:i + 1])
                                    for i in range(s2.size)])
     try:
-        return _direct_batch(m, x, g, s2)
+        return _direct_batch(piece, s2)
     except np.linalg.LinAlgError:
-        return _eigen_explained(m, x, g, s2)
+        return _eigen_explained(piece.m, piece.targets(), piece.grams[piece.which], s2)
 
 
-def _direct_batch(m, x, g, s2):
-    """:func:`_direct_explained` for a batch; raises LinAlgError if any piece's factorisation fails."""
+def _direct_batch(piece: _Cluster, s2):
+    """:func:`_direct_explained` for a batch; raises LinAlgError if any design's factorisation fails."""
     import scipy.linalg
 
+    m = piece.m
     scale = np.max(np.diagonal(m, axis1=-2, axis2=-1).real, axis=-1)  # (p, k)
     direct = np.all(s2[:, None] > DIRECT_MIN_NOISE * scale, axis=1)
-    out = np.zeros(s2.shape + x.shape[1:2])
+    out = np.zeros((s2.size, piece.which.size))
     if direct.any():
-        every = bool(direct.all())
-        a = (m if every else m[direct]) + (s2 if every else s2[direct])[:, None, None, None] * np.eye(m.shape[-1])
-        low = np.linalg.cholesky(a)  # (p, k, uc, uc); fails unless positive definite
-        p, t, k, uc, c = a.shape[0], *x.shape[1:]
-        right = (x if every else x[direct]).transpose(0, 2, 3, 1, 4).reshape(p, k, uc, t * c)  # targets side by side
-
-        def per_target(rows):  # (p, k, uc, t c) -> (p, t, k, uc, c)
-            return rows.reshape(p, k, uc, t, c).transpose(0, 3, 1, 2, 4)
-
-        if uc >= DIRECT_TRIANGULAR:
-            y = per_target(scipy.linalg.solve_triangular(low, right, lower=True, check_finite=False))  # L^-1 x
-            value = np.sum(((y @ g) * np.conj(y)).real.reshape(p, t, -1), axis=2)
+        part = piece if direct.all() else piece.take(direct)
+        a = part.m + s2[direct][:, None, None, None] * np.eye(m.shape[-1])
+        low = np.linalg.cholesky(a)  # fails unless positive definite
+        rhs = part.right()
+        if m.shape[-1] >= DIRECT_TRIANGULAR:
+            y = scipy.linalg.solve_triangular(low, rhs, lower=True, check_finite=False)  # L^-1 R
+            value = part.explained(y, y)
         else:  # small matrices, many of them: one stacked solve (scipy would loop over the stack)
-            z = per_target(np.linalg.solve(a, right))  # (m + s2 I)^-1 x
-            value = np.sum(((z @ g) * np.conj(per_target(right))).real.reshape(p, t, -1), axis=2)
+            value = part.explained(np.linalg.solve(a, rhs), rhs)
         if not np.all(np.isfinite(value)):
             raise np.linalg.LinAlgError("not finite")
         out[direct] = value
     if not direct.all():
-        out[~direct] = _eigen_explained(m[~direct], x[~direct], g, s2[~direct])
+        rest = piece.take(~direct)
+        out[~direct] = _eigen_explained(rest.m, rest.targets(), piece.grams[piece.which], s2[~direct])
     return out
 
 
@@ -859,7 +951,7 @@ def _pilot_set_explained(band, setting, pilot_set, designs, targets):
     ``designs`` D triples (symbol duration, Doppler, noise level); ``targets`` T triples (pilot lags,
     pilot offsets, data offset) of the pilot set. The coupled matrix of a cluster (:func:`_coupled_parts`)
     is built from the band's :meth:`Band.cluster_products` weighted by each kind's time correlation,
-    ``M_ij = sum_q rho_ij,q H_i E_q H_j``, and factorised once for all the targets.
+    ``M_ij = sum_q rho_ij,q H_i E_q H_j``, and factorised once for all the targets (:class:`_Cluster`).
     """
     d_f, comb_offsets, spectrum, los_fraction, oscillator = setting
     shape, pilot_offsets = np.asarray(pilot_set[0]), pilot_set[1]
@@ -871,8 +963,13 @@ def _pilot_set_explained(band, setting, pilot_set, designs, targets):
                              doppler[:, None], spectrum, los_fraction, oscillator)  # (D, 4 reach + 1, Q)
     rho = table[:, (shape[:, None] - shape[None, :]) + 2 * reach]  # (D, u, u, Q)
     cross = table[:, lags + 2 * reach]  # (D, T, u, Q)
+    per_kind = rho.transpose(0, 3, 1, 2)
+    basis = hermitian_eigen(0.5 * (per_kind + np.conj(np.swapaxes(per_kind, -1, -2))))[1]  # (D, Q, u, u)
+    beta = np.einsum("dqil,dtiq->dtlq", np.conj(basis), cross)  # (D, T, u, Q)
     g_all = band.comb_gram(d_f, -1)
-    g_data = {o: g_all - (band.comb_gram(d_f, o) if o >= 0 else 0.0) for o in {t[2] for t in targets}}
+    offsets = sorted({t[2] for t in targets})
+    which = np.searchsorted(offsets, [t[2] for t in targets])
+    g_data = [g_all - (band.comb_gram(d_f, o) if o >= 0 else 0.0) for o in offsets]
     out = np.zeros((len(designs), len(targets)))
     u = shape.size
     for members in band.clusters(d_f, comb_offsets):  # (k, c): k clusters of c components each
@@ -882,11 +979,10 @@ def _pilot_set_explained(band, setting, pilot_set, designs, targets):
         m = sum(rho[:, None, :, None, :, None, q] * products[q] for q in range(kinds.size))
         m = m.reshape(len(designs), k, u * r, u * r)
         rows = np.conj(np.swapaxes(band.cluster_factors(d_f, pilot_offsets, members), -1, -2))  # (u, k, r, c)
-        kind = np.searchsorted(kinds, band.components.kind[members])  # (k, c)
-        x = rows[None, None] * cross[..., kind][..., None, :]  # (D, T, u, k, r, c): F_i^H diag(rho_i)
-        x = x.transpose(0, 1, 3, 2, 4, 5).reshape(len(designs), len(targets), k, u * r, c)
-        g = np.stack([g_data[t[2]][members[:, :, None], members[:, None, :]] for t in targets])  # (T, k, c, c)
-        out += _direct_explained(0.5 * (m + np.conj(np.swapaxes(m, -1, -2))), x, g, s2)
+        onehot = (band.components.kind[members][..., None] == kinds).astype(float)  # (k, c, Q)
+        grams = np.stack([g[members[:, :, None], members[:, None, :]] for g in g_data])  # (O, k, c, c)
+        piece = _Cluster(0.5 * (m + np.conj(np.swapaxes(m, -1, -2))), rows, onehot, basis, beta, grams, which)
+        out += _direct_explained(piece, s2)
     return out
 
 
