@@ -355,7 +355,12 @@ def _staggered_cases():
     """Staggered schedules for the direct form against the eigen form: LTE port 0 in ETU (TS 36.211
     sect. 6.10.1.2, TS 36.101 Annex B), DVB-T's scattered pilots in two rays 200 us apart (EN 300 744
     sect. 4.5.3), and the LTE pattern on the invented six taps with a line of sight (K = 6 dB) and a
-    wandering oscillator phase (an invented 200 Hz linewidth; the rank-one line of sight cannot follow it)."""
+    wandering oscillator phase (an invented 200 Hz linewidth; the rank-one line of sight cannot follow it);
+    then an invented slot with pilot symbols 2 and 11 on combs two apart (step 4) on the six taps, without and
+    with that line of sight: 14 targets on one pilot set of two symbols, so the solves take the pilot
+    symbols' factors along the time correlation's eigenvectors rather than each target's own."""
+    nr = arrangement.schedule("slot", arrangement.mask_from_symbols([2, 11]), 14, 2, 4, 14, True, 3, 7,
+                              estimation.MAX_PILOT_SYMBOLS)
     lte = arrangement.schedule("stream", arrangement.mask_from_symbols([0, 4]), 7, 3, 6, 7, True, 3, 7,
                                estimation.MAX_PILOT_SYMBOLS)
     dvbt = arrangement.schedule("stream", 1, 1, 3, 12, 68, True, 3, 7, estimation.MAX_PILOT_SYMBOLS)
@@ -367,6 +372,10 @@ def _staggered_cases():
          np.array([1120, 1008]) * US, 55.6, "classical", 0.0, None),
         (lte, estimation.Band(SIX_TAPS_S, powers, los, 30e3, 300), np.array([35.7, 33.3]) * US, 800.0, "rician", los,
          (200.0, 0.0, None)),
+        (nr, estimation.Band(SIX_TAPS_S, 10 ** (SIX_TAPS_DB / 10), 0.0, 30e3, 300), np.array([35.7, 33.3]) * US,
+         np.array([800.0, 200.0]), "classical", 0.0, None),
+        (nr, estimation.Band(SIX_TAPS_S, powers, los, 30e3, 300), np.array([35.7, 33.3]) * US, 800.0, "rician", los,
+         (200.0, 0.0, None)),
     ]
 
 
@@ -376,7 +385,7 @@ NOISES = [1e-5, 1e-3, 0.1, 10.0]
 ATOL = 1e-14
 
 
-@pytest.mark.parametrize("case", range(3))
+@pytest.mark.parametrize("case", range(5))
 def test_direct_weights_agree_with_the_eigen_form(case):
     """Pilot symbols on different combs: the Cholesky route per noise level (the default) gives the
     eigendecomposition's values, design by design and level by level."""
@@ -466,6 +475,19 @@ def test_estimation_errors_of_many_weights_at_once_match_their_own():
     for (w, noise), got in zip(requests, estimation.estimation_errors(requests)):
         assert got.shape == noise.shape
         assert np.array_equal(got, w.mse(noise))
+
+
+@pytest.mark.parametrize("case", range(5))
+def test_both_right_hand_sides_of_the_direct_form_agree(case, monkeypatch):
+    """Every target's own right-hand side and the pilot symbols' factors along the time correlation's
+    eigenvectors (read with each target's coefficients) give the same explained energies."""
+    routes = {}
+    for per_target in (True, False):  # a fresh band each time: a band keeps the values it worked out
+        plan, band, symbol_s, doppler, spectrum, los, oscillator = _staggered_cases()[case]
+        args = (plan, band, symbol_s, doppler, spectrum, los, "lmmse", oscillator)
+        monkeypatch.setattr(estimation._Cluster, "per_target", property(lambda self, v=per_target: v))
+        routes[per_target] = [[float(w.mse(noise)) for noise in NOISES] for w in estimation.spectral_weights(*args)]
+    assert_allclose(routes[False], routes[True], rtol=1e-9, atol=ATOL)
 
 
 def test_direct_weights_of_an_array_of_noise_levels_match_scalar_calls():
