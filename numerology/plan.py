@@ -24,10 +24,10 @@ the matrix as it stands, with exact rows for the candidates evaluated
 exactly so far and upper bounds for the others: a relaxation. If every
 chosen mode's row is exact, the answer is optimal for the exact matrix (no
 plan can do better than its upper bound, and this one meets its own);
-otherwise the chosen rows are made exact (with the integer programmes, also
-the next best by their upper bound, a batch that doubles each round; where
-every set of modes is enumerated, a round is cheap and only the chosen rows
-are) and the stage is solved again.
+otherwise the chosen rows are made exact (with the integer programmes, from
+the second round on also the next best by their upper bound, a batch that
+doubles each round; where every set of modes is enumerated, a round is cheap
+and only the chosen rows are) and the stage is solved again.
 The optimum is exact; only the candidates the optimisation reaches for are
 evaluated in full.
 
@@ -66,8 +66,9 @@ OBJECTIVE_WORDS = {
 DEFAULT_OBJECTIVE = "weakest-margin"
 #: Time limit of each integer programme (s); the best plan found and its gap are reported if it is hit.
 TIME_LIMIT_S = 20.0
-#: Rows' worth of pairs (this many times the channels) made exact in the first refinement round besides the
-#: chosen rows (the budget doubles each round). A pair's exact evaluation is mostly the channel-estimation error,
+#: Rows' worth of pairs (this many times the channels) made exact besides the chosen rows in the second
+#: refinement round of an integer programme (the first makes the chosen rows alone exact; the budget then
+#: doubles each round). A pair's exact evaluation is mostly the channel-estimation error,
 #: from a few milliseconds to a second for long echoes and dense pilot clusters: few rows at a time.
 FIRST_ROWS = 4
 MODE_LETTERS = "ABCDEFGHIJKLMNOPQRSTUVWXYZ"
@@ -289,7 +290,7 @@ class _Planner:
 
     def coverage(self, k: int | None) -> _Choice:
         """Stage 1: the most sites served with at most k modes (k None: every servable site, fewest modes)."""
-        batch = FIRST_ROWS * max(1, self.matrix.channels.size)
+        batch = 0  # the first round: the chosen rows alone (the cheap bounds usually hold)
         while True:
             m = self.matrix
             support = m.passed.T
@@ -301,7 +302,7 @@ class _Planner:
             if m.exact[solved.chosen].all():
                 return _Choice(solved.chosen, covered, solved.status, solved.gap)
             self._refine(solved.chosen, self.weight @ support, batch)
-            batch *= 2
+            batch = 2 * batch or FIRST_ROWS * max(1, m.channels.size)
 
     def best(self, count: int, covered: float) -> _Choice:
         """Stage 2: the best objective with at most ``count`` modes serving at least ``covered`` sites.
@@ -314,7 +315,7 @@ class _Planner:
         rows are not (on 10^4 port sites, rows on speculation were 9 of 18 exact rows and 40 % of the
         plan's time). Otherwise the integer programmes, with the chosen rows made exact, as in stage 1.
         """
-        batch = FIRST_ROWS * max(1, self.matrix.channels.size)
+        batch = 0
         while True:
             m = self.matrix
             support, value = m.passed.T, self.value()
@@ -334,7 +335,7 @@ class _Planner:
                 if not np.any(~m.exact & (found.bound > floor)):
                     return _Choice(exact[known.chosen], covered, "optimal", 0.0, EVERY_SET)
                 m.make_exact(found.chosen)  # enumeration is cheap: another round rather than rows on speculation
-            batch *= 2
+            batch = 2 * batch or FIRST_ROWS * max(1, m.channels.size)
 
     def plan(self, k: int | None) -> tuple[_Choice, _Choice]:
         first = self.coverage(k)
