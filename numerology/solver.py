@@ -151,7 +151,7 @@ def _cheap_stage(grid: cand.Grid, environment: Environment, req: Requirements, i
 
 def search(req: Requirements, environment: Environment | None = None, objective: str | None = None,
            top: int = 5, ignore=(), first_feasible_only: bool = False, spacings_hz=None,
-           pareto: bool = True) -> Search:
+           pareto: bool = True, max_exact: int = None) -> Search:
     """Search the candidate space.
 
     Parameters
@@ -172,7 +172,11 @@ def search(req: Requirements, environment: Environment | None = None, objective:
         Use these spacings instead of the family within the window (brute force).
     pareto : bool
         Find the Pareto front (False: only the ranking is wanted, as for a what-if).
+    max_exact : int, optional
+        Exact evaluations at most once a feasible design is found (default :data:`MAX_EXACT_EVALUATIONS`);
+        beyond, the best found so far, marked ``stats.stopped_at_budget``.
     """
+    max_exact = MAX_EXACT_EVALUATIONS if max_exact is None else max_exact
     environment = environment or derive_environment(req)
     objective = objective or req.goals.objective
     window = cand.spacing_window(environment, req, ignore)
@@ -203,11 +207,11 @@ def search(req: Requirements, environment: Environment | None = None, objective:
     best_first = exhaustive or first_feasible_only or what_if or crowded
     stopped = False
     while pending.size:
-        if evaluated >= MAX_EXACT_EVALUATIONS and records["index"] and not exhaustive:
+        if evaluated >= max_exact and records["index"] and not exhaustive:
             stopped = True  # bounded work: the best found so far, said so in the report
             break
         if records["index"]:
-            batch_size = min(batch_size, max(MAX_EXACT_EVALUATIONS - evaluated, FIRST_BATCH))
+            batch_size = min(batch_size, max(max_exact - evaluated, FIRST_BATCH))
         if what_if:
             # the best bounds first, each refined before it is evaluated: the unrefined among the best bounds
             # in blocks (one call), until the round's candidates all carry their tighter bound
