@@ -357,6 +357,13 @@ class _Planner:
                 return fewer
         return chosen
 
+    def worse(self, a: _Choice, b: _Choice) -> bool:
+        """Whether plan ``a`` serves fewer sites than ``b``, or as many with a worse objective."""
+        m = self.matrix
+        served_a, value_a = cover.plan_value(m.passed.T, self.value(), self.weight, a.rows, self.kind)
+        served_b, value_b = cover.plan_value(m.passed.T, self.value(), self.weight, b.rows, self.kind)
+        return (served_a, value_a) < (served_b, value_b)
+
     def greedy(self, k: int | None) -> cover.Solved:
         """The greedy plan over the exactly evaluated candidates (a bound beside the exact optimum)."""
         m = self.matrix
@@ -418,6 +425,8 @@ def plan(req: Requirements, sites: Sites, *, modes: int | None = None, objective
     single_rows = single.rows
     fewer = (single if count == 2 else planner.plan(count - 1)[1]) if count >= 2 else None
     more = planner.plan(count + 1)[1] if count + 1 <= matrix.size and fewest > 0 else None
+    if more is not None and planner.worse(more, chosen):
+        more = chosen  # a programme stopped by its time limit: the plan itself is a plan of one mode more
     greedy = planner.greedy(modes)
 
     status = "optimal" if first.status == chosen.status == "optimal" else "time limit"

@@ -17,6 +17,7 @@ import pytest
 from numpy.testing import assert_allclose
 
 from numerology import api, render_json, solver
+from numerology import plan as plan_module
 from numerology.cli import main
 from numerology.feasibility import plan_space
 from numerology.plan import plan
@@ -181,6 +182,28 @@ def test_more_modes_allowed_than_needed_uses_no_more_than_the_objective_needs(sm
     assert result.figures.weakest_margin >= full.figures.weakest_margin
     # a third mode only where it raises the weakest margin above the two-mode plan's
     assert len(result.modes) == 2 or result.figures.weakest_margin > full.figures.weakest_margin
+
+
+@pytest.mark.parametrize("objective", ["total-throughput", "weakest-margin"])
+def test_one_mode_more_is_never_worse_than_the_plan(monkeypatch, objective):
+    """A programme stopped by its time limit can come back with a worse plan of K + 1 modes than the K-mode
+    plan (seen on 10^4 invented port sites, total throughput); the plan itself is a plan of at most K + 1
+    modes, so one mode more is reported no worse (here the K + 1 stage is made to return one mode)."""
+    req, sites = _small()
+    original = plan_module._Planner.plan
+
+    def stopped_early(self, k):
+        first, chosen = original(self, k)
+        if k == 3:  # the two-mode plan's one more
+            return first, plan_module._Choice(chosen.rows[:1], chosen.covered, "time limit", 0.5)
+        return first, chosen
+
+    monkeypatch.setattr(plan_module._Planner, "plan", stopped_early)
+    result = plan(req, sites, objective=objective)
+    assert len(result.modes) == 2 and result.more is not None
+    assert result.more.served == result.figures.served
+    assert result.more.total_throughput_bps >= result.figures.total_throughput_bps * (1 - 1e-12)
+    assert result.more.weakest_margin >= result.figures.weakest_margin - 1e-12
 
 
 def test_plan_prints_a_one_line_summary(small):
