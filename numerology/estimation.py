@@ -781,11 +781,22 @@ def _eigen_terms(m, x, g_sub):
 def _eigen_explained(m, x, g, s2):
     """The explained energy of each target of pieces (p, ...) at noise levels s2 (p,) through
     :func:`_eigen_terms` (``g`` (T, k, c, c): each target's data Gram matrix): (p, T)."""
-    lam, beta = _eigen_terms(m, x, g)
+    return _eigen_sum(*_eigen_terms(m, x, g), s2)
+
+
+def _eigen_sum(lam, beta, s2):
+    """``sum_j beta_j / (lambda_j + s2)`` (positive beta_j) of :func:`_eigen_terms` per piece (p, T, ...) at
+    its noise level s2 (p,): (p, T)."""
     flat = s2.reshape((-1,) + (1,) * (beta.ndim - 1))
     with np.errstate(divide="ignore", invalid="ignore"):
         terms = np.where(beta > 0, beta / (lam + flat), 0.0)
     return terms.reshape(terms.shape[:2] + (-1,)).sum(axis=2)
+
+
+#: Designs of one pilot set sharing a symbol duration and a Doppler (so one coupled matrix M) at this many
+#: noise levels or more are answered by one eigendecomposition of M (:func:`_eigen_terms`) rather than a
+#: factorisation per level: about the cost of two (measured on the plan benchmark's 90-row pieces).
+EIGEN_LEVELS = 3
 
 
 #: Noise levels at most this small relative to the largest diagonal entry of a piece's matrix go to the
@@ -972,6 +983,13 @@ def _pilot_set_explained(band, setting, pilot_set, designs, targets):
     g_data = [g_all - (band.comb_gram(d_f, o) if o >= 0 else 0.0) for o in offsets]
     out = np.zeros((len(designs), len(targets)))
     u = shape.size
+    # designs that share M (symbol duration and Doppler) at EIGEN_LEVELS noise levels or more: the eigen form
+    _, first, group, count = np.unique(np.stack([symbol_s, doppler], axis=1), axis=0, return_index=True,
+                                       return_inverse=True, return_counts=True)
+    group = np.ravel(group)
+    shared = count[group] >= EIGEN_LEVELS
+    alike = np.flatnonzero(count >= EIGEN_LEVELS)  # those groups
+    position = np.searchsorted(alike, group[shared])
     for members in band.clusters(d_f, comb_offsets):  # (k, c): k clusters of c components each
         k, c = members.shape
         products = band.cluster_products(d_f, pilot_offsets, members)  # (Q, k, u, r, u, r)
@@ -982,7 +1000,12 @@ def _pilot_set_explained(band, setting, pilot_set, designs, targets):
         onehot = (band.components.kind[members][..., None] == kinds).astype(float)  # (k, c, Q)
         grams = np.stack([g[members[:, :, None], members[:, None, :]] for g in g_data])  # (O, k, c, c)
         piece = _Cluster(0.5 * (m + np.conj(np.swapaxes(m, -1, -2))), rows, onehot, basis, beta, grams, which)
-        out += _direct_explained(piece, s2)
+        if not shared.all():
+            out[~shared] += _direct_explained(piece.take(~shared) if shared.any() else piece, s2[~shared])
+        if shared.any():
+            one = piece.take(first[alike])  # one design per group
+            lam, weight = _eigen_terms(one.m, one.targets(), grams[which])
+            out[shared] += _eigen_sum(lam[position], weight[position], s2[shared])
     return out
 
 
@@ -1065,9 +1088,11 @@ class DirectWeights:
     the same number as :class:`SpectralWeights`' ``1 - sum_j beta_j / (lambda_j + s2) / data`` from the
     eigendecomposition of M (to round-off), for a Cholesky factorisation of ``M + s2 I`` per noise level
     instead of an eigendecomposition with vectors (several times cheaper; a search asks nearly every
-    structure for one noise level). Each level's result is remembered, and always computed the same way
-    (never from another form once many levels were asked: a warm cache gives the same digits as a cold
-    one, to round-off). Memory: see :class:`_CoupledProblem`. Ask many designs at once through
+    structure for one noise level). Each level's result is remembered. Where a batch asks the same M (symbol
+    duration and Doppler) at :data:`EIGEN_LEVELS` levels or more (sites of one channel and speed at
+    several SNRs), those come from one eigendecomposition instead: the same numbers to round-off (a value
+    then depends on what was asked with it in its last digits; the same input still gives the same
+    JSON, the batches being the same). Memory: see :class:`_CoupledProblem`. Ask many designs at once through
     :func:`prepare_direct` (one batch per pilot set, vectorised over the designs of every problem).
     """
 
