@@ -806,6 +806,11 @@ DIRECT_MIN_NOISE = 1e-10
 DIRECT_TRIANGULAR = 64
 
 
+def _per_target(targets: int, pilot_symbols: int) -> bool:
+    """Whether T targets' own right-hand sides (T c columns) are no wider than the basis's (u c)."""
+    return targets <= pilot_symbols
+
+
 @dataclass(frozen=True)
 class _Cluster:
     """One cluster size of a pilot set's coupled problem, for D designs and T targets.
@@ -832,8 +837,8 @@ class _Cluster:
 
     @property
     def per_target(self) -> bool:
-        """Whether the targets' own right-hand sides are no wider than the basis's."""
-        return self.which.size <= self.basis.shape[-1]
+        """Whether the solves take every target's own right-hand side (:func:`_per_target`)."""
+        return _per_target(self.which.size, self.basis.shape[-1])
 
     def take(self, keep):
         """The same cluster for the designs ``keep`` (an index or a mask)."""
@@ -974,15 +979,18 @@ def _pilot_set_explained(band, setting, pilot_set, designs, targets):
                              doppler[:, None], spectrum, los_fraction, oscillator)  # (D, 4 reach + 1, Q)
     rho = table[:, (shape[:, None] - shape[None, :]) + 2 * reach]  # (D, u, u, Q)
     cross = table[:, lags + 2 * reach]  # (D, T, u, Q)
-    per_kind = rho.transpose(0, 3, 1, 2)
-    basis = hermitian_eigen(0.5 * (per_kind + np.conj(np.swapaxes(per_kind, -1, -2))))[1]  # (D, Q, u, u)
-    beta = np.einsum("dqil,dtiq->dtlq", np.conj(basis), cross)  # (D, T, u, Q)
+    u = shape.size
+    if not _per_target(len(targets), u):  # the solves take the basis: the time correlation's eigenvectors
+        per_kind = rho.transpose(0, 3, 1, 2)
+        basis = hermitian_eigen(0.5 * (per_kind + np.conj(np.swapaxes(per_kind, -1, -2))))[1]  # (D, Q, u, u)
+        beta = np.einsum("dqil,dtiq->dtlq", np.conj(basis), cross)  # (D, T, u, Q)
+    else:  # each target's own right-hand side: any basis will do
+        basis, beta = np.broadcast_to(np.eye(u), (len(designs), kinds.size, u, u)), cross
     g_all = band.comb_gram(d_f, -1)
     offsets = sorted({t[2] for t in targets})
     which = np.searchsorted(offsets, [t[2] for t in targets])
     g_data = [g_all - (band.comb_gram(d_f, o) if o >= 0 else 0.0) for o in offsets]
     out = np.zeros((len(designs), len(targets)))
-    u = shape.size
     # designs that share M (symbol duration and Doppler) at EIGEN_LEVELS noise levels or more: the eigen form
     _, first, group, count = np.unique(np.stack([symbol_s, doppler], axis=1), axis=0, return_index=True,
                                        return_inverse=True, return_counts=True)

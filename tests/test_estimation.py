@@ -485,7 +485,7 @@ def test_both_right_hand_sides_of_the_direct_form_agree(case, monkeypatch):
     for per_target in (True, False):  # a fresh band each time: a band keeps the values it worked out
         plan, band, symbol_s, doppler, spectrum, los, oscillator = _staggered_cases()[case]
         args = (plan, band, symbol_s, doppler, spectrum, los, "lmmse", oscillator)
-        monkeypatch.setattr(estimation._Cluster, "per_target", property(lambda self, v=per_target: v))
+        monkeypatch.setattr(estimation, "_per_target", lambda targets, pilot_symbols, v=per_target: v)
         routes[per_target] = [[float(w.mse(noise)) for noise in NOISES] for w in estimation.spectral_weights(*args)]
     assert_allclose(routes[False], routes[True], rtol=1e-9, atol=ATOL)
 
