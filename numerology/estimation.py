@@ -905,12 +905,12 @@ def _direct_explained(piece: _Cluster, s2):
     """The explained energy ``tr(x_T^H (m + s2 I)^-1 x_T g_T)`` of each target T of a cluster: (D, T).
 
     A Cholesky factorisation ``m + s2 I = L L^H`` per design serves every target: the right-hand sides
-    are the pilot symbols' factors in the eigenbasis of the time correlation (:meth:`_Cluster.right`,
-    u c columns however many targets), whose Gram matrix ``Y^H Y`` (``Y = L^-1 R``) each target reads
-    with its own weights (:meth:`_Cluster.explained`). In that basis a term weighs a direction of
-    small time correlation by the target's own small coefficient along it, so no two large terms
-    cancel (the per-symbol basis would: its blocks grow as 1/s2 where the time correlation is nearly
-    singular). Pairs whose noise is tiny against the matrix's scale (:data:`DIRECT_MIN_NOISE`), a
+    (:meth:`_Cluster.right`) are every target's own or, where the targets outnumber the pilot symbols,
+    the pilot symbols' factors along the eigenvectors of the time correlation (u c columns however many
+    targets), which each target reads with its own coefficients (:meth:`_Cluster.explained`). In that
+    basis a term weighs a direction of small time correlation by the target's own small coefficient
+    along it, so no two large terms cancel (the per-symbol basis would: its blocks grow as 1/s2 where the
+    time correlation is nearly singular). Pairs whose noise is tiny against the matrix's scale (:data:`DIRECT_MIN_NOISE`), a
     failed factorisation or a result that is not finite: the eigendecomposition
     (:func:`_eigen_explained`), for those designs alone, so that a design's value never depends on the
     others asked with it (the same input gives the same JSON).

@@ -151,7 +151,7 @@ def _cheap_stage(grid: cand.Grid, environment: Environment, req: Requirements, i
 
 def search(req: Requirements, environment: Environment | None = None, objective: str | None = None,
            top: int = 5, ignore=(), first_feasible_only: bool = False, spacings_hz=None,
-           pareto: bool = True, max_exact: int = None) -> Search:
+           pareto: bool = True, max_exact: int | None = None) -> Search:
     """Search the candidate space.
 
     Parameters
