@@ -573,8 +573,10 @@ def plan_comparison(result) -> list:
     if result.fewer is not None and count - 1 > 1:
         rows.append((f"{count - 1} modes (one fewer)", result.fewer))
     rows.append((f"this plan: {count} mode{'s' if count != 1 else ''}", result.figures))
-    if result.more is not None:
-        rows.append((f"{count + 1} modes (one more)", result.more))
+    if result.more is not None:  # one more allowed, not always used (it may buy nothing)
+        used = result.more.modes
+        rows.append((f"{count + 1} modes (one more)" if used == count + 1 else f"up to {count + 1} modes: {used} used",
+                     result.more))
     return rows
 
 

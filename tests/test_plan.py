@@ -16,7 +16,7 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from numerology import api, render_json, solver
+from numerology import api, render_json, render_terminal, solver
 from numerology import plan as plan_module
 from numerology.cli import main
 from numerology.feasibility import plan_space
@@ -204,6 +204,7 @@ def test_one_mode_more_is_never_worse_than_the_plan(monkeypatch, objective):
     assert result.more.served == result.figures.served
     assert result.more.total_throughput_bps >= result.figures.total_throughput_bps * (1 - 1e-12)
     assert result.more.weakest_margin >= result.figures.weakest_margin - 1e-12
+    assert ("up to 3 modes: 2 used", result.more) in render_terminal.plan_comparison(result)
 
 
 def test_plan_prints_a_one_line_summary(small):
