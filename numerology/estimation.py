@@ -817,8 +817,9 @@ class _Cluster:
 
     ``m`` (D, k, ur, ur) the coupled matrices ``M_ij = F_i^H diag(rho_ij) F_j`` (exactly Hermitian);
     ``rows`` (u, k, r, c) the factors' ``F_i^H``; ``onehot`` (k, c, Q) each component's kind;
-    ``basis`` (D, Q, u, u) per design and kind, the eigenvectors of the pilot symbols' time correlation;
-    ``beta`` (D, T, u, Q) each target's time cross-correlation with the pilot symbols in that basis;
+    ``basis`` (D, Q, u, u) per design and kind, the eigenvectors of the pilot symbols' time correlation
+    (any unitary basis where the solves take every target's own right-hand side);
+    ``cross`` (D, T, u, Q) each target's time cross-correlation with the pilot symbols;
     ``grams`` (O, k, c, c) the data Gram matrices of the targets' data offsets, ``which`` (T,) a target's.
 
     A target's right-hand side is ``x_T = F^H diag(rho_T) = sum_l beta_T,l R_l`` (per component's
@@ -831,7 +832,7 @@ class _Cluster:
     rows: np.ndarray
     onehot: np.ndarray
     basis: np.ndarray
-    beta: np.ndarray
+    cross: np.ndarray
     grams: np.ndarray
     which: np.ndarray
 
@@ -842,8 +843,13 @@ class _Cluster:
 
     def take(self, keep):
         """The same cluster for the designs ``keep`` (an index or a mask)."""
-        return _Cluster(self.m[keep], self.rows, self.onehot, self.basis[keep], self.beta[keep], self.grams,
+        return _Cluster(self.m[keep], self.rows, self.onehot, self.basis[keep], self.cross[keep], self.grams,
                         self.which)
+
+    @property
+    def beta(self) -> np.ndarray:
+        """Each target's cross-correlation in the basis: ``beta = B^H rho_T`` per kind, (D, T, u, Q)."""
+        return np.einsum("dqil,dtiq->dtlq", np.conj(self.basis), self.cross)
 
     def right(self):
         """The right-hand sides of the solves, (D, k, ur, T c) or (D, k, ur, u c) (:attr:`per_target`).
@@ -861,8 +867,7 @@ class _Cluster:
     def targets(self):
         """Each target's right-hand side ``x_T = F^H diag(rho_T)``: (D, T, k, ur, c)."""
         u, k, r, c = self.rows.shape
-        cross = np.einsum("dqil,dtlq->dtiq", self.basis, self.beta)  # back from the basis: rho_T (D, T, u, Q)
-        per = np.einsum("dtiq,kcq->dtikc", cross, self.onehot)  # rho_T of each component's kind
+        per = np.einsum("dtiq,kcq->dtikc", self.cross, self.onehot)  # rho_T of each component's kind
         x = self.rows[None, None] * per[:, :, :, :, None, :]  # (D, T, u, k, r, c)
         return x.transpose(0, 1, 3, 2, 4, 5).reshape(x.shape[0], x.shape[1], k, u * r, c)
 
@@ -898,7 +903,8 @@ class _Cluster:
         near = by_kind(left).reshape(d, k, -1, c)
         s = np.stack([flat((near @ g).reshape(d, k, rows, u, q, c)) @ far for g in self.grams])
         s = s[self.which].transpose(1, 0, 2, 3).reshape(d, self.which.size, u, q, u, q)  # (D, T, u, Q, u, Q)
-        return np.einsum("dtlq,dtlqmp,dtmp->dt", self.beta, s, np.conj(self.beta)).real
+        beta = self.beta
+        return np.einsum("dtlq,dtlqmp,dtmp->dt", beta, s, np.conj(beta)).real
 
 
 def _direct_explained(piece: _Cluster, s2):
@@ -983,18 +989,16 @@ def _pilot_set_explained(band, setting, pilot_set, designs, targets):
     if not _per_target(len(targets), u):  # the solves take the basis: the time correlation's eigenvectors
         per_kind = rho.transpose(0, 3, 1, 2)
         basis = hermitian_eigen(0.5 * (per_kind + np.conj(np.swapaxes(per_kind, -1, -2))))[1]  # (D, Q, u, u)
-        beta = np.einsum("dqil,dtiq->dtlq", np.conj(basis), cross)  # (D, T, u, Q)
     else:  # each target's own right-hand side: any basis will do
-        basis, beta = np.broadcast_to(np.eye(u), (len(designs), kinds.size, u, u)), cross
+        basis = np.broadcast_to(np.eye(u), (len(designs), kinds.size, u, u))
     g_all = band.comb_gram(d_f, -1)
     offsets = sorted({t[2] for t in targets})
     which = np.searchsorted(offsets, [t[2] for t in targets])
     g_data = [g_all - (band.comb_gram(d_f, o) if o >= 0 else 0.0) for o in offsets]
     out = np.zeros((len(designs), len(targets)))
     # designs that share M (symbol duration and Doppler) at EIGEN_LEVELS noise levels or more: the eigen form
-    _, first, group, count = np.unique(np.stack([symbol_s, doppler], axis=1), axis=0, return_index=True,
-                                       return_inverse=True, return_counts=True)
-    group = np.ravel(group)
+    group, first = distinct_rows(np.stack([symbol_s, doppler], axis=1))
+    count = np.bincount(group, minlength=first.size)
     shared = count[group] >= EIGEN_LEVELS
     alike = np.flatnonzero(count >= EIGEN_LEVELS)  # those groups
     position = np.searchsorted(alike, group[shared])
@@ -1007,7 +1011,7 @@ def _pilot_set_explained(band, setting, pilot_set, designs, targets):
         rows = np.conj(np.swapaxes(band.cluster_factors(d_f, pilot_offsets, members), -1, -2))  # (u, k, r, c)
         onehot = (band.components.kind[members][..., None] == kinds).astype(float)  # (k, c, Q)
         grams = np.stack([g[members[:, :, None], members[:, None, :]] for g in g_data])  # (O, k, c, c)
-        piece = _Cluster(0.5 * (m + np.conj(np.swapaxes(m, -1, -2))), rows, onehot, basis, beta, grams, which)
+        piece = _Cluster(0.5 * (m + np.conj(np.swapaxes(m, -1, -2))), rows, onehot, basis, cross, grams, which)
         if not shared.all():
             out[~shared] += _direct_explained(piece.take(~shared) if shared.any() else piece, s2[~shared])
         if shared.any():

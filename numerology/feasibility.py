@@ -60,7 +60,7 @@ from . import link
 from .design import DesignArrays
 from .environment import Environment, EnvironmentBatch
 from .errors import InputError
-from .grouping import distinct_rows
+from .grouping import distinct_rows, members as group_members
 from .requirements import Requirements
 from .sweep import Sites, site_environments, site_requirements
 
@@ -275,14 +275,13 @@ def anchor_designs(req: Requirements, environment: Environment, grid: cand.Grid,
         best = np.full(count, -np.inf)
         np.maximum.at(best, numerology, bound[objective])
         chosen |= set(np.argsort(-best, kind="stable")[:NUMEROLOGIES_PER_ANCHOR].tolist())
-    order = np.lexsort((np.arange(grid.size), -bound["throughput"], numerology))
-    starts = np.searchsorted(numerology[order], np.arange(count + 1))
-    members = [order[starts[k]:starts[k + 1]] for k in sorted(chosen)]  # a few numerologies: a short loop
-    positions = [_ladder(0, m.size - 1) for m in members]
-    first_round = [m[p] for m, p in zip(members, positions)]
+    of_numerology = group_members(numerology, count, np.lexsort((np.arange(grid.size), -bound["throughput"], numerology)))
+    in_turn = [of_numerology[k] for k in sorted(chosen)]  # a few numerologies: a short loop
+    positions = [_ladder(0, m.size - 1) for m in in_turn]
+    first_round = [m[p] for m, p in zip(in_turn, positions)]
     passed, rate, robust = _exact_at(req, environment, grid, np.concatenate(first_round))
     second_round, at = [], 0
-    for m, p in zip(members, positions):
+    for m, p in zip(in_turn, positions):
         ok = passed[at:at + p.size]
         at += p.size
         if ok.any() and not ok[0]:  # between the last failure before the first pass and that pass

@@ -39,6 +39,23 @@ def distinct_rows(rows):
     return inverse.reshape(rows.shape[:-1]), first
 
 
+def members(index, count: int, order=None) -> list:
+    """The positions of each group ``0 .. count - 1`` of ``index``: a list of ``count`` integer arrays.
+
+    ``order``, optional: the positions already sorted by group (a stable sort by ``index`` and whatever
+    order is wanted within a group); by default positions ascend within a group.
+
+    Examples
+    --------
+    >>> [m.tolist() for m in members(np.array([1, 0, 1, 2]), 3)]
+    [[1], [0, 2], [3]]
+    """
+    index = np.ravel(index)
+    order = np.argsort(index, kind="stable") if order is None else np.asarray(order)
+    edges = np.searchsorted(index[order], np.arange(count + 1))
+    return [order[edges[g]:edges[g + 1]] for g in range(count)]
+
+
 def remembered(store: dict, keys, compute, limit: int = 100_000) -> list:
     """The values of ``keys`` kept in ``store``, the missing ones worked out by one call of ``compute``.
 

@@ -45,7 +45,7 @@ from . import arrangement, delay, doppler, error_table, estimation, mcs, oscilla
 from .arrangement import SCOPE_CODE, SCOPES
 from .design import DesignArrays
 from .environment import Environment
-from .grouping import distinct_rows, remembered
+from .grouping import distinct_rows, members, remembered
 from .requirements import Requirements
 from .rules import RULES, Rule, evaluate as evaluate_rule, evaluate_derived, normalised_margin
 
@@ -333,15 +333,14 @@ def estimation_floor(designs: DesignArrays, environment: Environment, req: Requi
     rules = req.rules
     # every (distinct row, data symbol without pilots of its own): the target's pilot lags, and its weight
     pair_row, pair_lags, pair_weight = [], [], []
-    order = np.argsort(pattern_of, kind="stable")
-    bounds = np.searchsorted(pattern_of[order], np.arange(patterns.shape[0] + 1))
+    of_pattern = members(pattern_of, patterns.shape[0])
     for p, key in enumerate(patterns):
         scope, mask, period, slot, shared = (int(v) for v in key)
         if SCOPES[scope] == "differential":
             continue
         lag_ids, symbols = _floor_targets(scope, mask, period, slot, bool(shared), rules.estimation_lookahead,
                                           rules.estimation_memory)
-        rows = order[bounds[p]:bounds[p + 1]]
+        rows = of_pattern[p]
         pair_row.append(np.repeat(rows, lag_ids.size))
         pair_lags.append(np.tile(lag_ids, rows.size))
         pair_weight.append(np.full(rows.size * lag_ids.size, 1.0 / symbols))
@@ -450,20 +449,18 @@ def _estimation_error(designs: DesignArrays, environment: Environment, req: Requ
     los_all = np.broadcast_to(environment.los_fraction, environment.shape if batch else ()).ravel()
     rules = req.rules
     mask = None if radio.phase_noise is None else (tuple(radio.phase_noise[0]), tuple(radio.phase_noise[1]))
-    order = np.argsort(inverse, kind="stable")
-    bounds = np.searchsorted(inverse[order], np.arange(unique.shape[0] + 1))
-    members = [order[bounds[row]:bounds[row + 1]] for row in range(unique.shape[0])]
+    of_row = members(inverse, unique.shape[0])
     tabled, account, guard = np.zeros(unique.shape[0], dtype=bool), None, np.full(noise.size, np.nan)
     if tabulate and batch and not comb_bound:
-        tabled, account = _tabulated(unique, members, noise, out, guard, flat_delays, flat_powers, doppler_hz,
+        tabled, account = _tabulated(unique, of_row, noise, out, guard, flat_delays, flat_powers, doppler_hz,
                                      los_all, environment.doppler_spectrum, rules, mask)
     rows = np.flatnonzero(~tabled)
     weights, bounded = _structure_weights(unique[rows], flat_delays, flat_powers, doppler_hz, los_all,
                                           environment.doppler_spectrum, rules, mask, comb_bound)
     # every structure's levels at once (the coupled LMMSE per noise level, spectral weights stacked)
-    for row, error in zip(rows, estimation.estimation_errors([(w, noise[members[row]])
+    for row, error in zip(rows, estimation.estimation_errors([(w, noise[of_row[row]])
                                                               for w, row in zip(weights, rows)])):
-        out[members[row]] = error
+        out[of_row[row]] = error
     flags = np.zeros(unique.shape[0], dtype=bool)
     flags[rows] = bounded
     if account is not None:
@@ -477,7 +474,7 @@ def _estimation_error(designs: DesignArrays, environment: Environment, req: Requ
 _SITE_COLUMN = 10
 
 
-def _tabulated(unique, members, noise, out, guard, flat_delays, flat_powers, doppler_hz, los_all, spectrum, rules,
+def _tabulated(unique, of_row, noise, out, guard, flat_delays, flat_powers, doppler_hz, los_all, spectrum, rules,
                mask):
     """The structures (rows of ``unique``) whose error a table gives (``numerology.error_table``): (mask, report).
 
@@ -493,18 +490,17 @@ def _tabulated(unique, members, noise, out, guard, flat_delays, flat_powers, dop
     key = unique.copy()
     key[:, _SITE_COLUMN] = channel[site]
     group, first = distinct_rows(np.ascontiguousarray(key))
-    by_group = np.argsort(group, kind="stable")
-    edges = np.searchsorted(group[by_group], np.arange(first.size + 1))
+    of_group = members(group, first.size)
     done = np.zeros(unique.shape[0], dtype=bool)
     report = error_table.TableReport(0, 0, 0, 0, 0.0)
     for g, head in enumerate(first):
         if SCOPES[int(unique[head, 0])] == "differential":
             continue  # a closed form per site already
-        rows = by_group[edges[g]:edges[g + 1]]
+        rows = of_group[g]
         if np.unique(doppler_hz[site[rows]]).size < error_table.MIN_POINTS:
             continue
-        counts = np.array([members[r].size for r in rows])
-        elements = np.concatenate([members[r] for r in rows])
+        counts = np.array([of_row[r].size for r in rows])
+        elements = np.concatenate([of_row[r] for r in rows])
 
         def weights_at(dopplers, head=head):
             n, ref = len(dopplers), site[head]
