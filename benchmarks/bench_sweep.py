@@ -7,9 +7,16 @@ temporary folder, then times on one core
     internally; no conversion or checks), and
 (b) ``load_sites`` + ``sweep`` of the example's best design, each run from empty in-process caches
     (as a command starts; the weights cache would otherwise make every run after the first warm),
+    values rounded as a person writes them (speeds to 0.1 km/h, rms spreads to 1 ns: many sites share
+    a channel),
 
 and prints both with their ratio and the target (10^5 sites under 2 s), with
 ``load_sites`` and ``site_environments`` alone as ratios to (a); then
+
+(d) the same with *unrounded* speeds, rms delay spreads and SNRs (every site a channel of its own; the
+    issue's target): the estimation error of each profile shape's sites comes from a table over the
+    delay factor and the Doppler (``numerology.error_table``), against the same sweep evaluated exactly
+    (at a hundredth of the sites, scaled: the exact sweep is linear in the sites);
 
 (c) ``sweep`` at as many sites of *one* channel (the example's profile),
     with unrounded speeds and SNRs (a corridor's speed profile): the
@@ -44,16 +51,16 @@ TARGET_S = 2.0
 TARGET_ROWS = 100_000
 
 
-def write_sites(path: Path, rows: int, seed: int = 7) -> None:
+def write_sites(path: Path, rows: int, seed: int = 7, rounded: bool = True) -> None:
     """Invented sites: speeds, rms spreads (scaling the example's measured profile), carriers and SNRs.
 
-    One row in 20 names a catalogue profile instead; values are rounded as a
-    person would write them, so many rows repeat.
+    One row in 20 names a catalogue profile instead; ``rounded``: values are rounded as a person would
+    write them, so many rows repeat (else written to the full precision of a float).
     """
     rng = np.random.default_rng(seed)
-    speed = np.round(rng.uniform(0, 60, rows), 1)
-    rms = np.round(rng.uniform(50, 400, rows))
-    snr = np.round(rng.uniform(12, 30, rows), 1)
+    speed, rms, snr = rng.uniform(0, 60, rows), rng.uniform(50, 400, rows), rng.uniform(12, 30, rows)
+    if rounded:
+        speed, rms, snr = np.round(speed, 1), np.round(rms), np.round(snr, 1)
     carrier = rng.choice([3.6, 3.7, 3.8], rows)
     profile = np.where(rng.uniform(size=rows) < 0.05, rng.choice(["EVA", "TDL-C", "EPA"], rows), "")
     with open(path, "w", newline="") as handle:
@@ -94,6 +101,27 @@ def main():
           f"{'' if rows == TARGET_ROWS else f'; {TARGET_S * rows / TARGET_ROWS:.3g} s at this size'})")
     print(f"ratio (b)/(a): {total_s / parse_s:.1f}; ratio (b)/target: {total_s / (TARGET_S * rows / TARGET_ROWS):.2f}")
     corridor(req, design, rows)
+    unrounded(req, design, rows)
+
+
+def unrounded(req, design, rows: int) -> None:
+    """(d): every site a channel of its own; the table over the delay factor against the exact sweep."""
+    from timing import empty_model_caches
+
+    with tempfile.TemporaryDirectory() as folder:
+        path = Path(folder) / "sites.csv"
+        write_sites(path, rows, rounded=False)
+        sites = sweep.load_sites(path, req)
+        tabled_s = best_of(cold(lambda: sweep.sweep(req, design, sweep.load_sites(path, req))), 3)
+        result = sweep.sweep(req, design, sites)
+        report = result.estimation_table
+        hundredth = sites.take(np.arange(max(rows // 100, 1)))
+        empty_model_caches()
+        exact_s = rows / hundredth.size * best_of(lambda: sweep.sweep(req, design, hundredth, tabulate=False), 1)
+    print(f"(d) {rows:,} sites, unrounded speeds and delays: {tabled_s:8.3f} s with the tables ({report.nodes} nodes, "
+          f"{report.settled} sites settled exactly, {report.exact - report.settled} exact); exact about "
+          f"{exact_s:.0f} s; ratio exact/table {exact_s / tabled_s:.0f}; "
+          f"ratio (d)/target: {tabled_s / (TARGET_S * rows / TARGET_ROWS):.2f}")
 
 
 def corridor(req, design, rows: int) -> None:

@@ -154,11 +154,18 @@ class EnvironmentBatch:
     coherence_bandwidth_hz: np.ndarray
     notes: tuple = ()
     los_fraction: np.ndarray | float = 0.0
+    #: The profile shape each site stretches (an index; -1: not known) and its factor: the taps are the
+    #: shape's delays times the factor (``numerology.sweep.site_environments``). Sites of one shape form a
+    #: family whose estimation error a sweep may tabulate over the factor (``numerology.error_table``).
+    shape_id: np.ndarray | int = -1
+    delay_scale: np.ndarray | float = 1.0
 
     #: Attributes that hold one value per site (the taps add their own last axis).
     PER_SITE = ("carrier_hz", "wavelength_m", "speed_mps", "max_doppler_hz", "doppler_centroid_hz",
                 "doppler_spread_hz", "coherence_time_s", "profile_name", "profile_source", "mean_excess_delay_s",
                 "rms_delay_spread_s", "max_excess_delay_s", "coherence_bandwidth_hz", "los_fraction", "k_factor")
+    #: Per-site attributes of the batch alone (an :class:`Environment` has no family).
+    FAMILY = ("shape_id", "delay_scale")
 
     @property
     def shape(self) -> tuple[int, ...]:
@@ -173,7 +180,8 @@ class EnvironmentBatch:
         import dataclasses
 
         shape = (shape,) if isinstance(shape, int) else tuple(shape)
-        values = {key: np.reshape(np.broadcast_to(getattr(self, key), self.shape), shape) for key in self.PER_SITE}
+        values = {key: np.reshape(np.broadcast_to(getattr(self, key), self.shape), shape)
+                  for key in self.PER_SITE + self.FAMILY}
         taps = self.delays_s.shape[-1]
         values["delays_s"] = self.delays_s.reshape(shape + (taps,))
         values["powers"] = self.powers.reshape(shape + (taps,))
@@ -186,6 +194,7 @@ class EnvironmentBatch:
 
         index = np.asarray(index, dtype=np.intp)
         values = {key: np.asarray(getattr(self, key))[index] for key in self.PER_SITE}
+        values.update({key: np.broadcast_to(getattr(self, key), self.shape)[index] for key in self.FAMILY})
         values["delays_s"] = self.delays_s[index]
         values["powers"] = self.powers[index]
         values["notes"] = tuple((text, np.asarray(mask)[index]) for text, mask in self.notes)

@@ -22,27 +22,38 @@ eigen form, ``estimation.SpectralWeights``). So the table is over ``f_D``
 alone, each site's noise level is used exactly at the two nodes around it,
 and between them the logarithm of the error is interpolated linearly.
 
-The intervals are refined where they need it: an interval is accepted when
-the interpolated error at its midpoint agrees with the exact error there
-within :data:`TOLERANCE_DB`, at the smallest and the largest noise level of its
-sites; otherwise it is halved (at most :data:`MAX_DEPTH` times), and an
-interval still not accepted leaves its sites to the exact evaluation. For a
-smooth function, linear interpolation errs most midway between the nodes
-(common practice: the error term of linear interpolation), so the midpoint
-check estimates the error of the interval. It is an estimate, not a proof;
-:func:`numerology.sweep.sweep` therefore evaluates exactly every site whose
-verdict, binding rule or rate could change within a guard of several times
-its interval's check.
+Sites whose rms delay spreads differ (unrounded, every site a channel of its
+own) stretch one profile shape by their own factor ``a`` (the taps are the
+shape's delays times ``a``). The error is then a smooth function of ``a`` and
+``f_D`` too, and the table is over both, interpolated bilinearly. Smooth, but
+not slow: a profile stretched by a few per cent moves its taps against the
+pilot comb's alias period, and the error of a staggered pattern swings by half
+a decibel between sites 10 ns apart in rms delay spread (measured for the
+harbour_crane example's best design; DEVELOPERS.md). So no cell is wider
+across ``a`` than the error's resolution (:func:`factor_resolution`: the
+latest tap's phase at the band edge turns at most half a turn), however
+well its few checks agree; a family whose sites take few distinct factors
+(rounded spreads) is tabulated channel by channel instead
+(``numerology.link``).
 
-Sites whose channels differ are not interpolated across: the error is not a
-smooth function of the delays. A profile stretched by a few per cent moves
-its taps against the pilot comb's alias period, and the error of a staggered
-pattern swings by half a decibel between sites 10 ns apart in rms delay
-spread (measured for the harbour_crane example's best design); see
-DEVELOPERS.md.
+The cells are refined where they need it: a cell is accepted when the
+interpolated error at its centre and at the midpoints of its edges agrees
+with the exact error there within :data:`TOLERANCE_DB`, at the smallest and
+the largest noise level of its sites; otherwise it is halved (at most
+:data:`MAX_DEPTH` times across the Doppler, :data:`MAX_SCALE_DEPTH` across the
+factor), and a cell still not accepted leaves its sites to the exact
+evaluation. For a smooth function, linear interpolation errs most midway
+between the nodes (common practice: the error term of linear interpolation),
+so the checks estimate the error of the cell. It is an estimate, not a
+proof; :func:`numerology.sweep.sweep` therefore evaluates exactly every site
+whose verdict, binding rule or rate could change within a guard of several
+times its cell's check.
 
-Only channels with at least :data:`MIN_POINTS` distinct Dopplers use a table
-(below that, the sites' own exact evaluations are cheaper than the nodes').
+A table makes at most as many exact evaluations as its sites have distinct
+(factor, Doppler) points (it gives up the cells left when the next round
+would pass that); only groups with at least :data:`MIN_POINTS` distinct points
+use a table (below that, the sites' own exact evaluations are cheaper than
+the nodes').
 """
 
 from __future__ import annotations
@@ -51,16 +62,23 @@ from dataclasses import dataclass
 
 import numpy as np
 
-#: An interval is accepted when the interpolated error at its midpoint is within this many dB of the exact error.
+from .grouping import members
+
+#: A cell is accepted when the interpolated error at its checks is within this many dB of the exact error.
 TOLERANCE_DB = 0.01
-#: An interval's interpolated errors are trusted to GUARD_FACTOR times its midpoint check, and never closer than
-#: MIN_GUARD_DB (the check estimates the interval's error, it does not bound it; the largest error seen was 1.8
+#: A cell's interpolated errors are trusted to GUARD_FACTOR times its largest check, and never closer than
+#: MIN_GUARD_DB (the checks estimate the cell's error, they do not bound it; the largest error seen was 2.4
 #: times its check, DEVELOPERS.md).
 GUARD_FACTOR, MIN_GUARD_DB = 5.0, 0.01
-#: Channels with fewer distinct Dopplers than this are evaluated site by site.
+#: Groups with fewer distinct (delay factor, Doppler) points than this are evaluated site by site.
 MIN_POINTS = 32
 #: The most halvings of the Doppler range.
 MAX_DEPTH = 6
+#: The most halvings of a first cell across the delay factor (at most a quarter turn wide: 1/4096 of it).
+MAX_SCALE_DEPTH = 12
+#: Noise levels at which a cell is checked: its sites' smallest and largest, and between them evenly in the
+#: logarithm (the deviation need not be largest at either end; every level is a closed form at a node).
+CHECK_LEVELS = 5
 #: Noise levels per call of a node's weights (the separable form holds an array per level and pilot mode).
 LEVEL_CHUNK = 2048
 
@@ -70,13 +88,13 @@ class TableReport:
     """How a batch's estimation errors were obtained (for the report)."""
 
     interpolated: int  # elements (design x site) whose error is interpolated
-    exact: int  # elements of tabulated channels evaluated exactly (intervals the table gave up on)
-    nodes: int  # exact evaluations at table nodes and interval midpoints
-    intervals: int  # accepted intervals
-    max_deviation_db: float  # largest midpoint check of an accepted interval
+    exact: int  # elements of tabulated groups evaluated exactly (cells the table gave up on)
+    nodes: int  # exact evaluations at table nodes and checks
+    intervals: int  # accepted cells (intervals of the Doppler, or rectangles of delay factor and Doppler)
+    max_deviation_db: float  # largest check of an accepted cell
     tolerance_db: float = TOLERANCE_DB
     settled: int = 0  # interpolated elements evaluated exactly after all, their verdict or rate in doubt
-    guard_db: float = 0.0  # the widest guard of an interval (GUARD_FACTOR times its check, at least MIN_GUARD_DB)
+    guard_db: float = 0.0  # the widest guard of a cell (GUARD_FACTOR times its check, at least MIN_GUARD_DB)
 
     def to_json(self) -> dict:
         return {"interpolated": self.interpolated, "exact": self.exact, "table_nodes": self.nodes,
@@ -110,53 +128,131 @@ def _log(x):
     return np.log(np.clip(x, 1e-300, 1.0))
 
 
-def tabulate(f_d, s2, weights_at):
-    """The estimation error of elements at (f_D, s2) of one channel, from a refined table.
+def tabulate(scale, f_d, s2, weights_at, budget=None, max_width=np.inf):
+    """The estimation error of elements at (scale, f_D, s2) of one channel family, from a refined table.
+
+    A family is a profile shape whose delays each site stretches by its own factor (``scale``); sites of
+    one channel share one factor. The table is over the rectangle of factors and Dopplers its elements span;
+    a cell is accepted when the bilinear interpolation of the logarithm of the error from its four corners
+    agrees with the exact error at its centre and at the midpoints of its four edges within
+    :data:`TOLERANCE_DB` (at :data:`CHECK_LEVELS` noise levels from its elements' smallest to their largest).
+    Otherwise it is halved across the factor where an edge midpoint along the factor misses, across the
+    Doppler where one along the Doppler misses, or across the one that misses more where only the centre
+    does (at most :data:`MAX_DEPTH` halvings of the Doppler range and :data:`MAX_SCALE_DEPTH` of each first
+    cell across the factor, :func:`factor_resolution` wide at most). Where
+    every element has one factor the cells are intervals of the Doppler, and the table is one over the
+    Doppler alone.
 
     Parameters
     ----------
-    f_d, s2 : (p,) arrays
-        Each element's maximum Doppler (Hz) and pilot noise level.
+    scale, f_d, s2 : (p,) arrays
+        Each element's delay factor, maximum Doppler (Hz) and pilot noise level.
     weights_at : callable
-        ``weights_at(dopplers)``, a list of floats: the exact weights at each (objects with ``mse(s2)``),
-        computed together.
+        ``weights_at(points)``, a list of (factor, Doppler) pairs of floats: the exact weights at each
+        (objects with ``mse(s2)``), computed together.
+    budget : int or None
+        The most exact evaluations the table may make (None: no limit). Cells still not accepted when
+        the next round would pass it are given up (their elements left to the exact evaluation): a table
+        never costs much more than the exact evaluations it replaces.
+    max_width : float
+        The widest a cell may be across the factor (see :func:`factor_resolution`): the factor's range is
+        first cut into equal cells no wider, before any check, since no check of a few points can see the
+        error's swings in a cell that spans whole ones.
 
     Returns
     -------
     error : (p,) array
         Interpolated error; NaN where the table gave up.
     guard : (p,) array
-        How far each interpolated error is trusted, in dB (GUARD_FACTOR times its interval's midpoint check,
+        How far each interpolated error is trusted, in dB (GUARD_FACTOR times its cell's largest check,
         at least MIN_GUARD_DB); NaN where the table gave up.
     report : TableReport
     """
+    scale, f_d = np.asarray(scale, dtype=float), np.asarray(f_d, dtype=float)
     error, guard = np.full(f_d.size, np.nan), np.full(f_d.size, np.nan)
     nodes: dict = {}
-    intervals = [(float(f_d.min()), float(f_d.max()), np.arange(f_d.size))]
+    low, high = float(scale.min()), float(scale.max())
+    count = int(np.ceil((high - low) / max_width)) if high > low and np.isfinite(max_width) else 1
+    edges = low + (high - low) * np.arange(count + 1) / count  # cells no wider than max_width, unchecked
+    edges[-1] = high
+    column = np.clip(np.searchsorted(edges, scale, side="right") - 1, 0, count - 1)
+    cells = [(float(edges[i]), float(edges[i + 1]), 0, float(f_d.min()), float(f_d.max()), 0, part)
+             for i, part in enumerate(members(column, count)) if part.size]
     accepted, worst = 0, 0.0
-    for _depth in range(MAX_DEPTH + 1):
-        if not intervals:
-            break
-        wanted = {x for low, high, _ in intervals for x in (low, high, (low + high) / 2)}
+
+    def logs(point, levels):
+        return _log(_mse_at(nodes[point], levels))
+
+    while cells:
+        wanted = set()
+        for a0, a1, _, b0, b1, _, _ in cells:
+            am, bm = (a0 + a1) / 2, (b0 + b1) / 2
+            wanted |= {(a0, b0), (a0, b1), (a1, b0), (a1, b1), (am, bm), (am, b0), (am, b1), (a0, bm), (a1, bm)}
         missing = sorted(x for x in wanted if x not in nodes)
+        if budget is not None and len(nodes) + len(missing) > budget:
+            break  # the remaining cells' elements go to the exact evaluation
         if missing:
             nodes.update(zip(missing, weights_at(missing)))
         halves = []
-        for low, high, idx in intervals:
-            check = np.array([s2[idx].min(), s2[idx].max()])
-            middle = (low + high) / 2
-            interpolated = (_log(_mse_at(nodes[low], check)) + _log(_mse_at(nodes[high], check))) / 2
-            deviation = float(np.max(np.abs(interpolated - _log(_mse_at(nodes[middle], check))))) * 10 / np.log(10)
+        for a0, a1, depth_a, b0, b1, depth_b, idx in cells:
+            am, bm = (a0 + a1) / 2, (b0 + b1) / 2
+            check = _levels(s2[idx].min(), s2[idx].max())
+            corners = ((a0, b0), (a0, b1), (a1, b0), (a1, b1))  # all four, also where two coincide
+            corner = {p: logs(p, check) for p in corners}
+            along_a = max(_db_apart((corner[a0, b] + corner[a1, b]) / 2, logs((am, b), check)) for b in (b0, b1))
+            along_b = max(_db_apart((corner[a, b0] + corner[a, b1]) / 2, logs((a, bm), check)) for a in (a0, a1))
+            centre = _db_apart(sum(corner[p] for p in corners) / 4, logs((am, bm), check))
+            deviation = max(along_a, along_b, centre)
             if deviation <= TOLERANCE_DB:
-                a = (f_d[idx] - low) / (high - low) if high > low else np.zeros(idx.size)
-                error[idx] = np.exp((1 - a) * _log(_mse_at(nodes[low], s2[idx]))
-                                    + a * _log(_mse_at(nodes[high], s2[idx])))
+                u = (scale[idx] - a0) / (a1 - a0) if a1 > a0 else np.zeros(idx.size)
+                v = (f_d[idx] - b0) / (b1 - b0) if b1 > b0 else np.zeros(idx.size)
+                at = {p: logs(p, s2[idx]) for p in corner}
+                error[idx] = np.exp((1 - u) * ((1 - v) * at[a0, b0] + v * at[a0, b1])
+                                    + u * ((1 - v) * at[a1, b0] + v * at[a1, b1]))
                 guard[idx] = max(GUARD_FACTOR * deviation, MIN_GUARD_DB)
                 accepted, worst = accepted + 1, max(worst, deviation)
                 continue
-            upper = f_d[idx] >= middle
-            halves += [(low, middle, idx[~upper]), (middle, high, idx[upper])]
-        intervals = [h for h in halves if h[2].size]
+            split_a = along_a > TOLERANCE_DB or (along_b <= TOLERANCE_DB and along_a >= along_b and a1 > a0)
+            split_b = along_b > TOLERANCE_DB or not split_a
+            if (split_a and depth_a >= MAX_SCALE_DEPTH) or (split_b and depth_b >= MAX_DEPTH):
+                continue  # given up: left to the exact evaluation
+            parts = [(a0, a1, depth_a, idx)]
+            if split_a:
+                upper = scale[idx] >= am
+                parts = [(a0, am, depth_a + 1, idx[~upper]), (am, a1, depth_a + 1, idx[upper])]
+            for lo, hi, depth, part in parts:
+                if split_b:
+                    upper = f_d[part] >= bm
+                    halves += [(lo, hi, depth, b0, bm, depth_b + 1, part[~upper]),
+                               (lo, hi, depth, bm, b1, depth_b + 1, part[upper])]
+                else:
+                    halves.append((lo, hi, depth, b0, b1, depth_b, part))
+        cells = [h for h in halves if h[-1].size]
     exact = int(np.count_nonzero(np.isnan(error)))
     return error, guard, TableReport(int(f_d.size - exact), exact, len(nodes), accepted, worst,
                                      guard_db=float(np.nanmax(guard)) if exact < f_d.size else 0.0)
+
+
+def factor_resolution(band_hz: float, latest_delay_s: float) -> float:
+    """The widest cell across the delay factor: the latest tap's phase at the band edge turns a quarter turn.
+
+    A site's taps are a shape's delays times its factor ``a``; across the band ``B`` the phase of the tap at
+    delay ``a tau`` spans ``2 pi B a tau``, and the error depends on the delays through such phases (the pilot
+    combs' Gram matrices are Dirichlet kernels of the delay differences). Across a cell of width ``w`` the
+    phase of the latest tap ``tau_max`` moves by ``2 pi B tau_max w``: a quarter turn at
+    ``w = 1 / (4 B tau_max)``, whatever the factor. Wider cells can hold whole swings of the error that
+    checks at a cell's centre and edge midpoints cannot see (a sampling argument, common practice).
+    """
+    return np.inf if band_hz * latest_delay_s <= 0 else 1.0 / (4.0 * band_hz * latest_delay_s)
+
+
+def _levels(smallest, largest):
+    """:data:`CHECK_LEVELS` noise levels from ``smallest`` to ``largest``, evenly in the logarithm (if positive)."""
+    if smallest > 0:
+        return np.geomspace(smallest, largest, CHECK_LEVELS)
+    return np.linspace(smallest, largest, CHECK_LEVELS)
+
+
+def _db_apart(log_a, log_b) -> float:
+    """The largest difference, in dB, between two arrays of natural logarithms of errors."""
+    return float(np.max(np.abs(log_a - log_b))) * 10 / np.log(10)

@@ -421,8 +421,8 @@ def _estimation_error(designs: DesignArrays, environment: Environment, req: Requ
     """(:func:`estimation_error`, True for each design whose error is the comb bound rather than exact,
     the ``error_table.Tabulated`` account when ``tabulate`` (else None)).
 
-    ``tabulate`` (an environment batch, no comb bound): sites sharing a channel, many Dopplers of it, take their
-    error from a table over the Doppler (``numerology.error_table``).
+    ``tabulate`` (an environment batch, no comb bound): sites sharing a channel, or stretching one profile
+    shape, take their error from a table over the Doppler and the stretch (``numerology.error_table``).
     """
     delays, powers = environment.taps
     batch = np.ndim(delays) > 1
@@ -452,8 +452,10 @@ def _estimation_error(designs: DesignArrays, environment: Environment, req: Requ
     of_row = members(inverse, unique.shape[0])
     tabled, account, guard = np.zeros(unique.shape[0], dtype=bool), None, np.full(noise.size, np.nan)
     if tabulate and batch and not comb_bound:
+        family = np.broadcast_to(environment.shape_id, environment.shape).ravel()
+        scale = np.broadcast_to(environment.delay_scale, environment.shape).ravel()
         tabled, account = _tabulated(unique, of_row, noise, out, guard, flat_delays, flat_powers, doppler_hz,
-                                     los_all, environment.doppler_spectrum, rules, mask)
+                                     los_all, family, scale, environment.doppler_spectrum, rules, mask)
     rows = np.flatnonzero(~tabled)
     weights, bounded = _structure_weights(unique[rows], flat_delays, flat_powers, doppler_hz, los_all,
                                           environment.doppler_spectrum, rules, mask, comb_bound)
@@ -474,50 +476,86 @@ def _estimation_error(designs: DesignArrays, environment: Environment, req: Requ
 _SITE_COLUMN = 10
 
 
-def _tabulated(unique, of_row, noise, out, guard, flat_delays, flat_powers, doppler_hz, los_all, spectrum, rules,
-               mask):
+def _tabulated(unique, of_row, noise, out, guard, flat_delays, flat_powers, doppler_hz, los_all, family_all,
+               scale_all, spectrum, rules, mask):
     """The structures (rows of ``unique``) whose error a table gives (``numerology.error_table``): (mask, report).
 
-    Rows that differ only in their site, whose sites share one channel (taps and line of sight), form a
-    group; a group with many distinct Dopplers gets a table over the Doppler, its nodes evaluated exactly
-    as structures of their own (the eigen form: every noise level in closed form). The errors go into
-    ``out`` and their guards (``error_table.tabulate``) into ``guard``; a row is in the mask when all its
-    elements were interpolated.
+    Rows that differ only in their site form a group when their sites are of one channel family: a profile
+    shape that each site stretches by its own delay factor (``family_all`` >= 0, the sweep's shapes,
+    ``scale_all`` the factors), or else the sites sharing one channel exactly (taps and line of sight).
+    A family whose sites take few distinct factors (no more than twice as many as the table would need
+    nodes across the factor, :func:`_few_factors`: rounded delay spreads) is grouped by channel instead,
+    a table over the Doppler per channel. A group with many distinct (factor, Doppler) points gets a table
+    over them, its nodes evaluated exactly as structures of their own (the eigen form: every noise level in
+    closed form) and at most as many as the group has distinct points. The errors go into ``out`` and their
+    guards (``error_table.tabulate``) into ``guard``; a row is in the mask when all its elements were
+    interpolated.
     """
     site = unique[:, _SITE_COLUMN].astype(np.int64)
     channel, _ = distinct_rows(np.ascontiguousarray(np.concatenate(
         [flat_delays * (flat_powers > 0), flat_powers, np.reshape(los_all, (-1, 1))], axis=1)))
+    stretched = family_all >= 0
+    family = np.where(stretched, family_all, family_all.max(initial=-1) + 1 + channel)
+    scale = np.where(stretched, scale_all, 1.0)
     key = unique.copy()
-    key[:, _SITE_COLUMN] = channel[site]
+    key[:, _SITE_COLUMN] = family[site]
     group, first = distinct_rows(np.ascontiguousarray(key))
-    of_group = members(group, first.size)
-    done = np.zeros(unique.shape[0], dtype=bool)
-    report = error_table.TableReport(0, 0, 0, 0, 0.0)
-    for g, head in enumerate(first):
+    groups = []  # (head row, rows, the table's width across the factor)
+    for head, rows in zip(first, members(group, first.size)):
         if SCOPES[int(unique[head, 0])] == "differential":
             continue  # a closed form per site already
-        rows = of_group[g]
-        if np.unique(doppler_hz[site[rows]]).size < error_table.MIN_POINTS:
+        ref = site[head]
+        band = float(unique[head, 7]) * float(unique[head, 8])  # spacing x used subcarriers
+        width = error_table.factor_resolution(band, float(np.max(flat_delays[ref] / scale[ref] * (flat_powers[ref] > 0))))
+        if _few_factors(scale[site[rows]], width):
+            by_channel, heads = distinct_rows(channel[site[rows]][:, None])
+            groups += [(rows[part[0]], rows[part], width) for part in members(by_channel, heads.size)]
+        else:
+            groups.append((head, rows, width))
+    done = np.zeros(unique.shape[0], dtype=bool)
+    report = error_table.TableReport(0, 0, 0, 0, 0.0)
+    for head, rows, width in groups:
+        points = np.unique(np.stack([scale[site[rows]], doppler_hz[site[rows]]], axis=1), axis=0).shape[0]
+        if points < error_table.MIN_POINTS:
             continue
         counts = np.array([of_row[r].size for r in rows])
         elements = np.concatenate([of_row[r] for r in rows])
+        ref = site[head]
+        unit_delays = flat_delays[ref] / scale[ref]  # the family's shape
 
-        def weights_at(dopplers, head=head):
-            n, ref = len(dopplers), site[head]
+        def weights_at(nodes, head=head, ref=ref, unit_delays=unit_delays):
+            n = len(nodes)
+            factor, dopplers = np.array(nodes, dtype=float).reshape(n, 2).T
             template = np.repeat(unique[head:head + 1], n, axis=0)
-            template[:, _SITE_COLUMN] = np.arange(n)  # node i: the group's channel at its own Doppler
-            found, _ = _structure_weights(template, np.repeat(flat_delays[ref:ref + 1], n, axis=0),
-                                          np.repeat(flat_powers[ref:ref + 1], n, axis=0), np.array(dopplers),
+            template[:, _SITE_COLUMN] = np.arange(n)  # node i: the family's shape stretched, at its own Doppler
+            found, _ = _structure_weights(template, unit_delays[None, :] * factor[:, None],
+                                          np.repeat(flat_powers[ref:ref + 1], n, axis=0), dopplers,
                                           np.full(n, los_all[ref]), spectrum, rules, mask, coupled="eigen")
             return found
 
-        error, guard[elements], part = error_table.tabulate(np.repeat(doppler_hz[site[rows]], counts),
-                                                            noise[elements], weights_at)
+        at_sites = site[np.repeat(rows, counts)]
+        error, guard[elements], part = error_table.tabulate(scale[at_sites], doppler_hz[at_sites], noise[elements],
+                                                            weights_at, budget=points, max_width=width)
         out[elements] = error
         row_given_up = np.add.reduceat(np.isnan(error), np.r_[0, np.cumsum(counts)[:-1]]) > 0
         done[rows[~row_given_up]] = True
         report = report.merged(part)
     return done, report
+
+
+def _few_factors(factors, width) -> bool:
+    """Whether sites of these delay factors are better tabulated channel by channel than across the factor.
+
+    A table across the factor needs cells no wider than ``width`` (``error_table.factor_resolution``), so
+    at least ``2 c + 1`` distinct factors among its nodes for ``c`` cells (corners and edge midpoints); with
+    no more than twice as many distinct factors among the sites, a table over the Doppler per channel costs
+    about as little and interpolates nothing across channels.
+    """
+    span = float(np.max(factors) - np.min(factors))
+    if span == 0:
+        return True
+    cells = max(int(np.ceil(span / width)), 1)
+    return np.unique(factors).size <= 2 * (2 * cells + 1)
 
 
 def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, spectrum, rules, phase_mask,
@@ -756,9 +794,10 @@ def evaluate(designs: DesignArrays, environment: Environment, req: Requirements,
         instead of computing it, broadcasting with the result (a picture that
         knows it from nearby points: ``numerology.plots``).
     tabulate : bool
-        With an environment batch: sites sharing a channel, many Dopplers of
-        it, take the estimation error from a table over the Doppler
-        (``numerology.error_table``; within its guard, not exact).
+        With an environment batch: sites sharing a channel (many Dopplers of
+        it) or stretching one profile shape take the estimation error from a
+        table over the Doppler and the stretch (``numerology.error_table``;
+        within its guard, not exact).
         ``Evaluation.table`` then says which elements were interpolated.
 
     Returns

@@ -26,9 +26,10 @@ SCHEMA_VERSION = "2.0"
 #: "direction" and "also" (its value_si is null for a choice); "relaxation_pairs" where no single change does.
 #: numerology.sweep and numerology.sweep_csv 2.1 (keys added): "estimation_table", how the estimation error of sites
 #: sharing a channel was tabulated over the Doppler (null when no table was used); each sweep site's
-#: "estimation_interpolated".
-SCHEMA_VERSIONS: dict = {"numerology.solve": "2.1", "numerology.plan": "1.0", "numerology.sweep": "2.1",
-                         "numerology.sweep_csv": "2.1"}
+#: "estimation_interpolated". 2.2: sites stretching one profile shape may share a table over the stretch and the
+#: Doppler; "intervals" counts the accepted cells (intervals of the Doppler, or rectangles of stretch and Doppler).
+SCHEMA_VERSIONS: dict = {"numerology.solve": "2.1", "numerology.plan": "1.0", "numerology.sweep": "2.2",
+                         "numerology.sweep_csv": "2.2"}
 
 
 def _clean(obj):

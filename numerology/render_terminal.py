@@ -535,7 +535,7 @@ def sweep(con: Console, design, result, out) -> None:
         con.print(f"Worst site: {plain(summary.worst_site)} (line {summary.worst_line}), binding {summary.worst_rule}")
     table_report = result.estimation_table
     if table_report is not None:
-        con.print(f"Estimation error of {_count(table_report.interpolated, 'site')} interpolated over the Doppler from "
+        con.print(f"Estimation error of {_count(table_report.interpolated, 'site')} interpolated from "
                   f"{_count(table_report.nodes, 'exact evaluation')} (checked within {table_report.tolerance_db:g} dB); "
                   f"{table_report.exact} exact, {table_report.settled} of them because their verdict or rate was "
                   f"within the table's guard (at most {table_report.guard_db:.2g} dB)", style="dim")

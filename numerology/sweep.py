@@ -573,7 +573,8 @@ def site_environments(req: Requirements, sites: Sites, notes: bool = True) -> En
         k = 0.0 if env.k_factor_db is None else 10 ** (env.k_factor_db / 10)
         return EnvironmentBatch(empty, c, empty, empty, empty, env.doppler_spectrum, k, empty, empty, rho, empty,
                                 np.zeros((0, 1)), np.zeros((0, 1)), np.zeros(0, dtype=object),
-                                np.zeros(0, dtype=object), empty, empty, empty, empty, los_fraction=empty)
+                                np.zeros(0, dtype=object), empty, empty, empty, empty, los_fraction=empty,
+                                shape_id=np.zeros(0, dtype=np.intp), delay_scale=empty)
     # Doppler, as derive_environment: a wideband signal is evaluated at its upper band edge.
     carrier = sites.carrier_hz
     fraction = radio.bandwidth_hz / carrier
@@ -599,7 +600,8 @@ def site_environments(req: Requirements, sites: Sites, notes: bool = True) -> En
         delays_s=delays, powers=shapes.powers[shape], profile_name=shapes.name[shape],
         profile_source=shapes.source[shape], mean_excess_delay_s=shapes.mean_excess_delay_s[shape] * scale,
         rms_delay_spread_s=shapes.rms_delay_spread_s[shape] * scale, max_excess_delay_s=max_excess,
-        coherence_bandwidth_hz=shapes.coherence_bandwidth_hz[shape] / scale, notes=(), los_fraction=los)
+        coherence_bandwidth_hz=shapes.coherence_bandwidth_hz[shape] / scale, notes=(), los_fraction=los,
+        shape_id=shape, delay_scale=scale)
     return _with_notes(batch, req, sites, fraction, has_speed, shapes.cause[shape]) if notes else batch
 
 
@@ -942,8 +944,8 @@ def sweep(req: Requirements, design: Design, sites: Sites, tabulate: bool = True
     sites : Sites
         From :func:`load_sites` or :func:`sites_from_values`.
     tabulate : bool
-        Sites sharing a channel may take their estimation error from a table over the Doppler
-        (``numerology.error_table``: verdicts, binding rules and rates as the exact error gives them, SINRs
+        Sites sharing a channel or stretching one profile shape may take their estimation error from a table
+        over the Doppler and the stretch (``numerology.error_table``: verdicts, binding rules and rates as the exact error gives them, SINRs
         within the table's guard). False: every site exact (the stretch limits' bisection).
 
     Returns
@@ -1008,8 +1010,8 @@ def _settled(designs, environment, req, site_req, sites, evaluation):
     """(The evaluation again, with the exact estimation error wherever the table's could change a verdict,
     True for each site whose error stays interpolated).
 
-    Each interpolated error is trusted to its guard (``error_table.tabulate``: several times its interval's
-    midpoint check). Every interpolated site whose verdict, binding rule or rate differs between its error
+    Each interpolated error is trusted to its guard (``error_table.tabulate``: several times its cell's
+    largest check). Every interpolated site whose verdict, binding rule or rate differs between its error
     lowered and raised by its guard is evaluated exactly; then all sites once more with the errors so settled
     (the pass/fail, binding rules and rates are then those of the exact errors, the SINRs within the guard).
     """
