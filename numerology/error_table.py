@@ -20,7 +20,9 @@ and SNR. For one design and one channel, the error at pilot noise level
 at a node ``f_D`` give the error at *every* noise level in closed form (the
 eigen form, ``estimation.SpectralWeights``). So the table is over ``f_D``
 alone, each site's noise level is used exactly at the two nodes around it,
-and between them the logarithm of the error is interpolated linearly.
+and between them the logarithm of the error is interpolated linearly in
+``f_D^2`` (the time correlations fall as ``1 - c (f_D t)^2`` at first, so the
+error's excess over a still channel is nearly linear in ``f_D^2``).
 
 Sites whose rms delay spreads differ (unrounded, every site a channel of its
 own) stretch one profile shape by their own factor ``a`` (the taps are the
@@ -38,8 +40,9 @@ well its few checks agree; a family whose sites take few distinct factors
 
 The cells are refined where they need it: a cell is accepted when the
 interpolated error at its centre and at the midpoints of its edges agrees
-with the exact error there within :data:`TOLERANCE_DB`, at the smallest and
-the largest noise level of its sites; otherwise it is halved (at most
+with the exact error there within :data:`TOLERANCE_DB`, at :data:`CHECK_LEVELS`
+noise levels from the smallest to the largest of its sites (the deviation can
+peak between them); otherwise it is halved (at most
 :data:`MAX_DEPTH` times across the Doppler, :data:`MAX_SCALE_DEPTH` across the
 factor), and a cell still not accepted leaves its sites to the exact
 evaluation. For a smooth function, linear interpolation errs most midway
@@ -74,7 +77,7 @@ GUARD_FACTOR, MIN_GUARD_DB = 5.0, 0.01
 MIN_POINTS = 32
 #: The most halvings of the Doppler range.
 MAX_DEPTH = 6
-#: The most halvings of a first cell across the delay factor (at most a quarter turn wide: 1/4096 of it).
+#: The most halvings of a first cell across the delay factor (at most half a turn wide: 1/4096 of it).
 MAX_SCALE_DEPTH = 12
 #: Noise levels at which a cell is checked: its sites' smallest and largest, and between them evenly in the
 #: logarithm (the deviation need not be largest at either end; every level is a closed form at a node).
@@ -169,6 +172,10 @@ def tabulate(scale, f_d, s2, weights_at, budget=None, max_width=np.inf):
     report : TableReport
     """
     scale, f_d = np.asarray(scale, dtype=float), np.asarray(f_d, dtype=float)
+    # The cells' Doppler coordinate is f_D^2: every time correlation of the model falls as 1 - c (f_D t)^2 at
+    # first (Clarke/Jakes: J0(x) = 1 - x^2 / 4 + ...), so the error's excess over a still channel starts in
+    # f_D^2 and is nearly linear in it, where in f_D it is a parabola that needs halving.
+    square = f_d ** 2
     error, guard = np.full(f_d.size, np.nan), np.full(f_d.size, np.nan)
     nodes: dict = {}
     low, high = float(scale.min()), float(scale.max())
@@ -176,7 +183,7 @@ def tabulate(scale, f_d, s2, weights_at, budget=None, max_width=np.inf):
     edges = low + (high - low) * np.arange(count + 1) / count  # cells no wider than max_width, unchecked
     edges[-1] = high
     column = np.clip(np.searchsorted(edges, scale, side="right") - 1, 0, count - 1)
-    cells = [(float(edges[i]), float(edges[i + 1]), 0, float(f_d.min()), float(f_d.max()), 0, part)
+    cells = [(float(edges[i]), float(edges[i + 1]), 0, float(square.min()), float(square.max()), 0, part)
              for i, part in enumerate(members(column, count)) if part.size]
     accepted, worst = 0, 0.0
 
@@ -192,7 +199,7 @@ def tabulate(scale, f_d, s2, weights_at, budget=None, max_width=np.inf):
         if budget is not None and len(nodes) + len(missing) > budget:
             break  # the remaining cells' elements go to the exact evaluation
         if missing:
-            nodes.update(zip(missing, weights_at(missing)))
+            nodes.update(zip(missing, weights_at([(a, float(np.sqrt(b))) for a, b in missing])))
         halves = []
         for a0, a1, depth_a, b0, b1, depth_b, idx in cells:
             am, bm = (a0 + a1) / 2, (b0 + b1) / 2
@@ -205,7 +212,7 @@ def tabulate(scale, f_d, s2, weights_at, budget=None, max_width=np.inf):
             deviation = max(along_a, along_b, centre)
             if deviation <= TOLERANCE_DB:
                 u = (scale[idx] - a0) / (a1 - a0) if a1 > a0 else np.zeros(idx.size)
-                v = (f_d[idx] - b0) / (b1 - b0) if b1 > b0 else np.zeros(idx.size)
+                v = (square[idx] - b0) / (b1 - b0) if b1 > b0 else np.zeros(idx.size)
                 at = {p: logs(p, s2[idx]) for p in corner}
                 error[idx] = np.exp((1 - u) * ((1 - v) * at[a0, b0] + v * at[a0, b1])
                                     + u * ((1 - v) * at[a1, b0] + v * at[a1, b1]))
@@ -222,7 +229,7 @@ def tabulate(scale, f_d, s2, weights_at, budget=None, max_width=np.inf):
                 parts = [(a0, am, depth_a + 1, idx[~upper]), (am, a1, depth_a + 1, idx[upper])]
             for lo, hi, depth, part in parts:
                 if split_b:
-                    upper = f_d[part] >= bm
+                    upper = square[part] >= bm
                     halves += [(lo, hi, depth, b0, bm, depth_b + 1, part[~upper]),
                                (lo, hi, depth, bm, b1, depth_b + 1, part[upper])]
                 else:
@@ -234,16 +241,17 @@ def tabulate(scale, f_d, s2, weights_at, budget=None, max_width=np.inf):
 
 
 def factor_resolution(band_hz: float, latest_delay_s: float) -> float:
-    """The widest cell across the delay factor: the latest tap's phase at the band edge turns a quarter turn.
+    """The widest cell across the delay factor: the latest tap's phase at the band edge turns half a turn.
 
     A site's taps are a shape's delays times its factor ``a``; across the band ``B`` the phase of the tap at
     delay ``a tau`` spans ``2 pi B a tau``, and the error depends on the delays through such phases (the pilot
     combs' Gram matrices are Dirichlet kernels of the delay differences). Across a cell of width ``w`` the
-    phase of the latest tap ``tau_max`` moves by ``2 pi B tau_max w``: a quarter turn at
-    ``w = 1 / (4 B tau_max)``, whatever the factor. Wider cells can hold whole swings of the error that
-    checks at a cell's centre and edge midpoints cannot see (a sampling argument, common practice).
+    phase of the latest tap ``tau_max`` moves by ``2 pi B tau_max w``: half a turn at
+    ``w = 1 / (2 B tau_max)``, whatever the factor, so the checks at a cell's edge midpoints sample every
+    quarter turn. Wider cells can hold whole swings of the error that checks at a few points cannot see
+    (a sampling argument, common practice; the measurements are in DEVELOPERS.md).
     """
-    return np.inf if band_hz * latest_delay_s <= 0 else 1.0 / (4.0 * band_hz * latest_delay_s)
+    return np.inf if band_hz * latest_delay_s <= 0 else 1.0 / (2.0 * band_hz * latest_delay_s)
 
 
 def _levels(smallest, largest):

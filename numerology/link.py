@@ -483,9 +483,9 @@ def _tabulated(unique, of_row, noise, out, guard, flat_delays, flat_powers, dopp
     Rows that differ only in their site form a group when their sites are of one channel family: a profile
     shape that each site stretches by its own delay factor (``family_all`` >= 0, the sweep's shapes,
     ``scale_all`` the factors), or else the sites sharing one channel exactly (taps and line of sight).
-    A family whose sites take few distinct factors (no more than twice as many as the table would need
-    nodes across the factor, :func:`_few_factors`: rounded delay spreads) is grouped by channel instead,
-    a table over the Doppler per channel. A group with many distinct (factor, Doppler) points gets a table
+    A family whose sites are cheaper to tabulate channel by channel (few distinct factors, each of many
+    Dopplers: rounded delay spreads; :func:`_few_factors`) is grouped by channel instead, a table over the
+    Doppler per channel. A group with many distinct (factor, Doppler) points gets a table
     over them, its nodes evaluated exactly as structures of their own (the eigen form: every noise level in
     closed form) and at most as many as the group has distinct points. The errors go into ``out`` and their
     guards (``error_table.tabulate``) into ``guard``; a row is in the mask when all its elements were
@@ -507,7 +507,7 @@ def _tabulated(unique, of_row, noise, out, guard, flat_delays, flat_powers, dopp
         ref = site[head]
         band = float(unique[head, 7]) * float(unique[head, 8])  # spacing x used subcarriers
         width = error_table.factor_resolution(band, float(np.max(flat_delays[ref] / scale[ref] * (flat_powers[ref] > 0))))
-        if _few_factors(scale[site[rows]], width):
+        if _few_factors(scale[site[rows]], doppler_hz[site[rows]], width):
             by_channel, heads = distinct_rows(channel[site[rows]][:, None])
             groups += [(rows[part[0]], rows[part], width) for part in members(by_channel, heads.size)]
         else:
@@ -543,19 +543,29 @@ def _tabulated(unique, of_row, noise, out, guard, flat_delays, flat_powers, dopp
     return done, report
 
 
-def _few_factors(factors, width) -> bool:
-    """Whether sites of these delay factors are better tabulated channel by channel than across the factor.
+#: Exact evaluations a table across the delay factor has needed per factor of its first grid (its corners and
+#: edge midpoints, 2 c + 1 for c cells), the Doppler and the refinement included: 9.5 on 10^5 harbour_crane
+#: sites (1,390 nodes for 147 factors, 0-60 km/h), where a table over the Doppler of one channel needed 3.
+FAMILY_NODES_PER_FACTOR, CHANNEL_NODES = 9.5, 3
+
+
+def _few_factors(factors, dopplers, width) -> bool:
+    """Whether sites of these delay factors and Dopplers are better tabulated channel by channel.
 
     A table across the factor needs cells no wider than ``width`` (``error_table.factor_resolution``), so
-    at least ``2 c + 1`` distinct factors among its nodes for ``c`` cells (corners and edge midpoints); with
-    no more than twice as many distinct factors among the sites, a table over the Doppler per channel costs
-    about as little and interpolates nothing across channels.
+    about :data:`FAMILY_NODES_PER_FACTOR` exact evaluations for each of the ``2 c + 1`` factors of its first
+    grid of ``c`` cells. Channel by channel, a channel with at least ``error_table.MIN_POINTS`` Dopplers needs
+    about :data:`CHANNEL_NODES` (a table over the Doppler) and any other one evaluation per distinct Doppler.
+    Where the second is no more, the sites are tabulated per channel (nothing interpolated across channels).
     """
     span = float(np.max(factors) - np.min(factors))
     if span == 0:
         return True
     cells = max(int(np.ceil(span / width)), 1)
-    return np.unique(factors).size <= 2 * (2 * cells + 1)
+    points, first = distinct_rows(np.stack([factors, dopplers], axis=1))
+    per_channel = np.bincount(distinct_rows(factors[first][:, None])[0])  # distinct Dopplers of each channel
+    cost = np.sum(np.where(per_channel >= error_table.MIN_POINTS, CHANNEL_NODES, per_channel))
+    return cost <= FAMILY_NODES_PER_FACTOR * (2 * cells + 1)
 
 
 def _structure_weights(unique, flat_delays, flat_powers, doppler_hz, los_all, spectrum, rules, phase_mask,
