@@ -506,7 +506,8 @@ def _tabulated(unique, of_row, noise, out, guard, flat_delays, flat_powers, dopp
             continue  # a closed form per site already
         ref = site[head]
         band = float(unique[head, 7]) * float(unique[head, 8])  # spacing x used subcarriers
-        width = error_table.factor_resolution(band, float(np.max(flat_delays[ref] / scale[ref] * (flat_powers[ref] > 0))))
+        latest = float(np.max(flat_delays[ref] * (flat_powers[ref] > 0))) / scale[ref]  # of the unit shape
+        width = error_table.factor_resolution(band, latest)
         if _few_factors(scale[site[rows]], doppler_hz[site[rows]], width):
             by_channel, heads = distinct_rows(channel[site[rows]][:, None])
             groups += [(rows[part[0]], rows[part], width) for part in members(by_channel, heads.size)]
@@ -515,7 +516,7 @@ def _tabulated(unique, of_row, noise, out, guard, flat_delays, flat_powers, dopp
     done = np.zeros(unique.shape[0], dtype=bool)
     report = error_table.TableReport(0, 0, 0, 0, 0.0)
     for head, rows, width in groups:
-        points = np.unique(np.stack([scale[site[rows]], doppler_hz[site[rows]]], axis=1), axis=0).shape[0]
+        points = distinct_rows(np.stack([scale[site[rows]], doppler_hz[site[rows]]], axis=1))[1].size
         if points < error_table.MIN_POINTS:
             continue
         counts = np.array([of_row[r].size for r in rows])
@@ -562,7 +563,7 @@ def _few_factors(factors, dopplers, width) -> bool:
     if span == 0:
         return True
     cells = max(int(np.ceil(span / width)), 1)
-    points, first = distinct_rows(np.stack([factors, dopplers], axis=1))
+    _, first = distinct_rows(np.stack([factors, dopplers], axis=1))
     per_channel = np.bincount(distinct_rows(factors[first][:, None])[0])  # distinct Dopplers of each channel
     cost = np.sum(np.where(per_channel >= error_table.MIN_POINTS, CHANNEL_NODES, per_channel))
     return cost <= FAMILY_NODES_PER_FACTOR * (2 * cells + 1)
