@@ -9,7 +9,7 @@ import json
 import numpy as np
 import pytest
 
-from numerology import api, error_table, sweep
+from numerology import api, error_table, link, sweep
 from numerology.render_json import document
 from numerology.estimation import SpectralWeights
 
@@ -71,10 +71,15 @@ def test_a_profile_stretched_site_by_site_is_tabulated_over_its_factor(stretched
     assert np.max(np.abs(tabled.effective_sinr_db - exact.effective_sinr_db)) <= report.guard_db
 
 
-def test_a_table_never_makes_more_exact_evaluations_than_its_sites_distinct_points(stretched):
+def test_a_table_never_makes_more_exact_evaluations_than_its_sites_distinct_points(stretched, monkeypatch):
     req, design, sites = stretched
     few = sites.take(np.arange(40))  # 40 distinct (rms, speed) points: too few for the stretched profile's table
+    monkeypatch.setattr(link, "_few_factors", lambda *args: False)  # a table across the stretch all the same
+    calls = []
+    tabulate = error_table.tabulate
+    monkeypatch.setattr(error_table, "tabulate", lambda *args, **kw: calls.append(kw["budget"]) or tabulate(*args, **kw))
     report = sweep.sweep(req, design, few).estimation_table
+    assert calls == [40]
     assert report is None or report.nodes <= 40
 
 
