@@ -89,16 +89,16 @@ def _weights(f_d, law):
     return SpectralWeights("lmmse", lam, np.array([1.0 - law(f_d)]), 1.0)
 
 
-def _at_doppler(law):
-    """``weights_at`` of a law of the Doppler alone (every element of one delay factor)."""
-    return lambda points: [_weights(f, law) for _, f in points]
+def _at_doppler(weights):
+    """``weights_at`` of weights of the Doppler alone (every element of one delay factor)."""
+    return lambda points: [weights(f) for _, f in points]
 
 
 def test_smooth_error_is_interpolated_within_the_tolerance():
     law = lambda f: 0.01 + 1e-6 * f ** 2  # noqa: E731  (smooth in the Doppler)
     rng = np.random.default_rng(0)
     f_d, s2 = rng.uniform(0, 300, 5000), 10 ** rng.uniform(-3, -1, 5000)
-    error, guard, report = error_table.tabulate(np.ones(f_d.size), f_d, s2, _at_doppler(law))
+    error, guard, report = error_table.tabulate(np.ones(f_d.size), f_d, s2, _at_doppler(lambda f: _weights(f, law)))
     exact = np.array([_weights(f, law).mse(np.array([s]))[0] for f, s in zip(f_d, s2)])
     assert not np.isnan(error).any() and report.nodes < 50
     assert np.all(np.abs(10 * np.log10(error / exact)) <= guard)  # each error within its own guard
@@ -107,7 +107,8 @@ def test_smooth_error_is_interpolated_within_the_tolerance():
 def test_a_jump_is_left_to_the_exact_evaluation():
     law = lambda f: 0.01 if f < 123.4 else 0.2  # noqa: E731  (no interpolation can follow a step)
     f_d = np.linspace(0, 300, 2000)
-    error, guard, report = error_table.tabulate(np.ones(f_d.size), f_d, np.full(f_d.size, 1e-2), _at_doppler(law))
+    error, guard, report = error_table.tabulate(np.ones(f_d.size), f_d, np.full(f_d.size, 1e-2),
+                                                _at_doppler(lambda f: _weights(f, law)))
     given_up = np.isnan(error)
     np.testing.assert_array_equal(np.isnan(guard), given_up)
     assert given_up.any() and report.exact == np.count_nonzero(given_up)
@@ -128,6 +129,26 @@ def test_an_error_oscillating_in_the_delay_factor_is_interpolated_over_both_with
     exact = law(scale, f_d) + s2 / (1 + s2) * (1 - law(scale, f_d))
     assert not np.isnan(error).any() and report.intervals > 4
     assert np.all(np.abs(10 * np.log10(error / exact)) <= guard)
+
+
+def test_a_deviation_peaking_between_the_extreme_noise_levels_is_caught():
+    # two modes whose Doppler dependences cancel at low noise and fade together at high noise: the interpolation
+    # misses most at noise levels in between (checked at the two extremes alone, 1,689 of 4,000 errors fell
+    # outside their guard, by up to 0.12 dB)
+    small, large, a1, a2, c = 0.01, 1.0, 0.0045, 0.45, 0.9
+
+    def weights(f):
+        g = np.sin(np.pi * f / 300)
+        beta = [a1 * (1 + c * g), a2 * (1 - c * g * large * a1 / (small * a2))]
+        return SpectralWeights("lmmse", np.array([small, large]), np.array(beta), 1.0)
+
+    rng = np.random.default_rng(1)
+    f_d, s2 = rng.uniform(0, 300, 4000), 10 ** rng.uniform(-4, 1, 4000)
+    error, guard, report = error_table.tabulate(np.ones(f_d.size), f_d, s2, _at_doppler(weights))
+    exact = np.array([weights(f).mse(np.array([s]))[0] for f, s in zip(f_d, s2)])
+    kept = ~np.isnan(error)
+    assert kept.sum() > 3000
+    assert np.all(np.abs(10 * np.log10(error[kept] / exact[kept])) <= guard[kept])
 
 
 def test_a_table_gives_up_rather_than_pass_its_budget():
