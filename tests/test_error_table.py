@@ -75,9 +75,13 @@ def test_a_table_never_makes_more_exact_evaluations_than_its_sites_distinct_poin
     req, design, sites = stretched
     few = sites.take(np.arange(40))  # 40 distinct (rms, speed) points: too few for the stretched profile's table
     monkeypatch.setattr(link, "_few_factors", lambda *args: False)  # a table across the stretch all the same
-    calls = []
-    tabulate = error_table.tabulate
-    monkeypatch.setattr(error_table, "tabulate", lambda *args, **kw: calls.append(kw["budget"]) or tabulate(*args, **kw))
+    calls, tabulate = [], error_table.tabulate
+
+    def counted(*args, **kw):
+        calls.append(kw["budget"])
+        return tabulate(*args, **kw)
+
+    monkeypatch.setattr(error_table, "tabulate", counted)
     report = sweep.sweep(req, design, few).estimation_table
     assert calls == [40]
     assert report is None or report.nodes <= 40
