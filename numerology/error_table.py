@@ -135,10 +135,10 @@ def tabulate(scale, f_d, s2, weights_at, budget=None, max_width=np.inf):
     """The estimation error of elements at (scale, f_D, s2) of one channel family, from a refined table.
 
     A family is a profile shape whose delays each site stretches by its own factor (``scale``); sites of
-    one channel share one factor. The table is over the rectangle of factors and squared Dopplers its elements
-    span (see the comment in the code); a cell is accepted when the bilinear interpolation of the logarithm of the error from its four corners
-    agrees with the exact error at its centre and at the midpoints of its four edges within
-    :data:`TOLERANCE_DB` (at :data:`CHECK_LEVELS` noise levels from its elements' smallest to their largest).
+    one channel share one factor. The table is over the rectangle of factors and squared Dopplers its
+    elements span (see the comment in the code); a cell is accepted when the bilinear interpolation of the
+    logarithm of the error from its four corners agrees with the exact error at its centre and at the
+    midpoints of its four edges within :data:`TOLERANCE_DB` (at :data:`CHECK_LEVELS` noise levels from its elements' smallest to their largest).
     Otherwise it is halved across the factor where an edge midpoint along the factor misses, across the
     Doppler where one along the Doppler misses, or across the one that misses more where only the centre
     does (at most :data:`MAX_DEPTH` halvings of the Doppler range and :data:`MAX_SCALE_DEPTH` of each first

@@ -916,9 +916,9 @@ def _direct_explained(piece: _Cluster, s2):
     targets), which each target reads with its own coefficients (:meth:`_Cluster.explained`). In that
     basis a term weighs a direction of small time correlation by the target's own small coefficient
     along it, so no two large terms cancel (the per-symbol basis would: its blocks grow as 1/s2 where the
-    time correlation is nearly singular). Pairs whose noise is tiny against the matrix's scale (:data:`DIRECT_MIN_NOISE`), a
-    failed factorisation or a result that is not finite: the eigendecomposition
-    (:func:`_eigen_explained`), for those designs alone, so that a design's value never depends on the
+    time correlation is nearly singular). Pairs whose noise is tiny against the matrix's scale
+    (:data:`DIRECT_MIN_NOISE`), a failed factorisation or a result that is not finite: the
+    eigendecomposition (:func:`_eigen_explained`), for those designs alone, so that a design's value never depends on the
     others asked with it (the same input gives the same JSON).
     """
     if s2.size > 1:

@@ -275,7 +275,8 @@ def anchor_designs(req: Requirements, environment: Environment, grid: cand.Grid,
         best = np.full(count, -np.inf)
         np.maximum.at(best, numerology, bound[objective])
         chosen |= set(np.argsort(-best, kind="stable")[:NUMEROLOGIES_PER_ANCHOR].tolist())
-    of_numerology = group_members(numerology, count, np.lexsort((np.arange(grid.size), -bound["throughput"], numerology)))
+    by_bound = np.lexsort((np.arange(grid.size), -bound["throughput"], numerology))  # best bound first in each
+    of_numerology = group_members(numerology, count, by_bound)
     in_turn = [of_numerology[k] for k in sorted(chosen)]  # a few numerologies: a short loop
     positions = [_ladder(0, m.size - 1) for m in in_turn]
     first_round = [m[p] for m, p in zip(in_turn, positions)]

@@ -945,8 +945,8 @@ def sweep(req: Requirements, design: Design, sites: Sites, tabulate: bool = True
         From :func:`load_sites` or :func:`sites_from_values`.
     tabulate : bool
         Sites sharing a channel or stretching one profile shape may take their estimation error from a table
-        over the Doppler and the stretch (``numerology.error_table``: verdicts, binding rules and rates as the exact error gives them, SINRs
-        within the table's guard). False: every site exact (the stretch limits' bisection).
+        over the Doppler and the stretch (``numerology.error_table``: verdicts, binding rules and rates as the
+        exact error gives them, SINRs within the table's guard). False: every site exact (the stretch limits' bisection).
 
     Returns
     -------
